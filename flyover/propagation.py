@@ -56,12 +56,8 @@ def travel_time_s(source_enu_m, mic_enu_m, wind_enu_m_s, c_m_s):
     ndarray, shape (..., n_mics)
         T = [-(d.U) + sqrt((d.U)^2 + (c^2 - U^2) d.d)] / (c^2 - U^2), d = x_m - x_s.
     """
-    d = np.asarray(mic_enu_m, float) - np.asarray(source_enu_m, float)[..., None, :]
-    u = np.asarray(wind_enu_m_s, float)
-    du = d @ u
-    dd = np.einsum("...i,...i->...", d, d)
-    a = c_m_s ** 2 - u @ u
-    return (-du + np.sqrt(du ** 2 + a * dd)) / a
+    src = np.asarray(source_enu_m, float)[..., None, :]
+    return paths_between(src, np.zeros_like(src), mic_enu_m, wind_enu_m_s, c_m_s).travel_time_s
 
 
 def paths(source_enu_m, source_velocity_enu_m_s, mic_enu_m, wind_enu_m_s, c_m_s) -> Paths:
@@ -79,15 +75,32 @@ def paths(source_enu_m, source_velocity_enu_m_s, mic_enu_m, wind_enu_m_s, c_m_s)
     Returns
     -------
     Paths
+        Arrays of shape (..., n_mics).
+    """
+    src = np.asarray(source_enu_m, float)[..., None, :]
+    vel = np.asarray(source_velocity_enu_m_s, float)[..., None, :]
+    return paths_between(src, vel, mic_enu_m, wind_enu_m_s, c_m_s)
+
+
+def paths_between(source_enu_m, source_velocity_enu_m_s, mic_enu_m, wind_enu_m_s, c_m_s) -> Paths:
+    """Like :func:`paths`, but source and microphone arrays broadcast element by element.
+
+    Parameters
+    ----------
+    source_enu_m, source_velocity_enu_m_s, mic_enu_m : ndarray, shape (..., 3)
+        Broadcast against each other; the result has the broadcast leading shape.
     """
     src = np.asarray(source_enu_m, float)
     vel = np.asarray(source_velocity_enu_m_s, float)
     u = np.asarray(wind_enu_m_s, float)
-    t = travel_time_s(src, mic_enu_m, u, c_m_s)
-    d = np.asarray(mic_enu_m, float) - src[..., None, :]
-    r = np.linalg.norm(d, axis=-1)
+    d = np.asarray(mic_enu_m, float) - src
+    du = d @ u
+    dd = np.einsum("...i,...i->...", d, d)
+    a = c_m_s ** 2 - u @ u
+    t = (-du + np.sqrt(du ** 2 + a * dd)) / a
+    r = np.sqrt(dd)
     # Unit propagation direction in the medium frame.
     n = (d - t[..., None] * u) / (c_m_s * t[..., None])
-    mach_r = np.einsum("...mi,...i->...m", n, vel - u) / c_m_s
+    mach_r = np.einsum("...i,...i->...", n, vel - u) / c_m_s
     doppler = (1.0 - mach_r) / (1.0 + (n @ u) / c_m_s)
     return Paths(t, r, mach_r, doppler)

@@ -23,8 +23,12 @@ def datetime64_ns(utc_ns) -> np.ndarray:
 
 
 def iso_utc(utc_ns: int) -> str:
-    """ISO 8601 text with a 'Z' zone and millisecond precision, e.g. 2026-05-14T09:31:07.300Z."""
-    return str(np.datetime64(int(utc_ns), "ns").astype("datetime64[ms]")) + "Z"
+    """ISO 8601 text with a 'Z' zone: milliseconds when exact, else nanoseconds.
+
+    e.g. 2026-05-14T09:31:07.300Z
+    """
+    unit = "ms" if int(utc_ns) % 1_000_000 == 0 else "ns"
+    return str(np.datetime64(int(utc_ns), "ns").astype(f"datetime64[{unit}]")) + "Z"
 
 
 @dataclass(frozen=True)

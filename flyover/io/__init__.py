@@ -1,0 +1,1 @@
+"""Readers and writers: the only part of flyover that opens files."""

@@ -1,0 +1,263 @@
+"""Read and validate a campaign config (YAML) into :class:`flyover.campaign.Campaign`."""
+
+from __future__ import annotations
+
+import json
+from functools import lru_cache
+from pathlib import Path
+
+import numpy as np
+import yaml
+from jsonschema import Draft202012Validator
+
+from ..atmosphere import Atmosphere
+from ..campaign import (AnalysisSettings, ArraySpec, Campaign, PassSpec, Region, VehicleGrid)
+from ..errors import FlyoverInputError, suggest
+from ..frames import SiteFrame
+from .timestamps import parse_utc_ns
+
+
+@lru_cache(maxsize=1)
+def campaign_schema() -> dict:
+    """The JSON schema of a campaign config (also shipped as ``config/campaign.schema.json``)."""
+    return read_schema("campaign")
+
+
+def read_schema(name: str) -> dict:
+    """A JSON schema shipped with the package (``flyover/schema/<name>.schema.json``)."""
+    path = Path(__file__).resolve().parent.parent / "schema" / f"{name}.schema.json"
+    return json.loads(path.read_text(encoding="utf-8"))
+
+
+def read_yaml(path: Path) -> dict:
+    """Read a YAML mapping, turning syntax errors into messages with the line number."""
+    path = Path(path)
+    if not path.is_file():
+        raise FlyoverInputError("file not found", str(path), "an existing YAML file",
+                                hint="check the path (relative paths start at the current folder)")
+    try:
+        data = yaml.safe_load(path.read_text(encoding="utf-8"))
+    except yaml.YAMLError as exc:
+        mark = getattr(exc, "problem_mark", None)
+        where = f"{path}, line {mark.line + 1}" if mark is not None else str(path)
+        problem = getattr(exc, "problem", None) or "not valid YAML"
+        raise FlyoverInputError(f"YAML syntax error: {problem}", where,
+                                hint="look for a missing colon, a tab or unbalanced quotes "
+                                     "at or just above that line") from None
+    except UnicodeDecodeError:
+        raise FlyoverInputError("not a text file", str(path), "a UTF-8 YAML file") from None
+    if not isinstance(data, dict):
+        raise FlyoverInputError("the file is not a mapping of keys", str(path),
+                                "top-level keys such as site:, array:, passes:",
+                                f"{type(data).__name__}")
+    return data
+
+
+def _key_path(parts) -> str:
+    return ".".join(str(p) for p in parts)
+
+
+def _schema_at(schema: dict, path) -> dict:
+    """The sub-schema that describes the value at ``path`` (follows $ref and additionalProperties)."""
+    root = campaign_schema()
+    node = schema
+    for part in path:
+        node = _resolve(root, node)
+        props = node.get("properties", {})
+        if part in props:
+            node = props[part]
+        elif isinstance(node.get("additionalProperties"), dict):
+            node = node["additionalProperties"]
+        elif "items" in node:
+            node = node["items"]
+        else:
+            return {}
+    return _resolve(root, node)
+
+
+def _resolve(root: dict, node: dict) -> dict:
+    while "$ref" in node:
+        node = root["$defs"][node["$ref"].rsplit("/", 1)[-1]]
+    return node
+
+
+def validate_campaign_mapping(data: dict, source: str) -> None:
+    """Check a campaign mapping against the schema; raise on the first problem, clearly worded."""
+    schema = campaign_schema()
+    errors = sorted(Draft202012Validator(schema).iter_errors(data),
+                    key=lambda e: (len(e.absolute_path), _key_path(e.absolute_path)))
+    if not errors:
+        return
+    err = errors[0]
+    path = list(err.absolute_path)
+    where = f"{source}, key {_key_path(path)}" if path else source
+    if err.validator == "additionalProperties":
+        known = sorted(_schema_at(schema, path).get("properties", {}))
+        extra = [k for k in err.instance if k not in known]
+        key = extra[0] if extra else "?"
+        full = _key_path(path + [key])
+        raise FlyoverInputError(f"unknown key '{full}'", source,
+                                f"one of: {', '.join(known)}" if known else "",
+                                hint=suggest(key, known) or "remove it or check its indentation")
+    if err.validator == "required":
+        missing = err.message.split("'")[1] if "'" in err.message else err.message
+        raise FlyoverInputError(f"missing key '{_key_path(path + [missing])}'", source,
+                                f"a value for '{missing}'",
+                                hint="see `flyover template` for a complete commented example")
+    if err.validator == "type":
+        raise FlyoverInputError("wrong type of value", where, f"a {err.validator_value}",
+                                f"{err.instance!r}")
+    if err.validator in ("minimum", "maximum", "exclusiveMinimum", "exclusiveMaximum"):
+        sub = _schema_at(schema, path)
+        lo = sub.get("minimum", sub.get("exclusiveMinimum"))
+        hi = sub.get("maximum", sub.get("exclusiveMaximum"))
+        bounds = (f"from {lo} to {hi}" if lo is not None and hi is not None
+                  else f"above {lo}" if lo is not None else f"at most {hi}")
+        raise FlyoverInputError("value out of range", where, f"a number {bounds}",
+                                f"{err.instance!r}", _unit_hint(path[-1] if path else ""))
+    if err.validator == "enum":
+        options = ", ".join(repr(v) for v in err.validator_value)
+        hint = suggest(str(err.instance), [str(v) for v in err.validator_value])
+        raise FlyoverInputError("value not allowed", where, f"one of {options}",
+                                f"{err.instance!r}", hint)
+    if err.validator in ("minItems", "maxItems"):
+        raise FlyoverInputError("wrong number of items", where, "[min, max]" if
+                                "range" in json.dumps(_schema_at(schema, path[:-1])) else
+                                f"{err.validator} {err.validator_value}", f"{err.instance!r}")
+    if err.validator == "oneOf" and path and path[-1] == "clock_offset_s":
+        raise FlyoverInputError("wrong clock offset", where, "a number of seconds or 'auto'",
+                                f"{err.instance!r}")
+    raise FlyoverInputError(err.message, where)
+
+
+def _unit_hint(key: str) -> str:
+    if key.endswith("_c"):
+        return "temperatures are in degrees Celsius"
+    if key.endswith("_pct"):
+        return "humidity is a percentage from 0 to 100"
+    if key.endswith("_kpa"):
+        return "pressure is in kPa (1013 hPa = 101.3 kPa)"
+    return ""
+
+
+def _resolve_path(base: Path, value: str) -> Path:
+    p = Path(value).expanduser()
+    return p if p.is_absolute() else (base / p).resolve()
+
+
+def _atmosphere(merged: dict, where: str) -> Atmosphere:
+    for key in ("temperature_c", "relative_humidity_pct"):
+        if key not in merged:
+            raise FlyoverInputError(f"missing key '{where}.{key}'", "",
+                                    "a value in the pass's atmosphere or in the campaign-level "
+                                    "'atmosphere' default")
+    return Atmosphere(**merged)
+
+
+def _range(value) -> tuple[float, float]:
+    return float(value[0]), float(value[1])
+
+
+def load_campaign(path) -> Campaign:
+    """Read, validate and convert a campaign config file.
+
+    Relative paths in the file are taken relative to the file's folder.
+
+    Raises
+    ------
+    FlyoverInputError
+        With the key path, the expected and the found value.
+    """
+    path = Path(path).resolve()
+    data = read_yaml(path)
+    return campaign_from_mapping(data, path)
+
+
+def campaign_from_mapping(data: dict, path: Path) -> Campaign:
+    """Build a :class:`Campaign` from an already parsed mapping (``path`` locates relative files)."""
+    source = str(path)
+    validate_campaign_mapping(data, source)
+    base = path.parent
+    site_cfg = data["site"]
+    site = SiteFrame(site_cfg["origin_lat_deg"], site_cfg["origin_lon_deg"],
+                     site_cfg["origin_height_m"])
+    arr = data["array"]
+    array = ArraySpec(_resolve_path(base, arr["layout"]), arr["mounting"],
+                      arr.get("height_datum", "ellipsoidal"),
+                      tuple(arr.get("exclude_channels", ())))
+    default_atm = data.get("atmosphere", {})
+    passes = {}
+    for name, p in data["passes"].items():
+        where = f"passes.{name}"
+        try:
+            start_ns = parse_utc_ns(p["recording_start_utc"])
+        except FlyoverInputError as exc:
+            raise FlyoverInputError(exc.what, f"{source}, key {where}.recording_start_utc",
+                                    exc.expected, exc.found, exc.hint) from None
+        passes[name] = PassSpec(
+            name=name,
+            recording=_resolve_path(base, p["recording"]),
+            calibration=_resolve_path(base, p["calibration"]),
+            track=_resolve_path(base, p["track"]),
+            recording_start_utc_ns=start_ns,
+            clock_offset_s=p["clock_offset_s"],
+            atmosphere=_atmosphere({**default_atm, **p.get("atmosphere", {})},
+                                   f"{where}.atmosphere"),
+            label=p.get("label", ""),
+            rate_error_ppm=float(p.get("rate_error_ppm", 0.0)),
+            track_time_scale=p.get("track_time_scale", "utc"),
+            track_height_datum=p.get("track_height_datum", "ellipsoidal"),
+            track_position_noise_m=float(p.get("track_position_noise_m", 0.05)),
+            exclude_channels=tuple(p.get("exclude_channels", ())),
+        )
+    geoid = site_cfg.get("geoid_undulation_m")
+    needs_geoid = array.height_datum == "msl" or any(
+        ps.track_height_datum == "msl" for ps in passes.values())
+    if needs_geoid and geoid is None:
+        raise FlyoverInputError(
+            "heights above mean sea level need the geoid undulation", f"{source}, key site",
+            "site.geoid_undulation_m (metres of the geoid above the WGS84 ellipsoid at the site)",
+            "none", "flyover does not guess it: PROJ without a geoid grid silently leaves heights "
+                    "unchanged; take N from a survey or a geoid model for the site")
+    veh = data["vehicle"]
+    g = veh["grid"]
+    grid = VehicleGrid(_range(g["x_m"]), _range(g["y_m"]), float(g["spacing_m"]),
+                       float(g.get("z_m", 0.0)))
+    regions = {name: Region(name, _range(r["x_m"]), _range(r["y_m"]))
+               for name, r in veh["regions"].items()}
+    for r in regions.values():
+        c = r.center_m
+        if not (grid.x_m[0] <= c[0] <= grid.x_m[1] and grid.y_m[0] <= c[1] <= grid.y_m[1]):
+            raise FlyoverInputError(f"region '{r.name}' lies outside the vehicle grid",
+                                    f"{source}, key vehicle.regions.{r.name}",
+                                    f"x within {list(grid.x_m)} and y within {list(grid.y_m)}",
+                                    f"centre at x = {c[0]}, y = {c[1]}")
+    an = data["analysis"]
+    ref = an["reference_atmosphere"]
+    analysis = AnalysisSettings(
+        window_s=float(an["window_s"]), hop_s=float(an["hop_s"]),
+        band_min_hz=float(an["band_min_hz"]), band_max_hz=float(an["band_max_hz"]),
+        reference_distance_m=float(an["reference_distance_m"]),
+        reference_atmosphere=Atmosphere(ref["temperature_c"], ref["relative_humidity_pct"],
+                                        ref.get("pressure_kpa", 101.325)),
+        interpolation=an.get("interpolation", "cubic"),
+        diagonal_removal=bool(an.get("diagonal_removal", True)),
+        max_polar_offset_deg=float(an.get("max_polar_offset_deg", 60.0)),
+    )
+    if analysis.band_min_hz > analysis.band_max_hz:
+        raise FlyoverInputError("band range inverted", f"{source}, key analysis.band_min_hz",
+                                "band_min_hz <= band_max_hz",
+                                f"{analysis.band_min_hz} > {analysis.band_max_hz}")
+    outline = tuple(_range(v) for v in veh.get("outline_m", ()))
+    scenario = _resolve_path(base, data["scenario"]) if "scenario" in data else None
+    return Campaign(path, site, None if geoid is None else float(geoid), array, passes, grid,
+                    regions, analysis, _resolve_path(base, data["output"]), outline, scenario)
+
+
+def grid_size_check(grid: VehicleGrid, source: str, max_points: int = 200_000) -> None:
+    """Refuse a vehicle grid so fine that the maps would not fit in memory."""
+    n = int(np.prod(grid.shape))
+    if n > max_points:
+        raise FlyoverInputError("vehicle grid too large", f"{source}, key vehicle.grid",
+                                f"at most {max_points} points", f"{grid.shape[0]} x "
+                                f"{grid.shape[1]} = {n} points", "use a coarser spacing_m")

@@ -1,0 +1,129 @@
+"""Load everything one pass needs, checked, as core objects."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..campaign import Campaign, PassSpec
+from ..errors import FlyoverInputError
+from ..timebase import RecordingClock, iso_utc
+from ..track import TrackModel, fit_track
+from .recording import RecordingInfo, recording_info
+from .tables import ArrayLayout, read_calibration, read_layout, read_track
+
+
+@dataclass(frozen=True)
+class PassInputs:
+    """A pass's inputs, validated and converted.
+
+    Attributes
+    ----------
+    spec : PassSpec
+    layout : ArrayLayout
+    pa_per_unit : ndarray, shape (n_mics,)
+        Calibration of each layout microphone (layout order).
+    recording : RecordingInfo
+    clock : RecordingClock
+    track : TrackModel
+        Times in seconds after the clock's epoch.
+    weights : ndarray, shape (n_mics,)
+        1 for microphones used, 0 for excluded ones.
+    """
+
+    spec: PassSpec
+    layout: ArrayLayout
+    pa_per_unit: np.ndarray
+    recording: RecordingInfo
+    clock: RecordingClock
+    track: TrackModel
+    weights: np.ndarray
+
+    @property
+    def recording_span_s(self) -> tuple[float, float]:
+        """First and last sample times, seconds after the epoch."""
+        return 0.0, float(self.clock.sample_time_s(self.recording.n_frames - 1))
+
+
+def load_layout(campaign: Campaign) -> ArrayLayout:
+    return read_layout(campaign.array.layout, campaign.site, campaign.array.height_datum,
+                       campaign.geoid_undulation_m)
+
+
+def load_pass(campaign: Campaign, name: str, clock_offset_s: float | None = None) -> PassInputs:
+    """Read and check the layout, calibration, recording header and track of one pass.
+
+    Parameters
+    ----------
+    campaign : Campaign
+    name : str
+        Pass name.
+    clock_offset_s : float, optional
+        Overrides the config's clock offset (used once an 'auto' offset has been estimated).
+    """
+    if name not in campaign.passes:
+        raise FlyoverInputError(f"no pass named '{name}'", str(campaign.config_path),
+                                f"one of {sorted(campaign.passes)}")
+    spec = campaign.passes[name]
+    layout = load_layout(campaign)
+    info = recording_info(spec.recording)
+    if info.n_channels != len(layout.channel) or layout.channel.max() > info.n_channels:
+        raise FlyoverInputError(
+            "layout and recording disagree on the channels", str(spec.recording),
+            f"{len(layout.channel)} channels as in {campaign.array.layout}",
+            f"{info.n_channels} channels in the recording",
+            "give one layout row per recorded channel (exclude unused ones with exclude_channels)")
+    cal = read_calibration(spec.calibration, layout.channel)
+    pa_per_unit = np.array([cal[int(c)] for c in layout.channel])
+    offset = clock_offset_s if clock_offset_s is not None else spec.clock_offset_s
+    if offset == "auto":
+        offset = 0.0  # the alignment stage estimates it; until then the header time is used
+    clock = RecordingClock(spec.recording_start_utc_ns, float(offset), info.sample_rate_hz,
+                           spec.rate_error_ppm)
+    samples = read_track(spec.track, campaign.site, spec.track_time_scale,
+                         spec.track_height_datum, campaign.geoid_undulation_m)
+    track = fit_track(clock.seconds_since_epoch(samples.utc_ns), samples.enu_m,
+                      spec.track_position_noise_m, samples.attitude_deg, where=str(spec.track))
+    excluded = set(campaign.array.exclude_channels) | set(spec.exclude_channels)
+    unknown = sorted(excluded - set(layout.channel.tolist()))
+    if unknown:
+        raise FlyoverInputError("excluded channels are not in the layout",
+                                f"{campaign.config_path}, passes.{name}.exclude_channels",
+                                f"channels of {campaign.array.layout}", f"{unknown}")
+    weights = np.array([0.0 if int(c) in excluded else 1.0 for c in layout.channel])
+    _check_coverage(track, clock, info, spec, layout)
+    return PassInputs(spec, layout, pa_per_unit, info, clock, track, weights)
+
+
+def _check_coverage(track: TrackModel, clock: RecordingClock, info: RecordingInfo,
+                    spec: PassSpec, layout: ArrayLayout) -> None:
+    rec_end = float(clock.sample_time_s(info.n_frames - 1))
+    lo, hi = max(track.start_s, 0.0), min(track.end_s, rec_end)
+    if hi <= lo:
+        raise FlyoverInputError(
+            "the track does not cover the recording", str(spec.track),
+            f"track times overlapping the recording ({_utc(clock, 0.0)} to "
+            f"{_utc(clock, rec_end)})",
+            f"track from {_utc(clock, track.start_s)} to {_utc(clock, track.end_s)}",
+            "check the recording start time, the clock offset and the track's time scale "
+            "(GPS time is 18 s ahead of UTC)")
+    t = np.linspace(lo, hi, 400)
+    rel = track.position(t) - layout.center_enu_m
+    height = rel[:, 2]
+    if np.max(height) < 1.0:
+        raise FlyoverInputError(
+            "the vehicle is never above the array", str(spec.track),
+            "heights above the array (WGS84 ellipsoidal)",
+            f"at most {np.max(height):.1f} m above the array centre",
+            "heights above mean sea level need track_height_datum: msl and the site's "
+            "geoid_undulation_m")
+    closest = float(np.min(np.linalg.norm(rel, axis=1)))
+    if closest > 2000.0:
+        raise FlyoverInputError("the vehicle never comes near the array while recording",
+                                str(spec.track), "a pass within 2 km of the array",
+                                f"closest {closest:.0f} m")
+
+
+def _utc(clock: RecordingClock, t_s: float) -> str:
+    return iso_utc(int(clock.utc_ns(t_s)))

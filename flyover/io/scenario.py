@@ -1,0 +1,89 @@
+"""Read a simulation scenario (YAML) into :class:`flyover.simulate.Scenario`."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+from jsonschema import Draft202012Validator
+
+from ..atmosphere import Atmosphere
+from ..campaign import MOUNTING_GAIN
+from ..errors import FlyoverInputError, suggest
+from ..frames import SiteFrame
+from ..simulate import (Broadband, PassScenario, PointSource, Scenario, Tone, spiral_layout)
+from .config import read_schema, read_yaml
+from .timestamps import parse_utc_ns
+
+
+def _validate(data: dict, source: str) -> None:
+    schema = read_schema("scenario")
+    errors = sorted(Draft202012Validator(schema).iter_errors(data),
+                    key=lambda e: len(e.absolute_path))
+    if errors:
+        err = errors[0]
+        where = ".".join(str(p) for p in err.absolute_path)
+        hint = ""
+        if err.validator == "additionalProperties":
+            bad = err.message.split("'")[1] if "'" in err.message else ""
+            hint = suggest(bad, (err.schema.get("properties") or {}).keys())
+        raise FlyoverInputError(err.message, f"{source}, key {where}" if where else source,
+                                hint=hint)
+
+
+def load_scenario(path) -> tuple[Scenario, SiteFrame, dict]:
+    """Read a scenario file.
+
+    Returns
+    -------
+    scenario : Scenario
+    site : SiteFrame
+    raw : dict
+        The parsed mapping (its ``campaign`` block and formats are used by the writer).
+    """
+    path = Path(path).resolve()
+    data = read_yaml(path)
+    _validate(data, str(path))
+    s = data["site"]
+    site = SiteFrame(s["origin_lat_deg"], s["origin_lon_deg"], s["origin_height_m"])
+    a = data["array"]
+    mics = spiral_layout(a["arms"], a["per_arm"], a["r_min_m"], a["r_max_m"],
+                         a.get("twist_deg", 120.0))
+    mics[:, 2] = a.get("height_m", 0.0)
+    sources = []
+    for k, src in enumerate(data["sources"]):
+        tones = tuple(Tone(t["frequency_hz"], t["level_db"], np.deg2rad(t.get("phase_deg", 0.0)))
+                      for t in src.get("tones", ()))
+        bb = src.get("broadband")
+        broadband = None if bb is None else Broadband(
+            bb["level_1khz_db"], bb.get("slope_db_per_octave", 0.0), bb.get("min_hz", 40.0),
+            bb.get("max_hz", 8000.0))
+        sources.append(PointSource(src["name"], tuple(src["body_m"]), tones, broadband,
+                                   src.get("seed", 1000 + k)))
+    passes = []
+    for k, (name, p) in enumerate(data["passes"].items()):
+        passes.append(PassScenario(
+            name=name, label=p.get("label", ""), speed_m_s=p["speed_m_s"], height_m=p["height_m"],
+            heading_deg=p["heading_deg"], duration_s=p["duration_s"],
+            overhead_s=p.get("overhead_s", p["duration_s"] / 2.0),
+            recording_start_utc_ns=parse_utc_ns(p["recording_start_utc"]),
+            clock_offset_s=p.get("clock_offset_s", 0.0),
+            atmosphere=Atmosphere(**p["atmosphere"]), cross_offset_m=p.get("cross_offset_m", 0.0),
+            gain_db=dict(p.get("gain_db", {})), pitch_deg=p.get("pitch_deg", 0.0),
+            seed=p.get("seed", 10 * (k + 1))))
+    rec, gnss = data["recording"], data["gnss"]
+    names = [s.name for s in sources]
+    for ps in passes:
+        for key in ps.gain_db:
+            if key not in names:
+                raise FlyoverInputError(f"gain for unknown source '{key}'",
+                                        f"{path}, key passes.{ps.name}.gain_db",
+                                        f"one of {names}", hint=suggest(key, names))
+    scenario = Scenario(
+        name=data.get("name", path.stem), mic_enu_m=mics,
+        pressure_gain=MOUNTING_GAIN[a["mounting"]], sources=tuple(sources), passes=tuple(passes),
+        sample_rate_hz=float(rec["sample_rate_hz"]), noise_spl_db=float(rec["noise_spl_db"]),
+        pa_per_unit=float(rec["pa_per_unit"]),
+        calibration_spread_db=float(rec.get("calibration_spread_db", 0.0)),
+        gnss_rate_hz=float(gnss["rate_hz"]), gnss_noise_m=float(gnss["noise_m"]))
+    return scenario, site, data
