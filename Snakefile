@@ -1,0 +1,72 @@
+# flyover campaign workflow.
+#   snakemake --cores 2                                  the built-in demo campaign
+#   snakemake --cores 2 --configfile my-campaign.yaml    your campaign, and only it
+# Rules call flyover's stage entry points; no physics lives here.
+
+import sys
+from pathlib import Path
+
+from flyover.errors import FlyoverInputError
+from flyover.workflow import CampaignPlan
+
+# The campaign is the last --configfile, else the demo. It is loaded by flyover (validated),
+# never merged with another file, so the demo's passes cannot leak into a user's campaign.
+CAMPAIGN_FILE = ([str(Path(f).resolve()) for f in workflow.overwrite_configfiles]
+                 or [str(Path(workflow.basedir) / "demo" / "campaign.yaml")])[-1]
+try:
+    PLAN = CampaignPlan.load(CAMPAIGN_FILE)
+except FlyoverInputError as exc:
+    sys.stderr.write(exc.message + "\n")
+    sys.exit(2)
+
+OUT = PLAN.output
+PY = sys.executable
+STAGE = f'"{PY}" -m flyover stage'
+
+wildcard_constraints:
+    pass_name="|".join(PLAN.passes),
+
+
+rule all:
+    input:
+        PLAN.targets(),
+
+
+if PLAN.simulation_folder is not None:
+
+    rule simulate_demo:
+        input:
+            scenario=str(PLAN.campaign.scenario),
+        output:
+            PLAN.simulated_files(),
+        log:
+            f"{OUT}/logs/simulate_demo.log",
+        benchmark:
+            f"{OUT}/benchmarks/simulate_demo.tsv"
+        resources:
+            mem_mb=4000,
+        shell:
+            f'"{PY}" -m flyover simulate {{input.scenario}} --out "{PLAN.simulation_folder}" '
+            "> {log} 2>&1"
+
+
+rule align:
+    input:
+        unpack(lambda w: PLAN.pass_inputs(w.pass_name)),
+    output:
+        json=f"{OUT}/{{pass_name}}/alignment.json",
+        png=f"{OUT}/{{pass_name}}/track.png",
+    params:
+        fingerprint=lambda w: PLAN.fingerprint(w.pass_name, "align"),
+    log:
+        f"{OUT}/logs/{{pass_name}}/align.log",
+    benchmark:
+        f"{OUT}/benchmarks/{{pass_name}}/align.tsv"
+    resources:
+        mem_mb=1000,
+    shell:
+        f'{STAGE} align --campaign "{CAMPAIGN_FILE}" --pass {{wildcards.pass_name}} '
+        f'--out "{OUT}/{{wildcards.pass_name}}" > {{log}} 2>&1'
+
+# Imaging (de-Dopplerized delay-and-sum per window and band) and component levels follow align:
+# rules `image` and `levels` consume alignment.json and write maps/ and levels.csv per pass.

@@ -1,0 +1,95 @@
+"""What the Snakefile needs to know about a campaign: targets, inputs and rerun fingerprints.
+
+No physics here. Each stage's rule carries, as a Snakemake param, a fingerprint of exactly the
+config values that stage uses plus a digest of the package code, so that editing one pass's
+atmosphere re-runs that pass only, and editing flyover re-runs what it computes.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+from dataclasses import dataclass
+from functools import lru_cache
+from pathlib import Path
+
+from .campaign import Campaign
+from .io.config import campaign_from_mapping, read_yaml
+from .stages.simulate import pass_files
+
+
+@lru_cache(maxsize=1)
+def package_digest() -> str:
+    """SHA-256 over the package's Python sources and schemas (sorted by path)."""
+    root = Path(__file__).resolve().parent
+    h = hashlib.sha256()
+    for path in sorted(list(root.rglob("*.py")) + list(root.rglob("*.json"))):
+        h.update(str(path.relative_to(root)).encode())
+        h.update(path.read_bytes())
+    return h.hexdigest()[:16]
+
+
+# Which parts of the config each stage reads: (top-level key, per-pass?) pairs.
+_STAGE_KEYS = {
+    "align": ("site", "array"),
+}
+
+
+@dataclass
+class CampaignPlan:
+    """A loaded campaign seen from the workflow."""
+
+    path: Path
+    mapping: dict
+    campaign: Campaign
+
+    @classmethod
+    def load(cls, path) -> "CampaignPlan":
+        path = Path(path).resolve()
+        mapping = read_yaml(path)
+        return cls(path, mapping, campaign_from_mapping(mapping, path))
+
+    @property
+    def output(self) -> str:
+        return str(self.campaign.output)
+
+    @property
+    def passes(self) -> list[str]:
+        return list(self.campaign.passes)
+
+    @property
+    def simulation_folder(self) -> Path | None:
+        """Where the demo's simulated files go: the layout file's folder."""
+        return self.campaign.array.layout.parent if self.campaign.scenario else None
+
+    def simulated_files(self) -> list[str]:
+        """Every file the simulation writes, checked against the paths the campaign names."""
+        folder = self.simulation_folder
+        files = [folder / "layout.csv", folder / "truth.csv"]
+        for name, spec in self.campaign.passes.items():
+            expected = pass_files(folder, name, spec.recording.suffix.lstrip("."))
+            named = {"recording": spec.recording, "calibration": spec.calibration,
+                     "track": spec.track}
+            for key, p in expected.items():
+                if Path(named[key]) != p:
+                    raise ValueError(f"{self.path}: passes.{name}.{key} must be {p} for the "
+                                     "simulated demo")
+            files += list(expected.values())
+        return [str(f) for f in files]
+
+    def pass_inputs(self, name: str) -> dict[str, str]:
+        spec = self.campaign.passes[name]
+        return {"recording": str(spec.recording), "calibration": str(spec.calibration),
+                "track": str(spec.track), "layout": str(self.campaign.array.layout)}
+
+    def fingerprint(self, name: str, stage: str) -> str:
+        """The config values a stage uses for one pass, and the code digest, as JSON text."""
+        picked = {k: self.mapping.get(k) for k in _STAGE_KEYS[stage]}
+        picked["pass"] = self.mapping["passes"][name]
+        picked["campaign_atmosphere"] = self.mapping.get("atmosphere")
+        picked["code"] = package_digest()
+        return json.dumps(picked, sort_keys=True, default=str)
+
+    def targets(self) -> list[str]:
+        out = self.output
+        return [f"{out}/{p}/{f}" for p in self.passes for f in ("alignment.json", "track.png")]
