@@ -1,0 +1,57 @@
+"""The command line: summaries, templates, exit codes, no tracebacks."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import soundfile as sf
+import yaml
+
+from flyover.cli import main
+from flyover.io.config import load_campaign
+
+
+def test_check_prints_summary(tiny_campaign_dir, capsys):
+    assert main(["check", str(tiny_campaign_dir / "campaign.yaml")]) == 0
+    out = capsys.readouterr().out
+    for fragment in ("16/16 channels", "overhead at", "closest 30.0 m", "all inputs are valid"):
+        assert fragment in out
+
+
+def test_check_bad_input_exit_2_without_traceback(tiny_copy, capsys):
+    path = tiny_copy / "campaign.yaml"
+    data = yaml.safe_load(path.read_text())
+    data["vehicle"]["gird"] = data["vehicle"].pop("grid")
+    path.write_text(yaml.safe_dump(data))
+    assert main(["check", str(path)]) == 2
+    err = capsys.readouterr().err
+    assert "unknown key 'vehicle.gird'" in err and "did you mean 'grid'?" in err
+    assert "Traceback" not in err
+
+
+def test_template_is_a_valid_campaign_shape(tmp_path, capsys):
+    out = tmp_path / "t.yaml"
+    assert main(["template", "-o", str(out)]) == 0
+    # The template names files that do not exist yet; everything else must validate.
+    campaign = load_campaign(out)
+    assert "pass-1" in campaign.passes
+
+
+def test_calibrate_one_channel_then_all(tmp_path, capsys):
+    # 94 dB re 20 uPa is 1.0024 Pa rms (20 uPa * 10**(94/20); IEC 60942 calibrator level).
+    fs = 8000
+    t = np.arange(2 * fs) / fs
+    amp_units = 0.05
+    x = np.zeros((len(t), 3), dtype=np.float32)
+    x[:, 1] = amp_units * np.sqrt(2) * np.sin(2 * np.pi * 1000 * t)
+    sf.write(tmp_path / "cal.wav", x, fs, subtype="FLOAT")
+    csv = tmp_path / "cal.csv"
+    assert main(["calibrate", str(tmp_path / "cal.wav"), "--channel", "2",
+                 "--update", str(csv)]) == 0
+    table = pd.read_csv(csv)
+    assert list(table.channel) == [2]
+    expected = 20e-6 * 10 ** (94 / 20) / amp_units
+    assert abs(table.pa_per_unit.iloc[0] / expected - 1) < 1e-3
+    # All channels at once fails on the silent channels, naming the first.
+    assert main(["calibrate", str(tmp_path / "cal.wav")]) == 2
+    assert "no calibrator tone at 1000 Hz on channel 1" in capsys.readouterr().err
