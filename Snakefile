@@ -68,5 +68,51 @@ rule align:
         f'{STAGE} align --campaign "{CAMPAIGN_FILE}" --pass {{wildcards.pass_name}} '
         f'--out "{OUT}/{{wildcards.pass_name}}" > {{log}} 2>&1'
 
-# Imaging (de-Dopplerized delay-and-sum per window and band) and component levels follow align:
-# rules `image` and `levels` consume alignment.json and write maps/ and levels.csv per pass.
+
+
+rule image:
+    input:
+        unpack(lambda w: PLAN.pass_inputs(w.pass_name)),
+        alignment=f"{OUT}/{{pass_name}}/alignment.json",
+    output:
+        maps=f"{OUT}/{{pass_name}}/maps.npz",
+        windows=f"{OUT}/{{pass_name}}/windows.csv",
+        regions=f"{OUT}/{{pass_name}}/region_power.csv",
+        figures=directory(f"{OUT}/{{pass_name}}/maps"),
+    params:
+        fingerprint=lambda w: PLAN.fingerprint(w.pass_name, "image"),
+    log:
+        f"{OUT}/logs/{{pass_name}}/image.log",
+    benchmark:
+        f"{OUT}/benchmarks/{{pass_name}}/image.tsv"
+    threads: 2
+    resources:
+        mem_mb=3000,
+        runtime=60,
+    shell:
+        f'{STAGE} image --campaign "{CAMPAIGN_FILE}" --pass {{wildcards.pass_name}} '
+        f'--out "{OUT}/{{wildcards.pass_name}}" --threads {{threads}} > {{log}} 2>&1'
+
+
+rule levels:
+    input:
+        windows=f"{OUT}/{{pass_name}}/windows.csv",
+        regions=f"{OUT}/{{pass_name}}/region_power.csv",
+    output:
+        levels=f"{OUT}/{{pass_name}}/levels.csv",
+        overall=f"{OUT}/{{pass_name}}/levels_overall.csv",
+        spectra=f"{OUT}/{{pass_name}}/spectra.csv",
+        directivity=f"{OUT}/{{pass_name}}/directivity.csv",
+        spectra_png=f"{OUT}/{{pass_name}}/spectra.png",
+        directivity_png=f"{OUT}/{{pass_name}}/directivity.png",
+    params:
+        fingerprint=lambda w: PLAN.fingerprint(w.pass_name, "levels"),
+    log:
+        f"{OUT}/logs/{{pass_name}}/levels.log",
+    benchmark:
+        f"{OUT}/benchmarks/{{pass_name}}/levels.tsv"
+    resources:
+        mem_mb=1000,
+    shell:
+        f'{STAGE} levels --campaign "{CAMPAIGN_FILE}" --pass {{wildcards.pass_name}} '
+        f'--out "{OUT}/{{wildcards.pass_name}}" > {{log}} 2>&1'

@@ -54,10 +54,11 @@ def _parser() -> argparse.ArgumentParser:
     k.add_argument("--update", type=Path, help="calibration CSV to update (or create)")
 
     g = add("stage", "run one workflow step (called by the Snakefile)")
-    g.add_argument("name", choices=["align"])
+    g.add_argument("name", choices=["align", "image", "levels"])
     g.add_argument("--campaign", type=Path, required=True)
     g.add_argument("--pass", dest="pass_name", required=True)
     g.add_argument("--out", type=Path, required=True, help="the pass's result folder")
+    g.add_argument("--threads", type=int, default=1, help="threads for the compiled kernels")
     return p
 
 
@@ -103,5 +104,12 @@ def _dispatch(args) -> int:
             from .stages import align
             align.run(campaign, args.pass_name, args.out / "alignment.json",
                       args.out / "track.png")
+        elif args.name == "image":
+            from .stages import image
+            image.run(campaign, args.pass_name, args.out / "alignment.json", args.out,
+                      args.threads)
+        elif args.name == "levels":
+            from .stages import levels
+            levels.run(campaign, args.pass_name, args.out)
         return 0
     raise AssertionError(args.command)

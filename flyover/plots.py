@@ -107,3 +107,118 @@ def _at_least_span(ax, values, span: float) -> None:
     if hi - lo < span:
         mid = 0.5 * (lo + hi)
         ax.set_ylim(mid - span / 2, mid + span / 2)
+
+
+def map_figure(maps, campaign, bands, pass_name: str, window_row: dict,
+               dynamic_range_db: float = 15.0):
+    """Small multiples of one window's maps, one panel per band, dB re each panel's peak.
+
+    Parameters
+    ----------
+    maps : ndarray, shape (n_grid, n_bands)
+        Band power on the grid points (x varying slowest). Values at or below zero (possible
+        after diagonal removal) and more than ``dynamic_range_db`` under the peak show as the
+        floor colour.
+    """
+    from matplotlib.patches import Rectangle
+    nx, ny = campaign.grid.shape
+    x, y = campaign.grid.x_axis_m, campaign.grid.y_axis_m
+    n_b = len(bands)
+    cols = min(4, n_b)
+    rows = int(np.ceil(n_b / cols))
+    fig, axes = plt.subplots(rows, cols, figsize=(3.1 * cols, 2.2 * rows + 0.6),
+                             squeeze=False, sharex=True, sharey=True)
+    extent = [x[0] - campaign.grid.spacing_m / 2, x[-1] + campaign.grid.spacing_m / 2,
+              y[-1] + campaign.grid.spacing_m / 2, y[0] - campaign.grid.spacing_m / 2]
+    cmap = plt.get_cmap(MAP_CMAP).copy()
+    cmap.set_under("#ece6da")
+    cmap.set_bad("#ece6da")
+    image = None
+    for b in range(rows * cols):
+        ax = axes[b // cols][b % cols]
+        ax.grid(False)
+        if b >= n_b:
+            ax.axis("off")
+            continue
+        m = maps[:, b].reshape(nx, ny).T
+        peak = np.max(m)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            db = np.where(m > 0, 10 * np.log10(m / peak), -np.inf) if peak > 0 else \
+                np.full_like(m, -np.inf)
+        image = ax.imshow(db, extent=extent, cmap=cmap, vmin=-dynamic_range_db, vmax=0,
+                          interpolation="nearest", aspect="equal")
+        for region in campaign.regions.values():
+            ax.add_patch(Rectangle((region.x_m[0], region.y_m[0]), np.ptp(region.x_m),
+                                   np.ptp(region.y_m), fill=False, ec="white", lw=1.0, ls="--"))
+        if campaign.outline_m:
+            poly = np.array(campaign.outline_m + (campaign.outline_m[0],))
+            ax.plot(poly[:, 0], poly[:, 1], color=ARRAY, lw=0.9)
+        label = f"{bands.nominal_hz[b]:g} Hz"
+        ax.set_title(label if peak > 0 else f"{label} (below floor)", fontsize=9)
+        if b % cols == 0:
+            ax.set_ylabel("y starboard (m)")
+        if b // cols == rows - 1:
+            ax.set_xlabel("x forward (m)")
+    fig.suptitle(f"{pass_name}  window {window_row['window']}  {window_row['time_utc'][:23]}Z  "
+                 f"polar {window_row['polar_angle_deg']:.0f} deg  "
+                 f"distance {window_row['distance_m']:.0f} m", fontsize=11)
+    if image is not None:
+        bar = fig.colorbar(image, ax=axes, shrink=0.8, extend="min", pad=0.02)
+        bar.set_label(f"dB re panel peak ({dynamic_range_db:g} dB range)")
+    return fig
+
+
+def _band_axis(ax, bands_hz) -> None:
+    ax.set_xscale("log")
+    ax.set_xticks(bands_hz)
+    ax.set_xticklabels([f"{b:g}" for b in bands_hz], rotation=60, fontsize=7)
+    ax.minorticks_off()
+    ax.set_xlabel("one-third-octave band (Hz)")
+
+
+def spectra_figure(spectra, pass_name: str):
+    """Region spectra at the chosen polar angles (levels at the reference distance)."""
+    regions = list(dict.fromkeys(spectra["region"])) if len(spectra) else []
+    fig, axes = plt.subplots(1, max(1, len(regions)), figsize=(4.2 * max(1, len(regions)), 3.6),
+                             squeeze=False, sharey=True)
+    cmap = plt.get_cmap("viridis")
+    targets = sorted(set(spectra["target_polar_deg"])) if len(spectra) else []
+    for ax, region in zip(axes[0], regions):
+        sel = spectra[spectra["region"] == region]
+        for i, target in enumerate(targets):
+            s = sel[sel["target_polar_deg"] == target]
+            ax.plot(s["band_hz"], s["level_db"], marker="o", ms=3, lw=1.4,
+                    color=cmap(i / max(1, len(targets) - 1)),
+                    label=f"{s['polar_angle_deg'].iloc[0]:.0f} deg" if len(s) else None)
+        _band_axis(ax, sorted(set(sel["band_hz"])))
+        ax.set_title(region)
+        ax.legend(fontsize=7, frameon=False, title="polar angle", title_fontsize=7)
+    axes[0][0].set_ylabel("band level at reference distance (dB)")
+    if not regions:
+        axes[0][0].text(0.5, 0.5, "no analysed windows", ha="center", transform=axes[0][0].transAxes)
+    fig.suptitle(f"{pass_name}: region spectra", fontsize=11)
+    fig.tight_layout()
+    return fig
+
+
+def directivity_figure(levels, pass_name: str, max_bands: int = 6):
+    """Level against polar angle per region, for a spread of bands."""
+    regions = list(dict.fromkeys(levels["region"])) if len(levels) else []
+    fig, axes = plt.subplots(1, max(1, len(regions)), figsize=(4.2 * max(1, len(regions)), 3.6),
+                             squeeze=False, sharey=True)
+    bands = sorted(set(levels["band_hz"])) if len(levels) else []
+    pick = [bands[int(round(i))] for i in np.linspace(0, len(bands) - 1, min(max_bands, len(bands)))]
+    cmap = plt.get_cmap("cividis")
+    for ax, region in zip(axes[0], regions):
+        sel = levels[levels["region"] == region]
+        for i, band in enumerate(pick):
+            s = sel[sel["band_hz"] == band].sort_values("polar_angle_deg")
+            ax.plot(s["polar_angle_deg"], s["level_db"], marker=".", lw=1.3,
+                    color=cmap(i / max(1, len(pick) - 1)), label=f"{band:g} Hz")
+        ax.set_xlabel("polar emission angle (deg, 90 = overhead)")
+        ax.set_title(region)
+        ax.legend(fontsize=7, frameon=False)
+    axes[0][0].set_ylabel("band level at reference distance (dB)")
+    fig.suptitle(f"{pass_name}: directivity", fontsize=11)
+    fig.tight_layout()
+    return fig

@@ -29,10 +29,26 @@ def package_digest() -> str:
     return h.hexdigest()[:16]
 
 
-# Which parts of the config each stage reads: (top-level key, per-pass?) pairs.
+# The config values each stage reads, as dotted paths ("pass" is the stage's own pass entry).
+# Keep these in step with the stage code: they decide what a config edit re-runs.
+_REFERENCE = ("analysis.reference_distance_m", "analysis.reference_atmosphere")
 _STAGE_KEYS = {
-    "align": ("site", "array"),
+    "align": ("site", "array", "atmosphere", "pass"),
+    "image": ("site", "array", "atmosphere", "pass", "vehicle", "analysis.window_s",
+              "analysis.hop_s", "analysis.band_min_hz", "analysis.band_max_hz",
+              "analysis.interpolation", "analysis.diagonal_removal",
+              "analysis.max_polar_offset_deg"),
+    "levels": ("vehicle.regions",) + _REFERENCE,
 }
+
+
+def _pick(mapping: dict, dotted: str):
+    node = mapping
+    for part in dotted.split("."):
+        if not isinstance(node, dict) or part not in node:
+            return None
+        node = node[part]
+    return node
 
 
 @dataclass
@@ -84,12 +100,13 @@ class CampaignPlan:
 
     def fingerprint(self, name: str, stage: str) -> str:
         """The config values a stage uses for one pass, and the code digest, as JSON text."""
-        picked = {k: self.mapping.get(k) for k in _STAGE_KEYS[stage]}
-        picked["pass"] = self.mapping["passes"][name]
-        picked["campaign_atmosphere"] = self.mapping.get("atmosphere")
+        picked = {k: (self.mapping["passes"][name] if k == "pass" else _pick(self.mapping, k))
+                  for k in _STAGE_KEYS[stage]}
         picked["code"] = package_digest()
         return json.dumps(picked, sort_keys=True, default=str)
 
     def targets(self) -> list[str]:
         out = self.output
-        return [f"{out}/{p}/{f}" for p in self.passes for f in ("alignment.json", "track.png")]
+        files = ("alignment.json", "track.png", "maps.npz", "levels.csv", "spectra.csv",
+                 "directivity.csv")
+        return [f"{out}/{p}/{f}" for p in self.passes for f in files]

@@ -1,0 +1,132 @@
+"""Stage: region powers -> levels at the reference distance and atmosphere, spectra, directivity."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from ..bands import a_weighting_db, sum_levels_db, third_octave_bands
+from ..campaign import Campaign
+from ..errors import FlyoverInputError
+from ..io.tables import read_csv_table, write_csv
+from ..levels import level_1m_db, reference_level_db
+from ..plots import directivity_figure, save_figure, spectra_figure
+
+TOTAL = "total"
+UNRESOLVED = "not separable: region centres closer than one main-lobe width"
+SPECTRA_POLAR_DEG = (60.0, 75.0, 90.0, 105.0, 120.0)
+
+
+def run(campaign: Campaign, pass_name: str, out_dir: Path) -> None:
+    """Write levels.csv, levels_overall.csv, spectra.csv, directivity.csv and their figures."""
+    out_dir = Path(out_dir)
+    windows = pd.read_csv(out_dir / "windows.csv")
+    windows = windows[windows["status"] == "analysed"].set_index("window")
+    powers = read_csv_table(out_dir / "region_power.csv", "region power") \
+        if windows.size else pd.DataFrame(columns=["window", "region", "band_hz",
+                                                   "power_1m_pa2", "resolved"])
+    levels = level_table(powers, windows, campaign)
+    write_csv(out_dir / "levels.csv", levels, float_format="%.3f")
+    write_csv(out_dir / "levels_overall.csv", overall_table(levels), float_format="%.3f")
+    spectra = spectra_table(levels)
+    write_csv(out_dir / "spectra.csv", spectra, float_format="%.3f")
+    directivity = directivity_table(levels)
+    write_csv(out_dir / "directivity.csv", directivity, float_format="%.3f")
+    save_figure(spectra_figure(spectra, pass_name), out_dir / "spectra.png")
+    save_figure(directivity_figure(levels, pass_name), out_dir / "directivity.png")
+
+
+def level_table(powers: pd.DataFrame, windows: pd.DataFrame, campaign: Campaign) -> pd.DataFrame:
+    """One row per window, band and region (plus the 'total' of all regions)."""
+    an = campaign.analysis
+    cols = ["window", "time_utc", "polar_angle_deg", "band_hz", "region", "level_db",
+            "level_1m_db", "resolved", "note", "height_m", "speed_m_s", "distance_m"]
+    if len(powers) == 0:
+        return pd.DataFrame(columns=cols)
+    p = powers.copy()
+    p["window"] = p["window"].astype(int)
+    p["band_hz"] = p["band_hz"].astype(float)
+    p["power_1m_pa2"] = pd.to_numeric(p["power_1m_pa2"], errors="coerce")
+    p["resolved"] = p["resolved"].astype(str).str.lower() == "true"
+    unknown = sorted(set(p["region"]) - set(campaign.regions))
+    if unknown:
+        raise FlyoverInputError("region powers name regions the campaign does not have",
+                                "region_power.csv", f"regions {sorted(campaign.regions)}",
+                                f"{unknown}", "the imaging is stale: re-run the workflow")
+    bands = third_octave_bands(p["band_hz"].min(), p["band_hz"].max())
+    band_index = {b: k for k, b in enumerate(bands.nominal_hz)}
+    total = (p.groupby(["window", "band_hz"], as_index=False)
+             .agg(power_1m_pa2=("power_1m_pa2", lambda s: s.sum(min_count=len(s))),
+                  resolved=("resolved", "all")))
+    total["region"] = TOTAL
+    total["resolved"] = True
+    p = pd.concat([p[["window", "band_hz", "region", "power_1m_pa2", "resolved"]], total],
+                  ignore_index=True)
+    k = p["band_hz"].map(band_index).to_numpy()
+    l1 = level_1m_db(p["power_1m_pa2"].to_numpy())
+    lref = reference_level_db(np.zeros(len(bands)), bands, an.reference_distance_m,
+                              an.reference_atmosphere)[k] + l1
+    p["level_1m_db"] = l1
+    p["level_db"] = np.where(p["resolved"], lref, np.nan)
+    p["note"] = np.where(p["resolved"], "", UNRESOLVED)
+    w = windows.loc[p["window"]]
+    for c in ("time_utc", "polar_angle_deg", "height_m", "speed_m_s", "distance_m"):
+        p[c] = w[c].to_numpy()
+    order = {name: i for i, name in enumerate(list(campaign.regions) + [TOTAL])}
+    p = p.assign(_o=p["region"].map(order)).sort_values(["window", "_o", "band_hz"])
+    return p[cols].reset_index(drop=True)
+
+
+def overall_table(levels: pd.DataFrame) -> pd.DataFrame:
+    """Overall and A-weighted sums per window and region, over the resolved bands."""
+    rows = []
+    for (window, region), g in levels.groupby(["window", "region"], sort=False):
+        ok = g[np.isfinite(g["level_db"])]
+        if len(ok):
+            bands = third_octave_bands(ok["band_hz"].min(), ok["band_hz"].max())
+            centre = dict(zip(bands.nominal_hz, bands.center_hz))
+            f = ok["band_hz"].map(centre).to_numpy()
+            overall = float(sum_levels_db(ok["level_db"]))
+            a_weighted = float(sum_levels_db(ok["level_db"], weights_db=a_weighting_db(f)))
+        else:
+            overall = a_weighted = np.nan
+        rows.append({"window": window, "time_utc": g["time_utc"].iloc[0],
+                     "polar_angle_deg": g["polar_angle_deg"].iloc[0], "region": region,
+                     "overall_db": overall, "a_weighted_db": a_weighted,
+                     "bands_summed": len(ok),
+                     "band_range_hz": f"{ok['band_hz'].min():g}-{ok['band_hz'].max():g}"
+                     if len(ok) else ""})
+    return pd.DataFrame(rows, columns=["window", "time_utc", "polar_angle_deg", "region",
+                                       "overall_db", "a_weighted_db", "bands_summed",
+                                       "band_range_hz"])
+
+
+def spectra_table(levels: pd.DataFrame, polar_deg=SPECTRA_POLAR_DEG,
+                  tolerance_deg: float = 5.0) -> pd.DataFrame:
+    """Region spectra of the windows nearest to chosen polar angles (within a tolerance)."""
+    out = []
+    if len(levels) == 0:
+        return pd.DataFrame(columns=["target_polar_deg", *levels.columns])
+    per_window = levels.groupby("window")["polar_angle_deg"].first()
+    for target in polar_deg:
+        gap = (per_window - target).abs()
+        if gap.min() > tolerance_deg:
+            continue
+        w = gap.idxmin()
+        sel = levels[levels["window"] == w].copy()
+        sel.insert(0, "target_polar_deg", target)
+        out.append(sel)
+    return pd.concat(out, ignore_index=True) if out else pd.DataFrame(
+        columns=["target_polar_deg", *levels.columns])
+
+
+def directivity_table(levels: pd.DataFrame) -> pd.DataFrame:
+    """Level against polar angle: one row per region and window, one column per band."""
+    if len(levels) == 0:
+        return pd.DataFrame(columns=["region", "window", "polar_angle_deg"])
+    wide = levels.pivot_table(index=["region", "window", "polar_angle_deg"], columns="band_hz",
+                              values="level_db", aggfunc="first", dropna=False)
+    wide.columns = [f"{c:g}_hz" for c in wide.columns]
+    return wide.reset_index().sort_values(["region", "polar_angle_deg"])
