@@ -108,11 +108,13 @@ def dedoppler_cubic(signals, rx_pos, amp, step, out):
                 dp = (rx_pos[g, m, j + 1] - p0) * inv
                 a0 = amp[g, m, j]
                 da = np.float32((amp[g, m, j + 1] - a0) * inv)
+                # Walk the reception position incrementally: integer part and fraction apart,
+                # so the loop needs no float-to-int conversion per sample.
+                i = int(p0)
+                frac = p0 - i
+                a = a0
                 for k in range(k0, k1):
-                    u = k - k0
-                    x = p0 + dp * u
-                    i = int(x)
-                    d = np.float32(x - i)
+                    d = np.float32(frac)
                     ym1 = sig[i - 1]
                     y0 = sig[i]
                     y1 = sig[i + 1]
@@ -122,5 +124,9 @@ def dedoppler_cubic(signals, rx_pos, amp, step, out):
                         - np.float32(1.0 / 6.0) * y2
                     c2 = np.float32(0.5) * (ym1 + y1) - y0
                     c3 = np.float32(1.0 / 6.0) * (y2 - ym1) + np.float32(0.5) * (y0 - y1)
-                    val = ((c3 * d + c2) * d + c1) * d + y0
-                    out[g, m, k] = (a0 + da * np.float32(u)) * val
+                    out[g, m, k] = a * (((c3 * d + c2) * d + c1) * d + y0)
+                    a += da
+                    frac += dp
+                    while frac >= 1.0:
+                        frac -= 1.0
+                        i += 1
