@@ -14,13 +14,16 @@ with A the spectrum of a, compensated for the ISO 9613-1 absorption of the measu
 frequency the sound travels with, f / (dt/dtau). A point source at g in free field, without
 noise, gives back its source signal (pressure at 1 m): the maps are in source strength at 1 m.
 
-Error budget of the interpolation (emission sample rate fs, fractional delay d):
-4-point Lagrange attenuates by |(9 cos(pi nu) - cos(3 pi nu)) / 8| at d = 1/2, nu = f/fs: at most
-0.030 dB at 0.1 fs, 0.12 dB at 0.15 fs, 0.49 dB at 0.25 fs. The 'sinc' option oversamples each
-channel 4x with a Kaiser-windowed polyphase filter (flat to 0.4 fs) before the cubic step, which
-moves those figures to 0.0019 dB at 0.1 fs and 0.030 dB at 0.4 fs (nu / 4). Delays between the
-coarse nodes (every ``node_step`` samples) are linear: with reception-time curvature
-V^2 / (c r) the error is below 1e-6 s for the passes flyover is meant for.
+Error budget of the interpolation (received frequency f, sample rate fs, nu = f / fs): 4-point
+Lagrange is worst at a half-sample delay, where it attenuates by (9 cos(pi nu) - cos(3 pi nu)) / 8:
+0.030 dB at 0.1 fs, 0.074 dB at 0.125 fs, 0.15 dB at 0.15 fs, 1.07 dB at 0.25 fs (linear
+interpolation: 0.44 dB at 0.1 fs). Averaged over random delays the loss is about half that. The
+'sinc' option first oversamples each channel 4x with a Kaiser-windowed polyphase filter, so the
+cubic step sees nu / 4: 0.0001 dB at 0.1 fs and 0.030 dB at 0.4 fs, plus the filter's passband
+ripple. Bands whose highest received frequency passes ``ACCURATE_FRACTION`` of fs (worst-case
+loss 0.1 dB) are flagged invalid. Delays between the coarse nodes (every ``node_step``
+samples) are linear: with a reception-time curvature V^2 / (c r) of 0.1 1/s the error is below
+1e-6 s, a phase error under 0.02 rad at 3 kHz.
 """
 
 from __future__ import annotations
@@ -41,6 +44,8 @@ from .windows import Window
 
 OVERSAMPLING = 4
 _SUBBAND_POINTS = 8
+ACCURATE_FRACTION = {"cubic": 0.135, "sinc": 0.4}  # of fs: worst-case interpolation loss 0.1 dB
+MIN_LINES_PER_BAND = 3  # spectral lines a band needs in the window's spectrum
 
 
 @dataclass(frozen=True)
@@ -142,6 +147,31 @@ def required_frames(geometry: ReceptionGeometry, clock: RecordingClock,
     first = int(np.floor(idx.min())) - pad
     last = int(np.ceil(idx.max())) + pad
     return first, last - first + 1
+
+
+def valid_bands(geometry: ReceptionGeometry, window: Window,
+                settings: ChainSettings) -> tuple[np.ndarray, list[str]]:
+    """Which bands a window can measure, and why not where it cannot.
+
+    A band is invalid when its upper edge, Doppler-shifted as received, passes the
+    interpolation's accurate range (``ACCURATE_FRACTION``), or when the window's spectrum has
+    fewer than ``MIN_LINES_PER_BAND`` lines in it.
+    """
+    b = settings.bands
+    f_max = b.upper_hz / float(np.min(geometry.doppler_center))
+    limit = ACCURATE_FRACTION[settings.interpolation] * window.sample_rate_hz
+    lines = np.array([s.stop - s.start for s in band_bins(b, window.n_samples,
+                                                          window.sample_rate_hz)])
+    reasons = []
+    for k in range(len(b)):
+        if f_max[k] > limit:
+            reasons.append(f"received up to {f_max[k]:.0f} Hz, beyond the {settings.interpolation} "
+                           f"interpolation's accurate range ({limit:.0f} Hz)")
+        elif lines[k] < MIN_LINES_PER_BAND:
+            reasons.append(f"{lines[k]} spectral lines in the window: use a longer window_s")
+        else:
+            reasons.append("")
+    return np.array([r == "" for r in reasons]), reasons
 
 
 def _absorption_gain(settings: ChainSettings, atmosphere: Atmosphere,

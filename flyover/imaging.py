@@ -22,6 +22,7 @@ from .track import TrackModel
 from .windows import Window
 
 UNIT_SOURCE_LEVEL_DB = 94.0  # band level at 1 m of the unit source (any value cancels)
+TOTAL = "total"  # the key of all regions together in WindowMaps.region_power
 
 
 @dataclass(frozen=True)
@@ -34,7 +35,8 @@ class WindowMaps:
     full, diagonal_removed : ndarray, shape (n_grid, n_bands)
         Band power maps (Pa^2 at 1 m) on the grid points.
     region_power : dict of str -> ndarray (n_bands,)
-        Integrated band power at 1 m per region (with the chosen diagonal treatment).
+        Integrated band power at 1 m per region (with the chosen diagonal treatment), and
+        under ``TOTAL`` that of all regions together.
     region_map_sum, region_psf_sum : dict of str -> ndarray (n_bands,)
         The two sums behind the ratio (for checks and reports).
     unit_power : dict of str -> ndarray (n_bands,)
@@ -108,6 +110,12 @@ def image_window(signals_pa, first_frame: int, geometry, track: TrackModel, wind
     measured = np.stack([map_sums[n] for n in names], axis=-1)          # (n_b, n_r)
     solved = _solve_coupled(coupling, measured)
     powers = {n: solved[:, j] for j, n in enumerate(names)}
+    # All regions together: one unknown over their union, well posed even where the regions
+    # cannot be told apart (the unit sources' summed maps over the union, averaged).
+    union_psf = coupling.sum(axis=1).mean(axis=1)                        # (n_b,)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        total = np.where(union_psf > 0, measured.sum(axis=1) / union_psf, np.nan)
+    powers[TOTAL] = np.where(total > 0, total, np.nan)
     return WindowMaps(window, bp.full, bp.diagonal_removed, powers, map_sums, psf_sums, units)
 
 

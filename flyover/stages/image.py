@@ -10,8 +10,8 @@ import pandas as pd
 
 from ..bands import third_octave_bands
 from ..campaign import Campaign
-from ..dedoppler import ChainSettings
-from ..imaging import frames_for_window, image_window
+from ..dedoppler import ChainSettings, valid_bands
+from ..imaging import TOTAL, frames_for_window, image_window
 from ..io.atomic import atomic_path
 from ..io.passdata import load_pass
 from ..io.recording import read_span
@@ -57,15 +57,19 @@ def run(campaign: Campaign, pass_name: str, alignment_json: Path, out_dir: Path,
                                     inputs.layout.aperture_m, atm.c_m_s)
         width = main_lobe_width_m(bands.center_hz, w.distance_m, inputs.layout.aperture_m,
                                   atm.c_m_s)
-        for name in campaign.regions:
+        valid, why = valid_bands(geo, w, settings)
+        for name in list(campaign.regions) + [TOTAL]:
+            single = name != TOTAL
             for b in range(len(bands)):
                 region_rows.append({
                     "window": w.index, "region": name, "band_hz": bands.nominal_hz[b],
                     "power_1m_pa2": res.region_power[name][b],
-                    "map_sum_pa2": res.region_map_sum[name][b],
-                    "psf_sum_pa2": res.region_psf_sum[name][b],
-                    "unit_power_pa2": res.unit_power[name][b],
-                    "resolved": bool(resolved[b]), "main_lobe_width_m": width[b]})
+                    "map_sum_pa2": res.region_map_sum[name][b] if single else np.nan,
+                    "psf_sum_pa2": res.region_psf_sum[name][b] if single else np.nan,
+                    "unit_power_pa2": res.unit_power[name][b] if single else np.nan,
+                    "resolved": bool(resolved[b]) if single else True,
+                    "main_lobe_width_m": width[b],
+                    "band_valid": bool(valid[b]), "band_note": why[b]})
         row.update(status="analysed", reason="")
         rows.append(row)
         maps_dr.append(res.diagonal_removed.T.reshape(len(bands), nx, ny))

@@ -11,10 +11,10 @@ from ..bands import a_weighting_db, sum_levels_db, third_octave_bands
 from ..campaign import Campaign
 from ..errors import FlyoverInputError
 from ..io.tables import read_csv_table, write_csv
+from ..imaging import TOTAL
 from ..levels import level_1m_db, reference_level_db
 from ..plots import directivity_figure, save_figure, spectra_figure
 
-TOTAL = "total"
 UNRESOLVED = "not separable: region centres closer than one main-lobe width"
 SPECTRA_POLAR_DEG = (60.0, 75.0, 90.0, 105.0, 120.0)
 
@@ -42,7 +42,8 @@ def level_table(powers: pd.DataFrame, windows: pd.DataFrame, campaign: Campaign)
     """One row per window, band and region (plus the 'total' of all regions)."""
     an = campaign.analysis
     cols = ["window", "time_utc", "polar_angle_deg", "band_hz", "region", "level_db",
-            "level_1m_db", "resolved", "note", "height_m", "speed_m_s", "distance_m"]
+            "level_1m_db", "resolved", "band_valid", "note", "height_m", "speed_m_s",
+            "distance_m"]
     if len(powers) == 0:
         return pd.DataFrame(columns=cols)
     p = powers.copy()
@@ -50,27 +51,24 @@ def level_table(powers: pd.DataFrame, windows: pd.DataFrame, campaign: Campaign)
     p["band_hz"] = p["band_hz"].astype(float)
     p["power_1m_pa2"] = pd.to_numeric(p["power_1m_pa2"], errors="coerce")
     p["resolved"] = p["resolved"].astype(str).str.lower() == "true"
-    unknown = sorted(set(p["region"]) - set(campaign.regions))
+    p["band_valid"] = p["band_valid"].astype(str).str.lower() == "true"
+    p["band_note"] = p["band_note"].fillna("")
+    unknown = sorted(set(p["region"]) - set(campaign.regions) - {TOTAL})
     if unknown:
         raise FlyoverInputError("region powers name regions the campaign does not have",
                                 "region_power.csv", f"regions {sorted(campaign.regions)}",
                                 f"{unknown}", "the imaging is stale: re-run the workflow")
     bands = third_octave_bands(p["band_hz"].min(), p["band_hz"].max())
     band_index = {b: k for k, b in enumerate(bands.nominal_hz)}
-    total = (p.groupby(["window", "band_hz"], as_index=False)
-             .agg(power_1m_pa2=("power_1m_pa2", lambda s: s.sum(min_count=len(s))),
-                  resolved=("resolved", "all")))
-    total["region"] = TOTAL
-    total["resolved"] = True
-    p = pd.concat([p[["window", "band_hz", "region", "power_1m_pa2", "resolved"]], total],
-                  ignore_index=True)
     k = p["band_hz"].map(band_index).to_numpy()
     l1 = level_1m_db(p["power_1m_pa2"].to_numpy())
     lref = reference_level_db(np.zeros(len(bands)), bands, an.reference_distance_m,
                               an.reference_atmosphere)[k] + l1
     p["level_1m_db"] = l1
-    p["level_db"] = np.where(p["resolved"], lref, np.nan)
-    p["note"] = np.where(p["resolved"], "", UNRESOLVED)
+    ok = p["resolved"] & p["band_valid"]
+    p["level_db"] = np.where(ok, lref, np.nan)
+    p["note"] = np.where(~p["band_valid"], p["band_note"],
+                         np.where(p["resolved"], "", UNRESOLVED))
     w = windows.loc[p["window"]]
     for c in ("time_utc", "polar_angle_deg", "height_m", "speed_m_s", "distance_m"):
         p[c] = w[c].to_numpy()
