@@ -78,7 +78,7 @@ def track_figure(inputs, summary: dict, windows_s=None):
                      max(span[:, 0].max(), mics[:, 0].max()) + pad)
     ax_plan.set_ylim(min(span[:, 1].min(), mics[:, 1].min()) - pad,
                      max(span[:, 1].max(), mics[:, 1].max()) + pad)
-    ax_plan.set_aspect("equal", adjustable="datalim")
+    ax_plan.set_aspect("equal", adjustable="box")
     ax_plan.set_xlabel("east (m)")
     ax_plan.set_ylabel("north (m)")
     ax_plan.set_title(f"{summary['pass']}: track over the array (site frame)")
@@ -130,9 +130,7 @@ def map_figure(maps, campaign, bands, pass_name: str, window_row: dict,
                              squeeze=False, sharex=True, sharey=True)
     extent = [x[0] - campaign.grid.spacing_m / 2, x[-1] + campaign.grid.spacing_m / 2,
               y[-1] + campaign.grid.spacing_m / 2, y[0] - campaign.grid.spacing_m / 2]
-    cmap = plt.get_cmap(MAP_CMAP).copy()
-    cmap.set_under("#ece6da")
-    cmap.set_bad("#ece6da")
+    cmap = plt.get_cmap(MAP_CMAP).with_extremes(under="#ece6da", bad="#ece6da")
     image = None
     for b in range(rows * cols):
         ax = axes[b // cols][b % cols]
