@@ -131,6 +131,8 @@ class PassSpec:
     track_height_datum: str = "ellipsoidal"
     track_position_noise_m: float = 0.05
     exclude_channels: tuple[int, ...] = ()
+    clock_anchor_m: tuple[float, float, float] | None = None
+    clock_search_s: float = 1.0
 
 
 @dataclass(frozen=True)

@@ -209,7 +209,17 @@ def campaign_from_mapping(data: dict, path: Path) -> Campaign:
             track_height_datum=p.get("track_height_datum", "ellipsoidal"),
             track_position_noise_m=float(p.get("track_position_noise_m", 0.05)),
             exclude_channels=tuple(p.get("exclude_channels", ())),
+            clock_anchor_m=tuple(p["clock_anchor_m"]) if "clock_anchor_m" in p else None,
+            clock_search_s=float(p.get("clock_search_s", 1.0)),
         )
+        if p["clock_offset_s"] == "auto" and "clock_anchor_m" not in p:
+            raise FlyoverInputError(
+                "an automatic clock offset needs an anchor", f"{source}, key {where}",
+                "clock_anchor_m: [x, y, z], the body position (m) of a source in the recording",
+                "clock_offset_s: auto without clock_anchor_m",
+                "a clock offset looks exactly like an along-track shift of the sources; give the "
+                "body position of a known source (e.g. the propeller hub) or a number from a "
+                "PPS/IRIG log")
     geoid = site_cfg.get("geoid_undulation_m")
     needs_geoid = array.height_datum == "msl" or any(
         ps.track_height_datum == "msl" for ps in passes.values())

@@ -5,26 +5,86 @@ from __future__ import annotations
 import json
 from pathlib import Path
 
+import numpy as np
+
+from ..bands import third_octave_bands
 from ..campaign import Campaign
+from ..clocksync import estimate_clock_offset
+from ..dedoppler import ChainSettings
+from ..errors import FlyoverInputError
 from ..io.atomic import write_text
 from ..io.passdata import load_pass
-from ..plots import track_figure, save_figure
+from ..io.recording import read_span
+from ..windows import plan_windows
+from ..plots import save_figure, track_figure
 from .check import pass_summary
 
 
 def run(campaign: Campaign, pass_name: str, alignment_json: Path, track_png: Path) -> dict:
-    """Write ``alignment.json`` (clock, coverage, overhead time) and the track figure."""
+    """Write ``alignment.json`` (clock, coverage, overhead time) and the track figure.
+
+    With ``clock_offset_s: auto`` the offset is estimated from the anchor source first and the
+    pass is aligned with it.
+    """
     inputs = load_pass(campaign, pass_name)
+    estimate = None
+    if inputs.spec.clock_offset_s == "auto":
+        estimate = _estimate_offset(campaign, inputs)
+        inputs = load_pass(campaign, pass_name, estimate.offset_s)
     summary = pass_summary(inputs)
     summary["recording_start_utc_ns"] = int(inputs.spec.recording_start_utc_ns)
     summary["epoch_utc_ns"] = int(inputs.clock.epoch_utc_ns)
     summary["rate_error_ppm"] = inputs.clock.rate_error_ppm
-    summary["clock_offset_source"] = ("estimated" if inputs.spec.clock_offset_s == "auto"
-                                      else "config")
+    summary["clock_offset_source"] = "config"
+    if estimate is not None:
+        summary["clock_offset_source"] = (f"estimated from the anchor at body "
+                                          f"{list(inputs.spec.clock_anchor_m)} m")
+        summary["clock_estimate_contrast"] = estimate.contrast
+        summary["clock_scan_offsets_s"] = [round(float(v), 6) for v in estimate.scan_offsets_s]
+        summary["clock_scan_power"] = [round(float(v), 6) for v in estimate.scan_power]
     fig = track_figure(inputs, summary)
     save_figure(fig, track_png)
     write_text(alignment_json, json.dumps(summary, indent=2, sort_keys=True) + "\n")
     return summary
+
+
+def _estimate_offset(campaign: Campaign, inputs):
+    """Clock offset from the anchor source, on up to five windows near overhead."""
+    an = campaign.analysis
+    spec = inputs.spec
+    fs = inputs.recording.sample_rate_hz
+    search = spec.clock_search_s
+    span = (search + 0.5, inputs.recording_span_s[1] - search - 0.5)
+    windows = plan_windows(inputs.track, inputs.layout.center_enu_m, span, an.window_s,
+                           an.window_s, fs, 30.0)
+    if not windows:
+        raise FlyoverInputError(
+            "no window near overhead to estimate the clock offset from", str(spec.recording),
+            f"a recording covering the overhead time with {search} s to spare on each side",
+            hint="set clock_search_s smaller, or give clock_offset_s as a number")
+    pick = windows[:: max(1, len(windows) // 5)][:5]
+    bands = third_octave_bands(max(an.band_min_hz, 250.0), an.band_max_hz)
+    settings = ChainSettings(bands, inputs.weights, campaign.array.pressure_gain, "cubic")
+    scale = inputs.pa_per_unit[:, None].astype(np.float32)
+    info = inputs.recording
+
+    def read_frames(first, n):
+        first_ok = max(0, first)
+        last_ok = min(info.n_frames, first + n)
+        out = np.zeros((info.n_channels, n), np.float32)
+        out[:, first_ok - first:last_ok - first] = read_span(info, first_ok, last_ok - first_ok)
+        return out * scale
+
+    estimate = estimate_clock_offset(read_frames, inputs.track, pick, spec.clock_anchor_m,
+                                     inputs.layout.enu_m, spec.atmosphere, inputs.clock,
+                                     settings, max_offset_s=search)
+    if estimate.contrast < 1.5:
+        raise FlyoverInputError(
+            "the anchor source is not clear enough to estimate the clock offset",
+            str(spec.recording), "a beam-power peak at least 1.5 times the scan's median",
+            f"{estimate.contrast:.2f}",
+            "check clock_anchor_m, or give clock_offset_s as a number from a timing log")
+    return estimate
 
 
 def clock_offset_from_alignment(alignment_json: Path) -> float:
