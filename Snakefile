@@ -1,118 +1,17 @@
 # flyover campaign workflow.
 #   snakemake --cores 2                                  the built-in demo campaign
 #   snakemake --cores 2 --configfile my-campaign.yaml    your campaign, and only it
-# Rules call flyover's stage entry points; no physics lives here.
+#   flyover run my-campaign.yaml                         the same through flyover's wrapper
+# The rules live in the package (flyover/rules.smk) so that `flyover run` has them when
+# installed; they call flyover's stage entry points and hold no physics.
 
-import sys
-from pathlib import Path
+include: "flyover/rules.smk"
 
-from flyover.errors import FlyoverInputError
-from flyover.workflow import CampaignPlan
-
-# The campaign is the last --configfile, else the demo. It is loaded by flyover (validated),
-# never merged with another file, so the demo's passes cannot leak into a user's campaign.
-CAMPAIGN_FILE = ([str(Path(f).resolve()) for f in workflow.overwrite_configfiles]
-                 or [str(Path(workflow.basedir) / "demo" / "campaign.yaml")])[-1]
-try:
-    PLAN = CampaignPlan.load(CAMPAIGN_FILE)
-except FlyoverInputError as exc:
-    sys.stderr.write(exc.message + "\n")
-    sys.exit(2)
-
-OUT = PLAN.output
-PY = sys.executable
-STAGE = f'"{PY}" -m flyover stage'
-
-wildcard_constraints:
-    pass_name="|".join(PLAN.passes),
-
-
-rule all:
+# Includes do not set the default target; this rule makes `snakemake` without targets run all.
+rule campaign:
+    default_target: True
     input:
-        PLAN.targets(),
+        rules.all.input,
 
 
-if PLAN.simulation_folder is not None:
-
-    rule simulate_demo:
-        input:
-            scenario=str(PLAN.campaign.scenario),
-        output:
-            PLAN.simulated_files(),
-        log:
-            f"{OUT}/logs/simulate_demo.log",
-        benchmark:
-            f"{OUT}/benchmarks/simulate_demo.tsv"
-        resources:
-            mem_mb=4000,
-        shell:
-            f'"{PY}" -m flyover simulate {{input.scenario}} --out "{PLAN.simulation_folder}" '
-            "> {log} 2>&1"
-
-
-rule align:
-    input:
-        unpack(lambda w: PLAN.pass_inputs(w.pass_name)),
-    output:
-        json=f"{OUT}/{{pass_name}}/alignment.json",
-        png=f"{OUT}/{{pass_name}}/track.png",
-    params:
-        fingerprint=lambda w: PLAN.fingerprint(w.pass_name, "align"),
-    log:
-        f"{OUT}/logs/{{pass_name}}/align.log",
-    benchmark:
-        f"{OUT}/benchmarks/{{pass_name}}/align.tsv"
-    resources:
-        mem_mb=1000,
-    shell:
-        f'{STAGE} align --campaign "{CAMPAIGN_FILE}" --pass {{wildcards.pass_name}} '
-        f'--out "{OUT}/{{wildcards.pass_name}}" > {{log}} 2>&1'
-
-
-
-rule image:
-    input:
-        unpack(lambda w: PLAN.pass_inputs(w.pass_name)),
-        alignment=f"{OUT}/{{pass_name}}/alignment.json",
-    output:
-        maps=f"{OUT}/{{pass_name}}/maps.npz",
-        windows=f"{OUT}/{{pass_name}}/windows.csv",
-        regions=f"{OUT}/{{pass_name}}/region_power.csv",
-        figures=directory(f"{OUT}/{{pass_name}}/maps"),
-    params:
-        fingerprint=lambda w: PLAN.fingerprint(w.pass_name, "image"),
-    log:
-        f"{OUT}/logs/{{pass_name}}/image.log",
-    benchmark:
-        f"{OUT}/benchmarks/{{pass_name}}/image.tsv"
-    threads: 2
-    resources:
-        mem_mb=3000,
-        runtime=60,
-    shell:
-        f'{STAGE} image --campaign "{CAMPAIGN_FILE}" --pass {{wildcards.pass_name}} '
-        f'--out "{OUT}/{{wildcards.pass_name}}" --threads {{threads}} > {{log}} 2>&1'
-
-
-rule levels:
-    input:
-        windows=f"{OUT}/{{pass_name}}/windows.csv",
-        regions=f"{OUT}/{{pass_name}}/region_power.csv",
-    output:
-        levels=f"{OUT}/{{pass_name}}/levels.csv",
-        overall=f"{OUT}/{{pass_name}}/levels_overall.csv",
-        spectra=f"{OUT}/{{pass_name}}/spectra.csv",
-        directivity=f"{OUT}/{{pass_name}}/directivity.csv",
-        spectra_png=f"{OUT}/{{pass_name}}/spectra.png",
-        directivity_png=f"{OUT}/{{pass_name}}/directivity.png",
-    params:
-        fingerprint=lambda w: PLAN.fingerprint(w.pass_name, "levels"),
-    log:
-        f"{OUT}/logs/{{pass_name}}/levels.log",
-    benchmark:
-        f"{OUT}/benchmarks/{{pass_name}}/levels.tsv"
-    resources:
-        mem_mb=1000,
-    shell:
-        f'{STAGE} levels --campaign "{CAMPAIGN_FILE}" --pass {{wildcards.pass_name}} '
-        f'--out "{OUT}/{{wildcards.pass_name}}" > {{log}} 2>&1'
+localrules: campaign

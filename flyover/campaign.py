@@ -133,6 +133,7 @@ class PassSpec:
     exclude_channels: tuple[int, ...] = ()
     clock_anchor_m: tuple[float, float, float] | None = None
     clock_search_s: float = 1.0
+    keep_channels: tuple[int, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -141,6 +142,7 @@ class ArraySpec:
     mounting: str
     height_datum: str = "ellipsoidal"
     exclude_channels: tuple[int, ...] = ()
+    keep_channels: tuple[int, ...] = ()
 
     @property
     def pressure_gain(self) -> float:
@@ -163,3 +165,10 @@ class Campaign:
     output: Path
     outline_m: tuple[tuple[float, float], ...] = ()
     scenario: Path | None = None
+
+    def input_files(self) -> list[Path]:
+        """Every input file the campaign names: config, layout, recordings, calibrations, tracks."""
+        files = [self.config_path, self.array.layout]
+        for p in self.passes.values():
+            files += [p.recording, p.calibration, p.track]
+        return list(dict.fromkeys(files))

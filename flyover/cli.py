@@ -6,6 +6,7 @@ Exit codes: 0 all well, 1 failed, 2 bad input (the message says what and where).
 from __future__ import annotations
 
 import argparse
+import subprocess
 import sys
 from pathlib import Path
 
@@ -17,16 +18,22 @@ EXAMPLES = {
     "simulate": "flyover simulate demo/scenario.yaml --out demo/data",
     "calibrate": ("flyover calibrate cal-ch07.wav --channel 7 --level-db 94 --frequency-hz 1000 "
                   "--update calibration.csv"),
+    "run": "flyover run my-campaign.yaml --cores 2\n  flyover run my-campaign.yaml --profile "
+           "config/profiles/slurm",
+    "plan": "flyover plan my-campaign.yaml",
+    "report": "flyover report my-campaign.yaml --open",
     "stage": "flyover stage align --campaign demo/campaign.yaml --pass pass-1 --out results/pass-1",
+    "stage-campaign": "flyover stage-campaign summary --campaign demo/campaign.yaml",
 }
+RULES = Path(__file__).resolve().parent / "rules.smk"
 
 
 def _parser() -> argparse.ArgumentParser:
+    from . import __version__
     p = argparse.ArgumentParser(
         prog="flyover", description="Array processing for outdoor flyover noise campaigns.",
-        epilog="Run a whole campaign with: snakemake --cores 2 --configfile my-campaign.yaml",
+        epilog="Run a whole campaign with: flyover run my-campaign.yaml",
         formatter_class=argparse.RawDescriptionHelpFormatter)
-    from . import __version__
     p.add_argument("--version", action="version", version=f"flyover {__version__}")
     sub = p.add_subparsers(dest="command", required=True, metavar="COMMAND")
 
@@ -53,12 +60,30 @@ def _parser() -> argparse.ArgumentParser:
                                                "(default: every channel has a calibrator)")
     k.add_argument("--update", type=Path, help="calibration CSV to update (or create)")
 
-    g = add("stage", "run one workflow step (called by the Snakefile)")
-    g.add_argument("name", choices=["align", "image", "levels"])
+    r = add("run", "run a whole campaign through the Snakemake workflow")
+    r.add_argument("campaign", type=Path)
+    r.add_argument("--cores", default="2", help="cores for local runs (default 2; 'all')")
+    r.add_argument("--profile", help="a Snakemake profile folder, e.g. config/profiles/slurm")
+    r.add_argument("snakemake_args", nargs=argparse.REMAINDER,
+                   help="anything after -- goes to snakemake unchanged")
+
+    n = add("plan", "show what a run would redo, pass by pass, and why")
+    n.add_argument("campaign", type=Path)
+
+    o = add("report", "print the path of a campaign's report (or open it)")
+    o.add_argument("campaign", type=Path)
+    o.add_argument("--open", action="store_true", help="open it in the default browser")
+
+    g = add("stage", "run one per-pass workflow step (called by the workflow)")
+    g.add_argument("name", choices=["align", "image", "levels", "qc"])
     g.add_argument("--campaign", type=Path, required=True)
     g.add_argument("--pass", dest="pass_name", required=True)
     g.add_argument("--out", type=Path, required=True, help="the pass's result folder")
     g.add_argument("--threads", type=int, default=1, help="threads for the compiled kernels")
+
+    h = add("stage-campaign", "run one campaign-level workflow step (called by the workflow)")
+    h.add_argument("name", choices=["summary", "report"])
+    h.add_argument("--campaign", type=Path, required=True)
     return p
 
 
@@ -69,6 +94,13 @@ def main(argv=None) -> int:
     except FlyoverInputError as exc:
         print(exc.message, file=sys.stderr)
         return 2
+
+
+def _snakemake(campaign: Path, *extra: str, capture: bool = False):
+    # Run in the current folder, like `snakemake` itself: both then share one metadata store.
+    cmd = [sys.executable, "-m", "snakemake", "--snakefile", str(RULES),
+           "--configfile", str(Path(campaign).resolve()), *extra]
+    return subprocess.run(cmd, capture_output=capture, text=True)
 
 
 def _dispatch(args) -> int:
@@ -97,19 +129,54 @@ def _dispatch(args) -> int:
         print(calibrate(args.recording, args.level_db, args.frequency_hz, args.channel,
                         args.update))
         return 0
-    if args.command == "stage":
+    if args.command == "run":
         from .io.config import load_campaign
-        campaign = load_campaign(args.campaign)
-        if args.name == "align":
-            from .stages import align
-            align.run(campaign, args.pass_name, args.out / "alignment.json",
-                      args.out / "track.png")
-        elif args.name == "image":
-            from .stages import image
-            image.run(campaign, args.pass_name, args.out / "alignment.json", args.out,
-                      args.threads)
-        elif args.name == "levels":
-            from .stages import levels
-            levels.run(campaign, args.pass_name, args.out)
+        load_campaign(args.campaign)  # bad input stops here, with its message
+        extra = [a for a in args.snakemake_args if a != "--"]
+        extra = (["--profile", args.profile] if args.profile else ["--cores", str(args.cores)]) \
+            + extra
+        return 0 if _snakemake(args.campaign, *extra).returncode == 0 else 1
+    if args.command == "plan":
+        from .io.config import load_campaign
+        from .workflow import format_plan, parse_dry_run
+        load_campaign(args.campaign)
+        res = _snakemake(args.campaign, "--dry-run", "--cores", "1", capture=True)
+        if res.returncode != 0:
+            print(res.stderr, file=sys.stderr)
+            return 1
+        print(format_plan(parse_dry_run(res.stdout + res.stderr)))
         return 0
-    raise AssertionError(args.command)
+    if args.command == "report":
+        from .io.config import load_campaign
+        path = load_campaign(args.campaign).output / "report.html"
+        if not path.exists():
+            print(f"no report yet: run `flyover run {args.campaign}` first", file=sys.stderr)
+            return 1
+        print(path)
+        if args.open:
+            import webbrowser
+            webbrowser.open(path.as_uri())
+        return 0
+    from .io.config import load_campaign
+    campaign = load_campaign(args.campaign)
+    if args.command == "stage-campaign":
+        if args.name == "summary":
+            from .stages import campaign as summary
+            summary.run(campaign, campaign.output)
+        else:
+            from .stages import report
+            report.run(campaign, campaign.output, campaign.output / "report.html")
+        return 0
+    if args.name == "align":
+        from .stages import align
+        align.run(campaign, args.pass_name, args.out / "alignment.json", args.out / "track.png")
+    elif args.name == "image":
+        from .stages import image
+        image.run(campaign, args.pass_name, args.out / "alignment.json", args.out, args.threads)
+    elif args.name == "levels":
+        from .stages import levels
+        levels.run(campaign, args.pass_name, args.out)
+    else:
+        from .stages import qc
+        qc.run(campaign, args.pass_name, args.out)
+    return 0

@@ -220,3 +220,31 @@ def directivity_figure(levels, pass_name: str, max_bands: int = 6):
     fig.suptitle(f"{pass_name}: directivity", fontsize=11)
     fig.tight_layout()
     return fig
+
+
+def spectrogram_figure(raw, dedopplerized, pass_name: str, raw_label: str, f_max_hz: float,
+                       region_name: str = ""):
+    """Two spectrograms side by side: a microphone as received, and the de-Dopplerized region.
+
+    ``raw`` and ``dedopplerized`` are (f, t, Sxx) triples from scipy.signal.spectrogram, or None.
+    """
+    fig, axes = plt.subplots(1, 2, figsize=(11, 3.8), sharey=True)
+    for ax, data, title in ((axes[0], raw, raw_label),
+                            (axes[1], dedopplerized, f"region '{region_name}' de-Dopplerized")):
+        ax.grid(False)
+        if data is None:
+            ax.text(0.5, 0.5, "no analysed windows", ha="center", transform=ax.transAxes)
+            continue
+        f, t, s = data
+        db = 10 * np.log10(np.maximum(s, 1e-30) / (20e-6) ** 2)
+        top = np.percentile(db[f <= f_max_hz], 99.5)
+        mesh = ax.pcolormesh(t, f, db, shading="auto", cmap=MAP_CMAP, vmin=top - 50, vmax=top)
+        ax.set_ylim(0, f_max_hz)
+        ax.set_xlabel("time (s)" if ax is axes[0] else "emission time (s)")
+        ax.set_title(title)
+    axes[0].set_ylabel("frequency (Hz)")
+    if raw is not None:
+        bar = fig.colorbar(mesh, ax=axes, shrink=0.9, pad=0.02)
+        bar.set_label("spectral level (dB re 20 uPa^2/Hz, 50 dB per panel)")
+    fig.suptitle(f"{pass_name}: Doppler shift as received, removed in source time", fontsize=11)
+    return fig

@@ -59,7 +59,7 @@ def test_stages_on_the_tiny_campaign(tiny_copy):
     campaign = load_campaign(tiny_copy / "campaign.yaml")
     out = tiny_copy / "results" / "p1"
     align.run(campaign, "p1", out / "alignment.json", out / "track.png")
-    image.run(campaign, "p1", out / "alignment.json", out, threads=2, progress=lambda *_: None)
+    image.run(campaign, "p1", out / "alignment.json", out, threads=2, quiet=True)
     levels.run(campaign, "p1", out)
     table = pd.read_csv(out / "levels.csv")
     assert list(table.columns[:6]) == ["window", "time_utc", "polar_angle_deg", "band_hz",

@@ -184,7 +184,7 @@ def campaign_from_mapping(data: dict, path: Path) -> Campaign:
     arr = data["array"]
     array = ArraySpec(_resolve_path(base, arr["layout"]), arr["mounting"],
                       arr.get("height_datum", "ellipsoidal"),
-                      tuple(arr.get("exclude_channels", ())))
+                      tuple(arr.get("exclude_channels", ())), tuple(arr.get("keep_channels", ())))
     default_atm = data.get("atmosphere", {})
     passes = {}
     for name, p in data["passes"].items():
@@ -211,6 +211,7 @@ def campaign_from_mapping(data: dict, path: Path) -> Campaign:
             exclude_channels=tuple(p.get("exclude_channels", ())),
             clock_anchor_m=tuple(p["clock_anchor_m"]) if "clock_anchor_m" in p else None,
             clock_search_s=float(p.get("clock_search_s", 1.0)),
+            keep_channels=tuple(p.get("keep_channels", ())),
         )
         if p["clock_offset_s"] == "auto" and "clock_anchor_m" not in p:
             raise FlyoverInputError(

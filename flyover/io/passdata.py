@@ -51,7 +51,8 @@ def load_layout(campaign: Campaign) -> ArrayLayout:
                        campaign.geoid_undulation_m)
 
 
-def load_pass(campaign: Campaign, name: str, clock_offset_s: float | None = None) -> PassInputs:
+def load_pass(campaign: Campaign, name: str, clock_offset_s: float | None = None,
+              quality_excluded=()) -> PassInputs:
     """Read and check the layout, calibration, recording header and track of one pass.
 
     Parameters
@@ -61,6 +62,8 @@ def load_pass(campaign: Campaign, name: str, clock_offset_s: float | None = None
         Pass name.
     clock_offset_s : float, optional
         Overrides the config's clock offset (used once an 'auto' offset has been estimated).
+    quality_excluded : sequence of int
+        Channels the data-quality checks flagged; left out unless the config keeps them.
     """
     if name not in campaign.passes:
         raise FlyoverInputError(f"no pass named '{name}'", str(campaign.config_path),
@@ -85,7 +88,9 @@ def load_pass(campaign: Campaign, name: str, clock_offset_s: float | None = None
                          spec.track_height_datum, campaign.geoid_undulation_m)
     track = fit_track(clock.seconds_since_epoch(samples.utc_ns), samples.enu_m,
                       spec.track_position_noise_m, samples.attitude_deg, where=str(spec.track))
-    excluded = set(campaign.array.exclude_channels) | set(spec.exclude_channels)
+    kept = set(campaign.array.keep_channels) | set(spec.keep_channels)
+    excluded = (set(campaign.array.exclude_channels) | set(spec.exclude_channels)
+                | (set(int(c) for c in quality_excluded) - kept))
     unknown = sorted(excluded - set(layout.channel.tolist()))
     if unknown:
         raise FlyoverInputError("excluded channels are not in the layout",

@@ -180,6 +180,15 @@ def read_span(info: RecordingInfo, start_frame: int, n_frames: int, channels=Non
     return out
 
 
+def iter_blocks(info: RecordingInfo, start_frame: int, n_frames: int, block_frames: int = 1 << 16):
+    """Yield consecutive float32 blocks (n_channels, <= block_frames) of a span of frames."""
+    done = 0
+    while done < n_frames:
+        k = min(block_frames, n_frames - done)
+        yield read_span(info, start_frame + done, k, block_frames=block_frames)
+        done += k
+
+
 def write_recording(path, samples, sample_rate_hz: float, subtype: str = "FLOAT") -> None:
     """Write a multichannel recording; RF64 when the data would pass 4 GiB, FLAC by extension.
 

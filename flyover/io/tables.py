@@ -25,8 +25,9 @@ TRACK_WGS84 = ["time_utc", "lat_deg", "lon_deg", "height_m"]
 ATTITUDE = ["roll_deg", "pitch_deg", "yaw_deg"]
 
 
-def read_csv_table(path, what: str) -> pd.DataFrame:
-    """Read a CSV file as text columns; missing or empty files give a clear error."""
+def read_csv_table(path, what: str, columns=()) -> pd.DataFrame:
+    """Read a CSV file as text columns; missing or empty files, or missing ``columns``, give a
+    clear error."""
     path = Path(path)
     if not path.is_file():
         raise FlyoverInputError(f"{what} file not found", str(path), f"an existing {what} CSV",
@@ -40,6 +41,11 @@ def read_csv_table(path, what: str) -> pd.DataFrame:
         raise FlyoverInputError(f"{what} file is not a readable CSV", str(path),
                                 "comma-separated text", str(exc).split("\n")[0]) from None
     df.columns = [c.strip() for c in df.columns]
+    missing = [c for c in columns if c not in df.columns]
+    if missing:
+        raise FlyoverInputError(f"{what} file lacks columns {missing}", str(path),
+                                ",".join(columns), ",".join(df.columns),
+                                "it was written by another flyover version: re-run the workflow")
     if len(df) == 0:
         raise FlyoverInputError(f"{what} file has no data rows", str(path),
                                 "at least one row under the header")

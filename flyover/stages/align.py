@@ -14,7 +14,8 @@ from ..dedoppler import ChainSettings
 from ..errors import FlyoverInputError
 from ..io.atomic import write_text
 from ..io.passdata import load_pass
-from ..io.recording import read_span
+from ..io.recording import iter_blocks, read_span
+from ..quality import ChannelAccumulator, channel_quality, track_quality
 from ..windows import plan_windows
 from ..plots import save_figure, track_figure
 from .check import pass_summary
@@ -36,6 +37,16 @@ def run(campaign: Campaign, pass_name: str, alignment_json: Path, track_png: Pat
     summary["epoch_utc_ns"] = int(inputs.clock.epoch_utc_ns)
     summary["rate_error_ppm"] = inputs.clock.rate_error_ppm
     summary["clock_offset_source"] = "config"
+    quality = channel_quality_of(inputs, summary["covered_s"])
+    flagged = [q["channel"] for q in quality if q["verdict"] != "ok"]
+    summary["channel_quality"] = quality
+    summary["quality_flagged_channels"] = flagged
+    kept = set(campaign.array.keep_channels) | set(inputs.spec.keep_channels)
+    summary["quality_excluded_channels"] = [c for c in flagged if c not in kept]
+    left_out = set(summary["quality_excluded_channels"])
+    summary["channels_used"] = sum(1 for c, w in zip(inputs.layout.channel, inputs.weights)
+                                   if w > 0 and int(c) not in left_out)
+    summary["track_quality"] = track_quality(inputs.track, summary["covered_s"])
     if estimate is not None:
         summary["clock_offset_source"] = (f"estimated from the anchor at body "
                                           f"{list(inputs.spec.clock_anchor_m)} m")
@@ -85,6 +96,22 @@ def _estimate_offset(campaign: Campaign, inputs):
             f"{estimate.contrast:.2f}",
             "check clock_anchor_m, or give clock_offset_s as a number from a timing log")
     return estimate
+
+
+def channel_quality_of(inputs, covered_s) -> list[dict]:
+    """Channel statistics over the part of the recording the track covers, block by block."""
+    clock, info = inputs.clock, inputs.recording
+    first = max(0, int(np.floor(clock.sample_index(covered_s[0]))))
+    last = min(info.n_frames, int(np.ceil(clock.sample_index(covered_s[1]))) + 1)
+    acc = ChannelAccumulator(info.n_channels)
+    for block in iter_blocks(info, first, last - first):
+        acc.add(block)
+    return channel_quality(acc, inputs.pa_per_unit, inputs.layout.enu_m, inputs.layout.channel)
+
+
+def quality_exclusions(alignment_json: Path) -> list[int]:
+    """Channels the alignment stage's data-quality checks left out of beamforming."""
+    return list(json.loads(Path(alignment_json).read_text()).get("quality_excluded_channels", []))
 
 
 def clock_offset_from_alignment(alignment_json: Path) -> float:

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import io
 from pathlib import Path
 
 import numba
@@ -18,16 +19,18 @@ from ..io.recording import read_span
 from ..io.tables import write_csv
 from ..levels import main_lobe_width_m, regions_resolved
 from ..plots import map_figure, save_figure
+from ..progress import Progress
 from ..timebase import iso_utc
 from ..windows import plan_windows
-from .align import clock_offset_from_alignment
+from .align import clock_offset_from_alignment, quality_exclusions
 
 
 def run(campaign: Campaign, pass_name: str, alignment_json: Path, out_dir: Path,
-        threads: int = 1, progress=print) -> None:
+        threads: int = 1, quiet: bool = False) -> None:
     """Image every window of a pass; write maps.npz, windows.csv, region_power.csv, figures."""
     numba.set_num_threads(max(1, threads))
-    inputs = load_pass(campaign, pass_name, clock_offset_from_alignment(alignment_json))
+    inputs = load_pass(campaign, pass_name, clock_offset_from_alignment(alignment_json),
+                       quality_exclusions(alignment_json))
     an = campaign.analysis
     atm = inputs.spec.atmosphere
     clock = inputs.clock
@@ -40,6 +43,8 @@ def run(campaign: Campaign, pass_name: str, alignment_json: Path, out_dir: Path,
     windows = plan_windows(inputs.track, inputs.layout.center_enu_m, inputs.recording_span_s,
                            an.window_s, an.hop_s, fs, an.max_polar_offset_deg)
     centers = [r.center_m for r in campaign.regions.values()]
+    progress = Progress(len(windows), f"{pass_name} imaging",
+                        stream=io.StringIO() if quiet else None)
     rows, region_rows, maps_dr, maps_full, done = [], [], [], [], []
     nx, ny = campaign.grid.shape
     for w in windows:
@@ -48,6 +53,7 @@ def run(campaign: Campaign, pass_name: str, alignment_json: Path, out_dir: Path,
         if first < 0 or first + n > inputs.recording.n_frames:
             row.update(status="skipped", reason="sound reaches the array outside the recording")
             rows.append(row)
+            progress.step(f"window {w.index} skipped")
             continue
         signals = read_span(inputs.recording, first, n) * inputs.pa_per_unit[:, None].astype(
             np.float32)
@@ -78,7 +84,8 @@ def run(campaign: Campaign, pass_name: str, alignment_json: Path, out_dir: Path,
         fig = map_figure(res.diagonal_removed if an.diagonal_removal else res.full, campaign,
                          bands, pass_name, row)
         save_figure(fig, out_dir / "maps" / f"window-{w.index:03d}.png")
-        progress(f"{pass_name}: window {w.index} at {w.polar_angle_deg:.0f} deg done")
+        progress.step(f"window {w.index} at {w.polar_angle_deg:.0f} deg")
+    progress.close()
     write_csv(out_dir / "windows.csv", pd.DataFrame(rows))
     write_csv(out_dir / "region_power.csv", pd.DataFrame(region_rows), float_format="%.6e")
     _write_maps(out_dir / "maps.npz", campaign, bands, done, clock, maps_dr, maps_full)

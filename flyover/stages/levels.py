@@ -17,6 +17,8 @@ from ..plots import directivity_figure, save_figure, spectra_figure
 
 UNRESOLVED = "not separable: region centres closer than one main-lobe width"
 SPECTRA_POLAR_DEG = (60.0, 75.0, 90.0, 105.0, 120.0)
+REGION_POWER_COLUMNS = ("window", "region", "band_hz", "power_1m_pa2", "resolved", "band_valid",
+                        "band_note")
 
 
 def run(campaign: Campaign, pass_name: str, out_dir: Path) -> None:
@@ -24,7 +26,7 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> None:
     out_dir = Path(out_dir)
     windows = pd.read_csv(out_dir / "windows.csv")
     windows = windows[windows["status"] == "analysed"].set_index("window")
-    powers = read_csv_table(out_dir / "region_power.csv", "region power") \
+    powers = read_csv_table(out_dir / "region_power.csv", "region power", REGION_POWER_COLUMNS) \
         if windows.size else pd.DataFrame(columns=["window", "region", "band_hz",
                                                    "power_1m_pa2", "resolved"])
     levels = level_table(powers, windows, campaign)

@@ -1,0 +1,23 @@
+"""Pass-to-pass statistics against scipy and textbook values."""
+
+import numpy as np
+import pytest
+
+from flyover.stats import energetic_mean_db, mean_and_interval, polar_bin_deg
+
+
+def test_student_t_interval():
+    # 90 % two-sided interval of the mean, n = 4: t(0.95, 3) = 2.353 (Student t table, e.g.
+    # NIST/SEMATECH e-Handbook 1.3.6.7.2); values 70, 71, 72, 73: mean 71.5, s = 1.291.
+    r = mean_and_interval([70.0, 71.0, 72.0, 73.0])
+    assert r["mean_db"] == 71.5
+    assert r["std_db"] == pytest.approx(1.2910, abs=1e-4)
+    assert r["ci_half_width_db"] == pytest.approx(2.353 * 1.2910 / 2, abs=2e-3)
+    assert mean_and_interval([70.0])["n"] == 1
+    assert np.isnan(mean_and_interval([70.0])["ci_half_width_db"])
+
+
+def test_energetic_mean_and_bins():
+    # Energetic mean of 60 and 70 dB: 10 lg((1e6 + 1e7) / 2) = 67.404 dB (common practice).
+    assert energetic_mean_db([60.0, 70.0, np.nan]) == pytest.approx(67.4036, abs=1e-4)
+    np.testing.assert_array_equal(polar_bin_deg([84.9, 85.1, 94.9, 131.0]), [80, 90, 90, 130])
