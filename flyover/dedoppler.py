@@ -223,6 +223,17 @@ def dedopplerized_signals(signals_pa, first_frame: int, geometry: ReceptionGeome
     return out
 
 
+def window_memory_bytes(n_grid: int, n_mics: int, n_samples: int, n_bands: int,
+                        settings: ChainSettings) -> int:
+    """Peak memory (bytes) the chain needs for one window: geometry of every grid point and
+    microphone at the nodes, one chunk of de-Dopplerized signals and spectra, and the maps."""
+    n_nodes = int(np.ceil((n_samples - 1) / settings.node_step)) + 1
+    geometry = n_grid * n_mics * (n_nodes * 2 + 2) * 8
+    chunk = min(settings.chunk_points, n_grid) * n_mics * n_samples * (4 + 8)
+    maps = n_grid * n_bands * 8 * 2
+    return int(geometry + chunk + maps)
+
+
 @dataclass(frozen=True)
 class BandPowers:
     """Band powers of a window on grid points (source strength at 1 m, Pa^2).

@@ -2,11 +2,16 @@
 
 from __future__ import annotations
 
+import re
+import shutil
 import subprocess
 import sys
 from pathlib import Path
 
 import pytest
+import yaml
+
+from flyover.workflow import parse_dry_run
 
 ROOT = Path(__file__).resolve().parents[1]
 
@@ -17,22 +22,89 @@ def snakemake(*args, cwd):
     return subprocess.run(cmd, cwd=cwd, capture_output=True, text=True)
 
 
+def planned(folder) -> set[tuple[str, str]]:
+    """(rule, pass) pairs a dry-run would execute."""
+    res = snakemake("--configfile", str(folder / "campaign.yaml"), "-n", cwd=folder)
+    assert res.returncode == 0, res.stderr
+    return {(j["rule"], j["pass"]) for j in parse_dry_run(res.stdout + res.stderr)
+            if j["rule"] != "campaign"}
+
+
+@pytest.fixture(scope="module")
+def finished_run(tiny_campaign_dir, tmp_path_factory):
+    """The tiny campaign run to completion once (reused by the re-run checks, copied each time)."""
+    folder = tmp_path_factory.mktemp("run") / "campaign"
+    shutil.copytree(tiny_campaign_dir, folder)
+    res = snakemake("--configfile", str(folder / "campaign.yaml"), cwd=folder)
+    assert res.returncode == 0, res.stderr[-3000:]
+    return folder
+
+
+@pytest.fixture
+def run_copy(finished_run, tmp_path):
+    dest = tmp_path / "campaign"
+    shutil.copytree(finished_run, dest, symlinks=True)
+    return dest
+
+
 @pytest.mark.slow
-def test_user_campaign_runs_alone(tiny_copy):
-    # --configfile selects the user's campaign; the demo's passes must not appear.
-    res = snakemake("--configfile", str(tiny_copy / "campaign.yaml"), "-n", cwd=tiny_copy)
-    assert res.returncode == 0, res.stderr
-    text = res.stdout + res.stderr
-    assert "p1" in text and "p2" in text
-    assert "pass-1" not in text and "simulate_demo" not in text
-    res = snakemake("--configfile", str(tiny_copy / "campaign.yaml"), cwd=tiny_copy)
-    assert res.returncode == 0, res.stderr
+def test_user_campaign_runs_alone(finished_run):
+    # --configfile selects the user's campaign; the demo's passes never appear.
+    log = "\n".join(p.read_text() for p in (finished_run / ".snakemake" / "log").glob("*.log"))
+    assert "pass-1" not in log and "simulate_demo" not in log
     for p in ("p1", "p2"):
-        assert (tiny_copy / "results" / p / "alignment.json").exists()
-        assert (tiny_copy / "results" / p / "track.png").exists()
-        assert (tiny_copy / "results" / "logs" / p / "align.log").exists()
-    again = snakemake("--configfile", str(tiny_copy / "campaign.yaml"), "-n", cwd=tiny_copy)
-    assert "Nothing to be done" in again.stdout + again.stderr
+        for f in ("alignment.json", "track.png", "maps.npz", "levels.csv", "qc_track.png"):
+            assert (finished_run / "results" / p / f).exists(), f
+        assert (finished_run / "results" / "logs" / p / "image.log").exists()
+        assert (finished_run / "results" / "benchmarks" / p / "image.tsv").exists()
+    assert (finished_run / "results" / "report.html").exists()
+    assert planned(finished_run) == set()
+
+
+@pytest.mark.slow
+def test_revised_track_reruns_that_pass_only(run_copy):
+    track = run_copy / "p1" / "track.csv"
+    lines = track.read_text().splitlines()
+    # A revised (post-processed) track: the same fixes, heights 2 cm higher.
+    head, rows = lines[0], lines[1:]
+    cols = head.split(",")
+    k = cols.index("height_m")
+    revised = [",".join(f"{float(v) + 0.02:.9f}" if i == k else v
+                        for i, v in enumerate(r.split(","))) for r in rows]
+    track.write_text("\n".join([head] + revised) + "\n")
+    assert planned(run_copy) == {("align", "p1"), ("image", "p1"), ("levels", "p1"),
+                                 ("qc", "p1"), ("campaign_summary", ""), ("report", "")}
+
+
+@pytest.mark.slow
+def test_reference_distance_reruns_levels_not_imaging(run_copy):
+    path = run_copy / "campaign.yaml"
+    data = yaml.safe_load(path.read_text())
+    data["analysis"]["reference_distance_m"] = 100.0
+    path.write_text(yaml.safe_dump(data))
+    assert planned(run_copy) == {("levels", "p1"), ("levels", "p2"), ("campaign_summary", ""),
+                                 ("report", "")}
+
+
+@pytest.mark.slow
+def test_one_pass_atmosphere_reruns_that_pass(run_copy):
+    path = run_copy / "campaign.yaml"
+    data = yaml.safe_load(path.read_text())
+    data["passes"]["p2"]["atmosphere"]["temperature_c"] = 16.0
+    path.write_text(yaml.safe_dump(data))
+    jobs = planned(run_copy)
+    assert {p for _, p in jobs} == {"p2", ""}
+    assert ("image", "p2") in jobs
+
+
+@pytest.mark.slow
+def test_added_pass_runs_alone_then_summary(run_copy):
+    path = run_copy / "campaign.yaml"
+    data = yaml.safe_load(path.read_text())
+    data["passes"]["p3"] = dict(data["passes"]["p2"], label="b")
+    path.write_text(yaml.safe_dump(data))
+    assert planned(run_copy) == {("align", "p3"), ("image", "p3"), ("levels", "p3"),
+                                 ("qc", "p3"), ("campaign_summary", ""), ("report", "")}
 
 
 @pytest.mark.slow
@@ -42,3 +114,42 @@ def test_bad_campaign_stops_with_message(tiny_copy):
     res = snakemake("--configfile", str(path), "-n", cwd=tiny_copy)
     assert res.returncode != 0
     assert "unknown key 'analysis.windowsize_s'" in res.stderr
+    assert "Traceback" not in res.stderr
+
+
+@pytest.mark.slow
+def test_slurm_profile_dry_run(finished_run):
+    # The documented SLURM profile resolves (snakemake-executor-plugin-slurm; no cluster needed
+    # for a dry-run).
+    pytest.importorskip("snakemake_executor_plugin_slurm")
+    path = finished_run / "campaign.yaml"
+    res = snakemake("--profile", str(ROOT / "config" / "profiles" / "slurm"), "--configfile",
+                    str(path), "-n", "--forceall", cwd=finished_run)
+    assert res.returncode == 0, res.stderr[-2000:]
+    assert re.search(r"image\s+2", res.stdout + res.stderr)
+
+
+@pytest.mark.slow
+def test_report_is_self_contained(finished_run):
+    text = (finished_run / "results" / "report.html").read_text()
+    assert not re.search(r"""(src|href)\s*=\s*["'](https?:|//)""", text)
+    assert "<script" not in text and "<link" not in text
+    assert text.count('class="pass"') == 2
+    assert 'data-pass="p1"' in text and 'data-pass="p2"' in text
+    assert 'id="campaign-summary"' in text and "<table>" in text
+    assert "certification standards" in text and "aviation rules" in text
+
+
+@pytest.mark.slow
+def test_report_opens_in_headless_chromium(finished_run, tmp_path):
+    browser = shutil.which("chromium") or shutil.which("chromium-browser")
+    if browser is None:
+        pytest.skip("Chromium is not installed (Debian package 'chromium'; .ci/run installs it)")
+    report = finished_run / "results" / "report.html"
+    res = subprocess.run([browser, "--headless", "--no-sandbox", "--disable-gpu",
+                          "--disable-quic", "--no-first-run", "--disable-background-networking",
+                          "--disable-component-update", "--disable-sync",
+                          f"--user-data-dir={tmp_path / 'profile'}", "--dump-dom",
+                          report.as_uri()], capture_output=True, text=True, timeout=120)
+    assert res.returncode == 0, res.stderr[-2000:]
+    assert "Campaign summary" in res.stdout and 'data-pass="p2"' in res.stdout

@@ -6,7 +6,6 @@ import json
 from functools import lru_cache
 from pathlib import Path
 
-import numpy as np
 import yaml
 from jsonschema import Draft202012Validator
 
@@ -263,12 +262,3 @@ def campaign_from_mapping(data: dict, path: Path) -> Campaign:
     scenario = _resolve_path(base, data["scenario"]) if "scenario" in data else None
     return Campaign(path, site, None if geoid is None else float(geoid), array, passes, grid,
                     regions, analysis, _resolve_path(base, data["output"]), outline, scenario)
-
-
-def grid_size_check(grid: VehicleGrid, source: str, max_points: int = 200_000) -> None:
-    """Refuse a vehicle grid so fine that the maps would not fit in memory."""
-    n = int(np.prod(grid.shape))
-    if n > max_points:
-        raise FlyoverInputError("vehicle grid too large", f"{source}, key vehicle.grid",
-                                f"at most {max_points} points", f"{grid.shape[0]} x "
-                                f"{grid.shape[1]} = {n} points", "use a coarser spacing_m")

@@ -46,6 +46,9 @@ class PassInputs:
         return 0.0, float(self.clock.sample_time_s(self.recording.n_frames - 1))
 
 
+MAX_HEIGHT_ABOVE_ARRAY_M = 600.0
+
+
 def load_layout(campaign: Campaign) -> ArrayLayout:
     return read_layout(campaign.array.layout, campaign.site, campaign.array.height_datum,
                        campaign.geoid_undulation_m)
@@ -123,6 +126,12 @@ def _check_coverage(track: TrackModel, clock: RecordingClock, info: RecordingInf
             f"at most {np.max(height):.1f} m above the array centre",
             "heights above mean sea level need track_height_datum: msl and the site's "
             "geoid_undulation_m")
+    if np.min(height) > MAX_HEIGHT_ABOVE_ARRAY_M:
+        raise FlyoverInputError(
+            "implausible height above the array", str(spec.track),
+            f"a flyover below {MAX_HEIGHT_ABOVE_ARRAY_M:.0f} m above the array",
+            f"at least {np.min(height):.0f} m above the array centre",
+            "were the heights exported in feet, or above another datum?")
     closest = float(np.min(np.linalg.norm(rel, axis=1)))
     if closest > 2000.0:
         raise FlyoverInputError("the vehicle never comes near the array while recording",

@@ -2,7 +2,14 @@
 
 from __future__ import annotations
 
+import os
+
+import numpy as np
+
+from ..bands import third_octave_bands
 from ..campaign import Campaign
+from ..dedoppler import ChainSettings, window_memory_bytes
+from ..errors import FlyoverInputError
 from ..io.passdata import PassInputs, load_pass
 from ..overview import pass_geometry
 from ..timebase import iso_utc
@@ -38,7 +45,38 @@ def pass_summary(inputs: PassInputs) -> dict:
 
 def check_campaign(campaign: Campaign) -> list[dict]:
     """Load every pass (raising :class:`FlyoverInputError` on the first bad input) and summarise."""
-    return [pass_summary(load_pass(campaign, name)) for name in campaign.passes]
+    loaded = [load_pass(campaign, name) for name in campaign.passes]
+    rates = {p.spec.name: p.recording.sample_rate_hz for p in loaded}
+    if len(set(rates.values())) > 1:
+        raise FlyoverInputError(
+            "passes that share the array layout have different sample rates",
+            str(campaign.config_path), "one sample rate for the campaign's recordings",
+            ", ".join(f"{n}: {r:g} Hz" for n, r in rates.items()),
+            "a recorder setting changed between passes; resample or split the campaign")
+    for p in loaded:
+        check_memory(campaign, p)
+    return [pass_summary(p) for p in loaded]
+
+
+def check_memory(campaign: Campaign, inputs: PassInputs, share: float = 0.5) -> None:
+    """Refuse a window or grid whose processing would need more than ``share`` of the memory."""
+    an = campaign.analysis
+    settings = ChainSettings(third_octave_bands(an.band_min_hz, an.band_max_hz), inputs.weights,
+                             campaign.array.pressure_gain, an.interpolation)
+    fs = inputs.recording.sample_rate_hz
+    n_grid = int(np.prod(campaign.grid.shape))
+    need = window_memory_bytes(n_grid, len(inputs.layout.channel), int(an.window_s * fs),
+                               len(settings.bands), settings)
+    have = os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_PHYS_PAGES")
+    if need > share * have:
+        raise FlyoverInputError(
+            "window or vehicle grid too large for the memory available",
+            f"{campaign.config_path}, keys vehicle.grid and analysis.window_s",
+            f"at most {share * have / 2 ** 30:.1f} GiB per window ({share:.0%} of this machine)",
+            f"about {need / 2 ** 30:.1f} GiB for {campaign.grid.shape[0]} x "
+            f"{campaign.grid.shape[1]} grid points, {len(inputs.layout.channel)} microphones and "
+            f"{an.window_s} s windows",
+            "use a coarser spacing_m, a smaller grid or a shorter window_s")
 
 
 def format_summary(campaign: Campaign, summaries: list[dict]) -> str:

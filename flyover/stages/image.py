@@ -23,6 +23,7 @@ from ..progress import Progress
 from ..timebase import iso_utc
 from ..windows import plan_windows
 from .align import clock_offset_from_alignment, quality_exclusions
+from .check import check_memory
 
 
 def run(campaign: Campaign, pass_name: str, alignment_json: Path, out_dir: Path,
@@ -31,6 +32,7 @@ def run(campaign: Campaign, pass_name: str, alignment_json: Path, out_dir: Path,
     numba.set_num_threads(max(1, threads))
     inputs = load_pass(campaign, pass_name, clock_offset_from_alignment(alignment_json),
                        quality_exclusions(alignment_json))
+    check_memory(campaign, inputs)
     an = campaign.analysis
     atm = inputs.spec.atmosphere
     clock = inputs.clock
