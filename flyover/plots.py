@@ -3,7 +3,6 @@ perceptually uniform colour maps that also read in greyscale (cividis for maps).
 
 from __future__ import annotations
 
-from pathlib import Path
 
 import matplotlib
 

@@ -45,6 +45,15 @@ TINY_SCENARIO = {
 }
 
 
+def edit_campaign(folder: Path, change) -> Path:
+    """Apply ``change`` to the parsed campaign.yaml of a folder and write it back."""
+    path = folder / "campaign.yaml"
+    data = yaml.safe_load(path.read_text())
+    change(data)
+    path.write_text(yaml.safe_dump(data))
+    return path
+
+
 @pytest.fixture(scope="session")
 def tiny_campaign_dir(tmp_path_factory) -> Path:
     """A simulated two-pass campaign (16 microphones, 8 kHz, 3 s) with its campaign.yaml."""

@@ -6,7 +6,6 @@ import numpy as np
 import pandas as pd
 import pytest
 import soundfile as sf
-import yaml
 
 from flyover.errors import FlyoverInputError
 from flyover.io.config import load_campaign
@@ -14,12 +13,7 @@ from flyover.io.passdata import load_pass
 from flyover.io.recording import read_span, recording_info
 
 
-def edit_config(folder, change):
-    path = folder / "campaign.yaml"
-    data = yaml.safe_load(path.read_text())
-    change(data)
-    path.write_text(yaml.safe_dump(data))
-    return path
+from conftest import edit_campaign as edit_config
 
 
 def load_all(folder):

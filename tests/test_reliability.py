@@ -5,11 +5,9 @@ from __future__ import annotations
 
 import json
 
-import numpy as np
 import pandas as pd
 import pytest
 import soundfile as sf
-import yaml
 
 from flyover.errors import FlyoverInputError
 from flyover.io import recording as recording_io
@@ -18,12 +16,7 @@ from flyover.stages import align, image
 from flyover.stages.check import check_campaign
 
 
-def edit(folder, change):
-    path = folder / "campaign.yaml"
-    data = yaml.safe_load(path.read_text())
-    change(data)
-    path.write_text(yaml.safe_dump(data))
-    return path
+from conftest import edit_campaign as edit
 
 
 def damage_recording(path, change):

@@ -2,7 +2,6 @@
 
 import numpy as np
 import pytest
-from scipy.spatial.transform import Rotation
 
 from flyover.errors import FlyoverInputError
 from flyover.track import fit_track

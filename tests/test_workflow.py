@@ -18,10 +18,13 @@ from flyover.workflow import parse_dry_run
 ROOT = Path(__file__).resolve().parents[1]
 
 
+def snakemake_command(*args) -> list[str]:
+    return [sys.executable, "-m", "snakemake", "--snakefile", str(ROOT / "Snakefile"),
+            "--cores", "2", *args]
+
+
 def snakemake(*args, cwd):
-    cmd = [sys.executable, "-m", "snakemake", "--snakefile", str(ROOT / "Snakefile"),
-           "--cores", "2", *args]
-    return subprocess.run(cmd, cwd=cwd, capture_output=True, text=True)
+    return subprocess.run(snakemake_command(*args), cwd=cwd, capture_output=True, text=True)
 
 
 def planned(folder) -> set[tuple[str, str]]:
@@ -181,14 +184,18 @@ def _tables(folder):
     return {n: (out / n).read_bytes() for n in names}
 
 
+def inputs_only(finished_run, dest):
+    """A copy of the run's inputs without its results or Snakemake records."""
+    shutil.copytree(finished_run, dest, symlinks=True,
+                    ignore=shutil.ignore_patterns("results", ".snakemake"))
+    return dest
+
+
 @pytest.mark.slow
 def test_rerun_is_byte_identical(finished_run, tmp_path):
     # Identical inputs and config give byte-identical tables (fixed seeds, fixed float formats,
     # no timestamps in data files).
-    again = tmp_path / "again"
-    shutil.copytree(finished_run, again, symlinks=True)
-    shutil.rmtree(again / "results")
-    shutil.rmtree(again / ".snakemake")
+    again = inputs_only(finished_run, tmp_path / "again")
     res = snakemake("--configfile", str(again / "campaign.yaml"), cwd=again)
     assert res.returncode == 0, res.stderr[-2000:]
     assert _tables(again) == _tables(finished_run)
@@ -201,12 +208,8 @@ def test_killed_run_resumes_to_the_same_results(finished_run, tmp_path):
     # name and renamed, so a kill leaves no half-written file behind.
     import signal
     import time
-    folder = tmp_path / "killed"
-    shutil.copytree(finished_run, folder, symlinks=True)
-    shutil.rmtree(folder / "results")
-    shutil.rmtree(folder / ".snakemake")
-    cmd = [sys.executable, "-m", "snakemake", "--snakefile", str(ROOT / "Snakefile"),
-           "--cores", "2", "--configfile", str(folder / "campaign.yaml")]
+    folder = inputs_only(finished_run, tmp_path / "killed")
+    cmd = snakemake_command("--configfile", str(folder / "campaign.yaml"))
     proc = subprocess.Popen(cmd, cwd=folder, stdout=subprocess.DEVNULL,
                             stderr=subprocess.DEVNULL, start_new_session=True)
     deadline = time.time() + 120
