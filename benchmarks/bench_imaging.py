@@ -92,8 +92,10 @@ def pass_figures(threads: int) -> None:
                            check=True, capture_output=True)
             t0 = time.perf_counter()
             # The stage runs in its own process, which reports its own peak resident memory.
-            probe = ("import resource, sys; from flyover.cli import main; rc = main(sys.argv[1:]); "
-                     "print(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss); sys.exit(rc)")
+            # VmHWM starts afresh at exec (ru_maxrss would carry the parent's size across it).
+            probe = ("import sys; from flyover.cli import main; rc = main(sys.argv[1:]); "
+                     "hwm = [l for l in open('/proc/self/status') if l.startswith('VmHWM')][0]; "
+                     "print(hwm.split()[1]); sys.exit(rc)")
             done = subprocess.run([sys.executable, "-c", probe, "stage", "image", "--campaign",
                                    str(tmp / "campaign.yaml"), "--pass", "pass-1", "--out",
                                    str(out), "--threads", str(threads)], check=True,

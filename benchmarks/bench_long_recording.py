@@ -112,8 +112,11 @@ def build(folder: Path) -> Path:
     return folder / "campaign.yaml"
 
 
-PROBE = ("import resource, sys; from flyover.cli import main; rc = main(sys.argv[1:]); "
-         "print('peak_kb', resource.getrusage(resource.RUSAGE_SELF).ru_maxrss); sys.exit(rc)")
+# Peak memory of the stage process itself: VmHWM starts afresh at exec (ru_maxrss would carry
+# the forking parent's size across it).
+PROBE = ("import sys; from flyover.cli import main; rc = main(sys.argv[1:]); "
+         "hwm = [l for l in open('/proc/self/status') if l.startswith('VmHWM')][0]; "
+         "print('peak_kb', hwm.split()[1]); sys.exit(rc)")
 
 
 def stage(name: str, campaign: Path) -> tuple[float, float]:

@@ -35,11 +35,21 @@ def planned(folder) -> set[tuple[str, str]]:
             if j["rule"] != "campaign"}
 
 
+DIGESTS_BEFORE: dict = {}
+
+
+def input_digests(folder) -> dict:
+    from flyover.io.config import load_campaign
+    from flyover.stages.report import file_digest
+    return {str(f): file_digest(f) for f in load_campaign(folder / "campaign.yaml").input_files()}
+
+
 @pytest.fixture(scope="module")
 def finished_run(tiny_campaign_dir, tmp_path_factory):
     """The tiny campaign run to completion once (reused by the re-run checks, copied each time)."""
     folder = tmp_path_factory.mktemp("run") / "campaign"
     shutil.copytree(tiny_campaign_dir, folder)
+    DIGESTS_BEFORE.update(input_digests(folder))
     res = snakemake("--configfile", str(folder / "campaign.yaml"), cwd=folder)
     assert res.returncode == 0, res.stderr[-3000:]
     return folder
@@ -84,6 +94,22 @@ def test_user_campaign_runs_alone(finished_run):
         assert (finished_run / "results" / "benchmarks" / p / "image.tsv").exists()
     assert (finished_run / "results" / "report.html").exists()
     assert planned(finished_run) == set()
+
+
+@pytest.mark.slow
+def test_inputs_unchanged_by_runs_good_or_failing(finished_run, run_copy):
+    # Inputs are opened read-only and never rewritten: digests before and after a full run,
+    # and after a run that fails in its imaging (a calibration with a channel missing).
+    assert input_digests(finished_run) == DIGESTS_BEFORE
+    cal = run_copy / "p2" / "calibration.csv"
+    cal.write_text("\n".join(cal.read_text().splitlines()[:-1]) + "\n")
+    (run_copy / "p2" / "track.csv").touch()
+    before = input_digests(run_copy)
+    res = snakemake("--configfile", str(run_copy / "campaign.yaml"), cwd=run_copy)
+    assert res.returncode != 0
+    assert "calibration is missing channels" in (run_copy / "results" / "logs" / "p2" /
+                                                 "align.log").read_text()
+    assert input_digests(run_copy) == before
 
 
 @pytest.mark.slow
