@@ -29,6 +29,7 @@ def pass_summary(inputs: PassInputs) -> dict:
         "duration_s": inputs.recording.duration_s,
         "epoch_utc": iso_utc(clock.epoch_utc_ns),
         "clock_offset_s": clock.clock_offset_s,
+        "clock_offset_auto": inputs.spec.clock_offset_s == "auto",
         "track_start_utc": iso_utc(int(clock.utc_ns(inputs.track.start_s))),
         "track_end_utc": iso_utc(int(clock.utc_ns(inputs.track.end_s))),
         "covered_s": [geo.covered_s[0], geo.covered_s[1]],
@@ -87,10 +88,12 @@ def format_summary(campaign: Campaign, summaries: list[dict]) -> str:
              f"  grid: {campaign.grid.shape[0]} x {campaign.grid.shape[1]} points at "
              f"{campaign.grid.spacing_m} m; regions: {', '.join(campaign.regions)}"]
     for s in summaries:
+        clock = ("clock offset auto: the workflow estimates it from the anchor"
+                 if s["clock_offset_auto"] else f"clock offset {s['clock_offset_s']:+.3f} s")
         lines += [
             f"  {s['pass']} ({s['label'] or 'no label'}): {s['channels_used']}/{s['channels']} "
             f"channels, {s['duration_s']:.2f} s at {s['sample_rate_hz']:.0f} Hz",
-            f"    recording from {s['epoch_utc']} (clock offset {s['clock_offset_s']:+.3f} s); "
+            f"    recording from {s['epoch_utc']} ({clock}); "
             f"track {s['track_start_utc']} to {s['track_end_utc']}",
             f"    track covers {s['covered_s'][1] - s['covered_s'][0]:.2f} s of the recording; "
             f"overhead at {s['overhead_utc']} (t = {s['overhead_s']:.2f} s)",
