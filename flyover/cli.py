@@ -94,6 +94,9 @@ def main(argv=None) -> int:
     except FlyoverInputError as exc:
         print(exc.message, file=sys.stderr)
         return 2
+    except BrokenPipeError:  # output piped into `head` and the like
+        sys.stderr.close()
+        return 0
 
 
 def _snakemake(campaign: Path, *extra: str, capture: bool = False):

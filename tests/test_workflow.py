@@ -254,3 +254,17 @@ def test_killed_run_resumes_to_the_same_results(finished_run, tmp_path):
                     cwd=folder)
     assert res.returncode == 0, res.stderr[-2000:]
     assert _tables(folder) == _tables(finished_run)
+
+
+@pytest.mark.slow
+def test_flyover_plan_explains_reruns(finished_run, monkeypatch, capsys):
+    from flyover.cli import main
+    monkeypatch.chdir(finished_run)
+    assert main(["plan", str(finished_run / "campaign.yaml")]) == 0
+    assert "nothing to redo" in capsys.readouterr().out
+    with edited_config(finished_run,
+                       lambda d: d["analysis"].update(reference_distance_m=150.0)):
+        assert main(["plan", str(finished_run / "campaign.yaml")]) == 0
+        out = capsys.readouterr().out
+    assert "pass p1:" in out and "levels" in out and "config values it uses changed" in out
+    assert "image" not in out
