@@ -17,11 +17,6 @@ from .errors import require
 GPS_MINUS_UTC_S = 18  # leap seconds between GPS time and UTC since 2017-01-01 (IERS Bulletin C)
 
 
-def datetime64_ns(utc_ns) -> np.ndarray:
-    """Integer nanoseconds since the Unix epoch (UTC) as numpy datetime64[ns]."""
-    return np.asarray(utc_ns, dtype=np.int64).astype("datetime64[ns]")
-
-
 def iso_utc(utc_ns: int) -> str:
     """ISO 8601 text with a 'Z' zone: milliseconds when exact, else nanoseconds.
 

@@ -7,12 +7,12 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from ..bands import a_weighting_db, sum_levels_db, third_octave_bands
+from ..bands import third_octave_bands
 from ..campaign import Campaign
 from ..errors import FlyoverInputError
 from ..io.tables import read_csv_table, write_csv
 from ..imaging import TOTAL
-from ..levels import level_1m_db, reference_level_db
+from ..levels import level_1m_db, overall_db, reference_level_db
 from ..plots import directivity_figure, save_figure, spectra_figure
 
 UNRESOLVED = "not separable: region centres closer than one main-lobe width"
@@ -84,14 +84,11 @@ def overall_table(levels: pd.DataFrame) -> pd.DataFrame:
     rows = []
     for (window, region), g in levels.groupby(["window", "region"], sort=False):
         ok = g[np.isfinite(g["level_db"])]
+        overall = a_weighted = np.nan
         if len(ok):
             bands = third_octave_bands(ok["band_hz"].min(), ok["band_hz"].max())
-            centre = dict(zip(bands.nominal_hz, bands.center_hz))
-            f = ok["band_hz"].map(centre).to_numpy()
-            overall = float(sum_levels_db(ok["level_db"]))
-            a_weighted = float(sum_levels_db(ok["level_db"], weights_db=a_weighting_db(f)))
-        else:
-            overall = a_weighted = np.nan
+            by_band = ok.set_index("band_hz")["level_db"].reindex(bands.nominal_hz)
+            overall, a_weighted = overall_db(by_band.to_numpy(), bands)
         rows.append({"window": window, "time_utc": g["time_utc"].iloc[0],
                      "polar_angle_deg": g["polar_angle_deg"].iloc[0], "region": region,
                      "overall_db": overall, "a_weighted_db": a_weighted,
