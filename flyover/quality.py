@@ -14,6 +14,9 @@ DEAD_BELOW_DB = -40.0      # RMS this far under the array median: dead channel
 OUTLIER_DB = 6.0           # RMS this far from its neighbours' median: outlier
 CLIP_FRACTION = 1e-4       # share of samples at full scale above which a channel is clipped
 FULL_SCALE = 0.999
+COHERENCE_BAND_HZ = (100.0, 200.0)  # default low band for the neighbour coherence
+INCOHERENT_BELOW = 0.5     # mean coherence with the nearest neighbours under which a channel
+COHERENT_ARRAY = 0.8       # is flagged, when the array's median is above this
 
 
 @dataclass
@@ -37,14 +40,47 @@ class ChannelAccumulator:
         self.count += x.shape[1]
 
 
+def neighbour_coherence(samples, sample_rate_hz: float, mic_enu_m, n_neighbours: int = 3,
+                        band_hz=COHERENCE_BAND_HZ) -> np.ndarray:
+    """Mean magnitude-squared coherence of each channel with its nearest neighbours in a low band.
+
+    Parameters
+    ----------
+    samples : ndarray, shape (n_channels, n)
+        A stretch with the vehicle loud (near overhead), in any consistent unit.
+
+    Returns
+    -------
+    ndarray, shape (n_channels,)
+        Welch coherence (Hann, 50 % overlap) averaged over the band and the neighbours.
+    """
+    from scipy.signal import coherence
+    x = np.asarray(samples, dtype=float)
+    pos = np.asarray(mic_enu_m, float)
+    d = np.sqrt(((pos[:, None] - pos[None]) ** 2).sum(-1))
+    nper = int(2 ** np.ceil(np.log2(0.1 * sample_rate_hz)))
+    out = np.zeros(len(x))
+    for i in range(len(x)):
+        near = np.argsort(d[i])[1:n_neighbours + 1]
+        with np.errstate(invalid="ignore", divide="ignore"):  # a dead channel has no power
+            f, c = coherence(x[i][None], x[near], fs=sample_rate_hz,
+                             nperseg=min(nper, x.shape[1]))
+        inside = (f >= band_hz[0]) & (f <= band_hz[1])
+        out[i] = float(np.mean(np.nan_to_num(c[:, inside])))
+    return out
+
+
 def channel_quality(acc: ChannelAccumulator, pa_per_unit, mic_enu_m, channels,
-                    n_neighbours: int = 6) -> list[dict]:
+                    coherence=None, n_neighbours: int = 6) -> list[dict]:
     """Per channel: RMS (Pa), level re the array median, clipping, and a verdict.
 
     A channel is 'dead' when its calibrated RMS is ``DEAD_BELOW_DB`` under the array median,
-    'clipped' when more than ``CLIP_FRACTION`` of its samples sit at full scale, and an
+    'clipped' when more than ``CLIP_FRACTION`` of its samples sit at full scale, an
     'outlier' when its RMS differs by more than ``OUTLIER_DB`` from the median of its nearest
-    neighbours (a loose connector, a wrong calibration, a wind-noise hit).
+    neighbours (a loose connector, a wrong calibration, a wind-noise hit), and 'incoherent' when
+    its low-band coherence with its neighbours (``coherence``, from
+    :func:`neighbour_coherence`) is under ``INCOHERENT_BELOW`` while the array's median is above
+    ``COHERENT_ARRAY`` (a channel recording something else: a swapped cable, a broken capsule).
     """
     rms_units = np.sqrt(acc.sum_sq / max(acc.count, 1))
     rms_pa = rms_units * np.asarray(pa_per_unit, float)
@@ -52,6 +88,8 @@ def channel_quality(acc: ChannelAccumulator, pa_per_unit, mic_enu_m, channels,
         level = 20 * np.log10(np.maximum(rms_pa, 1e-30) / np.median(rms_pa))
     pos = np.asarray(mic_enu_m, float)
     d = np.sqrt(((pos[:, None] - pos[None]) ** 2).sum(-1))
+    coh = np.full(len(rms_pa), np.nan) if coherence is None else np.asarray(coherence, float)
+    array_coherent = bool(np.nanmedian(coh) > COHERENT_ARRAY) if coherence is not None else False
     out = []
     for i, ch in enumerate(channels):
         near = np.argsort(d[i])[1:n_neighbours + 1]
@@ -65,9 +103,13 @@ def channel_quality(acc: ChannelAccumulator, pa_per_unit, mic_enu_m, channels,
             verdict = "clipped"
         elif abs(rel) > OUTLIER_DB:
             verdict = "outlier"
+        elif array_coherent and coh[i] < INCOHERENT_BELOW:
+            verdict = "incoherent"
         out.append({"channel": int(ch), "rms_pa": float(rms_pa[i]),
                     "level_re_median_db": float(level[i]), "level_re_neighbours_db": float(rel),
-                    "clipped_fraction": float(clip_share), "verdict": verdict})
+                    "clipped_fraction": float(clip_share),
+                    "neighbour_coherence": None if np.isnan(coh[i]) else float(coh[i]),
+                    "verdict": verdict})
     return out
 
 

@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import json
 
+import numpy as np
 import pandas as pd
 import pytest
 import soundfile as sf
@@ -42,6 +43,26 @@ def test_dead_clipped_and_outlier_channels_are_flagged_and_left_out(tiny_copy):
     # The imaging uses the reduced array (and so does its unit-source chain).
     image.run(campaign, "p1", out / "alignment.json", out, threads=2, quiet=True)
     assert (out / "region_power.csv").exists()
+
+
+def test_channel_recording_something_else_is_incoherent(tiny_copy):
+    # Same RMS, other sound (a swapped or broken channel): only the low-band coherence with its
+    # neighbours gives it away.
+    rng = np.random.default_rng(4)
+
+    def change(x):
+        x[:, 8] = rng.standard_normal(len(x)).astype(np.float32) * np.std(x[:, 8])
+    damage_recording(tiny_copy / "p1" / "recording.wav", change)
+    campaign = load_campaign(tiny_copy / "campaign.yaml")
+    out = tiny_copy / "results" / "p1"
+    summary = align.run(campaign, "p1", out / "alignment.json", out / "track.png")
+    q = {q["channel"]: q for q in summary["channel_quality"]}
+    assert q[9]["verdict"] == "incoherent"
+    assert abs(q[9]["level_re_neighbours_db"]) < 6.0
+    assert summary["quality_flagged_channels"] == [9]
+    # Its neighbours lose a third of their coherence (channel 9 is one of their three), yet
+    # stay clear of the threshold; the array as a whole stays coherent.
+    assert np.median([v["neighbour_coherence"] for v in q.values()]) > 0.8
 
 
 def test_config_can_keep_a_flagged_channel(tiny_copy):

@@ -10,13 +10,14 @@ import numpy as np
 from ..bands import third_octave_bands
 from ..campaign import Campaign
 from ..clocksync import estimate_clock_offset
-from ..dedoppler import ChainSettings
+from ..dedoppler import (ChainSettings, dedopplerized_signals, reception_geometry,
+                         required_frames)
 from ..errors import FlyoverInputError
 from ..io.atomic import write_text
 from ..io.passdata import load_pass
 from ..io.recording import iter_blocks, read_span
-from ..quality import ChannelAccumulator, channel_quality, track_quality
-from ..windows import plan_windows
+from ..quality import ChannelAccumulator, channel_quality, neighbour_coherence, track_quality
+from ..windows import Window, plan_windows
 from ..plots import save_figure, track_figure
 from .check import pass_summary
 
@@ -37,7 +38,7 @@ def run(campaign: Campaign, pass_name: str, alignment_json: Path, track_png: Pat
     summary["epoch_utc_ns"] = int(inputs.clock.epoch_utc_ns)
     summary["rate_error_ppm"] = inputs.clock.rate_error_ppm
     summary["clock_offset_source"] = "config"
-    quality = channel_quality_of(inputs, summary["covered_s"])
+    quality = pass_channel_quality(campaign, inputs, summary["covered_s"], summary["overhead_s"])
     flagged = [q["channel"] for q in quality if q["verdict"] != "ok"]
     summary["channel_quality"] = quality
     summary["quality_flagged_channels"] = flagged
@@ -98,15 +99,46 @@ def _estimate_offset(campaign: Campaign, inputs):
     return estimate
 
 
-def channel_quality_of(inputs, covered_s) -> list[dict]:
-    """Channel statistics over the part of the recording the track covers, block by block."""
+def pass_channel_quality(campaign: Campaign, inputs, covered_s, overhead_s: float,
+                         coherence_span_s: float = 1.0) -> list[dict]:
+    """Channel statistics over the part of the recording the track covers (block by block), and
+    each channel's coherence with its neighbours at low frequency, on the signals de-Dopplerized
+    to the first region's centre over ``coherence_span_s`` of emission time around overhead
+    (aligned in source time, so the moving source's changing delays do not decorrelate them)."""
     clock, info = inputs.clock, inputs.recording
     first = max(0, int(np.floor(clock.sample_index(covered_s[0]))))
     last = min(info.n_frames, int(np.ceil(clock.sample_index(covered_s[1]))) + 1)
     acc = ChannelAccumulator(info.n_channels)
     for block in iter_blocks(info, first, last - first):
         acc.add(block)
-    return channel_quality(acc, inputs.pa_per_unit, inputs.layout.enu_m, inputs.layout.channel)
+    return channel_quality(acc, inputs.pa_per_unit, inputs.layout.enu_m, inputs.layout.channel,
+                           _aligned_coherence(campaign, inputs, overhead_s, coherence_span_s))
+
+
+def _aligned_coherence(campaign: Campaign, inputs, overhead_s: float, span_s: float):
+    """Low-band neighbour coherence of the de-Dopplerized channels, or None when the recording
+    does not hold the span."""
+    fs = inputs.recording.sample_rate_hz
+    n = int(span_s * fs)
+    start = overhead_s - span_s / 2
+    track = inputs.track
+    if start < track.start_s or start + span_s > track.end_s:
+        return None
+    window = Window(-1, start, n, fs, track.position(start), track.velocity(start),
+                    track.attitude_deg(start), 90.0, 0.0)
+    band_lo = campaign.analysis.band_min_hz
+    settings = ChainSettings(third_octave_bands(band_lo, band_lo), np.ones(len(inputs.weights)),
+                             campaign.array.pressure_gain, "cubic", absorption=False)
+    centre = next(iter(campaign.regions.values())).center_m
+    geo = reception_geometry(track, window, [centre], inputs.layout.enu_m,
+                             inputs.spec.atmosphere, settings.pressure_gain, settings.node_step)
+    first, count = required_frames(geo, inputs.clock, "cubic")
+    if first < 0 or first + count > inputs.recording.n_frames:
+        return None
+    signals = read_span(inputs.recording, first, count)
+    aligned = dedopplerized_signals(signals, first, geo, inputs.clock, window, settings)[0]
+    return neighbour_coherence(aligned, fs, inputs.layout.enu_m,
+                               band_hz=(band_lo, 2.0 * band_lo))
 
 
 def quality_exclusions(alignment_json: Path) -> list[int]:
