@@ -91,6 +91,10 @@ class AnalysisSettings:
     diagonal_removal : bool
     max_polar_offset_deg : float
         Windows whose polar angle is further than this from 90 deg are not analysed.
+    map_dynamic_range_db : float
+        Range shown under each map's peak in the figures.
+    spectra_polar_deg : tuple of float
+        Polar angles at which region spectra are tabulated and drawn.
     """
 
     window_s: float
@@ -102,6 +106,8 @@ class AnalysisSettings:
     interpolation: str = "cubic"
     diagonal_removal: bool = True
     max_polar_offset_deg: float = 60.0
+    map_dynamic_range_db: float = 15.0
+    spectra_polar_deg: tuple[float, ...] = (60.0, 75.0, 90.0, 105.0, 120.0)
 
     def __post_init__(self):
         require(self.window_s > 0 and self.hop_s > 0, "window and hop must be positive",

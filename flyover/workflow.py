@@ -37,8 +37,8 @@ _STAGE_KEYS = {
     "image": ("site", "array", "atmosphere", "pass", "vehicle", "analysis.window_s",
               "analysis.hop_s", "analysis.band_min_hz", "analysis.band_max_hz",
               "analysis.interpolation", "analysis.diagonal_removal",
-              "analysis.max_polar_offset_deg"),
-    "levels": ("vehicle.regions",) + _REFERENCE,
+              "analysis.max_polar_offset_deg", "analysis.map_dynamic_range_db"),
+    "levels": ("vehicle.regions", "analysis.spectra_polar_deg") + _REFERENCE,
     "qc": ("site", "array", "atmosphere", "pass", "vehicle.regions", "analysis.band_min_hz",
            "analysis.band_max_hz"),
 }
@@ -111,8 +111,9 @@ class CampaignPlan:
 
     def fingerprint(self, name: str, stage: str) -> str:
         """The config values a stage uses for one pass, and the code digest, as JSON text."""
-        picked = {k: (self.mapping["passes"][name] if k == "pass" else _pick(self.mapping, k))
-                  for k in _STAGE_KEYS[stage]}
+        # A pass's label only groups passes in the summary: it changes no per-pass result.
+        own = {k: v for k, v in self.mapping["passes"][name].items() if k != "label"}
+        picked = {k: (own if k == "pass" else _pick(self.mapping, k)) for k in _STAGE_KEYS[stage]}
         picked["code"] = package_digest()
         return json.dumps(picked, sort_keys=True, default=str)
 

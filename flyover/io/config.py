@@ -253,6 +253,9 @@ def campaign_from_mapping(data: dict, path: Path) -> Campaign:
         interpolation=an.get("interpolation", "cubic"),
         diagonal_removal=bool(an.get("diagonal_removal", True)),
         max_polar_offset_deg=float(an.get("max_polar_offset_deg", 60.0)),
+        map_dynamic_range_db=float(an.get("map_dynamic_range_db", 15.0)),
+        spectra_polar_deg=tuple(float(v) for v in an.get("spectra_polar_deg",
+                                                          (60.0, 75.0, 90.0, 105.0, 120.0))),
     )
     if analysis.band_min_hz > analysis.band_max_hz:
         raise FlyoverInputError("band range inverted", f"{source}, key analysis.band_min_hz",

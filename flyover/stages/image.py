@@ -84,7 +84,7 @@ def run(campaign: Campaign, pass_name: str, alignment_json: Path, out_dir: Path,
         maps_full.append(res.full.T.reshape(len(bands), nx, ny))
         done.append(w)
         fig = map_figure(res.diagonal_removed if an.diagonal_removal else res.full, campaign,
-                         bands, pass_name, row)
+                         bands, pass_name, row, an.map_dynamic_range_db)
         save_figure(fig, out_dir / "maps" / f"window-{w.index:03d}.png")
         progress.step(f"window {w.index} at {w.polar_angle_deg:.0f} deg")
     progress.close()

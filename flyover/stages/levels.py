@@ -16,7 +16,6 @@ from ..levels import level_1m_db, overall_db, reference_level_db
 from ..plots import directivity_figure, save_figure, spectra_figure
 
 UNRESOLVED = "not separable: region centres closer than one main-lobe width"
-SPECTRA_POLAR_DEG = (60.0, 75.0, 90.0, 105.0, 120.0)
 REGION_POWER_COLUMNS = ("window", "region", "band_hz", "power_1m_pa2", "resolved", "band_valid",
                         "band_note")
 
@@ -32,7 +31,7 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> None:
     levels = level_table(powers, windows, campaign)
     write_csv(out_dir / "levels.csv", levels, float_format="%.3f")
     write_csv(out_dir / "levels_overall.csv", overall_table(levels), float_format="%.3f")
-    spectra = spectra_table(levels)
+    spectra = spectra_table(levels, campaign.analysis.spectra_polar_deg)
     write_csv(out_dir / "spectra.csv", spectra, float_format="%.3f")
     directivity = directivity_table(levels)
     write_csv(out_dir / "directivity.csv", directivity, float_format="%.3f")
@@ -100,7 +99,7 @@ def overall_table(levels: pd.DataFrame) -> pd.DataFrame:
                                        "band_range_hz"])
 
 
-def spectra_table(levels: pd.DataFrame, polar_deg=SPECTRA_POLAR_DEG,
+def spectra_table(levels: pd.DataFrame, polar_deg,
                   tolerance_deg: float = 5.0) -> pd.DataFrame:
     """Region spectra of the windows nearest to chosen polar angles (within a tolerance)."""
     out = []

@@ -137,7 +137,7 @@ def _pass_section(campaign: Campaign, name: str, out: Path) -> str:
 <h3>Track</h3>{_img(d / "qc_track.png", "track over the array")}
 <h3>Spectrograms</h3>{_img(d / "qc_spectrogram.png", "spectrograms")}
 <h3>Source maps</h3><p class="muted">Windows nearest to polar angles 60, 90 and 120 deg; each
-panel in dB re its own peak over 15 dB.</p>{''.join(maps)}
+panel in dB re its own peak over {campaign.analysis.map_dynamic_range_db:g} dB.</p>{''.join(maps)}
 <h3>Region spectra</h3>{_img(d / "spectra.png", "region spectra")}
 <h3>Directivity</h3>{_img(d / "directivity.png", "directivity")}
 </section>"""
