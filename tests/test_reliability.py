@@ -106,6 +106,8 @@ def test_only_the_needed_span_is_read(tiny_copy, monkeypatch):
     (lambda d: d["vehicle"]["regions"].update(far={"x_m": [10, 11], "y_m": [0, 1]}),
      ["region 'far' lies outside the vehicle grid"]),
     (lambda d: d["passes"]["p1"].update(exclude_channels=[40]), ["excluded channels are not in"]),
+    (lambda d: d["vehicle"]["regions"].update(thin={"x_m": [0.1, 0.2], "y_m": [0.1, 0.2]}),
+     ["region 'thin' holds no grid point"]),
     (lambda d: d["passes"]["p1"].update(clock_offset_s="later"), ["clock_offset_s", "'auto'"]),
     (lambda d: d["array"].update(mounting="tripod"), ["array.mounting", "ground-plate"]),
 ])

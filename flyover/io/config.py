@@ -6,6 +6,7 @@ import json
 from functools import lru_cache
 from pathlib import Path
 
+import numpy as np
 import yaml
 from jsonschema import Draft202012Validator
 
@@ -235,6 +236,7 @@ def campaign_from_mapping(data: dict, path: Path) -> Campaign:
                        float(g.get("z_m", 0.0)))
     regions = {name: Region(name, _range(r["x_m"]), _range(r["y_m"]))
                for name, r in veh["regions"].items()}
+    points = grid.points_m()
     for r in regions.values():
         c = r.center_m
         if not (grid.x_m[0] <= c[0] <= grid.x_m[1] and grid.y_m[0] <= c[1] <= grid.y_m[1]):
@@ -242,6 +244,13 @@ def campaign_from_mapping(data: dict, path: Path) -> Campaign:
                                     f"{source}, key vehicle.regions.{r.name}",
                                     f"x within {list(grid.x_m)} and y within {list(grid.y_m)}",
                                     f"centre at x = {c[0]}, y = {c[1]}")
+        if not np.any(r.contains(points)):
+            raise FlyoverInputError(f"region '{r.name}' holds no grid point",
+                                    f"{source}, key vehicle.regions.{r.name}",
+                                    f"a rectangle at least one grid spacing "
+                                    f"({grid.spacing_m} m) wide that covers grid points",
+                                    f"x_m {list(r.x_m)}, y_m {list(r.y_m)}",
+                                    "widen the region or refine vehicle.grid.spacing_m")
     an = data["analysis"]
     ref = an["reference_atmosphere"]
     analysis = AnalysisSettings(
