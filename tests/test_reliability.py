@@ -119,6 +119,16 @@ def test_more_config_errors(tiny_copy, change, fragments):
         assert frag in info.value.message, info.value.message
 
 
+def test_semicolon_separated_calibration(tiny_copy):
+    # A spreadsheet export with ';' separators and decimal commas (common in Europe).
+    df = pd.read_csv(tiny_copy / "p1" / "calibration.csv")
+    (tiny_copy / "p1" / "calibration.csv").write_text(
+        df.to_csv(sep=";", index=False).replace(".", ","))
+    with pytest.raises(FlyoverInputError, match="comma-separated") as info:
+        check_campaign(load_campaign(tiny_copy / "campaign.yaml"))
+    assert "wrong columns" in info.value.message
+
+
 def test_empty_layout(tiny_copy):
     (tiny_copy / "layout.csv").write_text("channel,lat_deg,lon_deg,height_m\n")
     with pytest.raises(FlyoverInputError, match="layout file has no data rows"):

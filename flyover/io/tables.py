@@ -58,8 +58,12 @@ def _pick_columns(df: pd.DataFrame, options: list[list[str]], path, what: str) -
         if all(c in cols for c in opt):
             return opt
     expected = " or ".join(",".join(o) for o in options)
+    hint = ""
+    if len(cols) == 1 and (";" in cols[0] or "\t" in cols[0]):
+        hint = ("the file uses ';' or tabs between values: save it as comma-separated, with a "
+                "point as the decimal mark")
     raise FlyoverInputError(f"{what} file has the wrong columns", str(path), expected,
-                            ",".join(cols))
+                            ",".join(cols), hint)
 
 
 def numeric_column(df: pd.DataFrame, col: str, path, integer: bool = False) -> np.ndarray:
