@@ -11,7 +11,8 @@ Band powers are formed in source time from the windowed spectra of these signals
                            / ((sum w)^2 - sum w^2)
 
 with A the spectrum of a, compensated for the ISO 9613-1 absorption of the measured path at the
-frequency the sound travels with, f / (dt/dtau). A point source at g in free field, without
+frequency the sound has in the air, f / (1 - M_r) (M_r relative to the moving medium; the fixed
+microphone then receives f / (dt/dtau)). A point source at g in free field, without
 noise, gives back its source signal (pressure at 1 m): the maps are in source strength at 1 m.
 
 Error budget of the interpolation (received frequency f, sample rate fs, nu = f / fs): 4-point
@@ -89,7 +90,9 @@ class ReceptionGeometry:
     amplitude : ndarray, shape (n_grid, n_mics, n_nodes)
         r (1 - M_r)^2 / G.
     doppler_center : ndarray, shape (n_grid, n_mics)
-        dt/dtau at the window centre.
+        dt/dtau at the window centre (received frequency = emitted frequency / dt/dtau).
+    mach_r_center : ndarray, shape (n_grid, n_mics)
+        M_r at the window centre (frequency in the air = emitted frequency / (1 - M_r)).
     distance_center_m : ndarray, shape (n_grid, n_mics)
         Emission distance r at the window centre.
     """
@@ -99,6 +102,7 @@ class ReceptionGeometry:
     amplitude: np.ndarray
     doppler_center: np.ndarray
     distance_center_m: np.ndarray
+    mach_r_center: np.ndarray
 
 
 def reception_geometry(track: TrackModel, window: Window, points_body_m, mic_enu_m,
@@ -118,6 +122,7 @@ def reception_geometry(track: TrackModel, window: Window, points_body_m, mic_enu
     amp = np.empty((n_g, n_m, n_nodes))
     doppler = np.empty((n_g, n_m))
     distance = np.empty((n_g, n_m))
+    mach = np.empty((n_g, n_m))
     for c0 in range(0, n_g, chunk_points):
         sl = slice(c0, min(c0 + chunk_points, n_g))
         pos = track.body_points_enu(pts[sl], times)          # (n_t, n_c, 3)
@@ -129,14 +134,15 @@ def reception_geometry(track: TrackModel, window: Window, points_body_m, mic_enu
                    / pressure_gain).transpose(1, 2, 0)
         doppler[sl] = geo.doppler_factor[-1]
         distance[sl] = geo.distance_m[-1]
-    return ReceptionGeometry(nodes, reception, amp, doppler, distance)
+        mach[sl] = geo.mach_r[-1]
+    return ReceptionGeometry(nodes, reception, amp, doppler, distance, mach)
 
 
 def subset(geometry: ReceptionGeometry, points) -> ReceptionGeometry:
     """The geometry of some grid points only (rows), e.g. a region's."""
     return ReceptionGeometry(geometry.node_times_s, geometry.reception_s[points],
                              geometry.amplitude[points], geometry.doppler_center[points],
-                             geometry.distance_center_m[points])
+                             geometry.distance_center_m[points], geometry.mach_r_center[points])
 
 
 def required_frames(geometry: ReceptionGeometry, clock: RecordingClock,
@@ -179,13 +185,13 @@ def _absorption_gain(settings: ChainSettings, atmosphere: Atmosphere,
     """Amplitude factors (n_grid, n_mics, n_bands) that undo the measured path's absorption.
 
     Per band, the power gain is averaged over frequencies across the band, each evaluated at the
-    frequency the sound travels with, f / (dt/dtau), over the centre emission distance.
+    frequency the sound has in the air, f / (1 - M_r), over the centre emission distance.
     """
     b = settings.bands
     if not settings.absorption:
         return np.ones(geometry.doppler_center.shape + (len(b),), dtype=np.float32)
     sub = np.geomspace(b.lower_hz, b.upper_hz, _SUBBAND_POINTS, axis=-1)   # (n_b, k)
-    f_air = sub[None, None] / geometry.doppler_center[..., None, None]
+    f_air = sub[None, None] / (1.0 - geometry.mach_r_center[..., None, None])
     alpha = atmosphere.absorption_db_per_m(f_air)
     power_gain = np.mean(10.0 ** (alpha * geometry.distance_center_m[..., None, None] / 10.0),
                          axis=-1)

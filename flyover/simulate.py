@@ -2,7 +2,8 @@
 
 The source model is the design notes' moving monopole: ``p_m(t) = G s(tau) / (r (1 - M_r)^2)``
 with ``t = tau + T`` and T the travel time in a uniformly moving medium, plus ISO 9613-1
-absorption along each path applied as a slowly varying filter at the received frequency.
+absorption along each path applied as a slowly varying filter at the frequency the sound has in
+the air (the received frequency without wind).
 Reception samples are mapped to emission times by Newton iterations on the closed-form forward
 travel time (on a coarse grid, then interpolated), and broadband source signals are evaluated at
 those times with a 32-tap Kaiser-windowed sinc, whose error is below -60 dB for content below
@@ -193,25 +194,28 @@ def emission_times_s(track: TrackModel, body_m, mic_enu_m, reception_s, wind_enu
     return tau, paths_between(pos, vel, mics, wind_enu_m_s, c_m_s)
 
 
-def _absorb(signal, distance_m, frequency_hz_to_alpha, fs, block: int = 2048):
-    """Apply a time-varying absorption filter: per block, gain 10**(-alpha(f) r / 20).
+def _absorb(signal, distance_m, air_per_received, frequency_hz_to_alpha, fs, block: int = 2048):
+    """Apply a time-varying absorption filter: per block, gain 10**(-alpha(f_air) r / 20).
 
     sqrt-Hann analysis and synthesis windows at 50 % overlap reconstruct exactly at unit gain.
-    ``distance_m`` gives r per sample of ``signal``.
+    ``distance_m`` gives r per sample of ``signal``; ``air_per_received`` the ratio of the
+    frequency in the air to the received one, 1 / (1 + n.U / c) (1 without wind).
     """
     n = len(signal)
     hop = block // 2
     pad = np.concatenate([np.zeros(block), signal, np.zeros(block + hop)])
     r_pad = np.concatenate([np.full(block, distance_m[0]), distance_m,
                             np.full(block + hop, distance_m[-1])])
+    q_pad = np.concatenate([np.full(block, air_per_received[0]), air_per_received,
+                            np.full(block + hop, air_per_received[-1])])
     n_blocks = (len(pad) - block) // hop + 1
     idx = np.arange(n_blocks)[:, None] * hop + np.arange(block)[None, :]
     win = np.sqrt(np.hanning(block + 1)[:block])
     spec = np.fft.rfft(pad[idx] * win, axis=1)
     freqs = np.fft.rfftfreq(block, 1.0 / fs)
-    alpha = frequency_hz_to_alpha(freqs)
-    r_block = r_pad[np.arange(n_blocks) * hop + hop]
-    spec *= 10.0 ** (-alpha[None, :] * r_block[:, None] / 20.0)
+    centre = np.arange(n_blocks) * hop + hop
+    alpha = frequency_hz_to_alpha(freqs[None, :] * q_pad[centre][:, None])
+    spec *= 10.0 ** (-alpha * r_pad[centre][:, None] / 20.0)
     frames = np.fft.irfft(spec, block, axis=1) * win
     out = np.zeros(len(pad))
     np.add.at(out, idx.ravel(), frames.ravel())
@@ -260,8 +264,10 @@ def received_pressure_pa(track: TrackModel, signals: list[SourceSignal], bodies_
         contrib = signal(tau) * amp
         if prop.absorption:
             r = CubicSpline(tc, geo.distance_m, axis=1)(t)
+            # Frequency in the air over the received one: (dt/dtau) / (1 - M_r) = 1 / (1 + n.U/c).
+            q = CubicSpline(tc, geo.doppler_factor / (1.0 - geo.mach_r), axis=1)(t)
             for m in range(n_mics):
-                contrib[m] = _absorb(contrib[m], r[m], atm.absorption_db_per_m, fs)
+                contrib[m] = _absorb(contrib[m], r[m], q[m], atm.absorption_db_per_m, fs)
         out += contrib
     return out
 

@@ -87,8 +87,8 @@ def test_round_trip_point_source():
     # test of the chain; content kept below 0.1 fs for the waveform).
     src = PointSource("s", (0.6, -0.3, 0.0), broadband=Broadband(90.0, 0.0, 80.0, 0.1 * FS), seed=4)
     bands = third_octave_bands(100, 0.1 * FS)
-    for absorption in (False, True):
-        track, atm, (sig,), p = one_source_pass(src, absorption=absorption)
+    for absorption, wind in ((False, (0.0, 0.0)), (True, (0.0, 0.0)), (True, (5.0, -3.0))):
+        track, atm, (sig,), p = one_source_pass(src, wind=wind, absorption=absorption)
         st = ChainSettings(bands, np.ones(len(MICS)), 2.0, absorption=absorption)
         for w in windows_near_overhead(track, 50)[::3]:
             geo = reception_geometry(track, w, [src.body_m], MICS, atm, 2.0)

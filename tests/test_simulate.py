@@ -75,7 +75,8 @@ def test_received_amplitude_follows_source_model():
 
 
 def test_absorption_matches_iso_9613_1_along_the_path():
-    # Level loss alpha(f_r) * r (ISO 9613-1), at the received (Doppler-shifted) frequency.
+    # Level loss alpha(f) * r (ISO 9613-1) at the frequency in the air, which without wind is the
+    # received (Doppler-shifted) one.
     t, dry = level_flyover(4000.0)
     _, wet = level_flyover(4000.0, absorption=True)
     k = slice(7000, 9000)
