@@ -247,3 +247,35 @@ def spectrogram_figure(raw, dedopplerized, pass_name: str, raw_label: str, f_max
         bar.set_label("spectral level (dB re 20 uPa^2/Hz, 50 dB per panel)")
     fig.suptitle(f"{pass_name}: Doppler shift as received, removed in source time", fontsize=11)
     return fig
+
+
+def campaign_figure(overall, quantity: str = "A-weighted"):
+    """Mean level over passes against polar angle, with its 90 % interval, per label and region.
+
+    ``overall`` is the campaign_overall table (columns label, region, quantity, polar_bin_deg,
+    mean_db, ci_half_width_db, n_passes).
+    """
+    sel = overall[overall["quantity"] == quantity] if len(overall) else overall
+    labels = list(dict.fromkeys(sel["label"])) if len(sel) else []
+    fig, axes = plt.subplots(1, max(1, len(labels)), figsize=(5.2 * max(1, len(labels)), 3.8),
+                             squeeze=False, sharey=True)
+    colours = [INK, ACCENT, ARRAY, "#7a4e9e", "#b03a2e"]
+    for ax, label in zip(axes[0], labels):
+        part = sel[sel["label"] == label]
+        for i, region in enumerate(dict.fromkeys(part["region"])):
+            s = part[part["region"] == region].sort_values("polar_bin_deg")
+            err = np.nan_to_num(s["ci_half_width_db"].to_numpy(), nan=0.0)
+            ax.errorbar(s["polar_bin_deg"], s["mean_db"], yerr=err, marker="o", ms=3.5,
+                        capsize=2.5, lw=1.3, color=colours[i % len(colours)], label=region)
+        n = int(part["n_passes"].max()) if len(part) else 0
+        ax.set_title(f"{label} ({n} pass{'es' if n != 1 else ''})")
+        ax.set_xlabel("polar emission angle (deg, 90 = overhead)")
+        ax.legend(fontsize=8, frameon=False)
+    axes[0][0].set_ylabel(f"{quantity} level at reference distance (dB)")
+    if not labels:
+        axes[0][0].text(0.5, 0.5, "no levels", ha="center", transform=axes[0][0].transAxes)
+    fig.suptitle("Campaign: mean over passes with its 90 % interval (Student t)", fontsize=11)
+    fig.text(0.5, -0.02, "Regions sum the bands where they are resolved; 'total' sums all bands.",
+             ha="center", fontsize=8, color="#6b7380")
+    fig.tight_layout()
+    return fig

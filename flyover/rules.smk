@@ -154,6 +154,7 @@ rule campaign_summary:
     output:
         levels=f"{OUT}/campaign_levels.csv",
         overall=f"{OUT}/campaign_overall.csv",
+        figure=f"{OUT}/campaign_overall.png",
     params:
         fingerprint=PLAN.campaign_fingerprint("summary"),
     log:

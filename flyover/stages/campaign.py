@@ -9,6 +9,7 @@ import pandas as pd
 
 from ..campaign import Campaign
 from ..io.tables import write_csv
+from ..plots import campaign_figure, save_figure
 from ..stats import WIDE_INTERVAL_DB, energetic_mean_db, mean_and_interval, polar_bin_deg
 
 POLAR_BIN_DEG = 10.0
@@ -49,7 +50,8 @@ def summarise(per_pass: dict[str, pd.DataFrame], labels: dict[str, str], value: 
 
 
 def run(campaign: Campaign, out_dir: Path) -> None:
-    """Write campaign_levels.csv (bands) and campaign_overall.csv (overall, A-weighted)."""
+    """Write campaign_levels.csv (bands), campaign_overall.csv (overall, A-weighted) and
+    campaign_overall.png."""
     out_dir = Path(out_dir)
     labels = {n: p.label for n, p in campaign.passes.items()}
     bands = {n: pd.read_csv(out_dir / n / "levels.csv") for n in campaign.passes}
@@ -61,5 +63,6 @@ def run(campaign: Campaign, out_dir: Path) -> None:
         s = summarise(overall, labels, value, ["region"])
         s.insert(2, "quantity", "overall" if value == "overall_db" else "A-weighted")
         parts.append(s)
-    write_csv(out_dir / "campaign_overall.csv", pd.concat(parts, ignore_index=True),
-              float_format="%.3f")
+    overall_table = pd.concat(parts, ignore_index=True)
+    write_csv(out_dir / "campaign_overall.csv", overall_table, float_format="%.3f")
+    save_figure(campaign_figure(overall_table), out_dir / "campaign_overall.png")

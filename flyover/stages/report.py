@@ -193,6 +193,7 @@ RH), free field, convective amplification removed. Per configuration label, regi
 one-third-octave band and 10&deg; polar-angle bin: the mean over passes, its standard
 deviation, the number of passes and the 90&nbsp;% confidence interval of the mean (Student t).
 Rows whose interval is wider than &plusmn;1.5&nbsp;dB are highlighted ({n_flags} here).</p>
+{_img(out / "campaign_overall.png", "campaign A-weighted levels")}
 <h3>Overall and A-weighted levels</h3>
 {_table(overall[np.isfinite(overall["mean_db"])] if len(overall) else overall, "wide_interval")}
 <h3>Band levels</h3>
