@@ -149,6 +149,7 @@ class ArraySpec:
     height_datum: str = "ellipsoidal"
     exclude_channels: tuple[int, ...] = ()
     keep_channels: tuple[int, ...] = ()
+    extra_channels: tuple[int, ...] = ()
 
     @property
     def pressure_gain(self) -> float:

@@ -11,6 +11,7 @@ import pytest
 import soundfile as sf
 
 from flyover.errors import FlyoverInputError
+from flyover.io import passdata
 from flyover.io import recording as recording_io
 from flyover.io.config import load_campaign
 from flyover.stages import align, image
@@ -88,7 +89,7 @@ def test_only_the_needed_span_is_read(tiny_copy, monkeypatch):
         calls.append(n)
         return original(info, start, n, *args, **kwargs)
 
-    monkeypatch.setattr(image, "read_span", counting)
+    monkeypatch.setattr(passdata, "read_span", counting)
     image.run(campaign, "p1", out / "alignment.json", out, threads=2, quiet=True)
     info = recording_io.recording_info(tiny_copy / "p1" / "recording.wav")
     windows = pd.read_csv(out / "windows.csv")
@@ -127,6 +128,22 @@ def test_semicolon_separated_calibration(tiny_copy):
     with pytest.raises(FlyoverInputError, match="comma-separated") as info:
         check_campaign(load_campaign(tiny_copy / "campaign.yaml"))
     assert "wrong columns" in info.value.message
+
+
+def test_extra_channel_that_is_not_a_microphone(tiny_copy):
+    # A timing track (PPS) recorded on channel 16: not in the layout, declared as extra.
+    df = pd.read_csv(tiny_copy / "layout.csv")
+    df[df["channel"] != 16].to_csv(tiny_copy / "layout.csv", index=False)
+    with pytest.raises(FlyoverInputError, match="extra_channels"):
+        check_campaign(load_campaign(tiny_copy / "campaign.yaml"))
+    path = edit(tiny_copy, lambda d: d["array"].update(extra_channels=[16]))
+    campaign = load_campaign(path)
+    summary = check_campaign(campaign)
+    assert summary[0]["channels_used"] == 15
+    out = tiny_copy / "results" / "p1"
+    align.run(campaign, "p1", out / "alignment.json", out / "track.png")
+    image.run(campaign, "p1", out / "alignment.json", out, threads=2, quiet=True)
+    assert (out / "region_power.csv").exists()
 
 
 def test_empty_layout(tiny_copy):

@@ -184,7 +184,8 @@ def campaign_from_mapping(data: dict, path: Path) -> Campaign:
     arr = data["array"]
     array = ArraySpec(_resolve_path(base, arr["layout"]), arr["mounting"],
                       arr.get("height_datum", "ellipsoidal"),
-                      tuple(arr.get("exclude_channels", ())), tuple(arr.get("keep_channels", ())))
+                      tuple(arr.get("exclude_channels", ())), tuple(arr.get("keep_channels", ())),
+                      tuple(arr.get("extra_channels", ())))
     default_atm = data.get("atmosphere", {})
     passes = {}
     for name, p in data["passes"].items():

@@ -10,7 +10,7 @@ from ..campaign import Campaign, PassSpec
 from ..errors import FlyoverInputError
 from ..timebase import RecordingClock, iso_utc
 from ..track import TrackModel, fit_track
-from .recording import RecordingInfo, recording_info
+from .recording import RecordingInfo, read_span, recording_info
 from .tables import ArrayLayout, read_calibration, read_layout, read_track
 
 
@@ -39,6 +39,16 @@ class PassInputs:
     clock: RecordingClock
     track: TrackModel
     weights: np.ndarray
+
+    @property
+    def channel_index(self) -> np.ndarray:
+        """0-based recording channel of each microphone (layout order)."""
+        return self.layout.channel - 1
+
+    def read_pressure_pa(self, first_frame: int, n_frames: int) -> np.ndarray:
+        """Calibrated pressure (Pa) of the microphones, float32 (n_mics, n_frames)."""
+        units = read_span(self.recording, first_frame, n_frames, self.channel_index)
+        return units * self.pa_per_unit[:, None].astype(np.float32)
 
     @property
     def recording_span_s(self) -> tuple[float, float]:
@@ -74,12 +84,16 @@ def load_pass(campaign: Campaign, name: str, clock_offset_s: float | None = None
     spec = campaign.passes[name]
     layout = load_layout(campaign)
     info = recording_info(spec.recording)
-    if info.n_channels != len(layout.channel) or layout.channel.max() > info.n_channels:
+    extra = set(campaign.array.extra_channels)
+    expected = set(layout.channel.tolist()) | extra
+    if expected != set(range(1, info.n_channels + 1)) or extra & set(layout.channel.tolist()):
         raise FlyoverInputError(
             "layout and recording disagree on the channels", str(spec.recording),
-            f"{len(layout.channel)} channels as in {campaign.array.layout}",
+            f"{len(layout.channel)} microphone channels as in {campaign.array.layout}"
+            + (f" plus extra channels {sorted(extra)}" if extra else ""),
             f"{info.n_channels} channels in the recording",
-            "give one layout row per recorded channel (exclude unused ones with exclude_channels)")
+            "give one layout row per microphone channel, and list channels that are not "
+            "microphones (a PPS or timecode track) in array.extra_channels")
     cal = read_calibration(spec.calibration, layout.channel)
     pa_per_unit = np.array([cal[int(c)] for c in layout.channel])
     offset = clock_offset_s if clock_offset_s is not None else spec.clock_offset_s

@@ -180,12 +180,13 @@ def read_span(info: RecordingInfo, start_frame: int, n_frames: int, channels=Non
     return out
 
 
-def iter_blocks(info: RecordingInfo, start_frame: int, n_frames: int, block_frames: int = 1 << 16):
+def iter_blocks(info: RecordingInfo, start_frame: int, n_frames: int, block_frames: int = 1 << 16,
+                channels=None):
     """Yield consecutive float32 blocks (n_channels, <= block_frames) of a span of frames."""
     done = 0
     while done < n_frames:
         k = min(block_frames, n_frames - done)
-        yield read_span(info, start_frame + done, k, block_frames=block_frames)
+        yield read_span(info, start_frame + done, k, channels, block_frames=block_frames)
         done += k
 
 

@@ -15,7 +15,7 @@ from ..dedoppler import (ChainSettings, dedopplerized_signals, reception_geometr
 from ..errors import FlyoverInputError
 from ..io.atomic import write_text
 from ..io.passdata import load_pass
-from ..io.recording import iter_blocks, read_span
+from ..io.recording import iter_blocks
 from ..quality import ChannelAccumulator, channel_quality, neighbour_coherence, track_quality
 from ..windows import Window, plan_windows
 from ..plots import save_figure, track_figure
@@ -77,15 +77,16 @@ def _estimate_offset(campaign: Campaign, inputs):
     pick = windows[:: max(1, len(windows) // 5)][:5]
     bands = third_octave_bands(max(an.band_min_hz, 250.0), an.band_max_hz)
     settings = ChainSettings(bands, inputs.weights, campaign.array.pressure_gain, "cubic")
-    scale = inputs.pa_per_unit[:, None].astype(np.float32)
     info = inputs.recording
 
     def read_frames(first, n):
+        # Silence outside the recording: candidate offsets may look past its ends.
         first_ok = max(0, first)
         last_ok = min(info.n_frames, first + n)
-        out = np.zeros((info.n_channels, n), np.float32)
-        out[:, first_ok - first:last_ok - first] = read_span(info, first_ok, last_ok - first_ok)
-        return out * scale
+        out = np.zeros((len(inputs.channel_index), n), np.float32)
+        out[:, first_ok - first:last_ok - first] = inputs.read_pressure_pa(first_ok,
+                                                                           last_ok - first_ok)
+        return out
 
     estimate = estimate_clock_offset(read_frames, inputs.track, pick, spec.clock_anchor_m,
                                      inputs.layout.enu_m, spec.atmosphere, inputs.clock,
@@ -108,8 +109,8 @@ def pass_channel_quality(campaign: Campaign, inputs, covered_s, overhead_s: floa
     clock, info = inputs.clock, inputs.recording
     first = max(0, int(np.floor(clock.sample_index(covered_s[0]))))
     last = min(info.n_frames, int(np.ceil(clock.sample_index(covered_s[1]))) + 1)
-    acc = ChannelAccumulator(info.n_channels)
-    for block in iter_blocks(info, first, last - first):
+    acc = ChannelAccumulator(len(inputs.channel_index))
+    for block in iter_blocks(info, first, last - first, channels=inputs.channel_index):
         acc.add(block)
     return channel_quality(acc, inputs.pa_per_unit, inputs.layout.enu_m, inputs.layout.channel,
                            _aligned_coherence(campaign, inputs, overhead_s, coherence_span_s))
@@ -135,7 +136,7 @@ def _aligned_coherence(campaign: Campaign, inputs, overhead_s: float, span_s: fl
     first, count = required_frames(geo, inputs.clock, "cubic")
     if first < 0 or first + count > inputs.recording.n_frames:
         return None
-    signals = read_span(inputs.recording, first, count)
+    signals = inputs.read_pressure_pa(first, count)
     aligned = dedopplerized_signals(signals, first, geo, inputs.clock, window, settings)[0]
     return neighbour_coherence(aligned, fs, inputs.layout.enu_m,
                                band_hz=(band_lo, 2.0 * band_lo))

@@ -15,7 +15,6 @@ from ..dedoppler import ChainSettings, valid_bands
 from ..imaging import TOTAL, frames_for_window, image_window
 from ..io.atomic import atomic_path
 from ..io.passdata import load_pass
-from ..io.recording import read_span
 from ..io.tables import write_csv
 from ..levels import main_lobe_width_m, regions_resolved
 from ..plots import map_figure, save_figure
@@ -57,8 +56,7 @@ def run(campaign: Campaign, pass_name: str, alignment_json: Path, out_dir: Path,
             rows.append(row)
             progress.step(f"window {w.index} skipped")
             continue
-        signals = read_span(inputs.recording, first, n) * inputs.pa_per_unit[:, None].astype(
-            np.float32)
+        signals = inputs.read_pressure_pa(first, n)
         res = image_window(signals, first, geo, inputs.track, w, points, campaign.regions, mics,
                            atm, clock, settings, an.diagonal_removal, threads)
         resolved = regions_resolved(centers, bands.center_hz, w.distance_m,

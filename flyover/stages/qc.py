@@ -13,7 +13,6 @@ from ..bands import third_octave_bands
 from ..campaign import Campaign
 from ..dedoppler import ChainSettings, dedopplerized_signals, reception_geometry, required_frames
 from ..io.passdata import load_pass
-from ..io.recording import read_span
 from ..plots import save_figure, spectrogram_figure, track_figure
 from ..windows import Window
 from .align import clock_offset_from_alignment, quality_exclusions
@@ -49,8 +48,7 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> None:
                              inputs.spec.atmosphere, settings.pressure_gain, settings.node_step)
     first, count = required_frames(geo, inputs.clock, "cubic")
     first, count = max(first, 0), min(count, inputs.recording.n_frames - max(first, 0))
-    signals = read_span(inputs.recording, first, count) * inputs.pa_per_unit[:, None].astype(
-        np.float32)
+    signals = inputs.read_pressure_pa(first, count)
     a = dedopplerized_signals(signals, first, geo, inputs.clock, span, settings)[0]
     used = inputs.weights > 0
     beam = np.average(a[used], axis=0, weights=inputs.weights[used])
