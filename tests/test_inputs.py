@@ -116,7 +116,8 @@ def test_layout_collinear(tiny_copy):
 def test_channel_count_mismatch(tiny_copy):
     df = pd.read_csv(tiny_copy / "layout.csv").iloc[:-2]
     df.to_csv(tiny_copy / "layout.csv", index=False)
-    expect_error(tiny_copy, "layout and recording disagree", "14 channels", "16 channels")
+    expect_error(tiny_copy, "layout and recording disagree", "14 microphone channels",
+                 "16 channels in the recording", "extra_channels")
 
 
 def test_calibration_negative(tiny_copy):
