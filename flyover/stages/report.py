@@ -32,7 +32,7 @@ max-width:1180px;margin:0 auto;padding:24px 28px;line-height:1.45}
 h1{font-size:1.7em;margin-bottom:0}h2{border-bottom:2px solid #d08a1f;padding-bottom:4px;
 margin-top:2.2em}h3{color:#1f7a78}table{border-collapse:collapse;font-size:.85em;margin:10px 0}
 th,td{border:1px solid #ddd6c8;padding:3px 7px;text-align:right}th{background:#efe9dd}
-td.t,th.t{text-align:left}tr.flag td{background:#fbe3d2}img{max-width:100%;border:1px solid
+td.t,th.t{text-align:left}tr.flag td,td.flag{background:#fbe3d2}h4{margin:14px 0 2px}img{max-width:100%;border:1px solid
 #ddd6c8;background:white;margin:6px 0}.caution{border-left:5px solid #b03a2e;background:#fff4ef;
 padding:10px 14px}.muted{color:#6b7380;font-size:.9em}.warn{color:#b03a2e}
 nav a{margin-right:14px;color:#1f7a78}
@@ -84,6 +84,36 @@ def _table(df: pd.DataFrame, flag_column: str | None = None, max_rows: int = 400
     more = (f'<p class="muted">{len(df) - max_rows} more rows in the CSV file.</p>'
             if len(df) > max_rows else "")
     return f"<table><tr>{head}</tr>{''.join(rows)}</table>{more}"
+
+
+def _level_grids(table: pd.DataFrame, group: list[str], row: str, row_text,
+                 header: str) -> str:
+    """Per group (label, region, ...): ``row`` down, polar bins across, the mean level in each
+    cell; cells whose 90 % interval is wider than +-1.5 dB are shaded, single-pass cells are in
+    italics."""
+    if len(table) == 0:
+        return '<p class="muted">(no levels)</p>'
+    parts = []
+    for key, g in table.groupby(group, sort=False):
+        grid = {v: g.pivot_table(index=row, columns="polar_bin_deg", values=v, aggfunc="first")
+                for v in ("mean_db", "wide_interval", "n_passes")}
+        mean = grid["mean_db"]
+        head = "".join(f"<th>{c:g}&deg;</th>" for c in mean.columns)
+        rows = []
+        for r, values in mean.iterrows():
+            cells = []
+            for col, v in values.items():
+                if not np.isfinite(v):
+                    cells.append("<td></td>")
+                    continue
+                text = f"{v:.1f}" if grid["n_passes"].loc[r, col] > 1 else f"<i>{v:.1f}</i>"
+                cls = "flag" if bool(grid["wide_interval"].loc[r, col]) else ""
+                cells.append(f'<td class="{cls}">{text}</td>')
+            rows.append(f"<tr><th>{html.escape(row_text(r))}</th>{''.join(cells)}</tr>")
+        title = ": ".join(html.escape(str(k)) for k in (key if isinstance(key, tuple) else (key,)))
+        parts.append(f"<h4>{title}</h4><table><tr><th>{html.escape(header)}</th>{head}</tr>"
+                     f"{''.join(rows)}</table>")
+    return "".join(parts)
 
 
 def _pass_section(campaign: Campaign, name: str, out: Path) -> str:
@@ -192,12 +222,18 @@ def run(campaign: Campaign, out_dir: Path, report_path: Path) -> None:
 RH), free field, convective amplification removed. Per configuration label, region,
 one-third-octave band and 10&deg; polar-angle bin: the mean over passes, its standard
 deviation, the number of passes and the 90&nbsp;% confidence interval of the mean (Student t).
-Rows whose interval is wider than &plusmn;1.5&nbsp;dB are highlighted ({n_flags} here).</p>
+Means whose interval is wider than &plusmn;1.5&nbsp;dB are shaded ({n_flags} band cells here).</p>
 {_img(out / "campaign_overall.png", "campaign A-weighted levels")}
 <h3>Overall and A-weighted levels</h3>
-{_table(overall[np.isfinite(overall["mean_db"])] if len(overall) else overall, "wide_interval")}
+<p class="muted">Mean level (dB) per polar bin; shaded: interval wider than &plusmn;1.5&nbsp;dB;
+italics: one pass only. Regions sum the bands where they are resolved, 'total' sums all bands.
+</p>
+{_level_grids(overall, ["label", "quantity"], "region", str, "region")}
 <h3>Band levels</h3>
-{_table(shown, "wide_interval", max_rows=600)}
+<p class="muted">Mean level (dB) per band and polar bin; shaded: interval wider than
+&plusmn;1.5&nbsp;dB; italics: one pass only; empty: not resolved or not measurable. All columns,
+with standard deviations and intervals, are in campaign_levels.csv.</p>
+{_level_grids(shown, ["label", "region"], "band_hz", lambda b: f"{b:g} Hz", "band")}
 </section>
 {''.join(_pass_section(campaign, n, out) for n in campaign.passes)}
 <h2 id="provenance">Provenance</h2>
