@@ -6,15 +6,14 @@ Run:  python benchmarks/bench_imaging.py [--threads 2] [--skip-pass]
    demo sizes (48 microphones, 775 grid points, 0.25 s at 25.6 kHz), and of the plain numpy
    reference on a subset, in the same run; compile time reported apart.
 2. The cost of the band step (FFTs of every de-Dopplerized signal) per window.
-3. Wall time and peak memory of one demo pass end to end (image stage), and the same pass with
-   its recording padded to 60 s, to show that memory follows the window, not the file.
+3. Wall time and peak memory of one demo pass end to end (align, image, levels and QC stages),
+   and the same pass with its recording padded to 60 s: memory follows the window, not the file.
 """
 
 from __future__ import annotations
 
 import argparse
 import shutil
-import subprocess
 import sys
 import tempfile
 import time
@@ -27,7 +26,9 @@ import scipy.fft
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 sys.path.insert(0, str(ROOT / "tests"))
+sys.path.insert(0, str(ROOT / "benchmarks"))
 
+from _measure import measured_stage  # noqa: E402
 from flyover import _kernels  # noqa: E402
 
 
@@ -87,25 +88,15 @@ def pass_figures(threads: int) -> None:
                 _pad_recording(tmp / "data" / "pass-1" / "recording.wav", pad_s)
             out = tmp / "results" / label.replace(" ", "-")
             out.mkdir(parents=True)
-            subprocess.run([sys.executable, "-m", "flyover", "stage", "align", "--campaign",
-                            str(tmp / "campaign.yaml"), "--pass", "pass-1", "--out", str(out)],
-                           check=True, capture_output=True)
-            t0 = time.perf_counter()
-            # The stage runs in its own process, which reports its own peak resident memory.
-            # VmHWM starts afresh at exec (ru_maxrss would carry the parent's size across it).
-            probe = ("import sys; from flyover.cli import main; rc = main(sys.argv[1:]); "
-                     "hwm = [l for l in open('/proc/self/status') if l.startswith('VmHWM')][0]; "
-                     "print(hwm.split()[1]); sys.exit(rc)")
-            done = subprocess.run([sys.executable, "-c", probe, "stage", "image", "--campaign",
-                                   str(tmp / "campaign.yaml"), "--pass", "pass-1", "--out",
-                                   str(out), "--threads", str(threads)], check=True,
-                                  capture_output=True, text=True)
-            wall = time.perf_counter() - t0
-            peak_mb = int(done.stdout.strip().splitlines()[-1]) / 1024
+            total, peak = 0.0, 0.0
+            for stage in ("align", "image", "levels", "qc"):
+                wall, mb = measured_stage(stage, tmp / "campaign.yaml", "pass-1", out, threads)
+                total, peak = total + wall, max(peak, mb)
+                print(f"demo pass-1, {label}, {stage} stage: {wall:.1f} s, peak {mb:.0f} MB")
             n_win = sum(1 for line in (out / "windows.csv").read_text().splitlines()
                         if "analysed" in line)
-            print(f"demo pass-1 image stage, {label}: {wall:.1f} s for {n_win} windows, "
-                  f"peak resident memory {peak_mb:.0f} MB")
+            print(f"demo pass-1 end to end, {label}: {total:.1f} s for {n_win} windows, "
+                  f"peak resident memory {peak:.0f} MB")
 
 
 def _pad_recording(path: Path, pad_s: float) -> None:

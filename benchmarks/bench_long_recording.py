@@ -12,7 +12,6 @@ from __future__ import annotations
 import argparse
 import os
 import struct
-import subprocess
 import sys
 import tempfile
 import time
@@ -25,7 +24,9 @@ import yaml
 
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
+sys.path.insert(0, str(ROOT / "benchmarks"))
 
+from _measure import measured_stage  # noqa: E402
 from flyover.atmosphere import Atmosphere  # noqa: E402
 from flyover.frames import SiteFrame  # noqa: E402
 from flyover.io.recording import _declared_data_bytes, recording_info  # noqa: E402
@@ -112,25 +113,6 @@ def build(folder: Path) -> Path:
     return folder / "campaign.yaml"
 
 
-# Peak memory of the stage process itself: VmHWM starts afresh at exec (ru_maxrss would carry
-# the forking parent's size across it).
-PROBE = ("import sys; from flyover.cli import main; rc = main(sys.argv[1:]); "
-         "hwm = [l for l in open('/proc/self/status') if l.startswith('VmHWM')][0]; "
-         "print('peak_kb', hwm.split()[1]); sys.exit(rc)")
-
-
-def stage(name: str, campaign: Path) -> tuple[float, float]:
-    out = campaign.parent / "results" / "long"
-    t0 = time.perf_counter()
-    res = subprocess.run([sys.executable, "-c", PROBE, "stage", name, "--campaign",
-                          str(campaign), "--pass", "long", "--out", str(out), "--threads", "2"],
-                         capture_output=True, text=True, cwd=ROOT)
-    if res.returncode != 0:
-        raise SystemExit(res.stderr[-3000:])
-    peak = [int(line.split()[1]) for line in res.stdout.splitlines() if line.startswith("peak_kb")]
-    return time.perf_counter() - t0, peak[-1] / 1024
-
-
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
     ap.add_argument("--keep", type=Path, help="build in this folder and keep it")
@@ -147,7 +129,7 @@ def main() -> None:
               f"{info.sample_rate_hz:.0f} Hz, {info.path.stat().st_size / 1e9:.1f} GB "
               f"({on_disk / 1e9:.2f} GB allocated), built in {time.perf_counter() - t0:.0f} s")
         for name in ("align", "image"):
-            wall, peak = stage(name, campaign)
+            wall, peak = measured_stage(name, campaign, "long", folder / "results" / "long")
             print(f"{name} stage: {wall:.1f} s, peak resident memory {peak:.0f} MB")
         windows = pd.read_csv(folder / "results" / "long" / "windows.csv")
         print(f"windows analysed: {(windows['status'] == 'analysed').sum()}")
