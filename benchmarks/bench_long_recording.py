@@ -44,7 +44,7 @@ PA_PER_UNIT = 20.0
 
 
 def sparse_rf64(path: Path, n_frames: int) -> int:
-    """A float32 RF64 file of n_frames silent frames, allocated sparsely; returns the data offset."""
+    """A float32 RF64 file of silent frames, allocated sparsely; returns the data offset."""
     sf.write(str(path), np.zeros((1, N_MICS), np.float32), FS, subtype="FLOAT", format="RF64")
     offset, _ = _declared_data_bytes(path)
     data_bytes = n_frames * N_MICS * 4
@@ -68,7 +68,8 @@ def build(folder: Path) -> Path:
                            Broadband(86.0, -2.0, 60.0, 8000.0), 101),
                PointSource("airframe", (-1.4, 0.0, 0.0), (), Broadband(84.0, -1.0, 60.0, 8000.0),
                            202)]
-    signals = [SourceSignal(s, FS, EXCERPT_START_S - 3, EXCERPT_START_S + EXCERPT_S) for s in sources]
+    signals = [SourceSignal(s, FS, EXCERPT_START_S - 3, EXCERPT_START_S + EXCERPT_S)
+               for s in sources]
     prop = Propagator(mics, atm, 2.0)
     rec = folder / "long.wav"
     offset = sparse_rf64(rec, int(TOTAL_S * FS))

@@ -61,8 +61,9 @@ def third_octave_bands(min_hz: float, max_hz: float) -> ThirdOctaveBands:
     Band limits given as nominal labels (e.g. 50 and 5000) select the bands they name: the
     comparison allows the 2 % by which nominal labels differ from exact midbands.
     """
-    require(0 < min_hz <= max_hz, "band range is empty or inverted", "analysis.band_min_hz/band_max_hz",
-            "0 < band_min_hz <= band_max_hz", f"{min_hz} and {max_hz}")
+    require(0 < min_hz <= max_hz, "band range is empty or inverted",
+            "analysis.band_min_hz/band_max_hz", "0 < band_min_hz <= band_max_hz",
+            f"{min_hz} and {max_hz}")
     x_lo = int(np.ceil(10.0 * np.log10(min_hz / 1000.0) - 0.1))
     x_hi = int(np.floor(10.0 * np.log10(max_hz / 1000.0) + 0.1))
     require(x_lo >= _X_FIRST and x_hi <= _X_FIRST + len(_NOMINAL) - 1,
@@ -75,7 +76,8 @@ def a_weighting_db(frequency_hz):
     """A-weighting in dB, IEC 61672-1:2013 eqs. (E.6) with the Annex E pole frequencies."""
     f2 = np.asarray(frequency_hz, dtype=float) ** 2
     ratio = (_F4 ** 2 * f2 ** 2
-             / ((f2 + _F1 ** 2) * np.sqrt(f2 + _F2 ** 2) * np.sqrt(f2 + _F3 ** 2) * (f2 + _F4 ** 2)))
+             / ((f2 + _F1 ** 2) * np.sqrt(f2 + _F2 ** 2) * np.sqrt(f2 + _F3 ** 2)
+                * (f2 + _F4 ** 2)))
     return 20.0 * np.log10(ratio) - _A1000
 
 

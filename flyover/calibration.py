@@ -58,7 +58,8 @@ def pa_per_unit_from_calibrator(samples, sample_rate_hz: float, level_db: float 
         if t <= 0 or b ** 2 < 0.9 * t ** 2:
             share = 0.0 if t <= 0 else 100 * b ** 2 / t ** 2
             raise FlyoverInputError(
-                f"no calibrator tone at {frequency_hz:g} Hz on channel {ch}", "calibrator recording",
+                f"no calibrator tone at {frequency_hz:g} Hz on channel {ch}",
+                "calibrator recording",
                 "at least 90 % of the channel's power in the tone's one-third-octave band",
                 f"{share:.0f} %", "record the calibrator on this channel, or pass --channel")
     return P0_PA * 10.0 ** (level_db / 20.0) / band

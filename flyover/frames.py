@@ -72,8 +72,8 @@ class SiteFrame:
     origin_height_m: float
 
     def __post_init__(self):
-        require(-90.0 <= self.origin_lat_deg <= 90.0, "latitude out of range", "site.origin_lat_deg",
-                "degrees from -90 to 90", f"{self.origin_lat_deg}")
+        require(-90.0 <= self.origin_lat_deg <= 90.0, "latitude out of range",
+                "site.origin_lat_deg", "degrees from -90 to 90", f"{self.origin_lat_deg}")
         require(-180.0 <= self.origin_lon_deg <= 360.0, "longitude out of range",
                 "site.origin_lon_deg", "degrees from -180 to 180", f"{self.origin_lon_deg}")
 

@@ -192,7 +192,8 @@ def spectra_figure(spectra, pass_name: str):
         ax.legend(fontsize=7, frameon=False, title="polar angle", title_fontsize=7)
     axes[0][0].set_ylabel("band level at reference distance (dB)")
     if not regions:
-        axes[0][0].text(0.5, 0.5, "no analysed windows", ha="center", transform=axes[0][0].transAxes)
+        axes[0][0].text(0.5, 0.5, "no analysed windows", ha="center",
+                        transform=axes[0][0].transAxes)
     fig.suptitle(f"{pass_name}: region spectra", fontsize=11)
     fig.tight_layout()
     return fig
@@ -204,7 +205,8 @@ def directivity_figure(levels, pass_name: str, max_bands: int = 6):
     fig, axes = plt.subplots(1, max(1, len(regions)), figsize=(4.2 * max(1, len(regions)), 3.6),
                              squeeze=False, sharey=True)
     bands = sorted(set(levels["band_hz"])) if len(levels) else []
-    pick = [bands[int(round(i))] for i in np.linspace(0, len(bands) - 1, min(max_bands, len(bands)))]
+    spread = np.linspace(0, len(bands) - 1, min(max_bands, len(bands)))
+    pick = [bands[int(round(i))] for i in spread]
     cmap = plt.get_cmap("cividis")
     for ax, region in zip(axes[0], regions):
         sel = levels[levels["region"] == region]

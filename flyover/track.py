@@ -117,7 +117,10 @@ class TrackModel:
         return self.position(t)[:, None, :] + np.einsum("tij,pj->tpi", rot, pts)
 
     def body_points_velocity(self, points_body_m, time_s, step_s: float = 1e-3) -> np.ndarray:
-        """Ground velocity of body-frame points (translation and rotation), (n_times, n_points, 3)."""
+        """Ground velocity of body-frame points (translation and rotation).
+
+        Returns an array of shape (n_times, n_points, 3), m/s.
+        """
         t = np.atleast_1d(np.asarray(time_s, dtype=float))
         lo = np.maximum(t - step_s, self.start_s)
         hi = np.minimum(t + step_s, self.end_s)

@@ -58,8 +58,8 @@ def test_relaxation_frequencies_and_humidity():
 
 
 def test_path_loss_example():
-    # 20 degC / 70 %, 150 m: 0.75 dB at 1 kHz, 11.49 dB at 8 kHz (exact midbands; ISO 9613-1 formula,
-    # reference-values section 1.4).
+    # 20 degC / 70 %, 150 m: 0.75 dB at 1 kHz, 11.49 dB at 8 kHz (exact midbands; ISO 9613-1
+    # formula, reference-values section 1.4).
     assert absorption_db_per_m(1000.0, 20, 70) * 150 == pytest.approx(0.75, abs=0.005)
     assert absorption_db_per_m(1000 * 10 ** 0.9, 20, 70) * 150 == pytest.approx(11.49, abs=0.01)
 

@@ -58,7 +58,7 @@ def _key_path(parts) -> str:
 
 
 def _schema_at(schema: dict, path) -> dict:
-    """The sub-schema that describes the value at ``path`` (follows $ref and additionalProperties)."""
+    """The sub-schema of the value at ``path`` (follows $ref and additionalProperties)."""
     root = campaign_schema()
     node = schema
     for part in path:
@@ -174,7 +174,7 @@ def load_campaign(path) -> Campaign:
 
 
 def campaign_from_mapping(data: dict, path: Path) -> Campaign:
-    """Build a :class:`Campaign` from an already parsed mapping (``path`` locates relative files)."""
+    """Build a :class:`Campaign` from a parsed mapping (``path`` locates relative files)."""
     source = str(path)
     validate_campaign_mapping(data, source)
     base = path.parent

@@ -91,7 +91,8 @@ def recording_info(path) -> RecordingInfo:
     """
     path = Path(path)
     if not path.is_file():
-        raise FlyoverInputError("recording not found", str(path), "an existing WAV/RF64/W64/FLAC file")
+        raise FlyoverInputError("recording not found", str(path),
+                                "an existing WAV/RF64/W64/FLAC file")
     size = path.stat().st_size
     if size == 0:
         raise FlyoverInputError("recording is empty", str(path), "audio data", "0 bytes")

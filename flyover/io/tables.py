@@ -157,8 +157,9 @@ def check_layout_geometry(layout: ArrayLayout, where: str) -> None:
                                 ">= 2 rows", f"{len(p)}")
     far = np.flatnonzero(np.linalg.norm(p[:, :2], axis=1) > 5000.0)
     if far.size:
+        km = np.linalg.norm(p[far[0], :2]) / 1000
         raise FlyoverInputError(f"microphone on channel {layout.channel[far[0]]} is "
-                                f"{np.linalg.norm(p[far[0], :2]) / 1000:.0f} km from the site origin",
+                                f"{km:.0f} km from the site origin",
                                 where, "microphones within 5 km of the site origin",
                                 hint="are latitude and longitude swapped, or the origin wrong?")
     d = np.sqrt(((p[:, None] - p[None]) ** 2).sum(-1))
@@ -236,8 +237,8 @@ def read_track(path, site: SiteFrame, time_scale: str = "utc", height_datum: str
         enu = np.stack([a, b, c], axis=1)
     far = np.linalg.norm(enu[:, :2], axis=1)
     if np.min(far) > 20_000.0:
-        raise FlyoverInputError(f"the vehicle never comes within {np.min(far) / 1000:.0f} km of the "
-                                "site", str(path), "a track within 20 km of the site origin",
+        raise FlyoverInputError(f"the vehicle never comes within {np.min(far) / 1000:.0f} km "
+                                "of the site", str(path), "a track within 20 km of the site origin",
                                 hint="are latitude and longitude swapped, or is it another day's "
                                      "file?")
     present = [k for k in ATTITUDE if k in df.columns]
@@ -253,7 +254,7 @@ def read_track(path, site: SiteFrame, time_scale: str = "utc", height_datum: str
 
 
 def write_csv(path, frame: pd.DataFrame, float_format: str = "%.6f") -> None:
-    """Write a table atomically, with a fixed float format so identical inputs give identical bytes."""
+    """Write a table atomically, with a fixed float format (identical inputs, identical bytes)."""
     from .atomic import atomic_path
     with atomic_path(path) as tmp:
         frame.to_csv(tmp, index=False, float_format=float_format, lineterminator="\n")

@@ -97,7 +97,8 @@ def format_summary(campaign: Campaign, summaries: list[dict]) -> str:
             f"track {s['track_start_utc']} to {s['track_end_utc']}",
             f"    track covers {s['covered_s'][1] - s['covered_s'][0]:.2f} s of the recording; "
             f"overhead at {s['overhead_utc']} (t = {s['overhead_s']:.2f} s)",
-            f"    closest {s['closest_distance_m']:.1f} m, height {s['height_above_array_m']:.1f} m, "
+            f"    closest {s['closest_distance_m']:.1f} m, "
+            f"height {s['height_above_array_m']:.1f} m, "
             f"speed {s['speed_m_s']:.1f} m/s, c = {s['speed_of_sound_m_s']:.2f} m/s, "
             f"track noise ~{s['track_noise_estimate_m'] * 100:.1f} cm"]
     lines.append("all inputs are valid")

@@ -32,9 +32,9 @@ max-width:1180px;margin:0 auto;padding:24px 28px;line-height:1.45}
 h1{font-size:1.7em;margin-bottom:0}h2{border-bottom:2px solid #d08a1f;padding-bottom:4px;
 margin-top:2.2em}h3{color:#1f7a78}table{border-collapse:collapse;font-size:.85em;margin:10px 0}
 th,td{border:1px solid #ddd6c8;padding:3px 7px;text-align:right}th{background:#efe9dd}
-td.t,th.t{text-align:left}tr.flag td,td.flag{background:#fbe3d2}h4{margin:14px 0 2px}img{max-width:100%;border:1px solid
-#ddd6c8;background:white;margin:6px 0}.caution{border-left:5px solid #b03a2e;background:#fff4ef;
-padding:10px 14px}.muted{color:#6b7380;font-size:.9em}.warn{color:#b03a2e}
+td.t,th.t{text-align:left}tr.flag td,td.flag{background:#fbe3d2}h4{margin:14px 0 2px}
+img{max-width:100%;border:1px solid #ddd6c8;background:white;margin:6px 0}
+.caution{border-left:5px solid #b03a2e;background:#fff4ef;padding:10px 14px}.muted{color:#6b7380;font-size:.9em}.warn{color:#b03a2e}
 nav a{margin-right:14px;color:#1f7a78}
 """
 
