@@ -14,6 +14,7 @@ from functools import lru_cache
 from pathlib import Path
 
 from .campaign import Campaign
+from .errors import FlyoverInputError
 from .io.config import campaign_from_mapping, read_yaml
 from .stages.simulate import pass_files
 
@@ -65,7 +66,10 @@ class CampaignPlan:
     def load(cls, path) -> "CampaignPlan":
         path = Path(path).resolve()
         mapping = read_yaml(path)
-        return cls(path, mapping, campaign_from_mapping(mapping, path))
+        plan = cls(path, mapping, campaign_from_mapping(mapping, path))
+        if plan.simulation_folder is not None:
+            plan.simulated_files()  # refuses a simulated campaign whose paths do not match
+        return plan
 
     @property
     def output(self) -> str:
@@ -90,8 +94,10 @@ class CampaignPlan:
                      "track": spec.track}
             for key, p in expected.items():
                 if Path(named[key]) != p:
-                    raise ValueError(f"{self.path}: passes.{name}.{key} must be {p} for the "
-                                     "simulated demo")
+                    raise FlyoverInputError(
+                        "a simulated campaign's files are where the simulator writes them",
+                        f"{self.path}, key passes.{name}.{key}", f"{p}", f"{named[key]}",
+                        "drop the 'scenario' key to use files of your own")
             files += list(expected.values())
         return [str(f) for f in files]
 

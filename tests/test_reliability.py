@@ -231,3 +231,13 @@ def test_inputs_are_never_modified(tiny_copy):
     image.run(campaign, "p1", out / "alignment.json", out, threads=2, quiet=True)
     assert {f: file_digest(f) for f in campaign.input_files()} == before
     assert json.loads((out / "alignment.json").read_text())["pass"] == "p1"
+
+
+def test_simulated_campaign_with_moved_files_is_refused(tiny_copy):
+    # A campaign with a 'scenario' names the simulator's files; another path is a clear error.
+    from flyover.workflow import CampaignPlan
+    (tiny_copy / "scenario.yaml").write_text((tiny_copy / "scenario.yaml").read_text())
+    path = edit(tiny_copy, lambda d: d.update(scenario="scenario.yaml") or
+                d["passes"]["p1"].update(track="elsewhere.csv"))
+    with pytest.raises(FlyoverInputError, match="passes.p1.track"):
+        CampaignPlan.load(path)

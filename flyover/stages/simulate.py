@@ -9,6 +9,7 @@ import pandas as pd
 import yaml
 
 from ..bands import third_octave_bands
+from ..errors import FlyoverInputError
 from ..io.atomic import write_text
 from ..io.recording import write_recording
 from ..io.scenario import load_scenario
@@ -48,8 +49,9 @@ def write_campaign(scenario_path, out_dir, progress=print) -> None:
         files = pass_files(out, ps.name, fmt)
         peak = float(np.max(np.abs(sim.units)))
         if peak >= 1.0:
-            raise ValueError(f"simulated pass {ps.name} clips (peak {peak:.2f} of full scale): "
-                             "raise recording.pa_per_unit")
+            raise FlyoverInputError(f"simulated pass {ps.name} clips", str(scenario_path),
+                                    "a peak below full scale", f"{peak:.2f} of full scale",
+                                    "raise recording.pa_per_unit in the scenario")
         write_recording(files["recording"], sim.units, scenario.sample_rate_hz, subtype)
         write_csv(files["calibration"], pd.DataFrame({"channel": np.arange(1, n_mics + 1),
                                                       "pa_per_unit": sim.pa_per_unit}),
