@@ -236,7 +236,6 @@ def test_inputs_are_never_modified(tiny_copy):
 def test_simulated_campaign_with_moved_files_is_refused(tiny_copy):
     # A campaign with a 'scenario' names the simulator's files; another path is a clear error.
     from flyover.workflow import CampaignPlan
-    (tiny_copy / "scenario.yaml").write_text((tiny_copy / "scenario.yaml").read_text())
     path = edit(tiny_copy, lambda d: d.update(scenario="scenario.yaml") or
                 d["passes"]["p1"].update(track="elsewhere.csv"))
     with pytest.raises(FlyoverInputError, match="passes.p1.track"):
