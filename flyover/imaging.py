@@ -16,6 +16,7 @@ from .atmosphere import Atmosphere
 from .campaign import Region
 from .dedoppler import (ChainSettings, reception_geometry, required_frames, signal_band_power,
                         subset, window_band_powers)
+from .levels import region_powers
 from .simulate import Broadband, PointSource, Propagator, SourceSignal, received_pressure_pa
 from .timebase import RecordingClock
 from .track import TrackModel
@@ -83,9 +84,7 @@ def image_window(signals_pa, first_frame: int, geometry, track: TrackModel, wind
     union = np.unique(np.concatenate(masks))
     where = {n: np.searchsorted(union, m) for n, m in zip(names, masks)}
     # coupling[b, i, j]: region i's summed map of the unit source at region j's centre, per unit
-    # power. The measured sums are M_i = sum_j coupling_ij P_j: solving this small system removes
-    # the leakage of one region's sources into another's sum (plain source power integration
-    # is its diagonal alone).
+    # power (see flyover.levels.region_powers).
     n_r, n_b = len(names), len(settings.bands)
     coupling = np.empty((n_b, n_r, n_r))
     units, map_sums, psf_sums = {}, {}, {}
@@ -108,14 +107,9 @@ def image_window(signals_pa, first_frame: int, geometry, track: TrackModel, wind
         psf_sums[name] = psf_maps[where[name]].sum(axis=0)
         map_sums[name] = maps[masks[j]].sum(axis=0)
     measured = np.stack([map_sums[n] for n in names], axis=-1)          # (n_b, n_r)
-    solved = _solve_coupled(coupling, measured)
+    solved, total = region_powers(coupling, measured)
     powers = {n: solved[:, j] for j, n in enumerate(names)}
-    # All regions together: one unknown over their union, well posed even where the regions
-    # cannot be told apart (the unit sources' summed maps over the union, averaged).
-    union_psf = coupling.sum(axis=1).mean(axis=1)                        # (n_b,)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        total = np.where(union_psf > 0, measured.sum(axis=1) / union_psf, np.nan)
-    powers[TOTAL] = np.where(total > 0, total, np.nan)
+    powers[TOTAL] = total
     return WindowMaps(window, bp.full, bp.diagonal_removed, powers, map_sums, psf_sums, units)
 
 
@@ -125,13 +119,3 @@ def _unit_source(region: Region, settings: ChainSettings, window: Window, k: int
     return PointSource(f"unit-{region.name}", tuple(region.center_m),
                        broadband=Broadband(UNIT_SOURCE_LEVEL_DB, 0.0, bands.lower_hz[0] * 0.8, top),
                        seed=7919 * (window.index + 1) + k)
-
-
-def _solve_coupled(coupling, measured) -> np.ndarray:
-    """Region powers P (n_bands, n_regions) from M = C P per band; NaN where C is singular."""
-    out = np.full(measured.shape, np.nan)
-    for b in range(len(coupling)):
-        c = coupling[b]
-        if np.all(np.isfinite(c)) and np.linalg.cond(c) < 1e6:
-            out[b] = np.linalg.solve(c, measured[b])
-    return np.where(out > 0, out, np.nan)

@@ -2,7 +2,8 @@
 
 Source power integration: the region's summed map divided by the summed map of a unit point
 source at the region centre that went through the identical chain (same window, weights,
-diagonal removal, geometry), times the unit source's band power. The result is the band power
+diagonal removal, geometry), times the unit source's band power; with several regions, the
+leakage of each region's unit source into the others' sums is solved for as well. The result is the band power
 of the region's sources at 1 m (source strength, free field, convective amplification removed),
 which is then brought to the reference distance and atmosphere:
 
@@ -20,27 +21,39 @@ P0_PA = 20e-6
 RAYLEIGH = 1.22  # first null of a uniform disk aperture, lambda / D units (Born & Wolf)
 
 
-def integrated_power(map_power, psf_power, unit_power) -> np.ndarray:
-    """Source power integration over one region.
+def region_powers(coupling, measured) -> tuple[np.ndarray, np.ndarray]:
+    """Source power integration over several regions, with their mutual leakage solved for.
 
     Parameters
     ----------
-    map_power : ndarray, shape (n_region_points, n_bands)
-        The measured map on the region's grid points.
-    psf_power : ndarray, shape (n_region_points, n_bands)
-        The map of the unit point source on the same points.
-    unit_power : ndarray, shape (n_bands,)
-        The unit source's band power (Pa^2 at 1 m) as the chain forms it.
+    coupling : ndarray, shape (n_bands, n_regions, n_regions)
+        ``coupling[b, i, j]``: region i's summed map of a unit point source at region j's
+        centre, divided by that unit source's band power (the unit sources go through the same
+        chain as the measurement).
+    measured : ndarray, shape (n_bands, n_regions)
+        Each region's summed measured map.
 
     Returns
     -------
-    ndarray, shape (n_bands,)
-        Band power at 1 m (Pa^2); NaN where the unit source's summed map is not positive.
+    powers : ndarray, shape (n_bands, n_regions)
+        Band power at 1 m of each region's sources, from ``M_i = sum_j C_ij P_j``. With one
+        region, or no leakage, this is plain source power integration ``M_i / C_ii``. NaN where
+        the system is singular (regions that cannot be told apart) or a power comes out
+        non-positive.
+    total : ndarray, shape (n_bands,)
+        All regions together: one unknown over their union (summed maps over the unit sources'
+        mean summed map over the union), well posed even where the regions are not separable.
     """
-    psf = np.sum(psf_power, axis=0)
+    c = np.asarray(coupling, float)
+    m = np.asarray(measured, float)
+    out = np.full(m.shape, np.nan)
+    for b in range(len(c)):
+        if np.all(np.isfinite(c[b])) and np.linalg.cond(c[b]) < 1e6:
+            out[b] = np.linalg.solve(c[b], m[b])
+    union = c.sum(axis=1).mean(axis=1)
     with np.errstate(divide="ignore", invalid="ignore"):
-        out = np.sum(map_power, axis=0) / psf * np.asarray(unit_power)
-    return np.where(psf > 0, out, np.nan)
+        total = np.where(union > 0, m.sum(axis=1) / union, np.nan)
+    return np.where(out > 0, out, np.nan), np.where(total > 0, total, np.nan)
 
 
 def level_1m_db(power_pa2) -> np.ndarray:
