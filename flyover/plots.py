@@ -3,6 +3,7 @@ perceptually uniform colour maps that also read in greyscale (cividis for maps).
 
 from __future__ import annotations
 
+import functools
 
 import matplotlib
 
@@ -18,12 +19,22 @@ ACCENT = "#1f7a78"
 CANVAS = "#faf8f4"
 MAP_CMAP = "cividis"
 
-plt.rcParams.update({
+# Applied per figure (not at import), so importing flyover leaves matplotlib's settings alone.
+_STYLE = {
     "figure.facecolor": CANVAS, "axes.facecolor": "white", "axes.edgecolor": INK,
     "axes.labelcolor": INK, "xtick.color": INK, "ytick.color": INK, "text.color": INK,
     "font.size": 10, "axes.titlesize": 11, "axes.grid": True, "grid.color": "#e3ded5",
     "grid.linewidth": 0.6, "axes.spines.top": False, "axes.spines.right": False,
-})
+}
+
+
+def _styled(make):
+    """Draw a figure under flyover's style."""
+    @functools.wraps(make)
+    def wrapper(*args, **kwargs):
+        with plt.rc_context(_STYLE):
+            return make(*args, **kwargs)
+    return wrapper
 
 
 def save_figure(fig, path, dpi: int = 110) -> None:
@@ -33,6 +44,7 @@ def save_figure(fig, path, dpi: int = 110) -> None:
     plt.close(fig)
 
 
+@_styled
 def track_figure(inputs, summary: dict, windows_s=None):
     """Plan view of the track over the array, and height and speed against time.
 
@@ -108,6 +120,7 @@ def _at_least_span(ax, values, span: float) -> None:
         ax.set_ylim(mid - span / 2, mid + span / 2)
 
 
+@_styled
 def map_figure(maps, campaign, bands, pass_name: str, window_row: dict,
                dynamic_range_db: float = 15.0):
     """Small multiples of one window's maps, one panel per band, dB re each panel's peak.
@@ -173,6 +186,7 @@ def _band_axis(ax, bands_hz) -> None:
     ax.set_xlabel("one-third-octave band (Hz)")
 
 
+@_styled
 def spectra_figure(spectra, pass_name: str):
     """Region spectra at the chosen polar angles (levels at the reference distance)."""
     regions = list(dict.fromkeys(spectra["region"])) if len(spectra) else []
@@ -199,6 +213,7 @@ def spectra_figure(spectra, pass_name: str):
     return fig
 
 
+@_styled
 def directivity_figure(levels, pass_name: str, max_bands: int = 6):
     """Level against polar angle per region, for a spread of bands."""
     regions = list(dict.fromkeys(levels["region"])) if len(levels) else []
@@ -223,6 +238,7 @@ def directivity_figure(levels, pass_name: str, max_bands: int = 6):
     return fig
 
 
+@_styled
 def spectrogram_figure(raw, dedopplerized, pass_name: str, raw_label: str, f_max_hz: float,
                        region_name: str = ""):
     """Two spectrograms side by side: a microphone as received, and the de-Dopplerized region.
@@ -251,6 +267,7 @@ def spectrogram_figure(raw, dedopplerized, pass_name: str, raw_label: str, f_max
     return fig
 
 
+@_styled
 def campaign_figure(overall, quantity: str = "A-weighted"):
     """Mean level over passes against polar angle, with its 90 % interval, per label and region.
 
