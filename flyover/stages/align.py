@@ -10,15 +10,15 @@ import numpy as np
 from ..bands import third_octave_bands
 from ..campaign import Campaign
 from ..clocksync import estimate_clock_offset
-from ..dedoppler import (ChainSettings, dedopplerized_signals, reception_geometry,
-                         required_frames)
+from ..dedoppler import ChainSettings
 from ..errors import FlyoverInputError
 from ..io.atomic import write_text
 from ..io.passdata import load_pass
 from ..io.recording import iter_blocks
 from ..quality import ChannelAccumulator, channel_quality, neighbour_coherence, track_quality
-from ..windows import Window, plan_windows
+from ..windows import plan_windows
 from ..plots import save_figure, track_figure
+from ._span import dedopplerize_span
 from .check import pass_summary
 
 
@@ -120,24 +120,12 @@ def _aligned_coherence(campaign: Campaign, inputs, overhead_s: float, span_s: fl
     """Low-band neighbour coherence of the de-Dopplerized channels, or None when the recording
     does not hold the span."""
     fs = inputs.recording.sample_rate_hz
-    n = int(span_s * fs)
-    start = overhead_s - span_s / 2
-    track = inputs.track
-    if start < track.start_s or start + span_s > track.end_s:
-        return None
-    window = Window(-1, start, n, fs, track.position(start), track.velocity(start),
-                    track.attitude_deg(start), 90.0, 0.0)
-    band_lo = campaign.analysis.band_min_hz
-    settings = ChainSettings(third_octave_bands(band_lo, band_lo), np.ones(len(inputs.weights)),
-                             campaign.array.pressure_gain, "cubic", absorption=False)
     centre = next(iter(campaign.regions.values())).center_m
-    geo = reception_geometry(track, window, [centre], inputs.layout.enu_m,
-                             inputs.spec.atmosphere, settings.pressure_gain, settings.node_step)
-    first, count = required_frames(geo, inputs.clock, "cubic")
-    if first < 0 or first + count > inputs.recording.n_frames:
+    aligned = dedopplerize_span(campaign, inputs, overhead_s - span_s / 2, int(span_s * fs),
+                                centre)
+    if aligned is None:
         return None
-    signals = inputs.read_pressure_pa(first, count)
-    aligned = dedopplerized_signals(signals, first, geo, inputs.clock, window, settings)[0]
+    band_lo = campaign.analysis.band_min_hz
     return neighbour_coherence(aligned, fs, inputs.layout.enu_m,
                                band_hz=(band_lo, 2.0 * band_lo))
 
