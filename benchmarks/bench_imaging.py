@@ -29,7 +29,8 @@ sys.path.insert(0, str(ROOT / "tests"))
 sys.path.insert(0, str(ROOT / "benchmarks"))
 
 from _measure import measured_stage  # noqa: E402
-from flyover import _kernels  # noqa: E402
+
+from flyover.imaging import _kernels  # noqa: E402
 
 
 def kernel_figures(threads: int) -> None:

@@ -27,13 +27,15 @@ sys.path.insert(0, str(ROOT))
 sys.path.insert(0, str(ROOT / "benchmarks"))
 
 from _measure import measured_stage  # noqa: E402
-from flyover.atmosphere import Atmosphere  # noqa: E402
-from flyover.frames import SiteFrame  # noqa: E402
-from flyover.io.recording import _declared_data_bytes, recording_info  # noqa: E402
-from flyover.simulate import (Broadband, PointSource, Propagator, SourceSignal, Tone,  # noqa: E402
-                              incoherent_noise_pa, received_pressure_pa, spiral_layout,
-                              straight_track)
-from flyover.timebase import iso_utc  # noqa: E402
+
+from flyover.acoustics.atmosphere import Atmosphere  # noqa: E402
+from flyover.forward.moving_source import (Broadband, PointSource, Propagator,  # noqa: E402
+                                           SourceSignal, Tone, received_pressure_pa)
+from flyover.geometry.frames import SiteFrame  # noqa: E402
+from flyover.io.readers.soundfile_recording import (_declared_data_bytes,  # noqa: E402
+                                                    recording_info)
+from flyover.sim.scenario import incoherent_noise_pa, spiral_layout, straight_track  # noqa: E402
+from flyover.sync.timebase import iso_utc  # noqa: E402
 
 FS = 51200
 N_MICS = 64

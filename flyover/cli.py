@@ -6,11 +6,13 @@ Exit codes: 0 all well, 1 failed, 2 bad input (the message says what and where).
 from __future__ import annotations
 
 import argparse
+import importlib
+import os
 import subprocess
 import sys
 from pathlib import Path
 
-from .errors import FlyoverInputError
+from flyover.model.errors import FlyoverInputError, file_system_message
 
 EXAMPLES = {
     "template": "flyover template -o my-campaign.yaml",
@@ -25,11 +27,10 @@ EXAMPLES = {
     "stage": "flyover stage align --campaign demo/campaign.yaml --pass pass-1 --out results/pass-1",
     "stage-campaign": "flyover stage-campaign summary --campaign demo/campaign.yaml",
 }
-RULES = Path(__file__).resolve().parent / "rules.smk"
 
 
 def _parser() -> argparse.ArgumentParser:
-    from . import __version__
+    from flyover import __version__
     p = argparse.ArgumentParser(
         prog="flyover", description="Array processing for outdoor flyover noise campaigns.",
         epilog="Run a whole campaign with: flyover run my-campaign.yaml",
@@ -37,8 +38,10 @@ def _parser() -> argparse.ArgumentParser:
     p.add_argument("--version", action="version", version=f"flyover {__version__}")
     sub = p.add_subparsers(dest="command", required=True, metavar="COMMAND")
 
-    def add(name, help_text):
-        return sub.add_parser(name, help=help_text, description=help_text,
+    def add(name, help_text, internal=False):
+        # Internal commands (called by the workflow) stay out of the top-level help.
+        listed = {} if internal else {"help": help_text}
+        return sub.add_parser(name, **listed, description=help_text,
                               epilog=f"example:\n  {EXAMPLES[name]}",
                               formatter_class=argparse.RawDescriptionHelpFormatter)
 
@@ -46,45 +49,63 @@ def _parser() -> argparse.ArgumentParser:
     t.add_argument("-o", "--output", type=Path, help="file to write (default: print)")
 
     c = add("check", "validate a campaign and every file it names, and summarise each pass")
-    c.add_argument("campaign", type=Path)
+    c.add_argument("campaign", type=Path, help="the campaign file (YAML)")
 
     s = add("simulate", "write a simulated campaign (recordings, layout, tracks) from a scenario")
-    s.add_argument("scenario", type=Path)
+    s.add_argument("scenario", type=Path, help="the scenario file (YAML), e.g. demo/scenario.yaml")
     s.add_argument("--out", type=Path, required=True, help="folder for the generated files")
 
     k = add("calibrate", "derive pa_per_unit from a sound-calibrator recording")
-    k.add_argument("recording", type=Path)
-    k.add_argument("--level-db", type=float, default=94.0, help="calibrator level (dB re 20 uPa)")
-    k.add_argument("--frequency-hz", type=float, default=1000.0)
+    k.add_argument("recording", type=Path, help="the calibrator recording (WAV/FLAC)")
+    k.add_argument("--level-db", type=float, default=94.0,
+                   help="calibrator level (default 94 dB re 20 uPa)")
+    k.add_argument("--frequency-hz", type=float, default=1000.0,
+                   help="calibrator frequency (default 1000 Hz)")
     k.add_argument("--channel", type=int, help="the one channel with the calibrator on it "
                                                "(default: every channel has a calibrator)")
-    k.add_argument("--update", type=Path, help="calibration CSV to update (or create)")
+    k.add_argument("--update", type=Path,
+                   help="calibration CSV to update or create (default: print only)")
 
     r = add("run", "run a whole campaign through the Snakemake workflow")
-    r.add_argument("campaign", type=Path)
+    r.add_argument("campaign", type=Path, help="the campaign file (YAML)")
     r.add_argument("--cores", default="2", help="cores for local runs (default 2; 'all')")
-    r.add_argument("--profile", help="a Snakemake profile folder, e.g. config/profiles/slurm")
+    r.add_argument("--profile", help="a Snakemake profile folder, e.g. config/profiles/slurm "
+                                     "(default: none, run locally)")
+    r.add_argument("--verbose", action="store_true",
+                   help="show Snakemake's own log (default: it goes to <output>/logs/"
+                        "workflow.log)")
     r.add_argument("snakemake_args", nargs=argparse.REMAINDER,
-                   help="anything after -- goes to snakemake unchanged")
+                   help="anything after -- goes to snakemake unchanged (default: nothing)")
 
     n = add("plan", "show what a run would redo, pass by pass, and why")
-    n.add_argument("campaign", type=Path)
+    n.add_argument("campaign", type=Path, help="the campaign file (YAML)")
 
     o = add("report", "print the path of a campaign's report (or open it)")
-    o.add_argument("campaign", type=Path)
-    o.add_argument("--open", action="store_true", help="open it in the default browser")
+    o.add_argument("campaign", type=Path, help="the campaign file (YAML)")
+    o.add_argument("--open", action="store_true",
+                   help="open it in the default browser (default: print its path)")
 
-    g = add("stage", "run one per-pass workflow step (called by the workflow)")
-    g.add_argument("name", choices=["align", "image", "levels", "qc"])
-    g.add_argument("--campaign", type=Path, required=True)
-    g.add_argument("--pass", dest="pass_name", required=True)
-    g.add_argument("--out", type=Path, required=True, help="the pass's result folder")
-    g.add_argument("--threads", type=int, default=1, help="threads for the compiled kernels")
+    g = add("stage", "run one per-pass workflow step (called by the workflow)", internal=True)
+    g.add_argument("name", choices=["align", "image", "levels", "qc"], help="the step")
+    g.add_argument("--campaign", type=Path, default=_campaign_from_environment(),
+                   help="campaign file (default: $FLYOVER_CAMPAIGN, set by the workflow)")
+    g.add_argument("--pass", dest="pass_name", required=True, help="the pass's name")
+    g.add_argument("--out", type=Path, help="the pass's result folder (default: the campaign's "
+                                            "output folder / the pass)")
+    g.add_argument("--threads", type=int, default=1,
+                   help="threads for the compiled kernels (default 1)")
 
-    h = add("stage-campaign", "run one campaign-level workflow step (called by the workflow)")
-    h.add_argument("name", choices=["summary", "report"])
-    h.add_argument("--campaign", type=Path, required=True)
+    h = add("stage-campaign", "run one campaign-level workflow step (called by the workflow)",
+            internal=True)
+    h.add_argument("name", choices=["summary", "report"], help="the step")
+    h.add_argument("--campaign", type=Path, default=_campaign_from_environment(),
+                   help="campaign file (default: $FLYOVER_CAMPAIGN, set by the workflow)")
     return p
+
+
+def _campaign_from_environment() -> Path | None:
+    value = os.environ.get("FLYOVER_CAMPAIGN")
+    return Path(value) if value else None
 
 
 def main(argv=None) -> int:
@@ -97,60 +118,68 @@ def main(argv=None) -> int:
     except BrokenPipeError:  # output piped into `head` and the like
         sys.stderr.close()
         return 0
-
-
-def _snakemake(campaign: Path, *extra: str, capture: bool = False):
-    # Run in the current folder, like `snakemake` itself: both then share one metadata store.
-    cmd = [sys.executable, "-m", "snakemake", "--snakefile", str(RULES),
-           "--configfile", str(Path(campaign).resolve()), *extra]
-    return subprocess.run(cmd, capture_output=capture, text=True)
+    except OSError as exc:  # a full disk, a read-only folder: say what, where, and stop
+        print(file_system_message(exc), file=sys.stderr)
+        return 1
 
 
 def _dispatch(args) -> int:
     if args.command == "template":
         text = (Path(__file__).parent / "template.yaml").read_text()
         if args.output:
-            from .io.atomic import write_text
+            from flyover.io.atomic import write_text
             write_text(args.output, text)
             print(f"wrote {args.output}")
         else:
             print(text, end="")
         return 0
     if args.command == "check":
-        from .io.config import load_campaign
-        from .stages.check import check_campaign, format_summary
+        from flyover.io.config import load_campaign
+        from flyover.pipeline.check import check_campaign, format_summary
         campaign = load_campaign(args.campaign)
         print(format_summary(campaign, check_campaign(campaign)))
         return 0
     if args.command == "simulate":
-        from .stages.simulate import write_campaign
+        from flyover.sim.demo import write_campaign
         write_campaign(args.scenario, args.out)
         print(f"wrote the simulated campaign to {args.out}")
         return 0
     if args.command == "calibrate":
-        from .stages.calibrate import run as calibrate
+        from flyover.pipeline.calibrate import run as calibrate
         print(calibrate(args.recording, args.level_db, args.frequency_hz, args.channel,
                         args.update))
         return 0
     if args.command == "run":
-        from .io.config import load_campaign
-        load_campaign(args.campaign)  # bad input stops here, with its message
+        from flyover.io.config import load_campaign
+        from flyover.pipeline.check import check_campaign, check_output_folder
+        from flyover.workflow.runner import run_campaign
+        campaign = load_campaign(args.campaign)
+        # Every bad input stops here, before any job starts; a simulated campaign whose files
+        # the workflow has yet to write is checked by the stages.
+        if campaign.scenario is not None and not all(p.exists() for p in campaign.input_files()):
+            check_output_folder(campaign)
+        else:
+            check_campaign(campaign)
         extra = [a for a in args.snakemake_args if a != "--"]
-        extra = (["--profile", args.profile] if args.profile else ["--cores", str(args.cores)]) \
-            + extra
-        return 0 if _snakemake(args.campaign, *extra).returncode == 0 else 1
+        profile = args.profile
+        if profile and Path(profile).exists():
+            profile = str(Path(profile).resolve())  # Snakemake runs in the output folder
+        extra = (["--profile", profile] if profile else ["--cores", str(args.cores)]) + extra
+        return run_campaign(campaign, args.campaign, extra, verbose=args.verbose)
     if args.command == "plan":
-        from .io.config import load_campaign
-        from .workflow import format_plan, parse_dry_run
-        load_campaign(args.campaign)
-        res = _snakemake(args.campaign, "--dry-run", "--cores", "1", capture=True)
+        from flyover.io.config import load_campaign
+        from flyover.workflow.dryrun import format_plan, parse_dry_run
+        from flyover.workflow.runner import snakemake_command
+        out = load_campaign(args.campaign).output
+        res = subprocess.run(snakemake_command(args.campaign, "--dry-run", "--cores", "1"),
+                             cwd=out if out.is_dir() else None, capture_output=True, text=True)
         if res.returncode != 0:
             print(res.stderr, file=sys.stderr)
             return 1
         print(format_plan(parse_dry_run(res.stdout + res.stderr)))
         return 0
     if args.command == "report":
-        from .io.config import load_campaign
+        from flyover.io.config import load_campaign
         path = load_campaign(args.campaign).output / "report.html"
         if not path.exists():
             print(f"no report yet: run `flyover run {args.campaign}` first", file=sys.stderr)
@@ -160,26 +189,16 @@ def _dispatch(args) -> int:
             import webbrowser
             webbrowser.open(path.as_uri())
         return 0
-    from .io.config import load_campaign
+    from flyover.io.config import load_campaign
+    if args.campaign is None:
+        raise FlyoverInputError("no campaign file", f"flyover {args.command}",
+                                "--campaign FILE (or $FLYOVER_CAMPAIGN)")
     campaign = load_campaign(args.campaign)
+    stage = importlib.import_module(f"flyover.pipeline.{args.name}")
     if args.command == "stage-campaign":
-        if args.name == "summary":
-            from .stages import campaign as summary
-            summary.run(campaign, campaign.output)
-        else:
-            from .stages import report
-            report.run(campaign, campaign.output, campaign.output / "report.html")
+        stage.run(campaign, campaign.output)
         return 0
-    if args.name == "align":
-        from .stages import align
-        align.run(campaign, args.pass_name, args.out / "alignment.json", args.out / "track.png")
-    elif args.name == "image":
-        from .stages import image
-        image.run(campaign, args.pass_name, args.out / "alignment.json", args.out, args.threads)
-    elif args.name == "levels":
-        from .stages import levels
-        levels.run(campaign, args.pass_name, args.out)
-    else:
-        from .stages import qc
-        qc.run(campaign, args.pass_name, args.out)
+    out = args.out if args.out is not None else campaign.output / args.pass_name
+    options = {"threads": args.threads} if args.name == "image" else {}
+    stage.run(campaign, args.pass_name, out, **options)
     return 0

@@ -57,7 +57,7 @@ def edit_campaign(folder: Path, change) -> Path:
 @pytest.fixture(scope="session")
 def tiny_campaign_dir(tmp_path_factory) -> Path:
     """A simulated two-pass campaign (16 microphones, 8 kHz, 3 s) with its campaign.yaml."""
-    from flyover.stages.simulate import write_campaign
+    from flyover.sim.demo import write_campaign
     folder = tmp_path_factory.mktemp("tiny")
     (folder / "scenario.yaml").write_text(yaml.safe_dump(TINY_SCENARIO))
     write_campaign(folder / "scenario.yaml", folder, progress=lambda *_: None)

@@ -3,9 +3,10 @@
 import numpy as np
 import pytest
 
-from flyover.atmosphere import (Atmosphere, absorption_db_per_m, relaxation_frequencies_hz,
-                                speed_of_sound_m_s, water_vapour_molar_pct, wind_vector_enu_m_s)
-from flyover.errors import FlyoverInputError
+from flyover.acoustics.atmosphere import (Atmosphere, absorption_db_per_m,
+                                          relaxation_frequencies_hz, speed_of_sound_m_s,
+                                          water_vapour_molar_pct, wind_vector_enu_m_s)
+from flyover.model.errors import FlyoverInputError
 
 # ISO 9613-1:1993 Table 1 (pure tone, 101.325 kPa, dB/km), read in two transcriptions (phonometry
 # test data, sound-propagation tests); evaluated at the exact base-10 midband (Table 1, Note 5).

@@ -3,7 +3,8 @@
 import numpy as np
 import pytest
 
-from flyover.bands import a_weighting_db, c_weighting_db, sum_levels_db, third_octave_bands
+from flyover.acoustics.bands import (a_weighting_db, c_weighting_db, sum_levels_db,
+                                     third_octave_bands)
 
 
 def test_band_geometry_iec_61260_1():

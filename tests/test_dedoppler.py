@@ -5,19 +5,20 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from flyover import _kernels
-from flyover.atmosphere import Atmosphere
-from flyover.bands import third_octave_bands
-from flyover.campaign import Region, VehicleGrid
-from flyover.dedoppler import (ChainSettings, dedopplerized_signals, reception_geometry,
-                               required_frames, signal_band_power, window_band_powers)
-from flyover.imaging import frames_for_window, image_window
-from flyover.levels import main_lobe_width_m
-from flyover.simulate import (Broadband, PointSource, Propagator, SourceSignal, Tone,
-                              incoherent_noise_pa, received_pressure_pa, spiral_layout,
-                              straight_track)
-from flyover.timebase import RecordingClock
-from flyover.windows import plan_windows
+from flyover.acoustics.atmosphere import Atmosphere
+from flyover.acoustics.bands import third_octave_bands
+from flyover.forward.moving_source import (Broadband, PointSource, Propagator, SourceSignal, Tone,
+                                           received_pressure_pa)
+from flyover.geometry.windows import plan_windows
+from flyover.imaging import _kernels
+from flyover.imaging.dedoppler import (ChainSettings, dedopplerized_signals, reception_geometry,
+                                       required_frames, signal_band_power, window_band_powers)
+from flyover.imaging.methods import method_named
+from flyover.imaging.resolution import main_lobe_width_m
+from flyover.imaging.window import image_window, window_context
+from flyover.model.campaign import Region, VehicleGrid
+from flyover.sim.scenario import incoherent_noise_pa, spiral_layout, straight_track
+from flyover.sync.timebase import RecordingClock
 
 FS = 12800.0
 MICS = spiral_layout(4, 8, 0.5, 6.0)          # 32 microphones, 12 m aperture
@@ -78,7 +79,8 @@ def one_source_pass(source, wind=(0.0, 0.0), noise_spl_db=None, gain=2.0, absorp
 
 
 def windows_near_overhead(track, max_offset_deg, window_s=0.25, hop_s=0.25):
-    return plan_windows(track, MICS.mean(0), (0.4, 3.6), window_s, hop_s, FS, max_offset_deg)
+    return plan_windows(track, MICS.mean(0), (0.4, 3.6), window_s, hop_s, FS,
+                        max_polar_offset_deg=max_offset_deg)
 
 
 def test_round_trip_point_source():
@@ -167,8 +169,11 @@ def test_map_peak_at_the_source(wind, body):
     bands = third_octave_bands(2000, 2500)
     st = ChainSettings(bands, np.ones(len(MICS)), 2.0)
     for w in windows_near_overhead(track, 30)[::4]:
-        geo, first, n = frames_for_window(track, w, grid.points_m(), MICS, atm, CLOCK, st)
-        bp = window_band_powers(p[:, first:first + n], first, geo, CLOCK, w, st, atm, workers=2)
+        ctx = window_context(w, track=track, clock=CLOCK, atmosphere=atm, mic_enu_m=MICS,
+                             grid_points_m=grid.points_m(), settings=st, workers=2)
+        first, n = ctx.first_frame, ctx.n_frames
+        bp = window_band_powers(p[:, first:first + n], first, ctx.geometry, CLOCK, w, st, atm,
+                                workers=2)
         for b in range(len(bands)):
             peak = grid.points_m()[np.argmax(bp.diagonal_removed[:, b])]
             width = main_lobe_width_m(bands.center_hz[b], w.distance_m, 12.0, atm.c_m_s)
@@ -201,9 +206,11 @@ def test_two_sources_region_levels():
     checked = 0
     errors = []
     for w in windows_near_overhead(track, 30, window_s=0.5, hop_s=0.5):
-        geo, first, n = frames_for_window(track, w, grid.points_m(), MICS, atm, CLOCK, st)
-        res = image_window(p[:, first:first + n], first, geo, track, w, grid.points_m(), regions,
-                           MICS, atm, CLOCK, st, True, 2)
+        ctx = window_context(w, track=track, clock=CLOCK, atmosphere=atm, mic_enu_m=MICS,
+                             grid_points_m=grid.points_m(), settings=st, workers=2)
+        first, n = ctx.first_frame, ctx.n_frames
+        res = image_window(p[:, first:first + n], ctx, method=method_named("time-domain"),
+                           grid_points_m=grid.points_m(), regions=regions)
         truth = {s.source.name: signal_band_power(s(w.emission_times_s), bands, FS) for s in sigs}
         for name, other in (("front", "rear"), ("rear", "front")):
             ok = 10 * np.log10(truth[name] / truth[other]) >= -6.0
@@ -225,8 +232,10 @@ def test_diagonal_removal_with_noise_only():
     st = ChainSettings(bands, np.ones(len(MICS)), 2.0, absorption=False)
     dr, full = [], []
     for w in windows_near_overhead(track, 50):
-        geo, first, n = frames_for_window(track, w, [[0.0, 0.0, 0.0]], MICS, atm, CLOCK, st)
-        bp = window_band_powers(p[:, first:first + n], first, geo, CLOCK, w, st, atm)
+        ctx = window_context(w, track=track, clock=CLOCK, atmosphere=atm, mic_enu_m=MICS,
+                             grid_points_m=[[0.0, 0.0, 0.0]], settings=st)
+        first, n = ctx.first_frame, ctx.n_frames
+        bp = window_band_powers(p[:, first:first + n], first, ctx.geometry, CLOCK, w, st, atm)
         dr.append(bp.diagonal_removed[0] / bp.full[0].mean())
         full.append(bp.full[0] / bp.full[0].mean())
     # One grid point, disjoint windows and bands: independent values. Their mean is zero within

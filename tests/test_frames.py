@@ -2,10 +2,11 @@
 
 import numpy as np
 import pytest
-from hypothesis import given, settings, strategies as st
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from pyproj import Geod
 
-from flyover.frames import SiteFrame, Transform, attitude_rotation, body_to_site
+from flyover.geometry.frames import SiteFrame, Transform, attitude_rotation, body_to_site
 
 
 def test_enu_matches_geographiclib_cartconvert_example():

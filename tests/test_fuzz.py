@@ -6,12 +6,15 @@ from __future__ import annotations
 import shutil
 
 import pytest
-from hypothesis import HealthCheck, given, settings, strategies as st
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
 
-from flyover.errors import FlyoverInputError
-from flyover.frames import SiteFrame
+from flyover.geometry.frames import SiteFrame
 from flyover.io.config import load_campaign
-from flyover.io.tables import read_calibration, read_layout, read_track
+from flyover.io.readers.calibration_csv import read_calibration
+from flyover.io.readers.layout_csv import read_layout
+from flyover.io.readers.track_csv import read_track
+from flyover.model.errors import FlyoverInputError
 
 SITE = SiteFrame(47.0, 8.0, 400.0)
 FUZZ = settings(max_examples=60, deadline=None,

@@ -6,14 +6,12 @@ import numpy as np
 import pandas as pd
 import pytest
 import soundfile as sf
-
-from flyover.errors import FlyoverInputError
-from flyover.io.config import load_campaign
-from flyover.io.passdata import load_pass
-from flyover.io.recording import read_span, recording_info
-
-
 from conftest import edit_campaign as edit_config
+
+from flyover.io.config import load_campaign
+from flyover.io.readers.soundfile_recording import read_span, recording_info
+from flyover.model.errors import FlyoverInputError
+from flyover.pipeline.context import load_pass
 
 
 def load_all(folder):

@@ -6,12 +6,14 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from flyover.atmosphere import Atmosphere
-from flyover.bands import third_octave_bands
+from flyover.acoustics.atmosphere import Atmosphere
+from flyover.acoustics.bands import third_octave_bands
+from flyover.acoustics.reference import overall_db, reference_level_db
+from flyover.imaging.integration import region_powers
+from flyover.imaging.resolution import main_lobe_width_m, regions_resolved
 from flyover.io.config import load_campaign
-from flyover.levels import (main_lobe_width_m, overall_db, reference_level_db, region_powers,
-                            regions_resolved)
-from flyover.stages import align, image, levels
+from flyover.io.results.maps import read_maps
+from flyover.pipeline import align, image, levels, qc
 
 
 def test_reference_level_spreading_and_absorption():
@@ -79,9 +81,10 @@ def test_overall_and_a_weighted_sums():
 def test_stages_on_the_tiny_campaign(tiny_copy):
     campaign = load_campaign(tiny_copy / "campaign.yaml")
     out = tiny_copy / "results" / "p1"
-    align.run(campaign, "p1", out / "alignment.json", out / "track.png")
-    image.run(campaign, "p1", out / "alignment.json", out, threads=2, quiet=True)
+    align.run(campaign, "p1", out)
+    image.run(campaign, "p1", out, threads=2, quiet=True)
     levels.run(campaign, "p1", out)
+    qc.run(campaign, "p1", out)  # every per-pass stage, each through its guarded campaign view
     table = pd.read_csv(out / "levels.csv")
     assert list(table.columns[:6]) == ["window", "time_utc", "polar_angle_deg", "band_hz",
                                        "region", "level_db"]
@@ -104,7 +107,7 @@ def test_stages_on_the_tiny_campaign(tiny_copy):
     for name in ("levels_overall.csv", "spectra.csv", "directivity.csv", "spectra.png",
                  "directivity.png", "maps.npz", "windows.csv"):
         assert (out / name).exists(), name
-    maps = np.load(out / "maps.npz")
+    maps = read_maps(out)
     assert maps["diagonal_removed"].shape[1:] == (len(maps["band_hz"]),) + campaign.grid.shape
 
 
@@ -115,6 +118,7 @@ def test_clock_offset_estimated_from_an_anchor(tiny_copy):
     # source, 2 m behind and inside the anchor's main lobe at these bands (200-800 Hz, 8 m
     # aperture), pulls it by about 4 ms (8 cm at 20 m/s, 0.04 main-lobe widths at 800 Hz).
     import json
+
     import yaml
     path = tiny_copy / "campaign.yaml"
     data = yaml.safe_load(path.read_text())
@@ -123,7 +127,7 @@ def test_clock_offset_estimated_from_an_anchor(tiny_copy):
     path.write_text(yaml.safe_dump(data))
     campaign = load_campaign(path)
     out = tiny_copy / "results" / "p1"
-    summary = align.run(campaign, "p1", out / "alignment.json", out / "track.png")
+    summary = align.run(campaign, "p1", out)
     assert summary["clock_offset_s"] == pytest.approx(0.100, abs=0.005)
     assert summary["clock_offset_source"].startswith("estimated")
     assert json.loads((out / "alignment.json").read_text())["clock_offset_s"] == \
@@ -132,7 +136,8 @@ def test_clock_offset_estimated_from_an_anchor(tiny_copy):
 
 def test_auto_clock_offset_needs_an_anchor(tiny_copy):
     import yaml
-    from flyover.errors import FlyoverInputError
+
+    from flyover.model.errors import FlyoverInputError
     path = tiny_copy / "campaign.yaml"
     data = yaml.safe_load(path.read_text())
     data["passes"]["p2"]["clock_offset_s"] = "auto"

@@ -9,16 +9,13 @@ import numpy as np
 import pandas as pd
 import pytest
 import soundfile as sf
-
-from flyover.errors import FlyoverInputError
-from flyover.io import passdata
-from flyover.io import recording as recording_io
-from flyover.io.config import load_campaign
-from flyover.stages import align, image
-from flyover.stages.check import check_campaign
-
-
 from conftest import edit_campaign as edit
+
+from flyover.io.config import load_campaign
+from flyover.io.readers import soundfile_recording as recording_io
+from flyover.model.errors import FlyoverInputError
+from flyover.pipeline import align, image
+from flyover.pipeline.check import check_campaign
 
 
 def damage_recording(path, change):
@@ -35,14 +32,14 @@ def test_dead_clipped_and_outlier_channels_are_flagged_and_left_out(tiny_copy):
     damage_recording(tiny_copy / "p1" / "recording.wav", change)
     campaign = load_campaign(tiny_copy / "campaign.yaml")
     out = tiny_copy / "results" / "p1"
-    summary = align.run(campaign, "p1", out / "alignment.json", out / "track.png")
+    summary = align.run(campaign, "p1", out)
     verdicts = {q["channel"]: q["verdict"] for q in summary["channel_quality"]}
     assert verdicts[3] == "dead" and verdicts[5] == "clipped" and verdicts[7] == "outlier"
     assert sum(v != "ok" for v in verdicts.values()) == 3
     assert summary["quality_excluded_channels"] == [3, 5, 7]
     assert summary["channels_used"] == 13
     # The imaging uses the reduced array (and so does its unit-source chain).
-    image.run(campaign, "p1", out / "alignment.json", out, threads=2, quiet=True)
+    image.run(campaign, "p1", out, threads=2, quiet=True)
     assert (out / "region_power.csv").exists()
 
 
@@ -56,7 +53,7 @@ def test_channel_recording_something_else_is_incoherent(tiny_copy):
     damage_recording(tiny_copy / "p1" / "recording.wav", change)
     campaign = load_campaign(tiny_copy / "campaign.yaml")
     out = tiny_copy / "results" / "p1"
-    summary = align.run(campaign, "p1", out / "alignment.json", out / "track.png")
+    summary = align.run(campaign, "p1", out)
     q = {q["channel"]: q for q in summary["channel_quality"]}
     assert q[9]["verdict"] == "incoherent"
     assert abs(q[9]["level_re_neighbours_db"]) < 6.0
@@ -71,7 +68,7 @@ def test_config_can_keep_a_flagged_channel(tiny_copy):
         (slice(None), 6), x[:, 6] * 4.0))
     path = edit(tiny_copy, lambda d: d["passes"]["p1"].update(keep_channels=[7]))
     out = tiny_copy / "results" / "p1"
-    summary = align.run(load_campaign(path), "p1", out / "alignment.json", out / "track.png")
+    summary = align.run(load_campaign(path), "p1", out)
     assert summary["quality_flagged_channels"] == [7]
     assert summary["quality_excluded_channels"] == []
 
@@ -81,7 +78,7 @@ def test_only_the_needed_span_is_read(tiny_copy, monkeypatch):
     # span (windows do not overlap here), never the whole file at once.
     campaign = load_campaign(tiny_copy / "campaign.yaml")
     out = tiny_copy / "results" / "p1"
-    align.run(campaign, "p1", out / "alignment.json", out / "track.png")
+    align.run(campaign, "p1", out)
     calls = []
     original = recording_io.read_span
 
@@ -89,8 +86,8 @@ def test_only_the_needed_span_is_read(tiny_copy, monkeypatch):
         calls.append(n)
         return original(info, start, n, *args, **kwargs)
 
-    monkeypatch.setattr(passdata, "read_span", counting)
-    image.run(campaign, "p1", out / "alignment.json", out, threads=2, quiet=True)
+    monkeypatch.setattr(recording_io, "read_span", counting)
+    image.run(campaign, "p1", out, threads=2, quiet=True)
     info = recording_io.recording_info(tiny_copy / "p1" / "recording.wav")
     windows = pd.read_csv(out / "windows.csv")
     analysed = (windows["status"] == "analysed").sum()
@@ -141,8 +138,8 @@ def test_extra_channel_that_is_not_a_microphone(tiny_copy):
     summary = check_campaign(campaign)
     assert summary[0]["channels_used"] == 15
     out = tiny_copy / "results" / "p1"
-    align.run(campaign, "p1", out / "alignment.json", out / "track.png")
-    image.run(campaign, "p1", out / "alignment.json", out, threads=2, quiet=True)
+    align.run(campaign, "p1", out)
+    image.run(campaign, "p1", out, threads=2, quiet=True)
     assert (out / "region_power.csv").exists()
 
 
@@ -223,19 +220,19 @@ def test_grid_too_large_for_memory(tiny_copy):
 
 
 def test_inputs_are_never_modified(tiny_copy):
-    from flyover.stages.report import file_digest
+    from flyover.pipeline.report import file_digest
     campaign = load_campaign(tiny_copy / "campaign.yaml")
     before = {f: file_digest(f) for f in campaign.input_files()}
     out = tiny_copy / "results" / "p1"
-    align.run(campaign, "p1", out / "alignment.json", out / "track.png")
-    image.run(campaign, "p1", out / "alignment.json", out, threads=2, quiet=True)
+    align.run(campaign, "p1", out)
+    image.run(campaign, "p1", out, threads=2, quiet=True)
     assert {f: file_digest(f) for f in campaign.input_files()} == before
     assert json.loads((out / "alignment.json").read_text())["pass"] == "p1"
 
 
 def test_simulated_campaign_with_moved_files_is_refused(tiny_copy):
     # A campaign with a 'scenario' names the simulator's files; another path is a clear error.
-    from flyover.workflow import CampaignPlan
+    from flyover.workflow.plan import CampaignPlan
     path = edit(tiny_copy, lambda d: d.update(scenario="scenario.yaml") or
                 d["passes"]["p1"].update(track="elsewhere.csv"))
     with pytest.raises(FlyoverInputError, match="passes.p1.track"):

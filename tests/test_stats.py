@@ -3,7 +3,7 @@
 import numpy as np
 import pytest
 
-from flyover.stats import energetic_mean_db, mean_and_interval, polar_bin_deg
+from flyover.acoustics.statistics import energetic_mean_db, mean_and_interval, polar_bin_deg
 
 
 def test_student_t_interval():

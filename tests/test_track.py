@@ -3,8 +3,8 @@
 import numpy as np
 import pytest
 
-from flyover.errors import FlyoverInputError
-from flyover.track import fit_track
+from flyover.geometry.track import fit_track
+from flyover.model.errors import FlyoverInputError
 
 
 def straight_samples(noise_m, rate_hz=10.0, seed=0):

@@ -12,8 +12,9 @@ from pathlib import Path
 
 import pytest
 import yaml
+from conftest import edit_campaign
 
-from flyover.workflow import parse_dry_run
+from flyover.workflow.dryrun import parse_dry_run
 
 ROOT = Path(__file__).resolve().parents[1]
 
@@ -40,7 +41,7 @@ DIGESTS_BEFORE: dict = {}
 
 def input_digests(folder) -> dict:
     from flyover.io.config import load_campaign
-    from flyover.stages.report import file_digest
+    from flyover.pipeline.report import file_digest
     return {str(f): file_digest(f) for f in load_campaign(folder / "campaign.yaml").input_files()}
 
 
@@ -110,6 +111,16 @@ def test_inputs_unchanged_by_runs_good_or_failing(finished_run, run_copy):
     assert "calibration is missing channels" in (run_copy / "results" / "logs" / "p2" /
                                                  "align.log").read_text()
     assert input_digests(run_copy) == before
+    # The failed step kept its previous outputs (Snakemake's update() flag: restored on failure).
+    assert result_digests(run_copy) == result_digests(finished_run)
+
+
+def result_digests(folder) -> dict:
+    """Digest of every result file, logs and benchmarks aside (they record the runs)."""
+    from flyover.pipeline.report import file_digest
+    out = folder / "results"
+    return {str(p.relative_to(out)): file_digest(p) for p in sorted(out.rglob("*"))
+            if p.is_file() and p.parts[len(out.parts)] not in ("logs", "benchmarks", ".snakemake")}
 
 
 @pytest.mark.slow
@@ -144,13 +155,49 @@ def test_one_pass_atmosphere_reruns_that_pass(finished_run):
 
 
 @pytest.mark.slow
-def test_added_pass_runs_alone_then_summary(run_copy):
-    path = run_copy / "campaign.yaml"
-    data = yaml.safe_load(path.read_text())
-    data["passes"]["p3"] = dict(data["passes"]["p2"], label="b")
-    path.write_text(yaml.safe_dump(data))
-    assert planned(run_copy) == {("align", "p3"), ("image", "p3"), ("levels", "p3"),
-                                 ("qc", "p3"), ("campaign_summary", ""), ("report", "")}
+def test_added_pass_runs_alone_then_summary(finished_run):
+    with edited_config(finished_run,
+                       lambda d: d["passes"].update(p3=dict(d["passes"]["p2"], label="b"))):
+        assert planned(finished_run) == {("align", "p3"), ("image", "p3"), ("levels", "p3"),
+                                         ("qc", "p3"), ("campaign_summary", ""), ("report", "")}
+
+
+@pytest.mark.slow
+def test_band_range_reruns_the_alignment(finished_run):
+    # The alignment's channel checks use the band range: a changed range must re-run it, not
+    # only the imaging (the stale exclusions would otherwise be used).
+    with edited_config(finished_run, lambda d: d["analysis"].update(band_min_hz=400)):
+        assert {("align", "p1"), ("align", "p2")} <= planned(finished_run)
+
+
+def flyover_plan(folder, campaign: str, python: str = sys.executable) -> str:
+    res = subprocess.run([python, "-m", "flyover", "plan", campaign], cwd=folder,
+                         capture_output=True, text=True)
+    assert res.returncode == 0, res.stderr
+    return res.stdout
+
+
+@pytest.mark.slow
+def test_reruns_depend_on_content_only(finished_run, tmp_path):
+    # Not on the interpreter's path, the campaign file's name or folder, the working folder, or
+    # the order of keys in the file.
+    python3 = Path(sys.executable).with_name("python3")
+    assert "nothing to redo" in flyover_plan(finished_run, "campaign.yaml")
+    assert "nothing to redo" in flyover_plan(tmp_path, str(finished_run / "campaign.yaml"),
+                                             str(python3))
+    original = finished_run / "campaign.yaml"
+    data = yaml.safe_load(original.read_text())
+    copies = {"copy of campaign.yaml": original.read_text(),
+              "renamed.yaml": original.read_text(),
+              "reordered.yaml": yaml.safe_dump(dict(reversed(list(data.items()))),
+                                               sort_keys=False)}
+    try:
+        for name, text in copies.items():
+            (finished_run / name).write_text(text)
+            assert "nothing to redo" in flyover_plan(finished_run, name), name
+    finally:
+        for name in copies:
+            (finished_run / name).unlink(missing_ok=True)
 
 
 @pytest.mark.slow
@@ -247,12 +294,12 @@ def test_killed_run_resumes_to_the_same_results(finished_run, tmp_path):
     leftovers = [p for p in (folder / "results").rglob("*") if ".part" in p.name]
     for p in leftovers:  # a killed rename-in-progress leaves only a hidden temporary
         assert p.name.startswith(".")
-    # A hard kill leaves Snakemake's lock behind: unlock (as Snakemake's message says), resume.
-    assert snakemake("--configfile", str(folder / "campaign.yaml"), "--unlock",
-                     cwd=folder).returncode == 0
-    res = snakemake("--configfile", str(folder / "campaign.yaml"), "--rerun-incomplete",
-                    cwd=folder)
+    # A hard kill leaves Snakemake's lock and incomplete outputs behind: `flyover run` clears
+    # what is stale and resumes in one go.
+    res = subprocess.run([sys.executable, "-m", "flyover", "run", "campaign.yaml"], cwd=folder,
+                         capture_output=True, text=True)
     assert res.returncode == 0, res.stderr[-2000:]
+    assert "passes done: 2 of 2" in res.stderr
     assert _tables(folder) == _tables(finished_run)
 
 
@@ -268,3 +315,24 @@ def test_flyover_plan_explains_reruns(finished_run, monkeypatch, capsys):
         out = capsys.readouterr().out
     assert "pass p1:" in out and "levels" in out and "config values it uses changed" in out
     assert "image" not in out
+
+
+@pytest.mark.slow
+def test_any_legal_output_path_works(tiny_campaign_dir, tmp_path):
+    # Spaces, brackets, quotes and non-ASCII letters in the folder names; `flyover run` ends
+    # with its summary, and Snakemake's records live with the results.
+    folder = tmp_path / "run (2) it's \"q\" Ærø"
+    shutil.copytree(tiny_campaign_dir, folder)
+    edit_campaign(folder, lambda d: d.update(output="my results [v1]"))
+    res = subprocess.run([sys.executable, "-m", "flyover", "run", "campaign.yaml"], cwd=folder,
+                         capture_output=True, text=True)
+    assert res.returncode == 0, res.stderr[-3000:]
+    out = folder / "my results [v1]"
+    assert (out / "report.html").exists() and (out / "p2" / "levels.csv").exists()
+    assert (out / ".snakemake" / "metadata").is_dir()
+    for line in ("passes done: 2 of 2", "  p1: done", f"report: {out / 'report.html'}",
+                 "wall time:"):
+        assert line in res.stderr
+    assert "Traceback" not in res.stderr
+    strays = {p.name for p in folder.iterdir()} - {p.name for p in tiny_campaign_dir.iterdir()}
+    assert strays <= {"my results [v1]"}

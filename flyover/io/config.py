@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import datetime
 import json
 from functools import lru_cache
 from pathlib import Path
@@ -10,11 +11,14 @@ import numpy as np
 import yaml
 from jsonschema import Draft202012Validator
 
-from ..atmosphere import Atmosphere
-from ..campaign import (AnalysisSettings, ArraySpec, Campaign, PassSpec, Region, VehicleGrid)
-from ..errors import FlyoverInputError, suggest
-from ..frames import SiteFrame
-from .timestamps import parse_utc_ns
+from flyover.acoustics.atmosphere import Atmosphere
+from flyover.acoustics.bands import third_octave_bands
+from flyover.geometry.frames import SiteFrame
+from flyover.imaging.methods import DEFAULT_METHOD, methods
+from flyover.io.timestamps import parse_utc_ns
+from flyover.model.campaign import (AnalysisSettings, ArraySpec, Campaign, PassSpec, Region,
+                                    VehicleGrid)
+from flyover.model.errors import FlyoverInputError, suggest
 
 
 @lru_cache(maxsize=1)
@@ -29,6 +33,32 @@ def read_schema(name: str) -> dict:
     return json.loads(path.read_text(encoding="utf-8"))
 
 
+class _YamlKeyError(yaml.YAMLError):
+    def __init__(self, what: str, line: int, hint: str):
+        super().__init__(what)
+        self.what, self.line, self.hint = what, line, hint
+
+
+class _StrictLoader(yaml.SafeLoader):
+    """Safe YAML that refuses a key given twice (a pasted block would silently win) and keys
+    that YAML reads as something other than text (a pass named 1 or 2026-05-14)."""
+
+    def construct_mapping(self, node, deep=False):
+        seen = {}
+        for key_node, _ in node.value:
+            key = self.construct_object(key_node, deep=deep)
+            line = key_node.start_mark.line + 1
+            if not isinstance(key, str):
+                raise _YamlKeyError(f"key {key_node.value!r} is read as a "
+                                    f"{type(key).__name__}, not as a name", line,
+                                    f"put it in quotes: '{key_node.value}'")
+            if key in seen:
+                raise _YamlKeyError(f"key '{key}' is given twice (lines {seen[key]} and {line})",
+                                    line, "keep one of them: YAML would silently use the last")
+            seen[key] = line
+        return super().construct_mapping(node, deep=deep)
+
+
 def read_yaml(path: Path) -> dict:
     """Read a YAML mapping, turning syntax errors into messages with the line number."""
     path = Path(path)
@@ -36,7 +66,12 @@ def read_yaml(path: Path) -> dict:
         raise FlyoverInputError("file not found", str(path), "an existing YAML file",
                                 hint="check the path (relative paths start at the current folder)")
     try:
-        data = yaml.safe_load(path.read_text(encoding="utf-8"))
+        data = yaml.load(path.read_text(encoding="utf-8"), Loader=_StrictLoader)
+    except PermissionError:
+        raise FlyoverInputError("the file cannot be read", str(path), "a readable file",
+                                "permission denied", "check the file's permissions") from None
+    except _YamlKeyError as exc:
+        raise FlyoverInputError(exc.what, f"{path}, line {exc.line}", hint=exc.hint) from None
     except yaml.YAMLError as exc:
         mark = getattr(exc, "problem_mark", None)
         where = f"{path}, line {mark.line + 1}" if mark is not None else str(path)
@@ -105,8 +140,11 @@ def validate_campaign_mapping(data: dict, source: str) -> None:
                                 f"a value for '{missing}'",
                                 hint="see `flyover template` for a complete commented example")
     if err.validator == "type":
+        hint = ""
+        if isinstance(err.instance, (bool, datetime.date)) and "string" in str(err.validator_value):
+            hint = (f"YAML reads this value as a {type(err.instance).__name__}: put it in quotes")
         raise FlyoverInputError("wrong type of value", where, f"a {err.validator_value}",
-                                f"{err.instance!r}")
+                                f"{err.instance!r}", hint)
     if err.validator in ("minimum", "maximum", "exclusiveMinimum", "exclusiveMaximum"):
         sub = _schema_at(schema, path)
         lo = sub.get("minimum", sub.get("exclusiveMinimum"))
@@ -152,6 +190,32 @@ def _atmosphere(merged: dict, where: str) -> Atmosphere:
                                     "a value in the pass's atmosphere or in the campaign-level "
                                     "'atmosphere' default")
     return Atmosphere(**merged)
+
+
+def _imaging_method(name: str, source: str) -> str:
+    known = sorted(methods())
+    if name not in known:
+        raise FlyoverInputError(f"unknown imaging method '{name}'",
+                                f"{source}, key analysis.method",
+                                f"one of {', '.join(known)}", hint=suggest(name, known))
+    return name
+
+
+def _check_regions_apart(regions: dict[str, Region], grid: VehicleGrid, source: str) -> None:
+    """Refuse regions that share grid points: source power integration gives each grid point to
+    one region, and a shared point would count the same sound in both."""
+    points = grid.points_m()
+    names = list(regions)
+    for i, a in enumerate(names):
+        for b in names[i + 1:]:
+            shared = int(np.sum(regions[a].contains(points) & regions[b].contains(points)))
+            if shared:
+                raise FlyoverInputError(
+                    f"regions '{a}' and '{b}' overlap", f"{source}, key vehicle.regions",
+                    "regions that share no grid point",
+                    f"{shared} grid point(s) in both",
+                    "source power integration would count their sound twice; move an edge of "
+                    "one region by a grid spacing")
 
 
 def _range(value) -> tuple[float, float]:
@@ -260,6 +324,7 @@ def campaign_from_mapping(data: dict, path: Path) -> Campaign:
         reference_distance_m=float(an["reference_distance_m"]),
         reference_atmosphere=Atmosphere(ref["temperature_c"], ref["relative_humidity_pct"],
                                         ref.get("pressure_kpa", 101.325)),
+        method=_imaging_method(an.get("method", DEFAULT_METHOD), source),
         interpolation=an.get("interpolation", "cubic"),
         diagonal_removal=bool(an.get("diagonal_removal", True)),
         max_polar_offset_deg=float(an.get("max_polar_offset_deg", 60.0)),
@@ -271,6 +336,14 @@ def campaign_from_mapping(data: dict, path: Path) -> Campaign:
         raise FlyoverInputError("band range inverted", f"{source}, key analysis.band_min_hz",
                                 "band_min_hz <= band_max_hz",
                                 f"{analysis.band_min_hz} > {analysis.band_max_hz}")
+    if len(third_octave_bands(analysis.band_min_hz, analysis.band_max_hz)) == 0:
+        raise FlyoverInputError("no one-third-octave band in the band range",
+                                f"{source}, keys analysis.band_min_hz/band_max_hz",
+                                "a range holding at least one exact midband (IEC 61260-1: "
+                                "1000 * 10^(k/10) Hz)",
+                                f"{analysis.band_min_hz} to {analysis.band_max_hz} Hz",
+                                "widen the range, e.g. to the next nominal bands")
+    _check_regions_apart(regions, grid, source)
     outline = tuple(_range(v) for v in veh.get("outline_m", ()))
     scenario = _resolve_path(base, data["scenario"]) if "scenario" in data else None
     return Campaign(path, site, None if geoid is None else float(geoid), array, passes, grid,

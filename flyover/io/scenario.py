@@ -7,13 +7,14 @@ from pathlib import Path
 import numpy as np
 from jsonschema import Draft202012Validator
 
-from ..atmosphere import Atmosphere
-from ..campaign import MOUNTING_GAIN
-from ..errors import FlyoverInputError, suggest
-from ..frames import SiteFrame
-from ..simulate import (Broadband, PassScenario, PointSource, Scenario, Tone, spiral_layout)
-from .config import read_schema, read_yaml
-from .timestamps import parse_utc_ns
+from flyover.acoustics.atmosphere import Atmosphere
+from flyover.forward.moving_source import Broadband, PointSource, Tone
+from flyover.geometry.frames import SiteFrame
+from flyover.io.config import read_schema, read_yaml
+from flyover.io.timestamps import parse_utc_ns
+from flyover.model.campaign import MOUNTING_GAIN
+from flyover.model.errors import FlyoverInputError, suggest
+from flyover.sim.scenario import PassScenario, Scenario, spiral_layout
 
 
 def _validate(data: dict, source: str) -> None:

@@ -7,7 +7,7 @@ import re
 import numpy as np
 import pandas as pd
 
-from ..errors import FlyoverInputError
+from flyover.model.errors import FlyoverInputError
 
 _ZONE = re.compile(r"(Z|[+-]\d\d(:?\d\d)?)$")
 

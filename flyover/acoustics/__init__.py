@@ -1,0 +1,1 @@
+"""Atmosphere, bands and weightings, reference corrections, statistics, calibration."""

@@ -1,0 +1,93 @@
+"""Sound paths from a moving source to fixed microphones in a uniformly moving medium.
+
+Everything here works forward from emission time: for a source point at emission time tau the
+travel time T solves ``|x_m - x_s(tau) - U T| = c T`` in closed form, so reception times on a
+uniform emission-time grid need no root finding.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+
+@dataclass(frozen=True)
+class Paths:
+    """Geometry of the paths from source points to microphones.
+
+    All arrays have shape (..., n_mics): the leading shape of the source points, then microphones.
+
+    Attributes
+    ----------
+    travel_time_s : ndarray
+        T, from emission to reception.
+    distance_m : ndarray
+        r = |x_m - x_s(tau)|, the distance at emission time (the source model's spreading term).
+    mach_r : ndarray
+        M_r: the source's velocity relative to the medium, divided by c, along the unit vector of
+        propagation in the medium frame, n = (x_m - U T - x_s) / (c T). Positive when approaching.
+    doppler_factor : ndarray
+        dt/dtau, reception time per emission time. Without wind it equals 1 - M_r; with wind
+        ``(1 - M_r) / (1 + n.U / c)`` (the fixed microphone moves through the medium).
+    """
+
+    travel_time_s: np.ndarray
+    distance_m: np.ndarray
+    mach_r: np.ndarray
+    doppler_factor: np.ndarray
+
+
+def travel_time_s(source_enu_m, mic_enu_m, wind_enu_m_s, c_m_s):
+    """Time for sound emitted at source points to reach each microphone in a uniform wind.
+
+    Parameters
+    ----------
+    source_enu_m : ndarray, shape (..., 3)
+        Source positions at emission time, site frame.
+    mic_enu_m : ndarray, shape (n_mics, 3)
+    wind_enu_m_s : ndarray, shape (3,)
+        Uniform velocity of the medium.
+    c_m_s : float
+        Speed of sound in the medium at rest.
+
+    Returns
+    -------
+    ndarray, shape (..., n_mics)
+        T = [-(d.U) + sqrt((d.U)^2 + (c^2 - U^2) d.d)] / (c^2 - U^2), d = x_m - x_s.
+    """
+    src = np.asarray(source_enu_m, float)[..., None, :]
+    return paths_between(src, np.zeros_like(src), mic_enu_m, wind_enu_m_s, c_m_s).travel_time_s
+
+
+def paths_between(source_enu_m, source_velocity_enu_m_s, mic_enu_m, wind_enu_m_s, c_m_s) -> Paths:
+    """Travel time, emission distance, M_r and Doppler factor from source points to microphones.
+
+    Parameters
+    ----------
+    source_enu_m, source_velocity_enu_m_s, mic_enu_m : ndarray, shape (..., 3)
+        Positions (m) and the sources' velocities over the ground (m/s), broadcast against each
+        other: a source (3,) against microphones (n_mics, 3) gives arrays of shape (n_mics,).
+    wind_enu_m_s : ndarray, shape (3,)
+    c_m_s : float
+        Speed of sound in the medium at rest.
+
+    Returns
+    -------
+    Paths
+        Arrays of the broadcast leading shape.
+    """
+    src = np.asarray(source_enu_m, float)
+    vel = np.asarray(source_velocity_enu_m_s, float)
+    u = np.asarray(wind_enu_m_s, float)
+    d = np.asarray(mic_enu_m, float) - src
+    du = d @ u
+    dd = np.einsum("...i,...i->...", d, d)
+    a = c_m_s ** 2 - u @ u
+    t = (-du + np.sqrt(du ** 2 + a * dd)) / a
+    r = np.sqrt(dd)
+    # Unit propagation direction in the medium frame.
+    n = (d - t[..., None] * u) / (c_m_s * t[..., None])
+    mach_r = np.einsum("...i,...i->...", n, vel - u) / c_m_s
+    doppler = (1.0 - mach_r) / (1.0 + (n @ u) / c_m_s)
+    return Paths(t, r, mach_r, doppler)

@@ -1,0 +1,96 @@
+"""Emission-time windows along the track.
+
+A window is a span of emission time on the track; its centre fixes the geometry quoted with its
+results: vehicle position, speed, attitude, distance to the array centre and the polar emission
+angle (angle between the flight direction and the line from the vehicle to the array centre;
+90 deg = overhead).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from flyover.geometry.track import TrackModel
+
+
+@dataclass(frozen=True)
+class Window:
+    """One emission-time window.
+
+    Attributes
+    ----------
+    index : int
+    start_s : float
+        First emission sample time, seconds after the pass epoch.
+    n_samples : int
+        Emission samples at ``sample_rate_hz``.
+    sample_rate_hz : float
+    position_enu_m, velocity_enu_m_s : ndarray, shape (3,)
+        Body origin at the centre time.
+    attitude_deg : ndarray, shape (3,)
+        Yaw, pitch, roll at the centre time.
+    polar_angle_deg : float
+    distance_m : float
+        Body origin to array centre at the centre time.
+    """
+
+    index: int
+    start_s: float
+    n_samples: int
+    sample_rate_hz: float
+    position_enu_m: np.ndarray
+    velocity_enu_m_s: np.ndarray
+    attitude_deg: np.ndarray
+    polar_angle_deg: float
+    distance_m: float
+
+    @property
+    def center_s(self) -> float:
+        return self.start_s + 0.5 * (self.n_samples - 1) / self.sample_rate_hz
+
+    @property
+    def emission_times_s(self) -> np.ndarray:
+        return self.start_s + np.arange(self.n_samples) / self.sample_rate_hz
+
+    @property
+    def speed_m_s(self) -> float:
+        return float(np.linalg.norm(self.velocity_enu_m_s))
+
+
+def polar_angle_deg(velocity_enu_m_s, position_enu_m, target_enu_m) -> np.ndarray:
+    """Angle between the flight direction and the line from the vehicle to a target (deg)."""
+    v = np.asarray(velocity_enu_m_s, float)
+    d = np.asarray(target_enu_m, float) - np.asarray(position_enu_m, float)
+    cos = np.sum(v * d, axis=-1) / (np.linalg.norm(v, axis=-1) * np.linalg.norm(d, axis=-1))
+    return np.rad2deg(np.arccos(np.clip(cos, -1.0, 1.0)))
+
+
+def plan_windows(track: TrackModel, array_center_enu_m, span_s: tuple[float, float],
+                 window_s: float, hop_s: float, sample_rate_hz: float, *,
+                 max_polar_offset_deg: float = 90.0) -> list[Window]:
+    """Windows of ``window_s`` every ``hop_s`` within an emission-time span.
+
+    Windows are placed symmetrically about the span's centre grid (hop multiples from its
+    start) and kept when their polar angle lies within ``max_polar_offset_deg`` of 90 deg.
+    Whether each window's sound reaches the microphones inside the recording is checked by the
+    caller, who knows the grid and the microphones.
+    """
+    n = int(round(window_s * sample_rate_hz))
+    lo = max(span_s[0], track.start_s)
+    hi = min(span_s[1], track.end_s) - n / sample_rate_hz
+    if hi < lo:
+        return []
+    starts = lo + hop_s * np.arange(int(np.floor((hi - lo) / hop_s + 1e-9)) + 1)
+    centers = starts + 0.5 * (n - 1) / sample_rate_hz
+    pos = track.position(centers)
+    vel = track.velocity(centers)
+    att = track.attitude_deg(centers)
+    c = np.asarray(array_center_enu_m, float)
+    polar = polar_angle_deg(vel, pos, c)
+    dist = np.linalg.norm(c - pos, axis=1)
+    keep = np.abs(polar - 90.0) <= max_polar_offset_deg
+    return [Window(k, float(starts[i]), n, float(sample_rate_hz), pos[i], vel[i], att[i],
+                   float(polar[i]), float(dist[i]))
+            for k, i in enumerate(np.flatnonzero(keep))]

@@ -1,0 +1,1 @@
+"""De-Dopplerization, source power integration, resolution; imaging methods in ``methods``."""

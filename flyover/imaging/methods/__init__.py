@@ -1,0 +1,35 @@
+"""Imaging methods, one module each, chosen by name (``analysis.method`` in the campaign file).
+
+A method module builds an :class:`flyover.imaging.window.ImagingMethod` and calls
+:func:`register` at import; every module of this package is imported on first look-up, so a new
+method is one new module here (and its test) and nothing else changes.
+"""
+
+from __future__ import annotations
+
+from flyover.model.plugins import import_all
+
+DEFAULT_METHOD = "time-domain"
+_METHODS: dict = {}
+
+
+def register(method):
+    """Add a method to the registry under ``method.name`` (called by each method module)."""
+    if method.name in _METHODS:
+        raise RuntimeError(f"two imaging methods are named '{method.name}'")
+    _METHODS[method.name] = method
+    return method
+
+
+def methods() -> dict:
+    """Every imaging method by name (importing this package's modules the first time)."""
+    import_all(__name__, __path__)
+    return dict(_METHODS)
+
+
+def method_named(name: str):
+    """The method called ``name``; a :class:`KeyError` lists the valid names."""
+    known = methods()
+    if name not in known:
+        raise KeyError(f"no imaging method '{name}' (known: {', '.join(sorted(known))})")
+    return known[name]

@@ -1,0 +1,301 @@
+"""Figures. Our look: a light warm-grey canvas, slate ink, amber for the array, a teal accent,
+perceptually uniform colour maps that also read in greyscale (cividis for maps)."""
+
+from __future__ import annotations
+
+import functools
+
+import matplotlib
+
+matplotlib.use("Agg")
+import matplotlib.pyplot as plt  # noqa: E402
+import numpy as np  # noqa: E402
+
+from flyover.io.atomic import atomic_path  # noqa: E402
+from flyover.model.constants import P0_PA  # noqa: E402
+
+INK = "#2b3440"
+ARRAY = "#d08a1f"
+ACCENT = "#1f7a78"
+CANVAS = "#faf8f4"
+MAP_CMAP = "cividis"
+
+# Applied per figure (not at import), so importing flyover leaves matplotlib's settings alone.
+_STYLE = {
+    "figure.facecolor": CANVAS, "axes.facecolor": "white", "axes.edgecolor": INK,
+    "axes.labelcolor": INK, "xtick.color": INK, "ytick.color": INK, "text.color": INK,
+    "font.size": 10, "axes.titlesize": 11, "axes.grid": True, "grid.color": "#e3ded5",
+    "grid.linewidth": 0.6, "axes.spines.top": False, "axes.spines.right": False,
+}
+
+
+def _styled(make):
+    """Draw a figure under flyover's style."""
+    @functools.wraps(make)
+    def wrapper(*args, **kwargs):
+        with plt.rc_context(_STYLE):
+            return make(*args, **kwargs)
+    return wrapper
+
+
+def save_figure(fig, path, dpi: int = 110) -> None:
+    """Save a figure atomically as PNG and close it."""
+    with atomic_path(path) as tmp:
+        fig.savefig(tmp, dpi=dpi, format="png", bbox_inches="tight")
+    plt.close(fig)
+
+
+@_styled
+def track_figure(inputs, summary: dict, windows_s=None):
+    """Plan view of the track over the array, and height and speed against time.
+
+    Parameters
+    ----------
+    inputs : flyover.io.passdata.PassInputs
+    summary : dict
+        From :func:`flyover.stages.check.pass_summary`.
+    windows_s : ndarray, optional
+        Centre emission times of analysed windows, marked on the track.
+    """
+    track = inputs.track
+    t = np.linspace(track.start_s, track.end_s, 1500)
+    pos = track.position(t)
+    c = inputs.layout.center_enu_m
+    lo, hi = summary["covered_s"]
+    fig, (ax_plan, ax_side) = plt.subplots(1, 2, figsize=(11, 4.4),
+                                           gridspec_kw={"width_ratios": [1.25, 1]})
+    ax_plan.plot(pos[:, 0], pos[:, 1], color="#9aa3ad", lw=1.0, label="track")
+    rec = (t >= lo) & (t <= hi)
+    ax_plan.plot(pos[rec, 0], pos[rec, 1], color=INK, lw=2.0, label="while recording")
+    ax_plan.scatter(track.samples_enu_m[:, 0], track.samples_enu_m[:, 1], s=3, color=INK,
+                    alpha=0.3, label="GNSS samples")
+    mics = inputs.layout.enu_m
+    used = inputs.weights > 0
+    ax_plan.scatter(mics[used, 0], mics[used, 1], s=14, color=ARRAY, marker="o",
+                    label="microphones", zorder=3)
+    if np.any(~used):
+        ax_plan.scatter(mics[~used, 0], mics[~used, 1], s=22, color="#b03a2e", marker="x",
+                        label="excluded", zorder=3)
+    k = len(t) // 2
+    d = pos[k + 5] - pos[k]
+    ax_plan.annotate("", xy=pos[k + 5, :2] + 6 * d[:2] / np.linalg.norm(d[:2]),
+                     xytext=pos[k, :2], arrowprops={"arrowstyle": "-|>", "color": INK})
+    if windows_s is not None and len(windows_s):
+        w = track.position(np.asarray(windows_s))
+        ax_plan.scatter(w[:, 0], w[:, 1], s=18, color=ACCENT, marker="|", zorder=4,
+                        label="analysed windows")
+    span = pos[rec] if np.any(rec) else pos
+    pad = 0.15 * np.ptp(span[:, :2], axis=0).max() + 10.0
+    ax_plan.set_xlim(min(span[:, 0].min(), mics[:, 0].min()) - pad,
+                     max(span[:, 0].max(), mics[:, 0].max()) + pad)
+    ax_plan.set_ylim(min(span[:, 1].min(), mics[:, 1].min()) - pad,
+                     max(span[:, 1].max(), mics[:, 1].max()) + pad)
+    ax_plan.set_aspect("equal", adjustable="box")
+    ax_plan.set_xlabel("east (m)")
+    ax_plan.set_ylabel("north (m)")
+    ax_plan.set_title(f"{summary['pass']}: track over the array (site frame)")
+    ax_plan.legend(loc="best", fontsize=8, frameon=False)
+    ax_side.plot(t, pos[:, 2] - c[2], color=INK, lw=1.6)
+    ax_side.set_xlabel("time after recording start (s)")
+    ax_side.set_ylabel("height above array centre (m)", color=INK)
+    ax_speed = ax_side.twinx()
+    speed = np.linalg.norm(track.velocity(t), axis=1)
+    ax_speed.plot(t, speed, color=ACCENT, lw=1.2)
+    ax_speed.set_ylabel("speed (m/s)", color=ACCENT)
+    ax_speed.grid(False)
+    _at_least_span(ax_side, pos[:, 2] - c[2], 4.0)
+    _at_least_span(ax_speed, speed, 4.0)
+    ax_side.axvspan(lo, hi, color="#efe9dd", zorder=0)
+    ax_side.axvline(summary["overhead_s"], color=ARRAY, lw=1.2, ls="--")
+    ax_side.set_title(f"closest {summary['closest_distance_m']:.1f} m at "
+                      f"t = {summary['overhead_s']:.2f} s")
+    fig.tight_layout()
+    return fig
+
+
+def _at_least_span(ax, values, span: float) -> None:
+    """Keep small wobbles from filling the axis: show at least ``span`` units."""
+    lo, hi = float(np.min(values)), float(np.max(values))
+    if hi - lo < span:
+        mid = 0.5 * (lo + hi)
+        ax.set_ylim(mid - span / 2, mid + span / 2)
+
+
+@_styled
+def map_figure(maps, campaign, bands, pass_name: str, window_row: dict,
+               dynamic_range_db: float = 15.0):
+    """Small multiples of one window's maps, one panel per band, dB re each panel's peak.
+
+    Parameters
+    ----------
+    maps : ndarray, shape (n_grid, n_bands)
+        Band power on the grid points (x varying slowest). Values at or below zero (possible
+        after diagonal removal) and more than ``dynamic_range_db`` under the peak show as the
+        floor colour.
+    """
+    from matplotlib.patches import Rectangle
+    nx, ny = campaign.grid.shape
+    x, y = campaign.grid.x_axis_m, campaign.grid.y_axis_m
+    n_b = len(bands)
+    cols = min(4, n_b)
+    rows = int(np.ceil(n_b / cols))
+    fig, axes = plt.subplots(rows, cols, figsize=(3.1 * cols, 2.2 * rows + 0.6),
+                             squeeze=False, sharex=True, sharey=True)
+    extent = [x[0] - campaign.grid.spacing_m / 2, x[-1] + campaign.grid.spacing_m / 2,
+              y[-1] + campaign.grid.spacing_m / 2, y[0] - campaign.grid.spacing_m / 2]
+    cmap = plt.get_cmap(MAP_CMAP).with_extremes(under="#ece6da", bad="#ece6da")
+    image = None
+    for b in range(rows * cols):
+        ax = axes[b // cols][b % cols]
+        ax.grid(False)
+        if b >= n_b:
+            ax.axis("off")
+            continue
+        m = maps[:, b].reshape(nx, ny).T
+        peak = np.max(m)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            db = np.where(m > 0, 10 * np.log10(m / peak), -np.inf) if peak > 0 else \
+                np.full_like(m, -np.inf)
+        image = ax.imshow(db, extent=extent, cmap=cmap, vmin=-dynamic_range_db, vmax=0,
+                          interpolation="nearest", aspect="equal")
+        for region in campaign.regions.values():
+            ax.add_patch(Rectangle((region.x_m[0], region.y_m[0]), np.ptp(region.x_m),
+                                   np.ptp(region.y_m), fill=False, ec="white", lw=1.0, ls="--"))
+        if campaign.outline_m:
+            poly = np.array(campaign.outline_m + (campaign.outline_m[0],))
+            ax.plot(poly[:, 0], poly[:, 1], color=ARRAY, lw=0.9)
+        label = f"{bands.nominal_hz[b]:g} Hz"
+        ax.set_title(label if peak > 0 else f"{label} (below floor)", fontsize=9)
+        if b % cols == 0:
+            ax.set_ylabel("y starboard (m)")
+        if b // cols == rows - 1:
+            ax.set_xlabel("x forward (m)")
+    fig.suptitle(f"{pass_name}  window {window_row['window']}  {window_row['time_utc'][:23]}Z  "
+                 f"polar {window_row['polar_angle_deg']:.0f} deg  "
+                 f"distance {window_row['distance_m']:.0f} m", fontsize=11)
+    if image is not None:
+        bar = fig.colorbar(image, ax=axes, shrink=0.8, extend="min", pad=0.02)
+        bar.set_label(f"dB re panel peak ({dynamic_range_db:g} dB range)")
+    return fig
+
+
+def _band_axis(ax, bands_hz) -> None:
+    ax.set_xscale("log")
+    ax.set_xticks(bands_hz)
+    ax.set_xticklabels([f"{b:g}" for b in bands_hz], rotation=60, fontsize=7)
+    ax.minorticks_off()
+    ax.set_xlabel("one-third-octave band (Hz)")
+
+
+@_styled
+def spectra_figure(spectra, pass_name: str):
+    """Region spectra at the chosen polar angles (levels at the reference distance)."""
+    regions = list(dict.fromkeys(spectra["region"])) if len(spectra) else []
+    fig, axes = plt.subplots(1, max(1, len(regions)), figsize=(4.2 * max(1, len(regions)), 3.6),
+                             squeeze=False, sharey=True)
+    cmap = plt.get_cmap("viridis")
+    targets = sorted(set(spectra["target_polar_deg"])) if len(spectra) else []
+    for ax, region in zip(axes[0], regions):
+        sel = spectra[spectra["region"] == region]
+        for i, target in enumerate(targets):
+            s = sel[sel["target_polar_deg"] == target]
+            ax.plot(s["band_hz"], s["level_db"], marker="o", ms=3, lw=1.4,
+                    color=cmap(i / max(1, len(targets) - 1)),
+                    label=f"{s['polar_angle_deg'].iloc[0]:.0f} deg" if len(s) else None)
+        _band_axis(ax, sorted(set(sel["band_hz"])))
+        ax.set_title(region)
+        ax.legend(fontsize=7, frameon=False, title="polar angle", title_fontsize=7)
+    axes[0][0].set_ylabel("band level at reference distance (dB)")
+    if not regions:
+        axes[0][0].text(0.5, 0.5, "no analysed windows", ha="center",
+                        transform=axes[0][0].transAxes)
+    fig.suptitle(f"{pass_name}: region spectra", fontsize=11)
+    fig.tight_layout()
+    return fig
+
+
+@_styled
+def directivity_figure(levels, pass_name: str, max_bands: int = 6):
+    """Level against polar angle per region, for a spread of bands."""
+    regions = list(dict.fromkeys(levels["region"])) if len(levels) else []
+    fig, axes = plt.subplots(1, max(1, len(regions)), figsize=(4.2 * max(1, len(regions)), 3.6),
+                             squeeze=False, sharey=True)
+    bands = sorted(set(levels["band_hz"])) if len(levels) else []
+    spread = np.linspace(0, len(bands) - 1, min(max_bands, len(bands)))
+    pick = [bands[int(round(i))] for i in spread]
+    cmap = plt.get_cmap("cividis")
+    for ax, region in zip(axes[0], regions):
+        sel = levels[levels["region"] == region]
+        for i, band in enumerate(pick):
+            s = sel[sel["band_hz"] == band].sort_values("polar_angle_deg")
+            ax.plot(s["polar_angle_deg"], s["level_db"], marker=".", lw=1.3,
+                    color=cmap(i / max(1, len(pick) - 1)), label=f"{band:g} Hz")
+        ax.set_xlabel("polar emission angle (deg, 90 = overhead)")
+        ax.set_title(region)
+        ax.legend(fontsize=7, frameon=False)
+    axes[0][0].set_ylabel("band level at reference distance (dB)")
+    fig.suptitle(f"{pass_name}: directivity", fontsize=11)
+    fig.tight_layout()
+    return fig
+
+
+@_styled
+def spectrogram_figure(raw, dedopplerized, pass_name: str, raw_label: str, f_max_hz: float,
+                       region_name: str = ""):
+    """Two spectrograms side by side: a microphone as received, and the de-Dopplerized region.
+
+    ``raw`` and ``dedopplerized`` are (f, t, Sxx) triples from scipy.signal.spectrogram, or None.
+    """
+    fig, axes = plt.subplots(1, 2, figsize=(11, 3.8), sharey=True)
+    for ax, data, title in ((axes[0], raw, raw_label),
+                            (axes[1], dedopplerized, f"region '{region_name}' de-Dopplerized")):
+        ax.grid(False)
+        if data is None:
+            ax.text(0.5, 0.5, "no analysed windows", ha="center", transform=ax.transAxes)
+            continue
+        f, t, s = data
+        db = 10 * np.log10(np.maximum(s, 1e-30) / P0_PA ** 2)
+        top = np.percentile(db[f <= f_max_hz], 99.5)
+        mesh = ax.pcolormesh(t, f, db, shading="auto", cmap=MAP_CMAP, vmin=top - 50, vmax=top)
+        ax.set_ylim(0, f_max_hz)
+        ax.set_xlabel("time (s)" if ax is axes[0] else "emission time (s)")
+        ax.set_title(title)
+    axes[0].set_ylabel("frequency (Hz)")
+    if raw is not None:
+        bar = fig.colorbar(mesh, ax=axes, shrink=0.9, pad=0.02)
+        bar.set_label("spectral level (dB re 20 uPa^2/Hz, 50 dB per panel)")
+    fig.suptitle(f"{pass_name}: Doppler shift as received, removed in source time", fontsize=11)
+    return fig
+
+
+@_styled
+def campaign_figure(overall, quantity: str = "A-weighted"):
+    """Mean level over passes against polar angle, with its 90 % interval, per label and region.
+
+    ``overall`` is the campaign_overall table (columns label, region, quantity, polar_bin_deg,
+    mean_db, ci_half_width_db, n_passes).
+    """
+    sel = overall[overall["quantity"] == quantity] if len(overall) else overall
+    labels = list(dict.fromkeys(sel["label"])) if len(sel) else []
+    fig, axes = plt.subplots(1, max(1, len(labels)), figsize=(5.2 * max(1, len(labels)), 3.8),
+                             squeeze=False, sharey=True)
+    colours = [INK, ACCENT, ARRAY, "#7a4e9e", "#b03a2e"]
+    for ax, label in zip(axes[0], labels):
+        part = sel[sel["label"] == label]
+        for i, region in enumerate(dict.fromkeys(part["region"])):
+            s = part[part["region"] == region].sort_values("polar_bin_deg")
+            err = np.nan_to_num(s["ci_half_width_db"].to_numpy(), nan=0.0)
+            ax.errorbar(s["polar_bin_deg"], s["mean_db"], yerr=err, marker="o", ms=3.5,
+                        capsize=2.5, lw=1.3, color=colours[i % len(colours)], label=region)
+        n = int(part["n_passes"].max()) if len(part) else 0
+        ax.set_title(f"{label} ({n} pass{'es' if n != 1 else ''})")
+        ax.set_xlabel("polar emission angle (deg, 90 = overhead)")
+        ax.legend(fontsize=8, frameon=False)
+    axes[0][0].set_ylabel(f"{quantity} level at reference distance (dB)")
+    if not labels:
+        axes[0][0].text(0.5, 0.5, "no levels", ha="center", transform=axes[0][0].transAxes)
+    fig.suptitle("Campaign: mean over passes with its 90 % interval (Student t)", fontsize=11)
+    fig.text(0.5, -0.02, "Regions sum the bands where they are resolved; 'total' sums all bands.",
+             ha="center", fontsize=8, color="#6b7380")
+    fig.tight_layout()
+    return fig

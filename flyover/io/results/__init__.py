@@ -1,0 +1,80 @@
+"""Result files, one module each: its name, columns (or keys) with units, writer and reader.
+
+Every table is a :class:`TableFile`; the modules of this package define one each, so the stage
+that writes a file and the stages that read it back share one description of it.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from pathlib import Path
+
+import pandas as pd
+
+from flyover.io.csvtable import write_csv
+from flyover.model.errors import FlyoverInputError
+
+
+@dataclass(frozen=True)
+class TableFile:
+    """A CSV result file.
+
+    Attributes
+    ----------
+    name : str
+        File name inside its folder (the pass's or the campaign's result folder).
+    columns : tuple of (str, str)
+        Column name and its unit or meaning, in file order.
+    float_format : str
+        printf format of floats: fixed, so identical results give identical bytes.
+    more_columns : str
+        When not empty, further columns may follow the fixed ones; says what they are.
+    """
+
+    name: str
+    columns: tuple[tuple[str, str], ...]
+    float_format: str = "%.6f"
+    more_columns: str = ""
+
+    @property
+    def column_names(self) -> list[str]:
+        return [c for c, _ in self.columns]
+
+    def path(self, folder) -> Path:
+        return Path(folder) / self.name
+
+    def write(self, folder, frame: pd.DataFrame) -> Path:
+        """Write ``frame`` (its columns in this file's order; extra ones only if allowed)."""
+        names = self.column_names
+        extra = [c for c in frame.columns if c not in names]
+        if extra and not self.more_columns:
+            raise RuntimeError(f"{self.name}: columns {extra} are not part of the file")
+        out = pd.DataFrame(frame, columns=names + extra) if len(frame.columns) else \
+            pd.DataFrame(columns=names)
+        write_csv(self.path(folder), out, float_format=self.float_format)
+        return self.path(folder)
+
+    def read(self, folder) -> pd.DataFrame:
+        """Read the file back; a missing file or column says which and what to do."""
+        path = self.path(folder)
+        if not path.is_file():
+            raise FlyoverInputError(f"result file {self.name} is missing", str(path),
+                                    hint="run the workflow step that writes it (flyover run)")
+        try:
+            frame = pd.read_csv(path)
+        except pd.errors.EmptyDataError:
+            frame = pd.DataFrame(columns=self.column_names)
+        missing = [c for c in self.column_names if c not in frame.columns]
+        if missing:
+            raise FlyoverInputError(f"result file {self.name} lacks columns {missing}", str(path),
+                                    ",".join(self.column_names), ",".join(frame.columns),
+                                    "it was written by another flyover version: re-run the "
+                                    "workflow")
+        return frame
+
+    def describe(self) -> str:
+        """Markdown lines: the file and its columns with units (for the docs)."""
+        rows = [f"- `{c}`: {u}" for c, u in self.columns]
+        if self.more_columns:
+            rows.append(f"- then: {self.more_columns}")
+        return f"`{self.name}`\n" + "\n".join(rows)

@@ -1,0 +1,49 @@
+"""``alignment.json``: a pass's clock, coverage, overhead time and data quality (JSON object).
+
+Keys the later stages rely on are listed in :data:`REQUIRED_KEYS`; everything else is for the
+report and the engineer.
+"""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+from flyover.io.atomic import write_text
+from flyover.model.errors import FlyoverInputError
+
+NAME = "alignment.json"
+REQUIRED_KEYS = {
+    "clock_offset_s": "s, the clock offset used (config value or estimate)",
+    "epoch_utc_ns": "ns since 1970 UTC of the first sample",
+    "quality_excluded_channels": "channels the data-quality checks left out",
+    "channels": "channels in the recording",
+    "channels_used": "channels in the beamforming",
+    "overhead_utc": "ISO 8601 UTC of the closest approach",
+    "closest_distance_m": "m",
+}
+
+
+def write_alignment(folder, summary: dict) -> Path:
+    """Write the alignment (sorted keys, indented: stable bytes for identical results)."""
+    missing = sorted(set(REQUIRED_KEYS) - set(summary))
+    if missing:
+        raise RuntimeError(f"{NAME}: keys {missing} missing")
+    path = Path(folder) / NAME
+    write_text(path, json.dumps(summary, indent=2, sort_keys=True) + "\n")
+    return path
+
+
+def read_alignment(folder) -> dict:
+    """Read a pass's alignment back, checking the keys later stages need."""
+    path = Path(folder) / NAME
+    if not path.is_file():
+        raise FlyoverInputError(f"result file {NAME} is missing", str(path),
+                                hint="run the align step first (flyover run)")
+    data = json.loads(path.read_text(encoding="utf-8"))
+    missing = sorted(set(REQUIRED_KEYS) - set(data))
+    if missing:
+        raise FlyoverInputError(f"{NAME} lacks keys {missing}", str(path),
+                                hint="it was written by another flyover version: re-run the "
+                                     "workflow")
+    return data

@@ -1,0 +1,21 @@
+"""``campaign_levels.csv`` and ``campaign_overall.csv``: means over the passes of each label."""
+
+from flyover.io.results import TableFile
+
+_STATISTICS = (
+    ("polar_bin_deg", "deg, centre of the 10 deg polar bin"),
+    ("mean_db", "dB, mean over passes of the passes' energetic bin means"),
+    ("std_db", "dB, standard deviation over passes"),
+    ("n_passes", "passes with a level"),
+    ("ci_half_width_db", "dB, half-width of the 90 % Student-t interval of the mean"),
+    ("ci_low_db", "dB"),
+    ("ci_high_db", "dB"),
+    ("passes", "names of the passes averaged"),
+    ("wide_interval", "interval wider than +-1.5 dB"),
+)
+CAMPAIGN_LEVELS = TableFile("campaign_levels.csv", (
+    ("label", "configuration label"), ("region", "region name, or 'total'"),
+    ("band_hz", "nominal midband")) + _STATISTICS, float_format="%.3f")
+CAMPAIGN_OVERALL = TableFile("campaign_overall.csv", (
+    ("label", "configuration label"), ("region", "region name, or 'total'"),
+    ("quantity", "'overall' or 'A-weighted'")) + _STATISTICS, float_format="%.3f")

@@ -1,0 +1,14 @@
+"""``levels_overall.csv``: overall and A-weighted sums per window and region."""
+
+from flyover.io.results import TableFile
+
+LEVELS_OVERALL = TableFile("levels_overall.csv", (
+    ("window", "index"),
+    ("time_utc", "ISO 8601 UTC"),
+    ("polar_angle_deg", "deg"),
+    ("region", "region name, or 'total'"),
+    ("overall_db", "dB re 20 uPa at the reference distance"),
+    ("a_weighted_db", "dB(A) re 20 uPa (IEC 61672-1)"),
+    ("bands_summed", "number of bands in the sums"),
+    ("band_range_hz", "lowest-highest band summed"),
+), float_format="%.3f")

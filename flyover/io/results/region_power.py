@@ -1,0 +1,17 @@
+"""``region_power.csv``: per window, region and band, the integrated power at 1 m and its parts."""
+
+from flyover.io.results import TableFile
+
+REGION_POWER = TableFile("region_power.csv", (
+    ("window", "index"),
+    ("region", "region name, or 'total' for all regions together"),
+    ("band_hz", "nominal one-third-octave midband (IEC 61260-1)"),
+    ("power_1m_pa2", "Pa^2, band power of the region's sources at 1 m"),
+    ("map_sum_pa2", "Pa^2, the region's summed map"),
+    ("psf_sum_pa2", "Pa^2, the region's summed map of its unit source"),
+    ("unit_power_pa2", "Pa^2, the unit source's band power at 1 m"),
+    ("resolved", "region centres at least one main-lobe width apart"),
+    ("main_lobe_width_m", "m, 1.22 lambda z / D"),
+    ("band_valid", "the window can measure the band"),
+    ("band_note", "why not"),
+), float_format="%.6e")

@@ -1,0 +1,193 @@
+"""The campaign as plain data: what the config describes, in core types and SI units.
+
+These dataclasses are built by :mod:`flyover.io.config` from the user's YAML file; the core and the
+stages take them, never the raw config mapping.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, fields
+from pathlib import Path
+
+import numpy as np
+
+from flyover.acoustics.atmosphere import Atmosphere
+from flyover.geometry.frames import SiteFrame
+from flyover.model.errors import require
+
+MOUNTING_GAIN = {"ground-plate": 2.0, "free-field": 1.0}
+
+
+@dataclass(frozen=True)
+class Region:
+    """A rectangle of the vehicle grid (body axes x forward, y starboard), e.g. the propulsion."""
+
+    name: str
+    x_m: tuple[float, float]
+    y_m: tuple[float, float]
+
+    @property
+    def center_m(self) -> np.ndarray:
+        """Centre in body axes, shape (3,), on the grid plane z = 0."""
+        return np.array([0.5 * sum(self.x_m), 0.5 * sum(self.y_m), 0.0])
+
+    def contains(self, points_body_m) -> np.ndarray:
+        p = np.asarray(points_body_m, dtype=float)
+        return ((p[..., 0] >= self.x_m[0] - 1e-9) & (p[..., 0] <= self.x_m[1] + 1e-9)
+                & (p[..., 1] >= self.y_m[0] - 1e-9) & (p[..., 1] <= self.y_m[1] + 1e-9))
+
+
+@dataclass(frozen=True)
+class VehicleGrid:
+    """A rectangular grid attached to the vehicle, in body axes (plane z = z_m)."""
+
+    x_m: tuple[float, float]
+    y_m: tuple[float, float]
+    spacing_m: float
+    z_m: float = 0.0
+
+    def __post_init__(self):
+        require(self.spacing_m > 0, "grid spacing must be positive", "vehicle.grid.spacing_m",
+                "a spacing in metres such as 0.1", f"{self.spacing_m}")
+        for axis, (lo, hi) in (("x_m", self.x_m), ("y_m", self.y_m)):
+            require(lo <= hi, "grid range inverted", f"vehicle.grid.{axis}", "[min, max]",
+                    f"[{lo}, {hi}]")
+
+    @property
+    def x_axis_m(self) -> np.ndarray:
+        n = int(round((self.x_m[1] - self.x_m[0]) / self.spacing_m)) + 1
+        return self.x_m[0] + self.spacing_m * np.arange(n)
+
+    @property
+    def y_axis_m(self) -> np.ndarray:
+        n = int(round((self.y_m[1] - self.y_m[0]) / self.spacing_m)) + 1
+        return self.y_m[0] + self.spacing_m * np.arange(n)
+
+    @property
+    def shape(self) -> tuple[int, int]:
+        """(n_x, n_y)."""
+        return len(self.x_axis_m), len(self.y_axis_m)
+
+    def points_m(self) -> np.ndarray:
+        """Grid points in body axes, shape (n_x * n_y, 3), x varying slowest."""
+        gx, gy = np.meshgrid(self.x_axis_m, self.y_axis_m, indexing="ij")
+        return np.stack([gx.ravel(), gy.ravel(), np.full(gx.size, self.z_m)], axis=1)
+
+
+@dataclass(frozen=True)
+class AnalysisSettings:
+    """How windows, bands and levels are formed.
+
+    Attributes
+    ----------
+    window_s, hop_s : float
+        Emission-time window length and step.
+    band_min_hz, band_max_hz : float
+        One-third-octave bands analysed (exact midbands inside this range).
+    reference_distance_m : float
+    reference_atmosphere : Atmosphere
+    method : str
+        Imaging method by name (:mod:`flyover.imaging.methods`).
+    interpolation : str
+        ``"cubic"`` (4-point Lagrange) or ``"sinc"`` (windowed sinc, band-limited).
+    diagonal_removal : bool
+    max_polar_offset_deg : float
+        Windows whose polar angle is further than this from 90 deg are not analysed.
+    map_dynamic_range_db : float
+        Range shown under each map's peak in the figures.
+    spectra_polar_deg : tuple of float
+        Polar angles at which region spectra are tabulated and drawn.
+    """
+
+    window_s: float
+    hop_s: float
+    band_min_hz: float
+    band_max_hz: float
+    reference_distance_m: float
+    reference_atmosphere: Atmosphere
+    method: str = "time-domain"
+    interpolation: str = "cubic"
+    diagonal_removal: bool = True
+    max_polar_offset_deg: float = 60.0
+    map_dynamic_range_db: float = 15.0
+    spectra_polar_deg: tuple[float, ...] = (60.0, 75.0, 90.0, 105.0, 120.0)
+
+    def __post_init__(self):
+        require(self.window_s > 0 and self.hop_s > 0, "window and hop must be positive",
+                "analysis.window_s/hop_s", "positive durations in seconds",
+                f"{self.window_s}, {self.hop_s}")
+        require(math.isfinite(self.reference_distance_m) and self.reference_distance_m > 0,
+                "reference distance must be a positive finite distance",
+                "analysis.reference_distance_m", "a distance in metres such as 100",
+                f"{self.reference_distance_m}")
+        require(self.interpolation in ("cubic", "sinc"), "unknown interpolation",
+                "analysis.interpolation", "'cubic' or 'sinc'", f"'{self.interpolation}'")
+
+
+@dataclass(frozen=True)
+class PassSpec:
+    """One pass of the campaign: its files, clock and atmosphere."""
+
+    name: str
+    recording: Path
+    calibration: Path
+    track: Path
+    recording_start_utc_ns: int
+    clock_offset_s: float | str
+    atmosphere: Atmosphere
+    label: str = ""
+    rate_error_ppm: float = 0.0
+    track_time_scale: str = "utc"
+    track_height_datum: str = "ellipsoidal"
+    track_position_noise_m: float = 0.05
+    exclude_channels: tuple[int, ...] = ()
+    clock_anchor_m: tuple[float, float, float] | None = None
+    clock_search_s: float = 1.0
+    keep_channels: tuple[int, ...] = ()
+
+
+# What a per-pass stage may read of its pass: everything but the label, which only groups passes
+# in the campaign summary (a relabelled pass re-runs the summary, not the pass).
+PASS_SETTINGS = tuple(f"passes.{{pass}}.{f.name}" for f in fields(PassSpec) if f.name != "label")
+# What loading a pass reads (flyover.pipeline.context.load_pass): the array and the site frame.
+PASS_INPUTS = ("site", "geoid_undulation_m", "array", "config_path") + PASS_SETTINGS
+
+
+@dataclass(frozen=True)
+class ArraySpec:
+    layout: Path
+    mounting: str
+    height_datum: str = "ellipsoidal"
+    exclude_channels: tuple[int, ...] = ()
+    keep_channels: tuple[int, ...] = ()
+    extra_channels: tuple[int, ...] = ()
+
+    @property
+    def pressure_gain(self) -> float:
+        """G of the source model: 2 for ground-plate microphones, 1 in free field."""
+        return MOUNTING_GAIN[self.mounting]
+
+
+@dataclass(frozen=True)
+class Campaign:
+    """A whole campaign as described by its config file."""
+
+    config_path: Path
+    site: SiteFrame
+    geoid_undulation_m: float | None
+    array: ArraySpec
+    passes: dict[str, PassSpec]
+    grid: VehicleGrid
+    regions: dict[str, Region]
+    analysis: AnalysisSettings
+    output: Path
+    outline_m: tuple[tuple[float, float], ...] = ()
+    scenario: Path | None = None
+
+    def input_files(self) -> list[Path]:
+        """Every input file the campaign names: config, layout, recordings, calibrations, tracks."""
+        files = [self.config_path, self.array.layout]
+        for p in self.passes.values():
+            files += [p.recording, p.calibration, p.track]
+        return list(dict.fromkeys(files))

@@ -1,0 +1,39 @@
+"""Shared by stages: every microphone de-Dopplerized to one body point over a span."""
+
+from __future__ import annotations
+
+import numpy as np
+
+from flyover.acoustics.bands import third_octave_bands
+from flyover.geometry.windows import Window
+from flyover.imaging.dedoppler import (ChainSettings, dedopplerized_signals, reception_geometry,
+                                       required_frames)
+from flyover.model.campaign import Campaign
+from flyover.pipeline.context import PassInputs
+
+
+def dedopplerize_span(campaign: Campaign, inputs: PassInputs, start_s: float, n_samples: int,
+                      body_m) -> np.ndarray | None:
+    """The channels de-Dopplerized to a body point over ``n_samples`` of emission time.
+
+    Returns
+    -------
+    float32 array (n_mics, n_samples), or None when the track or the recording does not hold
+    the span (no absorption compensation: for checks and spectrograms, not for levels).
+    """
+    fs = inputs.recording.sample_rate_hz
+    track = inputs.track
+    if start_s < track.start_s or start_s + n_samples / fs > track.end_s:
+        return None
+    span = Window(-1, start_s, n_samples, fs, track.position(start_s), track.velocity(start_s),
+                  track.attitude_deg(start_s), 90.0, 0.0)
+    band = campaign.analysis.band_min_hz
+    settings = ChainSettings(third_octave_bands(band, band), np.ones(len(inputs.weights)),
+                             campaign.array.pressure_gain, "cubic", absorption=False)
+    geo = reception_geometry(track, span, [body_m], inputs.layout.enu_m, inputs.spec.atmosphere,
+                             settings.pressure_gain, node_step=settings.node_step)
+    first, count = required_frames(geo, inputs.clock, "cubic")
+    if first < 0 or first + count > inputs.recording.n_frames:
+        return None
+    signals = inputs.read_pressure_pa(first, count)
+    return dedopplerized_signals(signals, first, geo, inputs.clock, span, settings)[0]

@@ -1,0 +1,136 @@
+"""Stage: align a pass (clock, track, recording) and draw its track check figure."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+
+from flyover.acoustics.bands import third_octave_bands
+from flyover.geometry.windows import plan_windows
+from flyover.imaging.dedoppler import ChainSettings
+from flyover.io.figures import save_figure, track_figure
+from flyover.io.results.alignment import write_alignment
+from flyover.model.campaign import PASS_INPUTS, Campaign
+from flyover.model.errors import FlyoverInputError
+from flyover.model.reads import guarded
+from flyover.pipeline._span import dedopplerize_span
+from flyover.pipeline.context import load_pass, pass_summary
+from flyover.sync.clock_offset import estimate_clock_offset
+from flyover.sync.quality import (ChannelAccumulator, channel_quality, neighbour_coherence,
+                                  track_quality)
+
+# What this stage reads of the campaign (flyover.model.reads): its re-run fingerprint too.
+READS = PASS_INPUTS + ("analysis.window_s", "analysis.band_min_hz", "analysis.band_max_hz",
+                       "regions")
+
+
+
+def run(campaign: Campaign, pass_name: str, out_dir: Path) -> dict:
+    """Write ``alignment.json`` (clock, coverage, overhead time) and ``track.png``.
+
+    With ``clock_offset_s: auto`` the offset is estimated from the anchor source first and the
+    pass is aligned with it.
+    """
+    campaign = guarded(campaign, READS, stage="align", pass_name=pass_name)
+    inputs = load_pass(campaign, pass_name)
+    estimate = None
+    if inputs.spec.clock_offset_s == "auto":
+        estimate = _estimate_offset(campaign, inputs)
+        inputs = load_pass(campaign, pass_name, estimate.offset_s)
+    summary = pass_summary(inputs)
+    summary["recording_start_utc_ns"] = int(inputs.spec.recording_start_utc_ns)
+    summary["epoch_utc_ns"] = int(inputs.clock.epoch_utc_ns)
+    summary["rate_error_ppm"] = inputs.clock.rate_error_ppm
+    summary["clock_offset_source"] = "config"
+    quality = pass_channel_quality(campaign, inputs, summary["covered_s"], summary["overhead_s"])
+    flagged = [q["channel"] for q in quality if q["verdict"] != "ok"]
+    summary["channel_quality"] = quality
+    summary["quality_flagged_channels"] = flagged
+    kept = set(campaign.array.keep_channels) | set(inputs.spec.keep_channels)
+    summary["quality_excluded_channels"] = [c for c in flagged if c not in kept]
+    left_out = set(summary["quality_excluded_channels"])
+    summary["channels_used"] = sum(1 for c, w in zip(inputs.layout.channel, inputs.weights)
+                                   if w > 0 and int(c) not in left_out)
+    summary["track_quality"] = track_quality(inputs.track, summary["covered_s"])
+    if estimate is not None:
+        summary["clock_offset_source"] = (f"estimated from the anchor at body "
+                                          f"{list(inputs.spec.clock_anchor_m)} m")
+        summary["clock_estimate_contrast"] = estimate.contrast
+        summary["clock_scan_offsets_s"] = [round(float(v), 6) for v in estimate.scan_offsets_s]
+        summary["clock_scan_power"] = [round(float(v), 6) for v in estimate.scan_power]
+    fig = track_figure(inputs, summary)
+    save_figure(fig, Path(out_dir) / "track.png")
+    write_alignment(out_dir, summary)
+    return summary
+
+
+def _estimate_offset(campaign: Campaign, inputs):
+    """Clock offset from the anchor source, on up to five windows near overhead."""
+    an = campaign.analysis
+    spec = inputs.spec
+    fs = inputs.recording.sample_rate_hz
+    search = spec.clock_search_s
+    span = (search + 0.5, inputs.recording_span_s[1] - search - 0.5)
+    windows = plan_windows(inputs.track, inputs.layout.center_enu_m, span, an.window_s,
+                           an.window_s, fs, max_polar_offset_deg=30.0)
+    if not windows:
+        raise FlyoverInputError(
+            "no window near overhead to estimate the clock offset from", str(spec.recording),
+            f"a recording covering the overhead time with {search} s to spare on each side",
+            hint="set clock_search_s smaller, or give clock_offset_s as a number")
+    pick = windows[:: max(1, len(windows) // 5)][:5]
+    bands = third_octave_bands(max(an.band_min_hz, 250.0), an.band_max_hz)
+    settings = ChainSettings(bands, inputs.weights, campaign.array.pressure_gain, "cubic")
+    info = inputs.recording
+
+    def read_frames(first, n):
+        # Silence outside the recording: candidate offsets may look past its ends.
+        first_ok = max(0, first)
+        last_ok = min(info.n_frames, first + n)
+        out = np.zeros((len(inputs.channel_index), n), np.float32)
+        out[:, first_ok - first:last_ok - first] = inputs.read_pressure_pa(first_ok,
+                                                                           last_ok - first_ok)
+        return out
+
+    estimate = estimate_clock_offset(read_frames, inputs.track, pick, spec.clock_anchor_m,
+                                     inputs.layout.enu_m, spec.atmosphere, inputs.clock,
+                                     settings, max_offset_s=search)
+    if estimate.contrast < 1.5:
+        raise FlyoverInputError(
+            "the anchor source is not clear enough to estimate the clock offset",
+            str(spec.recording), "a beam-power peak at least 1.5 times the scan's median",
+            f"{estimate.contrast:.2f}",
+            "check clock_anchor_m, or give clock_offset_s as a number from a timing log")
+    return estimate
+
+
+def pass_channel_quality(campaign: Campaign, inputs, covered_s, overhead_s: float,
+                         coherence_span_s: float = 1.0) -> list[dict]:
+    """Channel statistics over the part of the recording the track covers (block by block), and
+    each channel's coherence with its neighbours at low frequency, on the signals de-Dopplerized
+    to the first region's centre over ``coherence_span_s`` of emission time around overhead
+    (aligned in source time, so the moving source's changing delays do not decorrelate them)."""
+    clock, info = inputs.clock, inputs.recording
+    first = max(0, int(np.floor(clock.sample_index(covered_s[0]))))
+    last = min(info.n_frames, int(np.ceil(clock.sample_index(covered_s[1]))) + 1)
+    acc = ChannelAccumulator(len(inputs.channel_index))
+    block = 1 << 16
+    for start in range(first, last, block):
+        acc.add(info.read(start, min(block, last - start), inputs.channel_index))
+    return channel_quality(acc, inputs.pa_per_unit, inputs.layout.enu_m, inputs.layout.channel,
+                           _aligned_coherence(campaign, inputs, overhead_s, coherence_span_s))
+
+
+def _aligned_coherence(campaign: Campaign, inputs, overhead_s: float, span_s: float):
+    """Low-band neighbour coherence of the de-Dopplerized channels, or None when the recording
+    does not hold the span."""
+    fs = inputs.recording.sample_rate_hz
+    centre = next(iter(campaign.regions.values())).center_m
+    aligned = dedopplerize_span(campaign, inputs, overhead_s - span_s / 2, int(span_s * fs),
+                                centre)
+    if aligned is None:
+        return None
+    band_lo = campaign.analysis.band_min_hz
+    return neighbour_coherence(aligned, fs, inputs.layout.enu_m,
+                               band_hz=(band_lo, 2.0 * band_lo))

@@ -1,0 +1,128 @@
+"""Stage: validate a campaign and every input file it names; summarise each pass."""
+
+from __future__ import annotations
+
+import tempfile
+from pathlib import Path
+
+import numpy as np
+
+from flyover.acoustics.bands import third_octave_bands
+from flyover.model.campaign import Campaign
+from flyover.model.errors import FlyoverInputError
+from flyover.pipeline.context import PassInputs, check_memory, load_pass, pass_summary
+
+BLOCK_FRAMES = 1 << 16
+
+
+def check_campaign(campaign: Campaign) -> list[dict]:
+    """Check everything a run will need and summarise each pass.
+
+    Raises :class:`FlyoverInputError` on the first problem: the output folder, every file of
+    every pass (headers, tables, tracks), the set-up as a whole (sample rates, windows and bands
+    against the recordings, memory) and the samples of the span each pass uses.
+    """
+    check_output_folder(campaign)
+    loaded = [load_pass(campaign, name) for name in campaign.passes]
+    rates = {p.spec.name: p.recording.sample_rate_hz for p in loaded}
+    if len(set(rates.values())) > 1:
+        raise FlyoverInputError(
+            "passes that share the array layout have different sample rates",
+            str(campaign.config_path), "one sample rate for the campaign's recordings",
+            ", ".join(f"{n}: {r:g} Hz" for n, r in rates.items()),
+            "a recorder setting changed between passes; resample or split the campaign")
+    summaries = []
+    for p in loaded:
+        check_memory(campaign, p)
+        summary = pass_summary(p)
+        _check_against_recording(campaign, p)
+        _check_samples(p, summary["covered_s"])
+        summaries.append(summary)
+    return summaries
+
+
+def _check_against_recording(campaign: Campaign, inputs: PassInputs) -> None:
+    """Windows and bands that the recording can hold."""
+    an = campaign.analysis
+    fs = inputs.recording.sample_rate_hz
+    if an.window_s > inputs.recording.duration_s:
+        raise FlyoverInputError(
+            "the analysis window is longer than the recording",
+            f"{campaign.config_path}, key analysis.window_s",
+            f"at most the {inputs.recording.duration_s:.2f} s of {inputs.spec.recording.name}",
+            f"{an.window_s} s", "use a shorter window_s (0.25-1 s is usual for drones)")
+    top = third_octave_bands(an.band_min_hz, an.band_max_hz).upper_hz[-1]
+    if top > fs / 2:
+        raise FlyoverInputError(
+            "bands above what the recording's sample rate can hold",
+            f"{campaign.config_path}, key analysis.band_max_hz",
+            f"bands whose upper edge lies below half the sample rate ({fs / 2:g} Hz)",
+            f"the band up to {top:.0f} Hz for {inputs.spec.recording.name} at {fs:g} Hz",
+            "lower band_max_hz")
+
+
+def _check_samples(inputs: PassInputs, covered_s) -> None:
+    """Finite samples everywhere in the span the pass uses, and not a silent recording."""
+    clock, rec = inputs.clock, inputs.recording
+    first = max(0, int(np.floor(clock.sample_index(covered_s[0]))))
+    last = min(rec.n_frames, int(np.ceil(clock.sample_index(covered_s[1]))) + 1)
+    peak = 0.0
+    for start in range(first, last, BLOCK_FRAMES):
+        # The reader refuses NaN or Inf samples, naming the channel and the frame.
+        block = rec.read(start, min(BLOCK_FRAMES, last - start), inputs.channel_index)
+        peak = max(peak, float(np.max(np.abs(block))))
+    if peak == 0.0:
+        raise FlyoverInputError(
+            "the recording holds only zeros where the track covers it", str(rec.path),
+            "sound on the microphone channels", f"all {len(inputs.channel_index)} channels "
+            f"silent from frame {first} to {last}",
+            "was the recorder armed, or the wrong file or channels chosen?")
+
+
+def check_output_folder(campaign: Campaign) -> None:
+    """Refuse an output folder that cannot be made, written, or that would mix with inputs."""
+    out = Path(campaign.output)
+    where = f"{campaign.config_path}, key output"
+    existing = next(p for p in (out, *out.parents) if p.exists())
+    if not existing.is_dir():
+        raise FlyoverInputError(
+            "the output folder is a file" if existing == out else
+            "the output folder lies below a file", where, "a folder path", f"{existing} is a file")
+    for f in campaign.input_files():
+        if f == out or out in f.parents:
+            raise FlyoverInputError(
+                "the output folder holds an input file", where,
+                "an output folder apart from the inputs (results are written in it)",
+                f"{f} is inside {out}", "use a folder of its own, e.g. output: results")
+    try:
+        tempfile.TemporaryFile(dir=existing).close()
+    except OSError as exc:
+        raise FlyoverInputError("the output folder cannot be written", where,
+                                f"a writable folder at {out}",
+                                f"{existing}: {exc.strerror}") from None
+
+
+def format_summary(campaign: Campaign, summaries: list[dict]) -> str:
+    """Human-readable text of :func:`check_campaign`'s result."""
+    lines = [f"campaign {campaign.config_path}",
+             f"  array: {summaries[0]['channels']} channels, aperture "
+             f"{summaries[0]['array_aperture_m']:.2f} m, {campaign.array.mounting}",
+             f"  grid: {campaign.grid.shape[0]} x {campaign.grid.shape[1]} points at "
+             f"{campaign.grid.spacing_m} m; regions: {', '.join(campaign.regions)}"]
+    for s in summaries:
+        clock = ("clock offset auto: the workflow estimates it from the anchor"
+                 if s["clock_offset_auto"] else f"clock offset {s['clock_offset_s']:+.3f} s")
+        lines += [
+            f"  {s['pass']} ({campaign.passes[s['pass']].label or 'no label'}): "
+            f"{s['channels_used']}/{s['channels']} "
+            f"channels, {s['duration_s']:.2f} s at {s['sample_rate_hz']:.0f} Hz",
+            f"    recording from {s['epoch_utc']} ({clock}); "
+            f"track {s['track_start_utc']} to {s['track_end_utc']}",
+            f"    track covers {s['covered_s'][1] - s['covered_s'][0]:.2f} s of the recording; "
+            f"overhead at {s['overhead_utc']} (t = {s['overhead_s']:.2f} s)",
+            f"    closest {s['closest_distance_m']:.1f} m, "
+            f"height {s['height_above_array_m']:.1f} m, "
+            f"speed {s['speed_m_s']:.1f} m/s, c = {s['speed_of_sound_m_s']:.2f} m/s, "
+            f"track noise ~{s['track_noise_estimate_m'] * 100:.1f} cm"]
+    lines.append("all inputs are valid")
+    return "\n".join(lines)

@@ -1,0 +1,130 @@
+"""Stage: per window, de-Dopplerized maps on the vehicle grid and the region powers."""
+
+from __future__ import annotations
+
+import io
+import sys
+from pathlib import Path
+
+import numba
+import numpy as np
+import pandas as pd
+
+from flyover.acoustics.bands import third_octave_bands
+from flyover.geometry.windows import plan_windows
+from flyover.imaging.dedoppler import ChainSettings, valid_bands
+from flyover.imaging.methods import method_named
+from flyover.imaging.resolution import main_lobe_width_m, regions_resolved
+from flyover.imaging.window import TOTAL, image_window, window_context
+from flyover.io.figures import map_figure, save_figure
+from flyover.io.results.maps import write_maps
+from flyover.io.results.region_power import REGION_POWER
+from flyover.io.results.windows import NO_WINDOW, WINDOWS
+from flyover.model.campaign import PASS_INPUTS, Campaign
+from flyover.model.reads import guarded
+from flyover.pipeline.context import check_memory, load_aligned_pass
+from flyover.pipeline.progress import Progress
+from flyover.sync.timebase import iso_utc
+
+# What this stage reads of the campaign (flyover.model.reads): its re-run fingerprint too.
+READS = PASS_INPUTS + ("grid", "regions", "outline_m", "analysis.window_s", "analysis.hop_s",
+                       "analysis.band_min_hz", "analysis.band_max_hz", "analysis.method",
+                       "analysis.interpolation", "analysis.diagonal_removal",
+                       "analysis.max_polar_offset_deg", "analysis.map_dynamic_range_db")
+
+
+
+def run(campaign: Campaign, pass_name: str, out_dir: Path, *, threads: int = 1,
+        quiet: bool = False) -> None:
+    """Image every window of a pass; write maps.npz, windows.csv, region_power.csv, figures."""
+    campaign = guarded(campaign, READS, stage="image", pass_name=pass_name)
+    numba.set_num_threads(max(1, threads))
+    out_dir = Path(out_dir)
+    inputs, _ = load_aligned_pass(campaign, pass_name, out_dir)
+    check_memory(campaign, inputs)
+    an = campaign.analysis
+    atm = inputs.spec.atmosphere
+    clock = inputs.clock
+    bands = third_octave_bands(an.band_min_hz, an.band_max_hz)
+    fs = inputs.recording.sample_rate_hz
+    settings = ChainSettings(bands, inputs.weights, campaign.array.pressure_gain,
+                             an.interpolation)
+    points = campaign.grid.points_m()
+    method = method_named(an.method)
+    mics = inputs.layout.enu_m
+    windows = plan_windows(inputs.track, inputs.layout.center_enu_m, inputs.recording_span_s,
+                           an.window_s, an.hop_s, fs,
+                           max_polar_offset_deg=an.max_polar_offset_deg)
+    centers = [r.center_m for r in campaign.regions.values()]
+    progress = Progress(len(windows), f"{pass_name} imaging",
+                        stream=io.StringIO() if quiet else None)
+    rows, region_rows, maps_dr, maps_full, done = [], [], [], [], []
+    nx, ny = campaign.grid.shape
+    for w in windows:
+        row = _window_row(w, clock, inputs.layout.center_enu_m)
+        ctx = window_context(w, track=inputs.track, clock=clock, atmosphere=atm, mic_enu_m=mics,
+                             grid_points_m=points, settings=settings,
+                             diagonal_removal=an.diagonal_removal, workers=threads)
+        geo, first, n = ctx.geometry, ctx.first_frame, ctx.n_frames
+        if first < 0 or first + n > inputs.recording.n_frames:
+            row.update(status="skipped", reason="sound reaches the array outside the recording")
+            rows.append(row)
+            progress.step(f"window {w.index} skipped")
+            continue
+        signals = inputs.read_pressure_pa(first, n)
+        res = image_window(signals, ctx, method=method, grid_points_m=points,
+                           regions=campaign.regions)
+        resolved = regions_resolved(centers, bands.center_hz, w.distance_m,
+                                    inputs.layout.aperture_m, atm.c_m_s)
+        width = main_lobe_width_m(bands.center_hz, w.distance_m, inputs.layout.aperture_m,
+                                  atm.c_m_s)
+        valid, why = valid_bands(geo, w, settings)
+        for name in list(campaign.regions) + [TOTAL]:
+            single = name != TOTAL
+            for b in range(len(bands)):
+                region_rows.append({
+                    "window": w.index, "region": name, "band_hz": bands.nominal_hz[b],
+                    "power_1m_pa2": res.region_power[name][b],
+                    "map_sum_pa2": res.region_map_sum[name][b] if single else np.nan,
+                    "psf_sum_pa2": res.region_psf_sum[name][b] if single else np.nan,
+                    "unit_power_pa2": res.unit_power[name][b] if single else np.nan,
+                    "resolved": bool(resolved[b]) if single else True,
+                    "main_lobe_width_m": width[b],
+                    "band_valid": bool(valid[b]), "band_note": why[b]})
+        row.update(status="analysed", reason="")
+        rows.append(row)
+        maps_dr.append(res.diagonal_removed.T.reshape(len(bands), nx, ny))
+        maps_full.append(res.full.T.reshape(len(bands), nx, ny))
+        done.append(w)
+        fig = map_figure(res.diagonal_removed if an.diagonal_removal else res.full, campaign,
+                         bands, pass_name, row, an.map_dynamic_range_db)
+        save_figure(fig, out_dir / "maps" / f"window-{w.index:03d}.png")
+        progress.step(f"window {w.index} at {w.polar_angle_deg:.0f} deg")
+    progress.close()
+    if not windows:
+        print(f"{pass_name}: {NO_WINDOW}", file=sys.stderr)
+    # The figures' folder exists even when no window could be analysed: the step still succeeded.
+    (out_dir / "maps").mkdir(parents=True, exist_ok=True)
+    WINDOWS.write(out_dir, pd.DataFrame(rows))
+    REGION_POWER.write(out_dir, pd.DataFrame(region_rows))
+    shape = (len(done), len(bands)) + campaign.grid.shape
+    write_maps(out_dir, x_m=campaign.grid.x_axis_m, y_m=campaign.grid.y_axis_m,
+               band_hz=bands.nominal_hz, band_center_hz=bands.center_hz,
+               window=[w.index for w in done],
+               time_utc_ns=[clock.utc_ns(w.center_s) for w in done],
+               polar_angle_deg=[w.polar_angle_deg for w in done],
+               diagonal_removed=np.array(maps_dr, np.float32).reshape(shape),
+               full=np.array(maps_full, np.float32).reshape(shape))
+
+
+def _window_row(w, clock, array_center) -> dict:
+    return {"window": w.index, "status": "", "reason": "",
+            "start_utc": iso_utc(int(clock.utc_ns(w.start_s))),
+            "time_utc": iso_utc(int(clock.utc_ns(w.center_s))),
+            "center_s": w.center_s, "duration_s": w.n_samples / w.sample_rate_hz,
+            "east_m": w.position_enu_m[0], "north_m": w.position_enu_m[1],
+            "up_m": w.position_enu_m[2],
+            "height_m": w.position_enu_m[2] - array_center[2], "speed_m_s": w.speed_m_s,
+            "yaw_deg": w.attitude_deg[0], "pitch_deg": w.attitude_deg[1],
+            "roll_deg": w.attitude_deg[2], "polar_angle_deg": w.polar_angle_deg,
+            "distance_m": w.distance_m}

@@ -1,0 +1,57 @@
+"""Stage: check figures of a pass: the track with the analysed windows, and spectrograms of one
+microphone beside the de-Dopplerized signal of the vehicle's main region."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+from scipy.signal import spectrogram
+
+from flyover.io.figures import save_figure, spectrogram_figure, track_figure
+from flyover.io.results.windows import read_analysed
+from flyover.model.campaign import PASS_INPUTS, Campaign
+from flyover.model.reads import guarded
+from flyover.pipeline._span import dedopplerize_span
+from flyover.pipeline.context import load_aligned_pass, pass_summary
+
+# What this stage reads of the campaign (flyover.model.reads): its re-run fingerprint too.
+READS = PASS_INPUTS + ("regions", "analysis.band_min_hz", "analysis.band_max_hz")
+
+
+
+def run(campaign: Campaign, pass_name: str, out_dir: Path) -> None:
+    """Write qc_track.png and qc_spectrogram.png for one pass."""
+    campaign = guarded(campaign, READS, stage="qc", pass_name=pass_name)
+    out_dir = Path(out_dir)
+    inputs, _ = load_aligned_pass(campaign, pass_name, out_dir)
+    summary = pass_summary(inputs)
+    done = read_analysed(out_dir)
+    save_figure(track_figure(inputs, summary, done["center_s"].to_numpy()),
+                out_dir / "qc_track.png")
+    fs = inputs.recording.sample_rate_hz
+    main = next(iter(campaign.regions.values()))
+    a = None
+    if len(done):
+        start = float(done["center_s"].min() - done["duration_s"].iloc[0] / 2)
+        n = int((done["center_s"].max() + done["duration_s"].iloc[0] / 2 - start) * fs)
+        # None when the span runs past the recording for the region centre.
+        a = dedopplerize_span(campaign, inputs, start, n, main.center_m)
+    if a is None:
+        save_figure(spectrogram_figure(None, None, pass_name, "", 1.0), out_dir /
+                    "qc_spectrogram.png")
+        return
+    used = inputs.weights > 0
+    beam = np.average(a[used], axis=0, weights=inputs.weights[used])
+    # The same stretch as received: emission times plus about the closest travel time.
+    delay_s = summary["closest_distance_m"] / inputs.spec.atmosphere.c_m_s
+    first = max(0, int(inputs.clock.sample_index(start + delay_s)))
+    signals = inputs.read_pressure_pa(first, min(n, inputs.recording.n_frames - first))
+    mic = int(np.argmin(np.linalg.norm(inputs.layout.enu_m - inputs.layout.center_enu_m, axis=1)))
+    nper = int(2 ** np.round(np.log2(0.08 * fs)))
+    raw = spectrogram(signals[mic].astype(float), fs, nperseg=nper, noverlap=nper * 3 // 4)
+    dd = spectrogram(beam.astype(float), fs, nperseg=nper, noverlap=nper * 3 // 4)
+    fig = spectrogram_figure(raw, dd, pass_name,
+                             f"channel {inputs.layout.channel[mic]} (as received)",
+                             campaign.analysis.band_max_hz * 1.2, main.name)
+    save_figure(fig, out_dir / "qc_spectrogram.png")

@@ -1,0 +1,265 @@
+"""Stage: one self-contained HTML report of the campaign (figures embedded, no external links)."""
+
+from __future__ import annotations
+
+import base64
+import hashlib
+import html
+import platform
+from datetime import datetime, timezone
+from importlib import metadata
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from flyover import __version__
+from flyover.io.atomic import write_text
+from flyover.io.results.alignment import read_alignment
+from flyover.io.results.campaign_tables import CAMPAIGN_LEVELS, CAMPAIGN_OVERALL
+from flyover.io.results.windows import WINDOWS
+from flyover.model.campaign import Campaign
+from flyover.model.reads import guarded
+
+CAUTION = ("Outdoor flight tests and their measurements must follow the applicable "
+           "noise-certification standards, aviation rules and local regulations; flyover defers "
+           "to them and is no substitute for them. Flying near people and microphones needs the "
+           "operator's own risk assessment.")
+PACKAGES = ("numpy", "scipy", "pandas", "pyproj", "matplotlib", "snakemake", "numba",
+            "soundfile", "PyYAML", "jsonschema")
+FULL_DIGEST_BYTES = 1 << 30  # files above this get a partial digest (head, tail and size)
+
+_STYLE = """
+body{font-family:system-ui,-apple-system,"Segoe UI",sans-serif;color:#2b3440;background:#faf8f4;
+max-width:1180px;margin:0 auto;padding:24px 28px;line-height:1.45}
+h1{font-size:1.7em;margin-bottom:0}h2{border-bottom:2px solid #d08a1f;padding-bottom:4px;
+margin-top:2.2em}h3{color:#1f7a78}table{border-collapse:collapse;font-size:.85em;margin:10px 0}
+th,td{border:1px solid #ddd6c8;padding:3px 7px;text-align:right}th{background:#efe9dd}
+td.t,th.t{text-align:left}tr.flag td,td.flag{background:#fbe3d2}h4{margin:14px 0 2px}
+img{max-width:100%;border:1px solid #ddd6c8;background:white;margin:6px 0}
+.caution{border-left:5px solid #b03a2e;background:#fff4ef;padding:10px 14px}.muted{color:#6b7380;font-size:.9em}.warn{color:#b03a2e}
+nav a{margin-right:14px;color:#1f7a78}
+"""
+
+# What this stage reads of the campaign (flyover.model.reads): everything it reports.
+READS = ("",)
+
+
+
+def file_digest(path: Path) -> str:
+    """SHA-256 of a file; for files over 1 GiB, of its size, first and last 16 MiB ('partial')."""
+    path = Path(path)
+    h = hashlib.sha256()
+    size = path.stat().st_size
+    with open(path, "rb") as fh:
+        if size <= FULL_DIGEST_BYTES:
+            for chunk in iter(lambda: fh.read(1 << 20), b""):
+                h.update(chunk)
+            return h.hexdigest()
+        h.update(str(size).encode())
+        h.update(fh.read(16 << 20))
+        fh.seek(-(16 << 20), 2)
+        h.update(fh.read())
+    return "partial:" + h.hexdigest()
+
+
+def _img(path: Path, alt: str) -> str:
+    if not Path(path).exists():
+        return f'<p class="muted">({html.escape(alt)}: not available)</p>'
+    data = base64.b64encode(Path(path).read_bytes()).decode("ascii")
+    return f'<img alt="{html.escape(alt)}" src="data:image/png;base64,{data}">'
+
+
+def _table(df: pd.DataFrame, flag_column: str | None = None, max_rows: int = 400) -> str:
+    if df is None or len(df) == 0:
+        return '<p class="muted">(no rows)</p>'
+    rows = []
+    cols = list(df.columns)
+    head = "".join(f'<th class="{"t" if df[c].dtype == object else ""}">{html.escape(str(c))}</th>'
+                   for c in cols)
+    for _, r in df.head(max_rows).iterrows():
+        flag = flag_column is not None and bool(r[flag_column])
+        cells = []
+        for c in cols:
+            v = r[c]
+            if isinstance(v, (float, np.floating)):
+                text = "" if not np.isfinite(v) else f"{v:.1f}" if abs(v) >= 10 else f"{v:.2f}"
+                cells.append(f"<td>{text}</td>")
+            else:
+                cells.append(f'<td class="t">{html.escape(str(v))}</td>')
+        rows.append(f'<tr class="{"flag" if flag else ""}">{"".join(cells)}</tr>')
+    more = (f'<p class="muted">{len(df) - max_rows} more rows in the CSV file.</p>'
+            if len(df) > max_rows else "")
+    return f"<table><tr>{head}</tr>{''.join(rows)}</table>{more}"
+
+
+def _level_grids(table: pd.DataFrame, group: list[str], row: str, row_text,
+                 header: str) -> str:
+    """Per group (label, region, ...): ``row`` down, polar bins across, the mean level in each
+    cell; cells whose 90 % interval is wider than +-1.5 dB are shaded, single-pass cells are in
+    italics."""
+    if len(table) == 0:
+        return '<p class="muted">(no levels)</p>'
+    parts = []
+    for key, g in table.groupby(group, sort=False):
+        grid = {v: g.pivot_table(index=row, columns="polar_bin_deg", values=v, aggfunc="first")
+                for v in ("mean_db", "wide_interval", "n_passes")}
+        mean = grid["mean_db"]
+        head = "".join(f"<th>{c:g}&deg;</th>" for c in mean.columns)
+        rows = []
+        for r, values in mean.iterrows():
+            cells = []
+            for col, v in values.items():
+                if not np.isfinite(v):
+                    cells.append("<td></td>")
+                    continue
+                text = f"{v:.1f}" if grid["n_passes"].loc[r, col] > 1 else f"<i>{v:.1f}</i>"
+                cls = "flag" if bool(grid["wide_interval"].loc[r, col]) else ""
+                cells.append(f'<td class="{cls}">{text}</td>')
+            rows.append(f"<tr><th>{html.escape(row_text(r))}</th>{''.join(cells)}</tr>")
+        title = ": ".join(html.escape(str(k)) for k in (key if isinstance(key, tuple) else (key,)))
+        parts.append(f"<h4>{title}</h4><table><tr><th>{html.escape(header)}</th>{head}</tr>"
+                     f"{''.join(rows)}</table>")
+    return "".join(parts)
+
+
+def _pass_section(campaign: Campaign, name: str, out: Path) -> str:
+    d = out / name
+    al = read_alignment(d)
+    spec = campaign.passes[name]
+    atm = spec.atmosphere
+    windows = WINDOWS.read(d)
+    done = windows[windows["status"] == "analysed"]
+    warnings = []
+    for q in al.get("channel_quality", []):
+        if q["verdict"] != "ok":
+            kept = q["channel"] not in al.get("quality_excluded_channels", [])
+            warnings.append(f"channel {q['channel']}: {q['verdict']} "
+                            f"({q['level_re_median_db']:+.1f} dB re array median, "
+                            f"{q['level_re_neighbours_db']:+.1f} dB re neighbours)"
+                            + ("; kept by the config" if kept else "; left out of beamforming"))
+    skipped = windows[windows["status"] == "skipped"]
+    if len(skipped):
+        warnings.append(f"{len(skipped)} window(s) skipped: "
+                        + "; ".join(sorted(set(skipped["reason"].astype(str)))))
+    tq = al.get("track_quality", {})
+    if tq.get("position_noise_estimate_m", 0) > 3 * spec.track_position_noise_m:
+        warnings.append(f"track noise estimate {tq['position_noise_estimate_m']:.3f} m is over "
+                        f"three times the stated {spec.track_position_noise_m} m")
+    conditions = pd.DataFrame([{
+        "label": spec.label, "temperature (C)": atm.temperature_c,
+        "humidity (%)": atm.relative_humidity_pct, "pressure (kPa)": atm.pressure_kpa,
+        "wind (m/s)": atm.wind_speed_m_s, "wind from (deg)": atm.wind_from_deg,
+        "speed of sound (m/s)": atm.c_m_s, "clock offset (s)": al["clock_offset_s"],
+        "clock offset from": al.get("clock_offset_source", "config"),
+        "overhead (UTC)": al["overhead_utc"], "closest (m)": al["closest_distance_m"],
+        "height (m)": al["height_above_array_m"], "speed (m/s)": al["speed_m_s"],
+        "channels used": f"{al['channels_used']}/{al['channels']}"}]).T.reset_index()
+    conditions.columns = ["quantity", "value"]
+    conditions["value"] = conditions["value"].astype(str)
+    maps = []
+    if len(done):
+        for target in (60.0, 90.0, 120.0):
+            k = int((done["polar_angle_deg"] - target).abs().idxmin())
+            w = int(done.loc[k, "window"])
+            maps.append(_img(d / "maps" / f"window-{w:03d}.png", f"maps of window {w}"))
+    maps = list(dict.fromkeys(maps))
+    warn_html = ("<ul>" + "".join(f'<li class="warn">{html.escape(w)}</li>' for w in warnings)
+                 + "</ul>") if warnings else "<p>No data-quality warnings.</p>"
+    return f"""
+<h2 id="pass-{html.escape(name)}">Pass {html.escape(name)}</h2>
+<section class="pass" data-pass="{html.escape(name)}">
+<h3>Conditions and alignment</h3>{_table(conditions)}
+<h3>Data quality</h3>{warn_html}
+<h3>Track</h3>{_img(d / "qc_track.png", "track over the array")}
+<h3>Spectrograms</h3>{_img(d / "qc_spectrogram.png", "spectrograms")}
+<h3>Source maps</h3><p class="muted">Windows nearest to polar angles 60, 90 and 120 deg; each
+panel in dB re its own peak over {campaign.analysis.map_dynamic_range_db:g} dB.</p>{''.join(maps)}
+<h3>Region spectra</h3>{_img(d / "spectra.png", "region spectra")}
+<h3>Directivity</h3>{_img(d / "directivity.png", "directivity")}
+</section>"""
+
+
+def _processing_time_s(out: Path) -> float:
+    """Sum of the wall times in the workflow's benchmark files (0 when there are none)."""
+    total = 0.0
+    for tsv in sorted((out / "benchmarks").rglob("*.tsv")) if (out / "benchmarks").exists() else []:
+        try:
+            total += float(pd.read_csv(tsv, sep="\t")["s"].iloc[-1])
+        except (KeyError, IndexError, ValueError, pd.errors.EmptyDataError):
+            continue
+    return total
+
+
+def run(campaign: Campaign, out_dir: Path) -> None:
+    """Write ``report.html`` from the results already in ``out_dir``."""
+    campaign = guarded(campaign, READS, stage="report")
+    out = Path(out_dir)
+    camp = CAMPAIGN_LEVELS.read(out)
+    overall = CAMPAIGN_OVERALL.read(out)
+    passes = pd.DataFrame([{"pass": n, "label": p.label,
+                            "temperature (C)": p.atmosphere.temperature_c,
+                            "humidity (%)": p.atmosphere.relative_humidity_pct,
+                            "wind (m/s)": p.atmosphere.wind_speed_m_s,
+                            "recording": p.recording.name} for n, p in campaign.passes.items()])
+    shown = camp[np.isfinite(camp["mean_db"])] if len(camp) else camp
+    n_flags = int(shown["wide_interval"].sum()) if len(shown) else 0
+    an = campaign.analysis
+    digests = pd.DataFrame([{"file": str(f), "sha256": file_digest(f)}
+                            for f in campaign.input_files()])
+    versions = pd.DataFrame([{"software": "flyover", "version": __version__},
+                             {"software": "python", "version": platform.python_version()}]
+                            + [{"software": p, "version": _version(p)} for p in PACKAGES])
+    now = datetime.now(timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
+    nav = " ".join(f'<a href="#pass-{html.escape(n)}">{html.escape(n)}</a>'
+                   for n in campaign.passes)
+    body = f"""<!DOCTYPE html>
+<html lang="en"><head><meta charset="utf-8">
+<meta http-equiv="Content-Security-Policy" content="default-src 'none'; img-src data:; style-src 'unsafe-inline'">
+<title>flyover report: {html.escape(campaign.config_path.stem)}</title>
+<style>{_STYLE}</style></head><body>
+<h1>Flyover campaign report</h1>
+<p class="muted">{html.escape(str(campaign.config_path))} &middot; generated {now}</p>
+<p class="caution"><strong>Caution.</strong> {html.escape(CAUTION)}</p>
+<nav><a href="#summary">summary</a>{nav}<a href="#provenance">provenance</a></nav>
+<h2 id="summary">Campaign summary</h2>
+<section id="campaign-summary">
+{_table(passes)}
+<p>Levels at {an.reference_distance_m:g} m in the reference atmosphere
+({an.reference_atmosphere.temperature_c:g} &deg;C, {an.reference_atmosphere.relative_humidity_pct:g} %
+RH), free field, convective amplification removed. Per configuration label, region,
+one-third-octave band and 10&deg; polar-angle bin: the mean over passes, its standard
+deviation, the number of passes and the 90&nbsp;% confidence interval of the mean (Student t).
+Means whose interval is wider than &plusmn;1.5&nbsp;dB are shaded ({n_flags} band cells here).</p>
+{_img(out / "campaign_overall.png", "campaign A-weighted levels")}
+<h3>Overall and A-weighted levels</h3>
+<p class="muted">Mean level (dB) per polar bin; shaded: interval wider than &plusmn;1.5&nbsp;dB;
+italics: one pass only. Regions sum the bands where they are resolved, 'total' sums all bands.
+</p>
+{_level_grids(overall, ["label", "quantity"], "region", str, "region")}
+<h3>Band levels</h3>
+<p class="muted">Mean level (dB) per band and polar bin; shaded: interval wider than
+&plusmn;1.5&nbsp;dB; italics: one pass only; empty: not resolved or not measurable. All columns,
+with standard deviations and intervals, are in campaign_levels.csv.</p>
+{_level_grids(shown, ["label", "region"], "band_hz", lambda b: f"{b:g} Hz", "band")}
+</section>
+{''.join(_pass_section(campaign, n, out) for n in campaign.passes)}
+<h2 id="provenance">Provenance</h2>
+<section id="provenance-details">
+<p>Config digest (SHA-256): <code>{file_digest(campaign.config_path)}</code></p>
+<p>Report written {now}; processing time of the workflow's jobs so far
+{_processing_time_s(out):.0f} s.</p>
+{_table(versions)}
+<h3>Input files</h3>{_table(digests)}
+</section>
+<p class="caution">{html.escape(CAUTION)}</p>
+</body></html>
+"""
+    write_text(out / "report.html", body)
+
+
+def _version(name: str) -> str:
+    try:
+        return metadata.version(name)
+    except metadata.PackageNotFoundError:
+        return "not installed"

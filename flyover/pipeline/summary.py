@@ -1,0 +1,77 @@
+"""Stage: the campaign summary: per label, region, band and polar bin, the mean over passes."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from flyover.acoustics.statistics import (WIDE_INTERVAL_DB, energetic_mean_db, mean_and_interval,
+                                          polar_bin_deg)
+from flyover.io.figures import campaign_figure, save_figure
+from flyover.io.results.campaign_tables import CAMPAIGN_LEVELS, CAMPAIGN_OVERALL
+from flyover.io.results.levels import LEVELS
+from flyover.io.results.levels_overall import LEVELS_OVERALL
+from flyover.model.campaign import Campaign
+from flyover.model.reads import guarded
+
+POLAR_BIN_DEG = 10.0
+
+# What this stage reads of the campaign (flyover.model.reads): its re-run fingerprint too.
+READS = ("passes",)
+
+
+
+def pass_bins(levels: pd.DataFrame, value: str, keys: list[str]) -> pd.DataFrame:
+    """Energetic mean of a pass's windows within each polar bin."""
+    if len(levels) == 0:
+        return pd.DataFrame(columns=keys + ["polar_bin_deg", value])
+    d = levels.assign(polar_bin_deg=polar_bin_deg(levels["polar_angle_deg"], POLAR_BIN_DEG))
+    return (d.groupby(keys + ["polar_bin_deg"])[value].apply(energetic_mean_db)
+            .reset_index())
+
+
+def summarise(per_pass: dict[str, pd.DataFrame], labels: dict[str, str], value: str,
+              keys: list[str]) -> pd.DataFrame:
+    """Mean over the passes of each label, with spread, count and 90 % interval."""
+    rows = []
+    frames = []
+    for name, table in per_pass.items():
+        b = pass_bins(table, value, keys)
+        b["label"] = labels[name] or "unlabelled"
+        b["pass"] = name
+        frames.append(b)
+    if not frames:
+        return pd.DataFrame()
+    allb = pd.concat(frames, ignore_index=True)
+    for key, g in allb.groupby(["label"] + keys + ["polar_bin_deg"], sort=True):
+        s = mean_and_interval(g[value])
+        row = dict(zip(["label"] + keys + ["polar_bin_deg"], key))
+        row.update(s)
+        row["passes"] = " ".join(sorted(g.loc[np.isfinite(g[value]), "pass"]))
+        row["wide_interval"] = bool(np.isfinite(s["ci_half_width_db"])
+                                    and s["ci_half_width_db"] > WIDE_INTERVAL_DB)
+        rows.append(row)
+    out = pd.DataFrame(rows).rename(columns={"n": "n_passes"})
+    return out
+
+
+def run(campaign: Campaign, out_dir: Path) -> None:
+    """Write campaign_levels.csv (bands), campaign_overall.csv (overall, A-weighted) and
+    campaign_overall.png."""
+    campaign = guarded(campaign, READS, stage="summary")
+    out_dir = Path(out_dir)
+    labels = {n: p.label for n, p in campaign.passes.items()}
+    bands = {n: LEVELS.read(out_dir / n) for n in campaign.passes}
+    overall = {n: LEVELS_OVERALL.read(out_dir / n) for n in campaign.passes}
+    table = summarise(bands, labels, "level_db", ["region", "band_hz"])
+    CAMPAIGN_LEVELS.write(out_dir, table)
+    parts = []
+    for value in ("overall_db", "a_weighted_db"):
+        s = summarise(overall, labels, value, ["region"])
+        s.insert(2, "quantity", "overall" if value == "overall_db" else "A-weighted")
+        parts.append(s)
+    overall_table = pd.concat(parts, ignore_index=True)
+    CAMPAIGN_OVERALL.write(out_dir, overall_table)
+    save_figure(campaign_figure(overall_table), out_dir / "campaign_overall.png")

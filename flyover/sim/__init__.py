@@ -1,0 +1,1 @@
+"""Simulated scenarios and the writer of a whole simulated campaign (the demo)."""

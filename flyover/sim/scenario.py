@@ -1,0 +1,153 @@
+"""Simulated campaigns: straight passes over a spiral array, with noise and GNSS errors.
+
+The physics lives in :mod:`flyover.forward.moving_source`; this module only sets up scenarios.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from flyover.acoustics.atmosphere import Atmosphere
+from flyover.forward.moving_source import (PointSource, Propagator, SourceSignal,
+                                           received_pressure_pa)
+from flyover.geometry.track import TrackModel, fit_track
+from flyover.model.constants import P0_PA
+
+
+def straight_track(speed_m_s: float, height_m: float, heading_deg: float, overhead_s: float,
+                   start_s: float, end_s: float, *, over_enu_m=(0.0, 0.0), climb_m_s: float = 0.0,
+                   pitch_deg: float = 0.0, roll_deg: float = 0.0, rate_hz: float = 50.0):
+    """A true straight, constant-speed path as a :class:`TrackModel`, and its exact samples.
+
+    The vehicle passes over ``over_enu_m`` (east, north) at ``overhead_s`` at ``height_m``.
+
+    Returns
+    -------
+    model : TrackModel
+    time_s : ndarray, shape (n,)
+    enu_m : ndarray, shape (n, 3)
+    attitude_deg : ndarray, shape (n, 3)
+        yaw, pitch, roll.
+    """
+    t = np.arange(start_s, end_s + 1.0 / rate_hz, 1.0 / rate_hz)
+    h = np.deg2rad(heading_deg)
+    d = t - overhead_s
+    enu = np.stack([over_enu_m[0] + speed_m_s * np.sin(h) * d,
+                    over_enu_m[1] + speed_m_s * np.cos(h) * d,
+                    height_m + climb_m_s * d], axis=1)
+    att = np.tile([heading_deg % 360.0, pitch_deg, roll_deg], (len(t), 1))
+    return fit_track(t, enu, 1e-6, attitude_deg=att), t, enu, att
+
+
+def incoherent_noise_pa(n_mics: int, n_samples: int, spl_db: float, seed: int) -> np.ndarray:
+    """White Gaussian noise, independent per microphone, at an overall SPL (dB re 20 uPa)."""
+    rng = np.random.default_rng(seed)
+    return rng.standard_normal((n_mics, n_samples)) * P0_PA * 10.0 ** (spl_db / 20.0)
+
+
+@dataclass(frozen=True)
+class PassScenario:
+    """One simulated pass: a straight, constant-speed line over the array.
+
+    Times are relative to the true epoch of the recording (its first sample). The vehicle is
+    overhead ``overhead_s`` after it, ``cross_offset_m`` to the right of the array centre.
+    """
+
+    name: str
+    label: str
+    speed_m_s: float
+    height_m: float
+    heading_deg: float
+    duration_s: float
+    overhead_s: float
+    recording_start_utc_ns: int
+    clock_offset_s: float
+    atmosphere: Atmosphere
+    cross_offset_m: float = 0.0
+    gain_db: dict = field(default_factory=dict)
+    pitch_deg: float = 0.0
+    seed: int = 0
+
+
+@dataclass(frozen=True)
+class Scenario:
+    """A whole simulated campaign."""
+
+    name: str
+    mic_enu_m: np.ndarray
+    pressure_gain: float
+    sources: tuple[PointSource, ...]
+    passes: tuple[PassScenario, ...]
+    sample_rate_hz: float
+    noise_spl_db: float
+    pa_per_unit: float
+    calibration_spread_db: float
+    gnss_rate_hz: float
+    gnss_noise_m: float
+    track_margin_s: float = 3.0
+
+
+@dataclass
+class SimulatedPass:
+    """The arrays of one simulated pass (written to files by the simulate stage)."""
+
+    units: np.ndarray                # (n_mics, n_samples), recorded values, full scale +-1
+    pa_per_unit: np.ndarray          # (n_mics,), the calibration the recorder really had
+    truth: TrackModel
+    gnss_time_s: np.ndarray          # (n,) seconds after the epoch
+    gnss_enu_m: np.ndarray           # (n, 3)
+    gnss_attitude_deg: np.ndarray    # (n, 3) yaw, pitch, roll
+
+
+def pass_truth_track(scenario: Scenario, ps: PassScenario) -> TrackModel:
+    """The true path of a pass (straight line through the overhead point)."""
+    h = np.deg2rad(ps.heading_deg)
+    right = np.array([np.cos(h), -np.sin(h)])  # starboard of the heading, horizontal
+    over = scenario.mic_enu_m[:, :2].mean(0) + ps.cross_offset_m * right
+    margin = scenario.track_margin_s
+    model, *_ = straight_track(ps.speed_m_s, ps.height_m, ps.heading_deg, ps.overhead_s,
+                               -margin - 1.0, ps.duration_s + margin, over_enu_m=over,
+                               pitch_deg=ps.pitch_deg)
+    return model
+
+
+def simulate_pass(scenario: Scenario, ps: PassScenario) -> SimulatedPass:
+    """Simulate one pass: received pressures, recorder units, noisy GNSS samples."""
+    fs = scenario.sample_rate_hz
+    truth = pass_truth_track(scenario, ps)
+    n = int(round(ps.duration_s * fs))
+    margin = scenario.track_margin_s
+    signals = [SourceSignal(src, fs, -margin, ps.duration_s, ps.gain_db.get(src.name, 0.0))
+               for src in scenario.sources]
+    prop = Propagator(scenario.mic_enu_m, ps.atmosphere, scenario.pressure_gain)
+    p = received_pressure_pa(truth, signals, [np.asarray(s.body_m) for s in scenario.sources],
+                             prop, fs, 0.0, n)
+    n_mics = len(scenario.mic_enu_m)
+    p += incoherent_noise_pa(n_mics, n, scenario.noise_spl_db, ps.seed + 1)
+    rng = np.random.default_rng(ps.seed + 2)
+    spread_db = rng.normal(0.0, scenario.calibration_spread_db, n_mics)
+    k = scenario.pa_per_unit * 10.0 ** (spread_db / 20)
+    units = (p / k[:, None]).astype(np.float32)
+    tg = np.arange(-margin, ps.duration_s + margin, 1.0 / scenario.gnss_rate_hz)
+    gnss = truth.position(tg) + rng.normal(0.0, scenario.gnss_noise_m, (len(tg), 3))
+    return SimulatedPass(units, k, truth, tg, gnss, truth.attitude_deg(tg))
+
+
+def spiral_layout(n_arms: int, per_arm: int, r_min_m: float, r_max_m: float,
+                  twist_deg: float = 120.0) -> np.ndarray:
+    """A multi-arm logarithmic spiral of microphones on the ground, centred on (0, 0).
+
+    Returns
+    -------
+    ndarray, shape (n_arms * per_arm, 3)
+        East, north, up (0) in metres.
+    """
+    r = np.geomspace(r_min_m, r_max_m, per_arm)
+    frac = np.log(r / r_min_m) / np.log(r_max_m / r_min_m)
+    pts = []
+    for arm in range(n_arms):
+        phi = 2 * np.pi * arm / n_arms + np.deg2rad(twist_deg) * frac
+        pts.append(np.stack([r * np.sin(phi), r * np.cos(phi), np.zeros_like(r)], axis=1))
+    return np.concatenate(pts)

@@ -1,0 +1,1 @@
+"""What the Snakemake workflow needs: plans, re-run fingerprints, dry-run reading, rules."""

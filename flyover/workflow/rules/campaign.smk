@@ -1,0 +1,45 @@
+# Campaign steps: the summary over passes and the report (outputs flagged update(), as in
+# pass.smk).
+
+
+rule campaign_summary:
+    input:
+        PLAN.pass_results(("levels.csv", "levels_overall.csv")),
+    output:
+        levels=update(f"{OUTP}/campaign_levels.csv"),
+        overall=update(f"{OUTP}/campaign_overall.csv"),
+        figure=update(f"{OUTP}/campaign_overall.png"),
+    params:
+        fingerprint=PLAN.campaign_fingerprint("summary"),
+    log:
+        f"{OUTP}/logs/campaign_summary.log",
+    benchmark:
+        f"{OUTP}/benchmarks/campaign_summary.tsv"
+    resources:
+        mem_mb=1000,
+    conda:
+        CONDA_ENV,
+    shell:
+        '"$FLYOVER_PYTHON" -m flyover stage-campaign summary > {log:q} 2>&1'
+
+
+rule report:
+    input:
+        rules.campaign_summary.output,
+        PLAN.pass_results(("alignment.json", "windows.csv", "qc_track.png", "qc_spectrogram.png",
+                           "spectra.png", "directivity.png")),
+        PLAN.input_files(),
+    output:
+        update(f"{OUTP}/report.html"),
+    params:
+        fingerprint=PLAN.campaign_fingerprint("report"),
+    log:
+        f"{OUTP}/logs/report.log",
+    benchmark:
+        f"{OUTP}/benchmarks/report.tsv"
+    resources:
+        mem_mb=1000,
+    conda:
+        CONDA_ENV,
+    shell:
+        '"$FLYOVER_PYTHON" -m flyover stage-campaign report > {log:q} 2>&1'

@@ -1,0 +1,44 @@
+# Shared set-up of the flyover workflow: the campaign, its output folder, the stage command.
+
+import os
+import re
+import sys
+from pathlib import Path
+
+from flyover.model.errors import FlyoverInputError
+from flyover.workflow.plan import CampaignPlan
+
+# The campaign is the last --configfile, else the demo. It is loaded by flyover (validated),
+# never merged with another file, so the demo's passes cannot leak into a user's campaign.
+_DEMO = Path(workflow.basedir) / "demo" / "campaign.yaml"
+CAMPAIGN_FILE = ([str(Path(f).resolve()) for f in workflow.overwrite_configfiles]
+                 or [str(_DEMO)])[-1]
+try:
+    PLAN = CampaignPlan.load(CAMPAIGN_FILE)
+except FlyoverInputError as exc:
+    print(exc.message, file=sys.stderr)
+    sys.exit(2)
+
+# OUT is a real folder name; OUTP the same as a Snakemake pattern (braces are wildcards there).
+OUT = PLAN.output
+OUTP = OUT.replace("{", "{{").replace("}", "}}")
+
+# Snakemake's records and lock live with the results, wherever the run was started from.
+workdir: OUT
+
+# The interpreter and the campaign file reach the jobs through the environment, not through the
+# command text: Snakemake re-runs a rule whose command text changes, and neither the
+# interpreter's path nor the campaign file's name says anything about the results.
+os.environ["FLYOVER_PYTHON"] = sys.executable
+os.environ["FLYOVER_CAMPAIGN"] = CAMPAIGN_FILE
+STAGE = '"$FLYOVER_PYTHON" -m flyover stage'
+
+envvars:
+    "FLYOVER_PYTHON",
+    "FLYOVER_CAMPAIGN",
+
+# With --use-conda every rule runs in this environment (flyover from PyPI).
+CONDA_ENV = str(Path(workflow.current_basedir).parent / "envs" / "flyover.yaml")
+
+wildcard_constraints:
+    pass_name="|".join(re.escape(p) for p in PLAN.passes),

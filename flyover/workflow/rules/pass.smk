@@ -1,0 +1,102 @@
+# Per-pass steps: align, image, levels, check figures.
+#
+# Outputs are flagged update(): Snakemake keeps the previous version in place while a step runs
+# and puts it back if the step fails, so a failed run never loses a good result (the stages
+# write every file atomically). Each rule's params are the values of the campaign that its
+# stage reads (declared in the stage module, enforced when it runs) and a digest of flyover.
+
+
+rule align:
+    input:
+        unpack(lambda w: PLAN.pass_inputs(w.pass_name)),
+    output:
+        json=update(f"{OUTP}/{{pass_name}}/alignment.json"),
+        png=update(f"{OUTP}/{{pass_name}}/track.png"),
+    params:
+        fingerprint=lambda w: PLAN.fingerprint(w.pass_name, "align"),
+    log:
+        f"{OUTP}/logs/{{pass_name}}/align.log",
+    benchmark:
+        f"{OUTP}/benchmarks/{{pass_name}}/align.tsv"
+    resources:
+        mem_mb=1000,
+    conda:
+        CONDA_ENV,
+    shell:
+        f"{STAGE} align --pass {{wildcards.pass_name:q}} > {{log:q}} 2>&1"
+
+
+rule image:
+    input:
+        unpack(lambda w: PLAN.pass_inputs(w.pass_name)),
+        alignment=f"{OUTP}/{{pass_name}}/alignment.json",
+    output:
+        maps=update(f"{OUTP}/{{pass_name}}/maps.npz"),
+        windows=update(f"{OUTP}/{{pass_name}}/windows.csv"),
+        regions=update(f"{OUTP}/{{pass_name}}/region_power.csv"),
+        figures=update(directory(f"{OUTP}/{{pass_name}}/maps")),
+    params:
+        fingerprint=lambda w: PLAN.fingerprint(w.pass_name, "image"),
+    log:
+        f"{OUTP}/logs/{{pass_name}}/image.log",
+    benchmark:
+        f"{OUTP}/benchmarks/{{pass_name}}/image.tsv"
+    threads: 2
+    resources:
+        mem_mb=3000,
+        runtime=60,
+    conda:
+        CONDA_ENV,
+    shell:
+        f"{STAGE} image --pass {{wildcards.pass_name:q}} --threads {{threads}} > {{log:q}} 2>&1"
+
+
+rule levels:
+    input:
+        windows=f"{OUTP}/{{pass_name}}/windows.csv",
+        regions=f"{OUTP}/{{pass_name}}/region_power.csv",
+    output:
+        levels=update(f"{OUTP}/{{pass_name}}/levels.csv"),
+        overall=update(f"{OUTP}/{{pass_name}}/levels_overall.csv"),
+        spectra=update(f"{OUTP}/{{pass_name}}/spectra.csv"),
+        directivity=update(f"{OUTP}/{{pass_name}}/directivity.csv"),
+        spectra_png=update(f"{OUTP}/{{pass_name}}/spectra.png"),
+        directivity_png=update(f"{OUTP}/{{pass_name}}/directivity.png"),
+    params:
+        fingerprint=lambda w: PLAN.fingerprint(w.pass_name, "levels"),
+    log:
+        f"{OUTP}/logs/{{pass_name}}/levels.log",
+    benchmark:
+        f"{OUTP}/benchmarks/{{pass_name}}/levels.tsv"
+    group:
+        "pass_light"
+    resources:
+        mem_mb=1000,
+    conda:
+        CONDA_ENV,
+    shell:
+        f"{STAGE} levels --pass {{wildcards.pass_name:q}} > {{log:q}} 2>&1"
+
+
+rule qc:
+    input:
+        unpack(lambda w: PLAN.pass_inputs(w.pass_name)),
+        alignment=f"{OUTP}/{{pass_name}}/alignment.json",
+        windows=f"{OUTP}/{{pass_name}}/windows.csv",
+    output:
+        track=update(f"{OUTP}/{{pass_name}}/qc_track.png"),
+        spectrogram=update(f"{OUTP}/{{pass_name}}/qc_spectrogram.png"),
+    params:
+        fingerprint=lambda w: PLAN.fingerprint(w.pass_name, "qc"),
+    log:
+        f"{OUTP}/logs/{{pass_name}}/qc.log",
+    benchmark:
+        f"{OUTP}/benchmarks/{{pass_name}}/qc.tsv"
+    group:
+        "pass_light"
+    resources:
+        mem_mb=2000,
+    conda:
+        CONDA_ENV,
+    shell:
+        f"{STAGE} qc --pass {{wildcards.pass_name:q}} > {{log:q}} 2>&1"

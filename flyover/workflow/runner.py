@@ -1,0 +1,272 @@
+"""`flyover run`: check the campaign, run the workflow with live progress, end with a summary.
+
+Snakemake runs in the campaign's output folder (its records and lock live with the results), its
+own log goes to ``<output>/logs/workflow.log``, and what the user sees is flyover's: the step
+running, passes done, windows done within imaging, and at the end the passes, their warnings,
+the report's path and the wall time. A failing job is reported with its own message (the end of
+its log, without a traceback) and the log's path.
+"""
+
+from __future__ import annotations
+
+import fcntl
+import re
+import shutil
+import subprocess
+import sys
+import time
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from flyover.io.results.alignment import read_alignment
+from flyover.io.results.levels import LEVELS
+from flyover.io.results.windows import NO_WINDOW, WINDOWS
+from flyover.model.campaign import Campaign
+from flyover.model.errors import FlyoverInputError
+
+RULES = Path(__file__).resolve().parent / "rules" / "main.smk"
+LOG_NAME = "workflow.log"
+_STEPS = re.compile(r"^(\d+) of (\d+) steps")
+_JOB = re.compile(r"^(?:local)?rule (\w+):$")
+_FINISHED = re.compile(r"^Finished jobid: (\d+) \(Rule: (\w+)\)")
+_ERROR = re.compile(r"^Error in rule (\w+):$")
+_WINDOWS = re.compile(r"imaging: (\d+)/(\d+)")
+
+
+def snakemake_command(campaign_file: Path, *extra: str) -> list[str]:
+    """The Snakemake call of a campaign (flyover's own rules, this interpreter)."""
+    return [sys.executable, "-m", "snakemake", "--snakefile", str(RULES), "--configfile",
+            str(Path(campaign_file).resolve()), *extra]
+
+
+@dataclass
+class _Job:
+    rule: str
+    pass_name: str = ""
+    log: str = ""
+
+
+@dataclass
+class RunState:
+    """What the Snakemake log has said so far."""
+
+    jobs: dict = field(default_factory=dict)        # jobid -> _Job, running or finished
+    running: set = field(default_factory=set)
+    done_steps: int = 0
+    total_steps: int = 0
+    failed: list = field(default_factory=list)      # _Job
+    _current: _Job | None = None
+    _current_id: str = ""
+
+    def feed(self, line: str) -> None:
+        text = line.strip()
+        if m := _JOB.match(text):
+            self._current = _Job(m.group(1))
+            self._current_id = ""
+        elif m := _ERROR.match(text):
+            self._current = _Job(m.group(1))
+            self.failed.append(self._current)
+        elif self._current is not None and text.startswith("jobid:"):
+            self._current_id = text.split(":", 1)[1].strip()
+            if self._current not in self.failed:
+                self.jobs[self._current_id] = self._current
+                self.running.add(self._current_id)
+        elif self._current is not None and text.startswith("wildcards:"):
+            for part in text[len("wildcards:"):].split(","):
+                key, _, value = part.strip().partition("=")
+                if key == "pass_name":
+                    self._current.pass_name = value
+        elif self._current is not None and text.startswith("log:"):
+            self._current.log = text[4:].split(" (check log")[0].strip()
+        elif m := _FINISHED.match(text):
+            self.running.discard(m.group(1))
+        elif m := _STEPS.match(text):
+            self.done_steps, self.total_steps = int(m.group(1)), int(m.group(2))
+
+    def status(self, passes: list[str], out: Path) -> str:
+        """One line: steps, the running steps (windows done within imaging), passes done."""
+        parts = []
+        for jid in sorted(self.running):
+            job = self.jobs[jid]
+            text = f"{job.rule} {job.pass_name}".strip()
+            if job.rule == "image" and job.log:
+                text += _windows_done(Path(job.log))
+            parts.append(text)
+        finished = {j.pass_name for k, j in self.jobs.items() if k not in self.running}
+        busy = {self.jobs[k].pass_name for k in self.running}
+        done = sum(1 for p in passes if p in finished and p not in busy
+                   and (out / p / "levels.csv").exists() and (out / p / "qc_track.png").exists())
+        steps = f"{self.done_steps}/{self.total_steps} steps" if self.total_steps else "starting"
+        return f"{steps} | running: {', '.join(parts) or '-'} | passes done {done}/{len(passes)}"
+
+
+def _windows_done(log: Path) -> str:
+    try:
+        tail = log.read_text(errors="replace").splitlines()[-3:]
+    except OSError:
+        return ""
+    for line in reversed(tail):
+        if m := _WINDOWS.search(line):
+            return f" (window {m.group(1)}/{m.group(2)})"
+    return ""
+
+
+def job_message(log_path: str, max_lines: int = 12) -> str:
+    """A failed job's own words: flyover's message, or the last line of a traceback."""
+    try:
+        lines = Path(log_path).read_text(errors="replace").rstrip().splitlines()
+    except OSError:
+        return "(its log could not be read)"
+    for i, line in enumerate(lines):
+        if line.startswith("flyover:"):
+            return "\n".join(lines[i:i + max_lines])
+    if any(line.startswith("Traceback") for line in lines):
+        return lines[-1] if lines else ""
+    return "\n".join(lines[-max_lines:])
+
+
+class _RunLock:
+    """One `flyover run` per output folder at a time (an OS lock, released even on a kill)."""
+
+    def __init__(self, out: Path):
+        self.path = out / ".snakemake" / "flyover-run.lock"
+
+    def __enter__(self):
+        self.path.parent.mkdir(parents=True, exist_ok=True)
+        self.fh = open(self.path, "w")
+        try:
+            fcntl.flock(self.fh, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except BlockingIOError:
+            self.fh.close()
+            raise FlyoverInputError(
+                "another flyover run is working on this campaign's results",
+                str(self.path.parent.parent), "one run at a time per output folder",
+                hint="wait for it to finish, or give the campaign another output folder") from None
+        return self
+
+    def __exit__(self, *exc):
+        fcntl.flock(self.fh, fcntl.LOCK_UN)
+        self.fh.close()
+
+
+def _clear_leftovers(out: Path, campaign_file: Path) -> None:
+    """After a killed run: Snakemake's lock and backups are stale (this run holds the OS lock),
+    so remove them; incomplete outputs are redone with --rerun-incomplete."""
+    records = out / ".snakemake"
+    if records.joinpath("locks").is_dir() and any(records.joinpath("locks").iterdir()):
+        subprocess.run(snakemake_command(campaign_file, "--unlock", "--cores", "1"), cwd=out,
+                       capture_output=True, text=True)
+    shutil.rmtree(records / "backups", ignore_errors=True)
+
+
+def run_campaign(campaign: Campaign, campaign_file: Path, snakemake_args: list[str], *,
+                 verbose: bool = False, stream=None) -> int:
+    """Run the workflow; return 0 when all is well, 1 when a step failed, 2 for bad input."""
+    stream = stream if stream is not None else sys.stderr
+    tty = hasattr(stream, "isatty") and stream.isatty()
+    out = Path(campaign.output)
+    out.mkdir(parents=True, exist_ok=True)
+    passes = list(campaign.passes)
+    start = time.perf_counter()
+    state = RunState()
+    (out / "logs").mkdir(exist_ok=True)
+    log_path = out / "logs" / LOG_NAME
+    with _RunLock(out):
+        _clear_leftovers(out, campaign_file)
+        cmd = snakemake_command(campaign_file, "--rerun-incomplete", *snakemake_args)
+        with open(log_path, "w", encoding="utf-8") as log:
+            proc = subprocess.Popen(cmd, cwd=out, stdout=subprocess.PIPE,
+                                    stderr=subprocess.STDOUT, text=True, bufsize=1)
+            shown = ""
+            for line in proc.stdout:
+                log.write(line)
+                state.feed(line)
+                if verbose:
+                    stream.write(line)
+                elif tty:
+                    status = state.status(passes, out)
+                    if status != shown:
+                        stream.write("\r\033[K" + status[:150])
+                        stream.flush()
+                        shown = status
+                elif _FINISHED.match(line.strip()):
+                    job = state.jobs.get(_FINISHED.match(line.strip()).group(1))
+                    if job is not None:
+                        stream.write(f"done: {job.rule} {job.pass_name}".rstrip() + "\n")
+            code = proc.wait()
+    if tty and not verbose:
+        stream.write("\r\033[K")
+    failed_input = False
+    for job in state.failed:
+        message = job_message(job.log) if job.log else ""
+        failed_input |= message.startswith("flyover:")
+        where = f" of pass {job.pass_name}" if job.pass_name else ""
+        stream.write(f"step {job.rule}{where} failed:\n{message}\n  (log: {job.log})\n")
+    if code != 0 and not state.failed:
+        stream.write(f"the workflow stopped: see {log_path}\n" + _tail(log_path))
+    stream.write(summary_text(campaign, time.perf_counter() - start, log_path) + "\n")
+    if code == 0:
+        return 0
+    return 2 if failed_input else 1
+
+
+def _tail(path: Path, n: int = 8) -> str:
+    lines = path.read_text(errors="replace").rstrip().splitlines()
+    keep = [line for line in lines if line.strip() and not line.startswith(" ")]
+    return "\n".join(keep[-n:]) + "\n"
+
+
+def pass_warnings(folder: Path) -> list[str]:
+    """The data-quality warnings of one pass's results: channels left out, windows skipped,
+    bands not separable."""
+    warnings = []
+    try:
+        al = read_alignment(folder)
+    except FlyoverInputError:
+        return ["not aligned"]
+    if al.get("quality_excluded_channels"):
+        warnings.append(f"channels left out by the quality checks: "
+                        f"{al['quality_excluded_channels']}")
+    try:
+        windows = WINDOWS.read(folder)
+        levels = LEVELS.read(folder)
+    except FlyoverInputError:
+        return warnings + ["not imaged"]
+    skipped = windows[windows["status"] != "analysed"]
+    if len(windows) == 0:
+        warnings.append(NO_WINDOW)
+    elif len(skipped) == len(windows):
+        reasons = "; ".join(sorted(set(skipped["reason"].astype(str))))
+        warnings.append(f"no window analysed: {reasons}")
+    elif len(skipped):
+        warnings.append(f"{len(skipped)} of {len(windows)} windows skipped")
+    notes = levels[(levels["region"] != "total") & levels["note"].astype(str).str.startswith(
+        "not separable")] if len(levels) else levels
+    if len(notes):
+        bands = sorted(set(notes["band_hz"].astype(float)))
+        warnings.append(f"bands not separable between regions: {bands[0]:g}-{bands[-1]:g} Hz "
+                        f"({len(bands)} bands) in some windows")
+    return warnings
+
+
+def summary_text(campaign: Campaign, wall_s: float, log_path: Path) -> str:
+    """The closing summary of a run."""
+    out = Path(campaign.output)
+    lines = []
+    done = 0
+    for name in campaign.passes:
+        folder = out / name
+        complete = (folder / "levels.csv").exists() and (folder / "qc_track.png").exists()
+        done += complete
+        lines.append(f"  {name}: {'done' if complete else 'not complete'}")
+        lines += [f"    warning: {w}" for w in pass_warnings(folder)]
+    report = out / "report.html"
+    head = f"passes done: {done} of {len(campaign.passes)}"
+    tail = [f"report: {report}" if report.exists() else "report: not written",
+            f"workflow log: {log_path}", f"wall time: {_duration(wall_s)}"]
+    return "\n".join([head] + lines + tail)
+
+
+def _duration(seconds: float) -> str:
+    m, s = divmod(int(round(seconds)), 60)
+    return f"{m} min {s} s" if m else f"{s} s"

@@ -1,0 +1,129 @@
+"""`flyover check` refuses what a run would trip over: one case per class of awkward input.
+
+Every refusal goes through the command line here: exit 2, the file, key or row named, and no
+traceback.
+"""
+
+from __future__ import annotations
+
+import errno
+
+import numpy as np
+import pandas as pd
+import pytest
+import soundfile as sf
+from conftest import edit_campaign
+
+from flyover.cli import main
+
+
+def refused(path, capsys, *fragments) -> str:
+    assert main(["check", str(path)]) == 2
+    err = capsys.readouterr().err
+    assert "Traceback" not in err
+    for fragment in fragments:
+        assert fragment in err, err
+    return err
+
+
+def test_a_key_given_twice(tiny_copy, capsys):
+    # A pass block pasted twice: YAML would silently keep the last one.
+    path = tiny_copy / "campaign.yaml"
+    text = path.read_text()
+    block = text[text.index("  p2:"):text.index("scenario:") if "scenario:" in text else None]
+    path.write_text(text.replace("  p2:", block.rstrip("\n") + "\n  p2:", 1))
+    refused(path, capsys, "key 'p2' is given twice", "line")
+
+
+def test_a_pass_named_by_a_number(tiny_copy, capsys):
+    path = tiny_copy / "campaign.yaml"
+    path.write_text(path.read_text().replace("  p2:", "  1:"))
+    refused(path, capsys, "key '1' is read as a int", "put it in quotes: '1'")
+
+
+def test_a_time_yaml_turns_into_a_date(tiny_copy, capsys):
+    path = tiny_copy / "campaign.yaml"
+    text = path.read_text()
+    start = [line for line in text.splitlines() if "recording_start_utc" in line][0]
+    path.write_text(text.replace(start, start.replace("'", "")))
+    refused(path, capsys, "recording_start_utc", "YAML reads this value as a datetime")
+
+
+def test_a_stray_microphone_and_a_layout_in_millimetres(tiny_copy, capsys):
+    layout = pd.read_csv(tiny_copy / "layout.csv")
+    stray = layout.copy()
+    stray.loc[3, "lat_deg"] += 0.009  # about 1 km north
+    stray.to_csv(tiny_copy / "layout.csv", index=False)
+    refused(tiny_copy / "campaign.yaml", capsys, "beyond a ground array",
+            f"channel {layout.channel[3]}", "stray")
+    site = pd.DataFrame({"channel": layout.channel, "east_m": np.arange(len(layout)) * 250.0,
+                         "north_m": (np.arange(len(layout)) % 4) * 300.0, "up_m": 0.0})
+    site.to_csv(tiny_copy / "layout.csv", index=False)
+    refused(tiny_copy / "campaign.yaml", capsys, "beyond a ground array", "millimetres")
+
+
+@pytest.mark.parametrize("change, fragments", [
+    (lambda d: d["analysis"].update(band_min_hz=1150, band_max_hz=1200),
+     ["no one-third-octave band in the band range"]),
+    (lambda d: d["analysis"].update(band_max_hz=5000), ["half the sample rate (4000 Hz)"]),
+    (lambda d: d["analysis"].update(reference_distance_m=float("inf")),
+     ["positive finite distance"]),
+    (lambda d: d["analysis"].update(window_s=10.0, hop_s=10.0),
+     ["window is longer than the recording"]),
+    (lambda d: d["vehicle"]["regions"].update(mid={"x_m": [0.0, 1.0], "y_m": [-0.5, 0.5]}),
+     ["overlap", "count their sound twice"]),
+])
+def test_set_up_that_does_not_fit_together(tiny_copy, capsys, change, fragments):
+    refused(edit_campaign(tiny_copy, change), capsys, *fragments)
+
+
+def test_nan_samples_and_a_silent_recording(tiny_copy, capsys):
+    rec = tiny_copy / "p1" / "recording.wav"
+    data, fs = sf.read(rec, dtype="float32")
+    bad = data.copy()
+    bad[12000, 5] = np.nan
+    sf.write(rec, bad, fs, subtype="FLOAT")
+    refused(tiny_copy / "campaign.yaml", capsys, "NaN or Inf", "channel 6, frame 12000")
+    sf.write(rec, np.zeros_like(data), fs, subtype="FLOAT")
+    refused(tiny_copy / "campaign.yaml", capsys, "holds only zeros", "recorder armed")
+
+
+def test_a_track_that_never_moves(tiny_copy, capsys):
+    track = pd.read_csv(tiny_copy / "p2" / "track.csv")
+    for col in ("lat_deg", "lon_deg", "height_m"):
+        track[col] = track[col].iloc[len(track) // 2]
+    track.to_csv(tiny_copy / "p2" / "track.csv", index=False)
+    refused(tiny_copy / "campaign.yaml", capsys, "the track never moves", "track.csv")
+
+
+@pytest.mark.parametrize("output, fragment", [
+    ("p1", "the output folder holds an input file"),
+    (".", "the output folder holds an input file"),
+    ("layout.csv", "the output folder is a file"),
+    ("layout.csv/results", "the output folder lies below a file"),
+])
+def test_output_folders_that_cannot_work(tiny_copy, capsys, output, fragment):
+    refused(edit_campaign(tiny_copy, lambda d: d.update(output=output)), capsys, fragment,
+            "key output")
+    assert not (tiny_copy / "results").exists()
+
+
+def test_an_input_that_cannot_be_read(tiny_copy, capsys):
+    (tiny_copy / "p1" / "calibration.csv").unlink()
+    (tiny_copy / "p1" / "calibration.csv").mkdir()
+    refused(tiny_copy / "campaign.yaml", capsys, "calibration", "p1/calibration.csv")
+
+
+def test_full_disk_mid_run_gives_flyovers_message(tiny_copy, capsys, monkeypatch):
+    # A write failing with ENOSPC inside a stage: flyover's message, the file, the room left.
+    from flyover.io.results import alignment
+
+    def full(path, text):
+        raise OSError(errno.ENOSPC, "No space left on device", str(path))
+
+    monkeypatch.setattr(alignment, "write_text", full)
+    assert main(["stage", "align", "--campaign", str(tiny_copy / "campaign.yaml"),
+                 "--pass", "p1"]) == 1
+    err = capsys.readouterr().err
+    assert "alignment.json: could not be written or read: No space left on device" in err
+    assert "MiB free" in err and "Traceback" not in err

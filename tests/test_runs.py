@@ -1,0 +1,98 @@
+"""Runs a user can trust: `flyover run` checks first, one run per results folder, stages read
+only what they declare, and the declarations are the re-run fingerprints."""
+
+from __future__ import annotations
+
+import pandas as pd
+import pytest
+from conftest import edit_campaign
+
+from flyover.cli import main
+from flyover.io.config import load_campaign
+from flyover.model.reads import UndeclaredRead, guarded, read_values
+from flyover.pipeline import align, image, levels
+from flyover.workflow.plan import CampaignPlan
+from flyover.workflow.runner import RunState, _RunLock, job_message, pass_warnings
+
+
+def test_run_stops_on_bad_input_before_any_job(tiny_copy, capsys):
+    # A layout one microphone short of the recording: `flyover run` says so in flyover's words
+    # and exits 2 before Snakemake starts (no results folder, no traceback).
+    layout = tiny_copy / "layout.csv"
+    layout.write_text("\n".join(layout.read_text().splitlines()[:-1]) + "\n")
+    assert main(["run", str(tiny_copy / "campaign.yaml")]) == 2
+    err = capsys.readouterr().err
+    assert "layout and recording disagree on the channels" in err
+    assert "Traceback" not in err and "CalledProcessError" not in err
+    assert not (tiny_copy / "results").exists()
+
+
+def test_second_run_of_the_same_results_is_refused(tiny_copy, capsys):
+    campaign = load_campaign(tiny_copy / "campaign.yaml")
+    with _RunLock(campaign.output):
+        assert main(["run", str(tiny_copy / "campaign.yaml")]) == 2
+    assert "another flyover run is working on this campaign's results" in capsys.readouterr().err
+
+
+def test_stages_read_only_what_they_declare(tiny_campaign_dir):
+    # Every stage works on a guarded view of the campaign: a read outside its declaration is
+    # refused with the stage and the path named. (Every stage runs through its view in
+    # test_levels.py::test_stages_on_the_tiny_campaign and in the workflow tests.)
+    campaign = load_campaign(tiny_campaign_dir / "campaign.yaml")
+    view = guarded(campaign, levels.READS, stage="levels", pass_name="p1")
+    with pytest.raises(UndeclaredRead, match="stage 'levels' reads campaign.analysis.window_s"):
+        view.analysis.window_s
+    with pytest.raises(UndeclaredRead, match="campaign.passes.p1.label"):
+        guarded(campaign, align.READS, stage="align", pass_name="p1").passes["p1"].label
+
+
+def test_fingerprints_follow_the_declared_reads(tiny_copy):
+    # The band range is read by the alignment (channel coherence) and so re-runs it; the
+    # reference distance is read by the levels only; a label re-runs no per-pass stage.
+    path = tiny_copy / "campaign.yaml"
+    stages = ("align", "image", "levels", "qc")
+
+    def rerun_by(change) -> set[str]:
+        before = {s: CampaignPlan.load(path).fingerprint("p1", s) for s in stages}
+        edit_campaign(tiny_copy, change)
+        return {s for s in stages if CampaignPlan.load(path).fingerprint("p1", s) != before[s]}
+
+    assert rerun_by(lambda d: d["analysis"].update(band_min_hz=400)) == {"align", "image", "qc"}
+    assert rerun_by(lambda d: d["analysis"].update(reference_distance_m=80.0)) == {"levels"}
+    assert rerun_by(lambda d: d["passes"]["p1"].update(label="other")) == set()
+    # File paths are not part of a fingerprint (the workflow tracks the files themselves).
+    values = read_values(load_campaign(path), align.READS, "p1")
+    assert values["passes.p1.recording"] is None and values["config_path"] is None
+
+
+def test_run_progress_and_failure_reading(tmp_path):
+    # The lines `flyover run` reads from Snakemake's log (Snakemake 9 wording).
+    log = tmp_path / "align.log"
+    log.write_text("loading\nflyover: cal.csv: calibration is missing channels\n  expected x\n")
+    state = RunState()
+    for line in ("[Wed Dec  2 11:51:43 2026]", "localrule image:", "    log: /x/image.log",
+                 "    jobid: 4", "    wildcards: pass_name=p1", "Finished jobid: 4 (Rule: image)",
+                 "1 of 11 steps (9%) done", "Error in rule align:", f"    log: {log} (check log "
+                 "file(s) for error details)", "    wildcards: pass_name=p2"):
+        state.feed(line)
+    assert state.done_steps == 1 and state.total_steps == 11 and not state.running
+    assert [(j.rule, j.pass_name, j.log) for j in state.failed] == [("align", "p2", str(log))]
+    assert job_message(str(log)).splitlines() == ["flyover: cal.csv: calibration is missing "
+                                                  "channels", "  expected x"]
+    crash = tmp_path / "crash.log"
+    crash.write_text("Traceback (most recent call last):\n  File x\nValueError: bad thing\n")
+    assert job_message(str(crash)) == "ValueError: bad thing"
+
+
+def test_pass_without_any_window_says_why(tiny_copy):
+    # No window within 0.01 deg of overhead at this hop: the stages still succeed, write empty
+    # tables, and the run's summary says why.
+    edit_campaign(tiny_copy, lambda d: d["analysis"].update(max_polar_offset_deg=0.01))
+    campaign = load_campaign(tiny_copy / "campaign.yaml")
+    out = tiny_copy / "results" / "p1"
+    align.run(campaign, "p1", out)
+    image.run(campaign, "p1", out, quiet=True)
+    levels.run(campaign, "p1", out)
+    assert (out / "maps").is_dir() and len(pd.read_csv(out / "windows.csv")) == 0
+    assert len(pd.read_csv(out / "levels.csv")) == 0
+    assert any(w.startswith("no window could be planned") for w in pass_warnings(out))
