@@ -139,6 +139,14 @@ def test_track_without_time_zone(tiny_copy):
     assert "+02:00" in text
 
 
+def test_track_time_with_a_year_out_of_range(tiny_copy):
+    # Found by the fuzz test: a year cut to 0026 overflowed int64 nanoseconds with a traceback.
+    df = pd.read_csv(tiny_copy / "p1" / "track.csv", dtype=str)
+    df.loc[0, "time_utc"] = "0" + df.loc[0, "time_utc"][1:]
+    df.to_csv(tiny_copy / "p1" / "track.csv", index=False)
+    expect_error(tiny_copy, "outside the years 1678 to 2261", "row 2")
+
+
 def test_track_not_covering_the_recording(tiny_copy):
     edit_config(tiny_copy, lambda d: d["passes"]["p1"].update(
         recording_start_utc="2026-06-01T11:00:00.000Z"))

@@ -38,7 +38,23 @@ def parse_utc_ns_array(texts, where: str = "", first_row: int = 1) -> np.ndarray
                                 "a time such as 2026-05-14T09:31:07.300Z",
                                 hint=str(exc).split("\n")[0]) from None
     # pandas may parse at microsecond resolution: fix the unit before taking integers.
-    return parsed.dt.as_unit("ns").astype("int64").to_numpy()
+    try:
+        return parsed.dt.as_unit("ns").astype("int64").to_numpy()
+    except (pd.errors.OutOfBoundsDatetime, OverflowError):
+        bad = _first_out_of_range(parsed)
+        row = f"{where}, row {first_row + bad}" if where else where
+        raise FlyoverInputError(f"time '{values[bad]}' is outside the years 1678 to 2261", row,
+                                "a time such as 2026-05-14T09:31:07.300Z",
+                                hint="check the year (a date cut short or mistyped?)") from None
+
+
+def _first_out_of_range(parsed: pd.Series) -> int:
+    """Index of the first time beyond what int64 nanoseconds hold (years 1678 to 2261)."""
+    lo, hi = pd.Timestamp.min.tz_localize("UTC"), pd.Timestamp.max.tz_localize("UTC")
+    for i, t in enumerate(parsed):
+        if not lo <= t <= hi:
+            return i
+    return 0
 
 
 def _first_unparsable(values) -> int:
