@@ -11,8 +11,9 @@ from flyover.cli import main
 from flyover.io.config import load_campaign
 from flyover.model.reads import UndeclaredRead, guarded, read_values
 from flyover.pipeline import align, image, levels
-from flyover.workflow.plan import CampaignPlan
-from flyover.workflow.runner import RunState, _RunLock, job_message, pass_warnings
+from flyover.workflow.plan import CampaignPlan, JobSizes, job_memory_mb, job_runtime_min
+from flyover.workflow.runner import (RunState, _RunLock, job_message, pass_warnings,
+                                     scheduler_stop)
 
 
 def test_run_stops_on_bad_input_before_any_job(tiny_copy, capsys):
@@ -96,3 +97,48 @@ def test_pass_without_any_window_says_why(tiny_copy):
     assert (out / "maps").is_dir() and len(pd.read_csv(out / "windows.csv")) == 0
     assert len(pd.read_csv(out / "levels.csv")) == 0
     assert any(w.startswith("no window could be planned") for w in pass_warnings(out))
+
+
+def test_job_resources_scale_with_the_campaign():
+    # Memory grows with grid points x microphones x window samples, runtime with the work of
+    # every window; both have floors. The demo's imaging peaked at 561 MB (benchmarks): its
+    # request must hold that with room to spare.
+    tiny = JobSizes(n_grid=45, n_mics=16, window_samples=2000, n_bands=7, n_windows=13)
+    demo = JobSizes(n_grid=775, n_mics=48, window_samples=6400, n_bands=13, n_windows=19)
+    large = JobSizes(n_grid=3111, n_mics=48, window_samples=12800, n_bands=12, n_windows=29)
+    assert job_memory_mb("image", tiny) == job_memory_mb("levels", large) == 1000
+    assert job_memory_mb("image", demo) >= 1.4 * 561
+    assert job_memory_mb("image", large) > job_memory_mb("image", demo)
+    assert job_runtime_min("image", tiny) == job_runtime_min("qc", large) == 10
+    assert job_runtime_min("image", large) > job_runtime_min("image", demo)
+
+
+def test_scheduler_stops_are_told_apart(tmp_path):
+    # slurmstepd's words when it stops a job (Slurm 22.05, as seen on the test cluster).
+    memory = tmp_path / "12.log"
+    memory.write_text("slurmstepd-vm: error: StepId=12.batch exceeded memory limit "
+                      "(157552640 > 62914560), being killed\n")
+    job = RunState()
+    for line in ("rule image:", "    jobid: 4", "    wildcards: pass_name=p1",
+                 "    resources: tmpdir=/tmp, mem_mb=60, runtime=1", "Error in rule image:",
+                 "    jobid: 4", f"    log: /x/image.log, {memory} (check log file(s))"):
+        job.feed(line)
+    stop = scheduler_stop(job.failed[0])
+    assert stop.startswith("step image of pass p1 was stopped by the scheduler: it needed more "
+                           "than its memory limit of 60 MiB (150 MiB when stopped)")
+    assert "set-resources: image: mem_mb: 300" in stop
+    memory.write_text("slurmstepd: error: *** JOB 12 ON vm CANCELLED AT 2026-12-02T12:24:40 DUE "
+                      "TO TIME LIMIT ***\n")
+    assert "at its time limit (1 min)" in scheduler_stop(job.failed[0])
+
+
+def test_live_status_shows_the_windows_of_a_running_imaging(tmp_path):
+    # The image stage logs one line per window; `flyover run` shows the latest on a terminal.
+    log = tmp_path / "image.log"
+    log.write_text("p1 imaging: 1/16 window 3 at 61 deg\np1 imaging: 2/16 window 4 at 66 deg\n")
+    state = RunState()
+    for line in ("rule image:", f"    log: {log}", "    jobid: 4", "    wildcards: pass_name=p1",
+                 "2 of 11 steps (18%) done"):
+        state.feed(line)
+    assert state.status(["p1", "p2"], tmp_path) == ("2/11 steps | running: image p1 "
+                                                    "(window 2/16) | passes done 0/2")

@@ -10,6 +10,7 @@ import sys
 from contextlib import contextmanager
 from pathlib import Path
 
+import numpy as np
 import pytest
 import yaml
 from conftest import edit_campaign
@@ -336,3 +337,78 @@ def test_any_legal_output_path_works(tiny_campaign_dir, tmp_path):
     assert "Traceback" not in res.stderr
     strays = {p.name for p in folder.iterdir()} - {p.name for p in tiny_campaign_dir.iterdir()}
     assert strays <= {"my results [v1]"}
+
+
+# The single-node test cluster of .ci/slurm-up: 2 cores, no account database (job states from
+# squeue), quick status checks. Everything else comes from the project's SLURM profile.
+SLURM_TEST_ARGS = ["--slurm-status-command", "squeue", "--slurm-no-account",
+                   "--slurm-init-seconds-before-status-checks", "2",
+                   "--seconds-between-status-checks", "3", "--set-threads", "image=2"]
+
+
+@pytest.fixture(scope="module")
+def slurm_cluster():
+    """Skip, saying why, unless a SLURM node takes jobs (.ci/run starts one)."""
+    if shutil.which("sbatch") is None or shutil.which("sinfo") is None:
+        pytest.skip("SLURM is not installed: .ci/run installs and starts a single-node cluster "
+                    "with .ci/slurm-up (Debian's slurm-wlm and munge, as root)")
+    states = subprocess.run(["sinfo", "-h", "-o", "%t"], capture_output=True, text=True)
+    if not re.search(r"idle|mix|alloc", states.stdout):
+        pytest.skip("no SLURM node is up: run .ci/slurm-up (as root) first")
+
+
+def flyover_run_on_slurm(folder, *extra):
+    return subprocess.run([sys.executable, "-m", "flyover", "run", "campaign.yaml", "--profile",
+                           str(ROOT / "config" / "profiles" / "slurm"), "--",
+                           *SLURM_TEST_ARGS, *extra], cwd=folder, capture_output=True,
+                          text=True, timeout=1500)
+
+
+def completed_on_slurm(work_dir) -> set[str]:
+    """SLURM job ids that Slurm itself records as finished in a folder (the job-completion
+    file of the test cluster; empty when the cluster keeps no such file)."""
+    config = subprocess.run(["scontrol", "show", "config"], capture_output=True, text=True).stdout
+    where = re.search(r"JobCompLoc\s*=\s*(\S+)", config)
+    if "jobcomp/filetxt" not in config or where is None or not Path(where.group(1)).exists():
+        return set()
+    return set(re.findall(rf"JobId=(\d+) .*WorkDir={re.escape(str(work_dir))} ",
+                          Path(where.group(1)).read_text()))
+
+
+@pytest.mark.slow
+def test_campaign_on_slurm_equals_the_local_run(slurm_cluster, finished_run, tmp_path):
+    folder = inputs_only(finished_run, tmp_path / "on slurm")
+    res = flyover_run_on_slurm(folder)
+    assert res.returncode == 0, res.stderr[-3000:]
+    out = folder / "results"
+    log = (out / "logs" / "workflow.log").read_text()
+    # Every job but the final target went through sbatch (one submission per job or group of
+    # jobs), and Slurm recorded each one.
+    submitted = re.findall(r"has been submitted with SLURM jobid (\d+)", log)
+    jobs = len(re.findall(r"^rule \w+:$", log, flags=re.M)) + log.count("] Group job ")
+    assert len(submitted) == jobs >= 5
+    assert not re.search(r"^localrule (?!all:)", log, flags=re.M)
+    recorded = completed_on_slurm(out)
+    if recorded:
+        assert set(submitted) <= recorded
+    # The results equal the local run's, to the byte.
+    assert _tables(folder) == _tables(finished_run)
+    from flyover.io.results.maps import read_maps
+    for p in ("p1", "p2"):
+        a, b = read_maps(out / p), read_maps(finished_run / "results" / p)
+        assert all(np.array_equal(a[k], b[k]) for k in a)
+    # A second run submits nothing.
+    again = flyover_run_on_slurm(folder)
+    assert again.returncode == 0, again.stderr[-2000:]
+    log = (out / "logs" / "workflow.log").read_text()
+    assert "has been submitted" not in log and "Nothing to be done" in log
+
+
+@pytest.mark.slow
+def test_job_over_its_memory_limit_is_reported_as_such(slurm_cluster, finished_run, tmp_path):
+    folder = inputs_only(finished_run, tmp_path / "small memory")
+    res = flyover_run_on_slurm(folder, "--set-resources", "image:mem_mb=60", "--retries", "0")
+    assert res.returncode == 1
+    assert re.search(r"step image of pass p[12] was stopped by the scheduler: it needed more "
+                     r"than its memory limit of 60 MiB", res.stderr), res.stderr[-2000:]
+    assert "set-resources: image: mem_mb" in res.stderr and "Traceback" not in res.stderr

@@ -15,7 +15,12 @@ from dataclasses import dataclass
 from functools import lru_cache
 from pathlib import Path
 
+import numpy as np
+
+from flyover.acoustics.bands import third_octave_bands
+from flyover.imaging.dedoppler import ChainSettings, window_memory_bytes
 from flyover.io.config import load_campaign
+from flyover.io.readers import read
 from flyover.model.campaign import Campaign
 from flyover.model.errors import FlyoverInputError
 from flyover.model.reads import read_values
@@ -31,6 +36,53 @@ def package_digest() -> str:
         h.update(str(path.relative_to(root)).encode())
         h.update(path.read_bytes())
     return h.hexdigest()[:16]
+
+
+@dataclass(frozen=True)
+class JobSizes:
+    """What a job's memory and time scale with."""
+
+    n_grid: int
+    n_mics: int
+    window_samples: int
+    n_bands: int
+    n_windows: int
+
+
+# Measured on this project's benchmark machine (2 cores; benchmarks/bench_imaging.py and a
+# 16-microphone test campaign): peak resident memory of each stage beyond the chain itself, the
+# chain's temporaries per byte of `window_memory_bytes`, and the whole image stage's throughput.
+_BASE_MB = {"align": 320, "image": 330, "levels": 260, "qc": 380, "campaign_summary": 300,
+            "report": 300}
+_CHAIN_FACTOR = 1.7            # image: 561 MB at 142 MiB of chain (demo), 332 MB at 12 MiB
+# mic * grid point * sample per second, whole image stage with its unit sources, 2 threads:
+# demo pass-1, 48 mics x 775 points x 6400 samples x 16 windows in 50.6 s.
+_IMAGE_RATE = 7.5e7
+_MARGIN = 1.5
+_FLOOR_MB = 1000
+_FLOOR_MIN = 10
+
+
+def job_memory_mb(stage: str, sizes: JobSizes) -> int:
+    """Memory (MB) of one job: the measured base of its stage plus, for the stages that run the
+    imaging chain, the chain's own peak for these sizes; times a margin, at least a floor."""
+    need = _BASE_MB.get(stage, 300)
+    if stage == "image":
+        settings = ChainSettings(third_octave_bands(1000, 1000), np.ones(1), 1.0)
+        chain = window_memory_bytes(sizes.n_grid, sizes.n_mics, sizes.window_samples,
+                                    sizes.n_bands, settings) / 2 ** 20
+        need += _CHAIN_FACTOR * chain
+    return int(max(_FLOOR_MB, np.ceil(_MARGIN * need)))
+
+
+def job_runtime_min(stage: str, sizes: JobSizes) -> int:
+    """Wall time (minutes) of one job: every window at the imaging's measured whole-stage rate
+    (unit sources included), three times over; the other stages take seconds."""
+    if stage != "image":
+        return _FLOOR_MIN
+    work = sizes.n_mics * sizes.n_grid * sizes.window_samples * sizes.n_windows
+    seconds = work / _IMAGE_RATE
+    return int(max(_FLOOR_MIN, np.ceil(3 * seconds / 60)))
 
 
 @dataclass
@@ -82,6 +134,29 @@ class CampaignPlan:
         spec = self.campaign.passes[name]
         return {"recording": str(spec.recording), "calibration": str(spec.calibration),
                 "track": str(spec.track), "layout": str(self.campaign.array.layout)}
+
+    def memory_mb(self, name: str | None, stage: str) -> int:
+        """Memory to ask a scheduler for: the stage's measured peak scaled to this campaign's
+        sizes, with a margin and a floor (see :func:`job_memory_mb`)."""
+        return job_memory_mb(stage, self._sizes(name))
+
+    def runtime_min(self, name: str | None, stage: str) -> int:
+        """Minutes to ask a scheduler for (see :func:`job_runtime_min`)."""
+        return job_runtime_min(stage, self._sizes(name))
+
+    def _sizes(self, name: str | None) -> JobSizes:
+        camp = self.campaign
+        spec = camp.passes[name] if name is not None else next(iter(camp.passes.values()))
+        try:
+            rec = read("recording", spec.recording)
+            channels, fs, duration = rec.n_channels, rec.sample_rate_hz, rec.duration_s
+        except FlyoverInputError:  # not there yet (a simulated campaign): typical field sizes
+            channels, fs, duration = 64, 51200.0, 60.0
+        an = camp.analysis
+        return JobSizes(n_grid=int(np.prod(camp.grid.shape)), n_mics=channels,
+                        window_samples=int(an.window_s * fs),
+                        n_bands=len(third_octave_bands(an.band_min_hz, an.band_max_hz)),
+                        n_windows=int(duration / an.hop_s) + 1)
 
     def input_files(self) -> list[str]:
         """Every input file but the campaign file: its content reaches the rules through the

@@ -43,7 +43,13 @@ def snakemake_command(campaign_file: Path, *extra: str) -> list[str]:
 class _Job:
     rule: str
     pass_name: str = ""
-    log: str = ""
+    logs: list = field(default_factory=list)     # the step's log, then a scheduler's log
+    resources: dict = field(default_factory=dict)
+    message: str = ""
+
+    @property
+    def log(self) -> str:
+        return self.logs[0] if self.logs else ""
 
 
 @dataclass
@@ -71,13 +77,25 @@ class RunState:
             if self._current not in self.failed:
                 self.jobs[self._current_id] = self._current
                 self.running.add(self._current_id)
+            elif self._current_id in self.jobs:  # an error block: what the job was started with
+                started = self.jobs[self._current_id]
+                self._current.resources = started.resources
+                self._current.pass_name = self._current.pass_name or started.pass_name
+                self.running.discard(self._current_id)
+        elif self._current is not None and text.startswith("resources:"):
+            for part in text[len("resources:"):].split(","):
+                key, _, value = part.strip().partition("=")
+                self._current.resources[key] = value
+        elif self._current is not None and text.startswith("message:"):
+            self._current.message = text[len("message:"):].strip()
         elif self._current is not None and text.startswith("wildcards:"):
             for part in text[len("wildcards:"):].split(","):
                 key, _, value = part.strip().partition("=")
                 if key == "pass_name":
                     self._current.pass_name = value
         elif self._current is not None and text.startswith("log:"):
-            self._current.log = text[4:].split(" (check log")[0].strip()
+            self._current.logs = [p.strip() for p in
+                                  text[4:].split(" (check log")[0].split(", ") if p.strip()]
         elif m := _FINISHED.match(text):
             self.running.discard(m.group(1))
         elif m := _STEPS.match(text):
@@ -111,12 +129,41 @@ def _windows_done(log: Path) -> str:
     return ""
 
 
+_OVER_MEMORY = re.compile(r"exceeded memory limit \((\d+) > (\d+)\)")
+
+
+def scheduler_stop(job: _Job) -> str:
+    """Why a scheduler stopped a job (its memory or time limit), in flyover's words, or ""."""
+    texts = [job.message]
+    for log in job.logs[1:]:
+        try:
+            texts.append(Path(log).read_text(errors="replace"))
+        except OSError:
+            continue
+    text = "\n".join(texts)
+    where = f"step {job.rule}" + (f" of pass {job.pass_name}" if job.pass_name else "")
+    if m := _OVER_MEMORY.search(text):
+        used, limit = (int(v) / 2 ** 20 for v in m.groups())
+        return (f"{where} was stopped by the scheduler: it needed more than its memory limit of "
+                f"{limit:.0f} MiB ({used:.0f} MiB when stopped)\n  raise it in the profile: "
+                f"set-resources: {job.rule}: mem_mb: {int(2 * used)}")
+    if "OUT_OF_MEMORY" in text or "oom-kill" in text.lower():
+        limit = job.resources.get("mem_mb", "?")
+        return (f"{where} was stopped by the scheduler for its memory limit ({limit} MB)\n"
+                f"  raise it in the profile: set-resources: {job.rule}: mem_mb")
+    if "DUE TO TIME LIMIT" in text or "TIMEOUT" in text:
+        limit = job.resources.get("runtime", "?")
+        return (f"{where} was stopped by the scheduler at its time limit ({limit} min)\n"
+                f"  raise it in the profile: set-resources: {job.rule}: runtime")
+    return ""
+
+
 def job_message(log_path: str, max_lines: int = 12) -> str:
     """A failed job's own words: flyover's message, or the last line of a traceback."""
     try:
         lines = Path(log_path).read_text(errors="replace").rstrip().splitlines()
     except OSError:
-        return "(its log could not be read)"
+        return "(its log is empty or missing)"
     for i, line in enumerate(lines):
         if line.startswith("flyover:"):
             return "\n".join(lines[i:i + max_lines])
@@ -198,7 +245,11 @@ def run_campaign(campaign: Campaign, campaign_file: Path, snakemake_args: list[s
         stream.write("\r\033[K")
     failed_input = False
     for job in state.failed:
-        message = job_message(job.log) if job.log else ""
+        stopped = scheduler_stop(job)
+        if stopped:
+            stream.write(f"{stopped}\n  (logs: {', '.join(job.logs)})\n")
+            continue
+        message = job_message(job.log) if job.log else job.message
         failed_input |= message.startswith("flyover:")
         where = f" of pass {job.pass_name}" if job.pass_name else ""
         stream.write(f"step {job.rule}{where} failed:\n{message}\n  (log: {job.log})\n")

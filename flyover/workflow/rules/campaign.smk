@@ -16,7 +16,8 @@ rule campaign_summary:
     benchmark:
         f"{OUTP}/benchmarks/campaign_summary.tsv"
     resources:
-        mem_mb=1000,
+        mem_mb=PLAN.memory_mb(None, "campaign_summary"),
+        runtime=PLAN.runtime_min(None, "campaign_summary"),
     conda:
         CONDA_ENV,
     shell:
@@ -38,7 +39,8 @@ rule report:
     benchmark:
         f"{OUTP}/benchmarks/report.tsv"
     resources:
-        mem_mb=1000,
+        mem_mb=PLAN.memory_mb(None, "report"),
+        runtime=PLAN.runtime_min(None, "report"),
     conda:
         CONDA_ENV,
     shell:

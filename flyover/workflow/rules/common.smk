@@ -31,7 +31,9 @@ workdir: OUT
 # interpreter's path nor the campaign file's name says anything about the results.
 os.environ["FLYOVER_PYTHON"] = sys.executable
 os.environ["FLYOVER_CAMPAIGN"] = CAMPAIGN_FILE
-STAGE = '"$FLYOVER_PYTHON" -m flyover stage'
+# Each job's thread pools (numba, BLAS, OpenMP) are limited to the threads it was given.
+STAGE = ("OMP_NUM_THREADS={threads} OPENBLAS_NUM_THREADS={threads} MKL_NUM_THREADS={threads} "
+         'NUMBA_NUM_THREADS={threads} "$FLYOVER_PYTHON" -m flyover stage')
 
 envvars:
     "FLYOVER_PYTHON",

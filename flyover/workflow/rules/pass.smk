@@ -1,6 +1,7 @@
 # Per-pass steps: align, image, levels, check figures.
 #
-# Outputs are flagged update(): Snakemake keeps the previous version in place while a step runs
+# Resources (memory, runtime) are computed from the campaign's sizes (flyover.workflow.plan);
+# threads come from the profile. Outputs are flagged update(): Snakemake keeps the previous version in place while a step runs
 # and puts it back if the step fails, so a failed run never loses a good result (the stages
 # write every file atomically). Each rule's params are the values of the campaign that its
 # stage reads (declared in the stage module, enforced when it runs) and a digest of flyover.
@@ -19,7 +20,8 @@ rule align:
     benchmark:
         f"{OUTP}/benchmarks/{{pass_name}}/align.tsv"
     resources:
-        mem_mb=1000,
+        mem_mb=lambda w: PLAN.memory_mb(w.pass_name, "align"),
+        runtime=lambda w: PLAN.runtime_min(w.pass_name, "align"),
     conda:
         CONDA_ENV,
     shell:
@@ -43,8 +45,8 @@ rule image:
         f"{OUTP}/benchmarks/{{pass_name}}/image.tsv"
     threads: 2
     resources:
-        mem_mb=3000,
-        runtime=60,
+        mem_mb=lambda w: PLAN.memory_mb(w.pass_name, "image"),
+        runtime=lambda w: PLAN.runtime_min(w.pass_name, "image"),
     conda:
         CONDA_ENV,
     shell:
@@ -71,7 +73,8 @@ rule levels:
     group:
         "pass_light"
     resources:
-        mem_mb=1000,
+        mem_mb=lambda w: PLAN.memory_mb(w.pass_name, "levels"),
+        runtime=lambda w: PLAN.runtime_min(w.pass_name, "levels"),
     conda:
         CONDA_ENV,
     shell:
@@ -95,7 +98,8 @@ rule qc:
     group:
         "pass_light"
     resources:
-        mem_mb=2000,
+        mem_mb=lambda w: PLAN.memory_mb(w.pass_name, "qc"),
+        runtime=lambda w: PLAN.runtime_min(w.pass_name, "qc"),
     conda:
         CONDA_ENV,
     shell:
