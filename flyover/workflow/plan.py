@@ -11,7 +11,7 @@ from __future__ import annotations
 import hashlib
 import importlib
 import json
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from functools import lru_cache
 from pathlib import Path
 
@@ -91,6 +91,7 @@ class CampaignPlan:
 
     path: Path
     campaign: Campaign
+    _sizes_of: dict = field(default_factory=dict, repr=False)  # per pass: one header read
 
     @classmethod
     def load(cls, path) -> "CampaignPlan":
@@ -145,6 +146,11 @@ class CampaignPlan:
         return job_runtime_min(stage, self._sizes(name))
 
     def _sizes(self, name: str | None) -> JobSizes:
+        if name not in self._sizes_of:
+            self._sizes_of[name] = self._read_sizes(name)
+        return self._sizes_of[name]
+
+    def _read_sizes(self, name: str | None) -> JobSizes:
         camp = self.campaign
         spec = camp.passes[name] if name is not None else next(iter(camp.passes.values()))
         try:
