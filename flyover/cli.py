@@ -200,5 +200,12 @@ def _dispatch(args) -> int:
         return 0
     out = args.out if args.out is not None else campaign.output / args.pass_name
     options = {"threads": args.threads} if args.name == "image" else {}
-    stage.run(campaign, args.pass_name, out, **options)
+    try:
+        stage.run(campaign, args.pass_name, out, **options)
+    except OSError as exc:
+        from flyover.pipeline.context import load_pass, output_bytes
+        print(file_system_message(exc, output_bytes(campaign, load_pass(campaign,
+                                                                        args.pass_name))),
+              file=sys.stderr)
+        return 1
     return 0

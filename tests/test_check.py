@@ -126,4 +126,17 @@ def test_full_disk_mid_run_gives_flyovers_message(tiny_copy, capsys, monkeypatch
                  "--pass", "p1"]) == 1
     err = capsys.readouterr().err
     assert "alignment.json: could not be written or read: No space left on device" in err
-    assert "MiB free" in err and "Traceback" not in err
+    assert "MiB free; the pass's results need about" in err and "Traceback" not in err
+
+
+def test_results_that_would_not_fit_on_the_disk(tiny_copy, capsys, monkeypatch):
+    # Checked before anything is written: the estimate of the results against the free space.
+    from collections import namedtuple
+
+    from flyover.pipeline import check
+    usage = namedtuple("usage", "total used free")
+    monkeypatch.setattr(check.shutil, "disk_usage", lambda path: usage(10 ** 9, 10 ** 9, 2 ** 20))
+    err = refused(tiny_copy / "campaign.yaml", capsys, "not enough free space for the results",
+                  "found 1 MiB free")
+    need = float(err.split("expected about ")[1].split(" MiB")[0])
+    assert 2 < need < 50  # two tiny passes: maps, figures, tables and their share of the report

@@ -65,9 +65,9 @@ def require(condition: bool, what: str, where: str = "", expected: str = "", fou
         raise FlyoverInputError(what, where, expected, found, hint)
 
 
-def file_system_message(exc: OSError) -> str:
+def file_system_message(exc: OSError, need_bytes: int | None = None) -> str:
     """flyover's words for a failed read or write (no traceback): what, where, and for a full
-    disk how much room is left."""
+    disk how much room is left and (when known) how much the step's results take."""
     where = exc.filename or "a file"
     lines = [f"flyover: {where}: could not be written or read: {exc.strerror or exc}"]
     if exc.errno == errno.ENOSPC and exc.filename:
@@ -75,8 +75,10 @@ def file_system_message(exc: OSError) -> str:
                        if p.exists()), None)
         if folder is not None:
             free = shutil.disk_usage(folder).free
-            lines.append(f"  the disk holding {folder} has {free / 2 ** 20:.0f} MiB free; a pass "
-                         "needs room for its maps and figures (tens of MiB)")
+            need = (f"about {need_bytes / 2 ** 20:.0f} MiB" if need_bytes else
+                    "room for its maps and figures")
+            lines.append(f"  the disk holding {folder} has {free / 2 ** 20:.0f} MiB free; the "
+                         f"pass's results need {need}")
     elif exc.errno in (errno.EROFS, errno.EACCES, errno.EPERM):
         lines.append("  the folder is read-only or not writable: choose another output folder")
     return "\n".join(lines)

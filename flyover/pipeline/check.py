@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import shutil
 import tempfile
 from pathlib import Path
 
@@ -10,7 +11,8 @@ import numpy as np
 from flyover.acoustics.bands import third_octave_bands
 from flyover.model.campaign import Campaign
 from flyover.model.errors import FlyoverInputError
-from flyover.pipeline.context import PassInputs, check_memory, load_pass, pass_summary
+from flyover.pipeline.context import (PassInputs, check_memory, load_pass, output_bytes,
+                                      pass_summary)
 
 BLOCK_FRAMES = 1 << 16
 
@@ -38,6 +40,7 @@ def check_campaign(campaign: Campaign) -> list[dict]:
         _check_against_recording(campaign, p)
         _check_samples(p, summary["covered_s"])
         summaries.append(summary)
+    _check_free_space(campaign, sum(output_bytes(campaign, p) for p in loaded))
     return summaries
 
 
@@ -77,6 +80,18 @@ def _check_samples(inputs: PassInputs, covered_s) -> None:
             "sound on the microphone channels", f"all {len(inputs.channel_index)} channels "
             f"silent from frame {first} to {last}",
             "was the recorder armed, or the wrong file or channels chosen?")
+
+
+def _check_free_space(campaign: Campaign, need_bytes: int) -> None:
+    """Refuse a run whose results would not fit on the output folder's disk."""
+    out = Path(campaign.output)
+    existing = next(p for p in (out, *out.parents) if p.exists())
+    free = shutil.disk_usage(existing).free
+    if free < need_bytes:
+        raise FlyoverInputError(
+            "not enough free space for the results", f"{campaign.config_path}, key output",
+            f"about {need_bytes / 2 ** 20:.0f} MiB free on the disk of {existing}",
+            f"{free / 2 ** 20:.0f} MiB free", "free some space or choose another output folder")
 
 
 def check_output_folder(campaign: Campaign) -> None:

@@ -13,6 +13,7 @@ from flyover.geometry.track import TrackModel, fit_track
 from flyover.imaging.dedoppler import ChainSettings, window_memory_bytes
 from flyover.io.readers import Recording, read
 from flyover.io.readers.layout_csv import ArrayLayout
+from flyover.io.results import pass_output_bytes
 from flyover.io.results.alignment import read_alignment
 from flyover.model.campaign import Campaign, PassSpec
 from flyover.model.errors import FlyoverInputError
@@ -227,3 +228,11 @@ def load_aligned_pass(campaign: Campaign, name: str, out_dir) -> tuple[PassInput
     inputs = load_pass(campaign, name, float(alignment["clock_offset_s"]),
                        alignment.get("quality_excluded_channels", []))
     return inputs, alignment
+
+
+def output_bytes(campaign: Campaign, inputs: PassInputs) -> int:
+    """About how many bytes the results of a pass will take."""
+    an = campaign.analysis
+    n_windows = int(inputs.recording.duration_s / an.hop_s) + 1
+    return pass_output_bytes(n_windows, len(third_octave_bands(an.band_min_hz, an.band_max_hz)),
+                             int(np.prod(campaign.grid.shape)))
