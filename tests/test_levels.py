@@ -132,6 +132,30 @@ def test_clock_offset_estimated_from_an_anchor(tiny_copy):
     assert summary["clock_offset_source"].startswith("estimated")
     assert json.loads((out / "alignment.json").read_text())["clock_offset_s"] == \
         summary["clock_offset_s"]
+    # The estimate says how sure it is: a coherent anchor, a peak standing out of the scan, and
+    # an uncertainty that covers the 4 ms pull of the rear source.
+    assert summary["clock_estimate_coherence"] > 0.5
+    assert summary["clock_estimate_prominence"] > 6
+    assert 0.004 < summary["clock_offset_uncertainty_s"] < 0.1
+
+
+@pytest.mark.parametrize("anchor, refusal", [
+    ([1.0, 15.0, 0.0], "no source at the anchor"),            # 15 m to the side: nothing there
+    ([1.0, 0.0, -20.0], "no clear peak over the offsets searched"),  # 20 m above the vehicle
+])
+def test_clock_estimate_refuses_an_anchor_without_its_source(tiny_copy, anchor, refusal):
+    # Without these refusals the estimate was accepted 21 ms and 19 ms wrong here.
+    import yaml
+
+    from flyover.model.errors import FlyoverInputError
+    path = tiny_copy / "campaign.yaml"
+    data = yaml.safe_load(path.read_text())
+    data["passes"]["p1"].update(clock_offset_s="auto", clock_anchor_m=anchor,
+                                clock_search_s=0.5)
+    path.write_text(yaml.safe_dump(data))
+    with pytest.raises(FlyoverInputError, match=refusal) as info:
+        align.run(load_campaign(path), "p1", tiny_copy / "results" / "p1")
+    assert "clock_anchor_m" in info.value.message
 
 
 def test_auto_clock_offset_needs_an_anchor(tiny_copy):

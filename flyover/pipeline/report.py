@@ -152,6 +152,8 @@ def _pass_section(campaign: Campaign, name: str, out: Path) -> str:
         "wind (m/s)": atm.wind_speed_m_s, "wind from (deg)": atm.wind_from_deg,
         "speed of sound (m/s)": atm.c_m_s, "clock offset (s)": al["clock_offset_s"],
         "clock offset from": al.get("clock_offset_source", "config"),
+        "clock offset uncertainty (ms)": (f"{al['clock_offset_uncertainty_s'] * 1000:.1f}"
+                                          if "clock_offset_uncertainty_s" in al else "given"),
         "overhead (UTC)": al["overhead_utc"], "closest (m)": al["closest_distance_m"],
         "height (m)": al["height_above_array_m"], "speed (m/s)": al["speed_m_s"],
         "channels used": f"{al['channels_used']}/{al['channels']}"}]).T.reset_index()

@@ -35,12 +35,24 @@ class ClockEstimate:
         The coarse scan (coherence, normalised to 1 at its maximum).
     contrast : float
         Peak coherence over the median of the scan: near 1 means no clear anchor in the data.
+    coherence : float
+        Array coherence at the anchor at the peak: 1 for one source alone at the anchor, about 0
+        for sound that is incoherent across the array there.
+    prominence : float
+        How far the peak stands out of the scan: (peak - median) / (1.4826 MAD), the robust
+        number of standard deviations of the scan's spread.
+    uncertainty_s : float
+        Half-width of the peak where it has dropped by the scan's spread (1.4826 MAD), from the
+        fine scan's curvature: the offsets the data cannot tell apart.
     """
 
     offset_s: float
     scan_offsets_s: np.ndarray
     scan_power: np.ndarray
     contrast: float
+    coherence: float = float("nan")
+    prominence: float = float("nan")
+    uncertainty_s: float = float("nan")
 
 
 def anchor_power(read_frames, track: TrackModel, windows: list[Window], anchor_body_m,
@@ -68,7 +80,8 @@ def anchor_power(read_frames, track: TrackModel, windows: list[Window], anchor_b
             beam = np.sum(bp.full[0]) * s1 ** 2
             cross = np.sum(bp.diagonal_removed[0]) * (s1 ** 2 - s2)
             auto = beam - cross
-            total[k] += (cross / auto if auto > 0 else 0.0) / len(windows)
+            # Normalised so that one source alone at the anchor gives 1 (equal amplitudes).
+            total[k] += (cross * s2 / (auto * (s1 ** 2 - s2)) if auto > 0 else 0.0) / len(windows)
     return total
 
 
@@ -93,4 +106,11 @@ def estimate_clock_offset(read_frames, track: TrackModel, windows: list[Window],
     peak = float(np.max(p))
     median = float(np.median(p))
     contrast = peak / median if median > 0 else float("inf")
-    return ClockEstimate(offset, coarse, p / peak if peak > 0 else p, contrast)
+    spread = 1.4826 * float(np.median(np.abs(p - median)))
+    prominence = (peak - median) / spread if spread > 0 else float("inf")
+    curvature = denom / fine_step_s ** 2  # d2C/dtau2 at the peak, negative at a maximum
+    uncertainty = (float(np.sqrt(2 * spread / -curvature)) if curvature < 0 and spread > 0
+                   else float("inf"))
+    return ClockEstimate(offset, coarse, p / peak if peak > 0 else p, contrast,
+                         coherence=float(np.max(q)), prominence=prominence,
+                         uncertainty_s=uncertainty)
