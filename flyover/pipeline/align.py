@@ -127,13 +127,9 @@ def pass_channel_quality(campaign: Campaign, inputs, covered_s, overhead_s: floa
     each channel's coherence with its neighbours at low frequency, on the signals de-Dopplerized
     to the first region's centre over ``coherence_span_s`` of emission time around overhead
     (aligned in source time, so the moving source's changing delays do not decorrelate them)."""
-    clock, info = inputs.clock, inputs.recording
-    first = max(0, int(np.floor(clock.sample_index(covered_s[0]))))
-    last = min(info.n_frames, int(np.ceil(clock.sample_index(covered_s[1]))) + 1)
     acc = ChannelAccumulator(len(inputs.channel_index))
-    block = 1 << 16
-    for start in range(first, last, block):
-        acc.add(info.read(start, min(block, last - start), inputs.channel_index))
+    for block in inputs.raw_blocks(*inputs.covered_frames(covered_s)):
+        acc.add(block)
     return channel_quality(acc, inputs.pa_per_unit, inputs.layout.enu_m, inputs.layout.channel,
                            _aligned_coherence(campaign, inputs, overhead_s, coherence_span_s))
 

@@ -14,9 +14,6 @@ from flyover.model.errors import FlyoverInputError
 from flyover.pipeline.context import (PassInputs, check_memory, load_pass, output_bytes,
                                       pass_summary)
 
-BLOCK_FRAMES = 1 << 16
-
-
 def check_campaign(campaign: Campaign) -> list[dict]:
     """Check everything a run will need and summarise each pass.
 
@@ -66,13 +63,11 @@ def _check_against_recording(campaign: Campaign, inputs: PassInputs) -> None:
 
 def _check_samples(inputs: PassInputs, covered_s) -> None:
     """Finite samples everywhere in the span the pass uses, and not a silent recording."""
-    clock, rec = inputs.clock, inputs.recording
-    first = max(0, int(np.floor(clock.sample_index(covered_s[0]))))
-    last = min(rec.n_frames, int(np.ceil(clock.sample_index(covered_s[1]))) + 1)
+    rec = inputs.recording
+    first, last = inputs.covered_frames(covered_s)
     peak = 0.0
-    for start in range(first, last, BLOCK_FRAMES):
-        # The reader refuses NaN or Inf samples, naming the channel and the frame.
-        block = rec.read(start, min(BLOCK_FRAMES, last - start), inputs.channel_index)
+    # The reader refuses NaN or Inf samples, naming the channel and the frame.
+    for block in inputs.raw_blocks(first, last):
         peak = max(peak, float(np.max(np.abs(block))))
     if peak == 0.0:
         raise FlyoverInputError(

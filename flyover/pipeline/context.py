@@ -56,6 +56,18 @@ class PassInputs:
         units = self.recording.read(first_frame, n_frames, self.channel_index)
         return units * self.pa_per_unit[:, None].astype(np.float32)
 
+    def covered_frames(self, covered_s) -> tuple[int, int]:
+        """Frames [first, last) of the recording within a span of seconds after the epoch."""
+        first = max(0, int(np.floor(self.clock.sample_index(covered_s[0]))))
+        last = min(self.recording.n_frames, int(np.ceil(self.clock.sample_index(covered_s[1]))) + 1)
+        return first, last
+
+    def raw_blocks(self, first: int, last: int, block_frames: int = 1 << 16):
+        """The microphones' samples in recorded units over [first, last), block by block
+        (float32 (n_mics, <= block_frames)): memory follows the block, not the span."""
+        for start in range(first, last, block_frames):
+            yield self.recording.read(start, min(block_frames, last - start), self.channel_index)
+
     @property
     def recording_span_s(self) -> tuple[float, float]:
         """First and last sample times, seconds after the epoch."""
