@@ -10,10 +10,12 @@ its log, without a traceback) and the log's path.
 from __future__ import annotations
 
 import fcntl
+import queue
 import re
 import shutil
 import subprocess
 import sys
+import threading
 import time
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -224,10 +226,22 @@ def run_campaign(campaign: Campaign, campaign_file: Path, snakemake_args: list[s
         with open(log_path, "w", encoding="utf-8") as log:
             proc = subprocess.Popen(cmd, cwd=out, stdout=subprocess.PIPE,
                                     stderr=subprocess.STDOUT, text=True, bufsize=1)
+            # Snakemake is quiet while a step runs: a reader thread hands over its lines, so the
+            # status line (windows done within imaging) is redrawn every second meanwhile.
+            lines: queue.Queue = queue.Queue()
+            threading.Thread(target=lambda: [lines.put(x) for x in proc.stdout] + [lines.put(None)],
+                             daemon=True).start()
             shown = ""
-            for line in proc.stdout:
-                log.write(line)
-                state.feed(line)
+            while True:
+                try:
+                    line = lines.get(timeout=1.0)
+                except queue.Empty:
+                    line = ""
+                if line is None:
+                    break
+                if line:
+                    log.write(line)
+                    state.feed(line)
                 if verbose:
                     stream.write(line)
                 elif tty:
@@ -236,8 +250,8 @@ def run_campaign(campaign: Campaign, campaign_file: Path, snakemake_args: list[s
                         stream.write("\r\033[K" + status[:150])
                         stream.flush()
                         shown = status
-                elif _FINISHED.match(line.strip()):
-                    job = state.jobs.get(_FINISHED.match(line.strip()).group(1))
+                elif finished := _FINISHED.match(line.strip()):
+                    job = state.jobs.get(finished.group(1))
                     if job is not None:
                         stream.write(f"done: {job.rule} {job.pass_name}".rstrip() + "\n")
             code = proc.wait()
