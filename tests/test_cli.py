@@ -14,7 +14,8 @@ from flyover.io.config import load_campaign
 def test_check_prints_summary(tiny_campaign_dir, capsys):
     assert main(["check", str(tiny_campaign_dir / "campaign.yaml")]) == 0
     out = capsys.readouterr().out
-    for fragment in ("16/16 channels", "overhead at", "closest 30.0 m", "all inputs are valid"):
+    for fragment in ("16/16 microphones used", "recorder recorder: WAV file recording.wav",
+                     "overhead at", "closest 30.0 m", "all inputs are valid"):
         assert fragment in out
 
 

@@ -18,11 +18,16 @@ from flyover.imaging.resolution import main_lobe_width_m
 from flyover.imaging.window import image_window, window_context
 from flyover.model.campaign import Region, VehicleGrid
 from flyover.sim.scenario import incoherent_noise_pa, spiral_layout, straight_track
-from flyover.sync.timebase import RecordingClock
+from flyover.sync.timebase import ArrayClock, RecordingClock
 
 FS = 12800.0
 MICS = spiral_layout(4, 8, 0.5, 6.0)          # 32 microphones, 12 m aperture
-CLOCK = RecordingClock(0, 0.0, FS)
+CLOCK = ArrayClock.of_recorders([RecordingClock(0, 0.0, FS)], np.zeros(len(MICS), int))
+
+
+def rows(p, first, n):
+    """The span each microphone reads: row m from frame first[m] (one recorder: one frame)."""
+    return np.stack([p[m, f:f + n] for m, f in enumerate(first)])
 
 
 def naive_dedoppler(signals, rx_pos, amp, step, n_out):
@@ -95,12 +100,12 @@ def test_round_trip_point_source():
         for w in windows_near_overhead(track, 50)[::3]:
             geo = reception_geometry(track, w, [src.body_m], MICS, atm, 2.0)
             first, n = required_frames(geo, CLOCK, "cubic")
-            bp = window_band_powers(p[:, first:first + n], first, geo, CLOCK, w, st, atm)
+            bp = window_band_powers(rows(p, first, n), first, geo, CLOCK, w, st, atm)
             truth = signal_band_power(sig(w.emission_times_s), bands, FS)
             assert np.max(np.abs(10 * np.log10(bp.diagonal_removed[0] / truth))) < 0.1
             assert np.max(np.abs(10 * np.log10(bp.full[0] / truth))) < 0.1
             if not absorption:
-                a = dedopplerized_signals(p[:, first:first + n], first, geo, CLOCK, w, st)[0]
+                a = dedopplerized_signals(rows(p, first, n), first, geo, CLOCK, w, st)[0]
                 s = sig(w.emission_times_s)
                 assert min(np.corrcoef(a[m], s)[0, 1] for m in range(len(MICS))) >= 0.999
 
@@ -118,7 +123,7 @@ def test_sinc_option_extends_the_band():
     errors = {}
     for method in ("cubic", "sinc"):
         st = ChainSettings(bands, np.ones(len(MICS)), 2.0, interpolation=method, absorption=False)
-        bp = window_band_powers(p[:, first:first + n], first, geo, CLOCK, w, st, atm)
+        bp = window_band_powers(rows(p, first, n), first, geo, CLOCK, w, st, atm)
         errors[method] = 10 * np.log10(bp.full[0] / truth)
     assert np.max(np.abs(errors["sinc"])) < 0.1
     assert errors["cubic"][-1] < -0.2
@@ -134,10 +139,10 @@ def test_tone_is_found_at_its_emitted_frequency():
          if w.polar_angle_deg < 70][0]
     geo = reception_geometry(track, w, [src.body_m], MICS, atm, 2.0)
     first, n = required_frames(geo, CLOCK, "cubic")
-    a = dedopplerized_signals(p[:, first:first + n], first, geo, CLOCK, w, st)[0, 0]
+    a = dedopplerized_signals(rows(p, first, n), first, geo, CLOCK, w, st)[0, 0]
     assert peak_frequency(a, FS) == pytest.approx(f_e, rel=1e-3)
     # Raw channel 0 over the reception span of the same emission window.
-    raw = p[0, first:first + n]
+    raw = p[0, first[0]:first[0] + n]
     m_cos = 25.0 / atm.c_m_s * np.cos(np.deg2rad(angle_to_mic(w, MICS[0])))
     assert peak_frequency(raw, FS) == pytest.approx(f_e / (1 - m_cos), rel=1e-3)
     assert abs(f_e / (1 - m_cos) - f_e) > 40  # the shift is 40 times the tolerance
@@ -172,7 +177,7 @@ def test_map_peak_at_the_source(wind, body):
         ctx = window_context(w, track=track, clock=CLOCK, atmosphere=atm, mic_enu_m=MICS,
                              grid_points_m=grid.points_m(), settings=st, workers=2)
         first, n = ctx.first_frame, ctx.n_frames
-        bp = window_band_powers(p[:, first:first + n], first, ctx.geometry, CLOCK, w, st, atm,
+        bp = window_band_powers(rows(p, first, n), first, ctx.geometry, CLOCK, w, st, atm,
                                 workers=2)
         for b in range(len(bands)):
             peak = grid.points_m()[np.argmax(bp.diagonal_removed[:, b])]
@@ -209,7 +214,7 @@ def test_two_sources_region_levels():
         ctx = window_context(w, track=track, clock=CLOCK, atmosphere=atm, mic_enu_m=MICS,
                              grid_points_m=grid.points_m(), settings=st, workers=2)
         first, n = ctx.first_frame, ctx.n_frames
-        res = image_window(p[:, first:first + n], ctx, method=method_named("time-domain"),
+        res = image_window(rows(p, first, n), ctx, method=method_named("time-domain"),
                            grid_points_m=grid.points_m(), regions=regions)
         truth = {s.source.name: signal_band_power(s(w.emission_times_s), bands, FS) for s in sigs}
         for name, other in (("front", "rear"), ("rear", "front")):
@@ -235,7 +240,7 @@ def test_diagonal_removal_with_noise_only():
         ctx = window_context(w, track=track, clock=CLOCK, atmosphere=atm, mic_enu_m=MICS,
                              grid_points_m=[[0.0, 0.0, 0.0]], settings=st)
         first, n = ctx.first_frame, ctx.n_frames
-        bp = window_band_powers(p[:, first:first + n], first, ctx.geometry, CLOCK, w, st, atm)
+        bp = window_band_powers(rows(p, first, n), first, ctx.geometry, CLOCK, w, st, atm)
         dr.append(bp.diagonal_removed[0] / bp.full[0].mean())
         full.append(bp.full[0] / bp.full[0].mean())
     # One grid point, disjoint windows and bands: independent values. Their mean is zero within
@@ -256,13 +261,13 @@ def test_diagonal_removal_scales_a_source_by_n_minus_1_over_n():
     w = windows_near_overhead(track, 10)[0]
     geo = reception_geometry(track, w, [src.body_m], MICS, atm, 2.0)
     first, nf = required_frames(geo, CLOCK, "cubic")
-    bp = window_band_powers(p[:, first:first + nf], first, geo, CLOCK, w, st, atm)
+    bp = window_band_powers(rows(p, first, nf), first, geo, CLOCK, w, st, atm)
     truth = signal_band_power(sig(w.emission_times_s), bands, FS)
     before = bp.diagonal_removed[0] * (n ** 2 - n) / n ** 2
     np.testing.assert_allclose(10 * np.log10(before / truth), 10 * np.log10((n - 1) / n),
                                atol=0.02)
     # The same from the per-microphone signals with the design notes' time-domain formula.
-    a = dedopplerized_signals(p[:, first:first + nf], first, geo, CLOCK, w, st)[0].astype(float)
+    a = dedopplerized_signals(rows(p, first, nf), first, geo, CLOCK, w, st)[0].astype(float)
     lo, hi = bands.lower_hz[1], bands.upper_hz[1]
     spec = np.fft.rfft(a * np.hanning(a.shape[1] + 1)[:-1], axis=1)
     f = np.fft.rfftfreq(a.shape[1], 1 / FS)

@@ -63,7 +63,7 @@ def test_fingerprints_follow_the_declared_reads(tiny_copy):
     assert rerun_by(lambda d: d["passes"]["p1"].update(label="other")) == set()
     # File paths are not part of a fingerprint (the workflow tracks the files themselves).
     values = read_values(load_campaign(path), align.READS, "p1")
-    assert values["passes.p1.recording"] is None and values["config_path"] is None
+    assert values["passes.p1.recorders"][0]["files"] == [None] and values["config_path"] is None
 
 
 def test_run_progress_and_failure_reading(tmp_path):

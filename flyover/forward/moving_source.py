@@ -169,7 +169,8 @@ def emission_times_s(track: TrackModel, body_m, mic_enu_m, reception_s, wind_enu
     track : TrackModel
     body_m : ndarray, shape (3,)
     mic_enu_m : ndarray, shape (n_mics, 3)
-    reception_s : ndarray, shape (n,)
+    reception_s : ndarray, shape (n,) or (n_mics, n)
+        Reception times, the same for every microphone or per microphone.
 
     Returns
     -------
@@ -178,7 +179,8 @@ def emission_times_s(track: TrackModel, body_m, mic_enu_m, reception_s, wind_enu
         Geometry at those emission times, arrays of shape (n_mics, n).
     """
     mics = np.asarray(mic_enu_m, float)[:, None, :]
-    t = np.broadcast_to(np.asarray(reception_s, float), (len(mics), len(reception_s)))
+    reception_s = np.asarray(reception_s, float)
+    t = np.broadcast_to(reception_s, (len(mics), reception_s.shape[-1]))
     point = np.asarray(body_m, float)[None, :]
     pos0 = track.body_points_enu(point, np.clip(t.ravel(), track.start_s, track.end_s))
     tau = t - np.linalg.norm(mics - pos0.reshape(t.shape + (3,)), axis=-1) / c_m_s
@@ -235,10 +237,10 @@ def received_pressure_pa(track: TrackModel, signals: list[SourceSignal], bodies_
     bodies_m : sequence of (3,) arrays
         Body positions of the sources (same order as ``signals``).
     prop : Propagator
-    sample_rate_hz : float
-        True sample rate of the receiver.
-    start_s : float
-        True time of the first sample, seconds after the pass epoch.
+    sample_rate_hz : float or ndarray, shape (n_mics,)
+        True sample rate of the receiver (of each microphone's recorder).
+    start_s : float or ndarray, shape (n_mics,)
+        True time of the first sample (of each microphone), seconds after the pass epoch.
     n_samples : int
     coarse_step : int
         Emission times are solved every ``coarse_step`` samples and interpolated (cubic) between.
@@ -247,27 +249,29 @@ def received_pressure_pa(track: TrackModel, signals: list[SourceSignal], bodies_
     -------
     ndarray, shape (n_mics, n_samples), float64
     """
-    fs = float(sample_rate_hz)
     atm = prop.atmosphere
     c = atm.c_m_s
     wind = atm.wind_enu_m_s
     n_mics = len(prop.mic_enu_m)
-    t = start_s + np.arange(n_samples) / fs
-    n_coarse = n_samples // coarse_step + 3
-    tc = start_s + (np.arange(n_coarse) - 1) * coarse_step / fs
+    fs = np.broadcast_to(np.asarray(sample_rate_hz, float), (n_mics,))
+    start = np.broadcast_to(np.asarray(start_s, float), (n_mics,))
+    # Splines run over the sample index, which all microphones share whatever their clocks.
+    k = np.arange(n_samples)
+    kc = (np.arange(n_samples // coarse_step + 3) - 1) * coarse_step
+    tc = start[:, None] + kc[None, :] / fs[:, None]
     out = np.zeros((n_mics, n_samples))
     for signal, body in zip(signals, bodies_m):
         tau_c, geo = emission_times_s(track, body, prop.mic_enu_m, tc, wind, c)
         amp_c = prop.pressure_gain / (geo.distance_m * (1.0 - geo.mach_r) ** 2)
-        tau = CubicSpline(tc, tau_c, axis=1)(t)
-        amp = CubicSpline(tc, amp_c, axis=1)(t)
+        tau = CubicSpline(kc, tau_c, axis=1)(k)
+        amp = CubicSpline(kc, amp_c, axis=1)(k)
         contrib = signal(tau) * amp
         if prop.absorption:
-            r = CubicSpline(tc, geo.distance_m, axis=1)(t)
+            r = CubicSpline(kc, geo.distance_m, axis=1)(k)
             # Frequency in the air over the received one: (dt/dtau) / (1 - M_r) = 1 / (1 + n.U/c).
-            q = CubicSpline(tc, geo.doppler_factor / (1.0 - geo.mach_r), axis=1)(t)
+            q = CubicSpline(kc, geo.doppler_factor / (1.0 - geo.mach_r), axis=1)(k)
             for m in range(n_mics):
-                contrib[m] = _absorb(contrib[m], r[m], q[m], atm.absorption_db_per_m, fs)
+                contrib[m] = _absorb(contrib[m], r[m], q[m], atm.absorption_db_per_m, fs[m])
         out += contrib
     return out
 

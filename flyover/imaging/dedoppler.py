@@ -41,7 +41,7 @@ from flyover.geometry.propagation import paths_between
 from flyover.geometry.track import TrackModel
 from flyover.geometry.windows import Window
 from flyover.imaging import _kernels
-from flyover.sync.timebase import RecordingClock
+from flyover.sync.timebase import ArrayClock
 
 OVERSAMPLING = 4
 _SUBBAND_POINTS = 8
@@ -145,14 +145,15 @@ def subset(geometry: ReceptionGeometry, points) -> ReceptionGeometry:
                              geometry.distance_center_m[points], geometry.mach_r_center[points])
 
 
-def required_frames(geometry: ReceptionGeometry, clock: RecordingClock,
-                    interpolation: str) -> tuple[int, int]:
-    """First frame and number of frames of the recording that a window reads."""
+def required_frames(geometry: ReceptionGeometry, clock: ArrayClock,
+                    interpolation: str) -> tuple[np.ndarray, int]:
+    """The frames a window reads: per microphone the first frame of its recorder (int array
+    (n_mics,), the same for all microphones of one recorder), and one frame count for all."""
     pad = 4 if interpolation == "cubic" else 64
     idx = clock.sample_index(geometry.reception_s)
-    first = int(np.floor(idx.min())) - pad
-    last = int(np.ceil(idx.max())) + pad
-    return first, last - first + 1
+    first = clock.first_frames(idx) - pad
+    last = np.ceil(idx.max(axis=(0, 2))) + pad
+    return first, int(np.max(last - first)) + 1
 
 
 def valid_bands(geometry: ReceptionGeometry, window: Window,
@@ -198,15 +199,16 @@ def _absorption_gain(settings: ChainSettings, atmosphere: Atmosphere,
     return np.sqrt(power_gain).astype(np.float32)
 
 
-def dedopplerized_signals(signals_pa, first_frame: int, geometry: ReceptionGeometry,
-                          clock: RecordingClock, window: Window, settings: ChainSettings,
+def dedopplerized_signals(signals_pa, first_frame, geometry: ReceptionGeometry,
+                          clock: ArrayClock, window: Window, settings: ChainSettings,
                           points=slice(None)) -> np.ndarray:
     """The de-Dopplerized signal of every microphone for some grid points.
 
     Parameters
     ----------
     signals_pa : float32 array (n_mics, n_span)
-        Calibrated pressure read from ``first_frame`` on.
+        Calibrated pressure, row m read from frame ``first_frame[m]`` on.
+    first_frame : int array, shape (n_mics,)
     points : slice or index array
         Grid points (rows of the geometry) to compute.
 
@@ -214,7 +216,7 @@ def dedopplerized_signals(signals_pa, first_frame: int, geometry: ReceptionGeome
     -------
     float32 array (n_points, n_mics, window.n_samples)
     """
-    rx = clock.sample_index(geometry.reception_s[points]) - first_frame
+    rx = clock.sample_index(geometry.reception_s[points]) - np.asarray(first_frame)[:, None]
     amp = geometry.amplitude[points].astype(np.float32)
     sig = np.asarray(signals_pa, dtype=np.float32)
     if settings.interpolation == "sinc":
@@ -278,10 +280,14 @@ def signal_band_power(signal, bands: ThirdOctaveBands, sample_rate_hz: float) ->
                     axis=-1)
 
 
-def window_band_powers(signals_pa, first_frame: int, geometry: ReceptionGeometry,
-                       clock: RecordingClock, window: Window, settings: ChainSettings,
+def window_band_powers(signals_pa, first_frame, geometry: ReceptionGeometry,
+                       clock: ArrayClock, window: Window, settings: ChainSettings,
                        atmosphere: Atmosphere, *, workers: int = 1) -> BandPowers:
-    """Band powers on every grid point of the geometry, with and without diagonal removal."""
+    """Band powers on every grid point of the geometry, with and without diagonal removal.
+
+    ``signals_pa`` (n_mics, n_span) and ``first_frame`` (n_mics,) as in
+    :func:`dedopplerized_signals`.
+    """
     n_grid = geometry.reception_s.shape[0]
     w = np.asarray(settings.weights, dtype=np.float64)
     used = np.flatnonzero(w > 0)
@@ -290,6 +296,7 @@ def window_band_powers(signals_pa, first_frame: int, geometry: ReceptionGeometry
     gain = _absorption_gain(settings, atmosphere, geometry)[:, used]   # (n_g, n_used, n_b)
     sub = subset(geometry, (slice(None), used))
     sig = np.asarray(signals_pa)[used]
+    first_used, clock_used = np.asarray(first_frame)[used], clock.take(used)
     win, norm = spectral_weights(window.n_samples)
     bins = band_bins(settings.bands, window.n_samples, window.sample_rate_hz)
     n_b = len(bins)
@@ -297,7 +304,7 @@ def window_band_powers(signals_pa, first_frame: int, geometry: ReceptionGeometry
     diag = np.empty((n_grid, n_b))
     for c0 in range(0, n_grid, settings.chunk_points):
         pts = slice(c0, min(c0 + settings.chunk_points, n_grid))
-        a = dedopplerized_signals(sig, first_frame, sub, clock, window, settings, pts)
+        a = dedopplerized_signals(sig, first_used, sub, clock_used, window, settings, pts)
         a *= win
         spec = scipy.fft.rfft(a, axis=-1, workers=workers)          # (n_c, n_used, n_f)
         for b, s in enumerate(bins):

@@ -23,7 +23,7 @@ from flyover.imaging.dedoppler import (BandPowers, ChainSettings, ReceptionGeome
                                        reception_geometry, required_frames)
 from flyover.imaging.integration import region_powers
 from flyover.model.campaign import Region
-from flyover.sync.timebase import RecordingClock
+from flyover.sync.timebase import ArrayClock
 
 TOTAL = "total"  # the key of all regions together in WindowMaps.region_power
 
@@ -36,14 +36,16 @@ class WindowContext:
     ----------
     window : Window
     track : TrackModel
-    clock : RecordingClock
+    clock : ArrayClock
     atmosphere : Atmosphere
     mic_enu_m : ndarray, shape (n_mics, 3)
     settings : ChainSettings
     geometry : ReceptionGeometry
         Of every grid point (from :func:`window_context`).
-    first_frame, n_frames : int
-        The span of the recording the window reads.
+    first_frame : int array, shape (n_mics,)
+        First frame each microphone's recorder reads for the window.
+    n_frames : int
+        Frames read from there.
     diagonal_removal : bool
         Whether levels come from the diagonal-removed maps.
     workers : int
@@ -52,12 +54,12 @@ class WindowContext:
 
     window: Window
     track: TrackModel
-    clock: RecordingClock
+    clock: ArrayClock
     atmosphere: Atmosphere
     mic_enu_m: np.ndarray
     settings: ChainSettings
     geometry: ReceptionGeometry
-    first_frame: int
+    first_frame: np.ndarray
     n_frames: int
     diagonal_removal: bool = True
     workers: int = 1
@@ -91,7 +93,8 @@ class ImagingMethod:
         One line for help texts and the report.
     band_maps : callable
         ``band_maps(signals_pa, context) -> BandPowers`` on every grid point of the context's
-        geometry; ``signals_pa`` is float32 (n_mics, n_frames) from ``context.first_frame``.
+        geometry; ``signals_pa`` is float32 (n_mics, n_frames), row m from frame
+        ``context.first_frame[m]``.
     point_spread : callable
         ``point_spread(body_m, points, context, seed) -> PointSpread``: a unit point source at
         body point ``body_m`` (3,) mapped on the grid points ``points`` (indices into the
@@ -130,7 +133,7 @@ class WindowMaps:
     unit_power: dict
 
 
-def window_context(window: Window, *, track: TrackModel, clock: RecordingClock,
+def window_context(window: Window, *, track: TrackModel, clock: ArrayClock,
                    atmosphere: Atmosphere, mic_enu_m, grid_points_m, settings: ChainSettings,
                    diagonal_removal: bool = True, workers: int = 1) -> WindowContext:
     """The reception geometry of a window's grid points and the recording frames it needs."""
@@ -148,7 +151,7 @@ def image_window(signals_pa, context: WindowContext, *, method: ImagingMethod, g
     Parameters
     ----------
     signals_pa : float32 array (n_mics, context.n_frames)
-        Calibrated pressure from ``context.first_frame`` on.
+        Calibrated pressure, row m from frame ``context.first_frame[m]`` on.
     context : WindowContext
     method : ImagingMethod
     grid_points_m : ndarray, shape (n_grid, 3)

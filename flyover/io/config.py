@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import datetime
 import json
+import re
 from functools import lru_cache
 from pathlib import Path
 
@@ -16,8 +17,8 @@ from flyover.acoustics.bands import third_octave_bands
 from flyover.geometry.frames import SiteFrame
 from flyover.imaging.methods import DEFAULT_METHOD, methods
 from flyover.io.timestamps import parse_utc_ns
-from flyover.model.campaign import (AnalysisSettings, ArraySpec, Campaign, PassSpec, Region,
-                                    VehicleGrid)
+from flyover.model.campaign import (AnalysisSettings, ArraySpec, Campaign, PassSpec,
+                                    RecorderSpec, Region, VehicleGrid)
 from flyover.model.errors import FlyoverInputError, suggest
 
 
@@ -218,6 +219,106 @@ def _check_regions_apart(regions: dict[str, Region], grid: VehicleGrid, source: 
                     "one region by a grid spacing")
 
 
+_SINGLE_ONLY = ("recording_start_utc", "rate_error_ppm", "timing_channel")
+
+
+def _recorders(p: dict, base: Path, source: str, where: str) -> tuple[RecorderSpec, ...]:
+    """The recorders of a pass: one for ``recording: <file>``, else one per list entry."""
+    if isinstance(p["recording"], str):
+        rec = {"name": "recorder", "files": p["recording"],
+               **{k: p[k] for k in ("rate_error_ppm", "timing_channel") if k in p}}
+        if "recording_start_utc" in p:
+            rec["start_utc"] = p["recording_start_utc"]
+        entries = [(rec, f"{where}")]
+    else:
+        given = [k for k in _SINGLE_ONLY if k in p]
+        if given:
+            raise FlyoverInputError(
+                f"'{given[0]}' belongs to each recorder when a pass has a list of recorders",
+                f"{source}, key {where}.{given[0]}", f"{where}.recording[k].{_RENAMED[given[0]]}",
+                f"{where}.{given[0]}", "move it under the recorder it describes")
+        entries = [(r, f"{where}.recording[{k}]") for k, r in enumerate(p["recording"])]
+    out = []
+    for r, at in entries:
+        try:
+            start = parse_utc_ns(r["start_utc"]) if "start_utc" in r else None
+        except FlyoverInputError as exc:
+            key = "recording_start_utc" if at == where else "start_utc"
+            raise FlyoverInputError(exc.what, f"{source}, key {at}.{key}",
+                                    exc.expected, exc.found, exc.hint) from None
+        files = r["files"] if isinstance(r["files"], list) else [r["files"]]
+        timing = r.get("timing_channel", ())
+        timing = tuple(timing) if isinstance(timing, list) else (timing,) if timing != () else ()
+        if timing and "clock_offset_s" in r:
+            raise FlyoverInputError(
+                "a recorder with a timing channel takes its clock from it", f"{source}, key "
+                f"{at}.clock_offset_s", "no clock_offset_s beside timing_channel",
+                f"clock_offset_s: {r['clock_offset_s']}",
+                "remove it; a delay common to all recorders goes in the pass's clock_offset_s")
+        out.append(RecorderSpec(
+            name=r["name"], files=tuple(_resolve_path(base, f) for f in files),
+            channels=_channel_map(r["channels"], f"{source}, key {at}.channels")
+            if "channels" in r else None,
+            calibration=_resolve_path(base, r["calibration"]) if "calibration" in r else None,
+            start_utc_ns=start, clock_offset_s=float(r.get("clock_offset_s", 0.0)),
+            rate_error_ppm=float(r.get("rate_error_ppm", 0.0)), timing_channels=timing))
+    names = [r.name for r in out]
+    if len(set(names)) < len(names):
+        raise FlyoverInputError("two recorders of a pass share a name", f"{source}, key {where}",
+                                "a different name for each recorder", f"{names}")
+    if len(out) > 1 and any(r.channels is None for r in out):
+        raise FlyoverInputError(
+            "every recorder of a pass with several recorders needs its channel map",
+            f"{source}, key {where}.recording", "channels: {layout channel: recorder channel}, "
+            "e.g. {1-24: 1-24} or {25: 'Mic 25'}",
+            f"none for {[r.name for r in out if r.channels is None]}")
+    if "clock_offset_s" not in p and any(not r.timing_channels for r in out):
+        raise FlyoverInputError(
+            f"missing key '{where}.clock_offset_s'", source,
+            "the clock offset of the recordings (s), 'auto', or a timing channel on every "
+            "recorder", hint="see `flyover template` for a complete commented example")
+    if "calibration" not in p and any(r.calibration is None for r in out):
+        raise FlyoverInputError(f"missing key '{where}.calibration'", source,
+                                "a calibration table for the pass, or one per recorder")
+    if p.get("clock_offset_s") == "auto" and "clock_anchor_m" not in p:
+        raise FlyoverInputError(
+            "an automatic clock offset needs an anchor", f"{source}, key {where}",
+            "clock_anchor_m: [x, y, z], the body position (m) of a source in the recording",
+            "clock_offset_s: auto without clock_anchor_m",
+            "a clock offset looks exactly like an along-track shift of the sources; give the "
+            "body position of a known source (e.g. the propeller hub) or a number from a "
+            "PPS/IRIG log")
+    return tuple(out)
+
+
+_RENAMED = {"recording_start_utc": "start_utc", "rate_error_ppm": "rate_error_ppm",
+            "timing_channel": "timing_channel"}
+_RANGE = re.compile(r"^\s*(\d+)\s*-\s*(\d+)\s*$")
+
+
+def _channel_map(mapping: dict, where: str) -> tuple[tuple[int, int | str], ...]:
+    """(layout channel, recorder channel) pairs from ``{layout: recorder}``; ranges such as
+    ``1-24: 25-48`` map channel by channel."""
+    pairs = []
+    for key, value in mapping.items():
+        key_range = _RANGE.match(str(key))
+        if key_range:
+            lo, hi = int(key_range[1]), int(key_range[2])
+            value_range = _RANGE.match(str(value))
+            if not value_range or int(value_range[2]) - int(value_range[1]) != hi - lo or hi < lo:
+                raise FlyoverInputError(
+                    "a range of layout channels needs a range of recorder channels as long",
+                    f"{where}.{key}", f"e.g. {key}: {1}-{hi - lo + 1}", f"{value!r}")
+            first = int(value_range[1])
+            pairs += [(lo + k, first + k) for k in range(hi - lo + 1)]
+        elif str(key).strip().isdigit() and int(key) >= 1:
+            pairs.append((int(key), value))
+        else:
+            raise FlyoverInputError("a channel map key is not a layout channel", where,
+                                    "a channel number or a range such as 1-24", f"{key!r}")
+    return tuple(pairs)
+
+
 def _range(value) -> tuple[float, float]:
     return float(value[0]), float(value[1])
 
@@ -254,22 +355,16 @@ def campaign_from_mapping(data: dict, path: Path) -> Campaign:
     passes = {}
     for name, p in data["passes"].items():
         where = f"passes.{name}"
-        try:
-            start_ns = parse_utc_ns(p["recording_start_utc"])
-        except FlyoverInputError as exc:
-            raise FlyoverInputError(exc.what, f"{source}, key {where}.recording_start_utc",
-                                    exc.expected, exc.found, exc.hint) from None
+        recorders = _recorders(p, base, source, where)
         passes[name] = PassSpec(
             name=name,
-            recording=_resolve_path(base, p["recording"]),
-            calibration=_resolve_path(base, p["calibration"]),
+            recorders=recorders,
+            calibration=_resolve_path(base, p["calibration"]) if "calibration" in p else None,
             track=_resolve_path(base, p["track"]),
-            recording_start_utc_ns=start_ns,
-            clock_offset_s=p["clock_offset_s"],
+            clock_offset_s=p.get("clock_offset_s", 0.0),
             atmosphere=_atmosphere({**default_atm, **p.get("atmosphere", {})},
                                    f"{where}.atmosphere"),
             label=p.get("label", ""),
-            rate_error_ppm=float(p.get("rate_error_ppm", 0.0)),
             track_time_scale=p.get("track_time_scale", "utc"),
             track_height_datum=p.get("track_height_datum", "ellipsoidal"),
             track_position_noise_m=float(p.get("track_position_noise_m", 0.05)),
@@ -278,14 +373,6 @@ def campaign_from_mapping(data: dict, path: Path) -> Campaign:
             clock_search_s=float(p.get("clock_search_s", 1.0)),
             keep_channels=tuple(p.get("keep_channels", ())),
         )
-        if p["clock_offset_s"] == "auto" and "clock_anchor_m" not in p:
-            raise FlyoverInputError(
-                "an automatic clock offset needs an anchor", f"{source}, key {where}",
-                "clock_anchor_m: [x, y, z], the body position (m) of a source in the recording",
-                "clock_offset_s: auto without clock_anchor_m",
-                "a clock offset looks exactly like an along-track shift of the sources; give the "
-                "body position of a known source (e.g. the propeller hub) or a number from a "
-                "PPS/IRIG log")
     geoid = site_cfg.get("geoid_undulation_m")
     needs_geoid = array.height_datum == "msl" or any(
         ps.track_height_datum == "msl" for ps in passes.values())

@@ -14,7 +14,7 @@ from flyover.io.config import read_schema, read_yaml
 from flyover.io.timestamps import parse_utc_ns
 from flyover.model.campaign import MOUNTING_GAIN
 from flyover.model.errors import FlyoverInputError, suggest
-from flyover.sim.scenario import PassScenario, Scenario, spiral_layout
+from flyover.sim.scenario import PassScenario, RecorderScenario, Scenario, spiral_layout
 
 
 def _validate(data: dict, source: str) -> None:
@@ -48,9 +48,9 @@ def load_scenario(path) -> tuple[Scenario, SiteFrame, dict]:
     s = data["site"]
     site = SiteFrame(s["origin_lat_deg"], s["origin_lon_deg"], s["origin_height_m"])
     a = data["array"]
-    mics = spiral_layout(a["arms"], a["per_arm"], a["r_min_m"], a["r_max_m"],
+    mics_enu = spiral_layout(a["arms"], a["per_arm"], a["r_min_m"], a["r_max_m"],
                          a.get("twist_deg", 120.0))
-    mics[:, 2] = a.get("height_m", 0.0)
+    mics_enu[:, 2] = a.get("height_m", 0.0)
     sources = []
     for k, src in enumerate(data["sources"]):
         tones = tuple(Tone(t["frequency_hz"], t["level_db"], np.deg2rad(t.get("phase_deg", 0.0)))
@@ -71,7 +71,23 @@ def load_scenario(path) -> tuple[Scenario, SiteFrame, dict]:
             clock_offset_s=p.get("clock_offset_s", 0.0),
             atmosphere=Atmosphere(**p["atmosphere"]), cross_offset_m=p.get("cross_offset_m", 0.0),
             gain_db=dict(p.get("gain_db", {})), pitch_deg=p.get("pitch_deg", 0.0),
-            seed=p.get("seed", 10 * (k + 1))))
+            seed=p.get("seed", 10 * (k + 1)),
+            recorders=tuple(RecorderScenario(
+                name=r["name"], microphones=tuple(range(r["microphones"][0],
+                                                        r["microphones"][1] + 1)),
+                format=r.get("format", "wav"), file_s=r.get("file_s"),
+                start_after_s=r.get("start_after_s", 0.0),
+                clock_error_s=r.get("clock_error_s", 0.0), drift_ppm=r.get("drift_ppm", 0.0),
+                timing=tuple(r.get("timing", ()))) for r in p.get("recorders", ()))))
+    for ps in passes:
+        mics = [m for r in ps.recorders for m in r.microphones]
+        if ps.recorders and sorted(mics) != list(range(1, len(mics_enu) + 1)):
+            raise FlyoverInputError(
+                "the recorders of a simulated pass must record every microphone once",
+                f"{path}, key passes.{ps.name}.recorders",
+                f"microphone ranges covering 1-{len(mics_enu)} without overlap",
+                ", ".join(f"{r.name}: {r.microphones[0]}-{r.microphones[-1]}"
+                          for r in ps.recorders))
     rec, gnss = data["recording"], data["gnss"]
     names = [s.name for s in sources]
     for ps in passes:
@@ -81,7 +97,7 @@ def load_scenario(path) -> tuple[Scenario, SiteFrame, dict]:
                                         f"{path}, key passes.{ps.name}.gain_db",
                                         f"one of {names}", hint=suggest(key, names))
     scenario = Scenario(
-        name=data.get("name", path.stem), mic_enu_m=mics,
+        name=data.get("name", path.stem), mic_enu_m=mics_enu,
         pressure_gain=MOUNTING_GAIN[a["mounting"]], sources=tuple(sources), passes=tuple(passes),
         sample_rate_hz=float(rec["sample_rate_hz"]), noise_spl_db=float(rec["noise_spl_db"]),
         pa_per_unit=float(rec["pa_per_unit"]),

@@ -126,18 +126,54 @@ class AnalysisSettings:
 
 
 @dataclass(frozen=True)
-class PassSpec:
-    """One pass of the campaign: its files, clock and atmosphere."""
+class RecorderSpec:
+    """One recorder (or DAQ chassis) of a pass: its files, its channels and its clock.
+
+    Attributes
+    ----------
+    name : str
+    files : tuple of Path
+        Its files; consecutive files of a split take are joined by their start times.
+    channels : tuple of (int, int or str) pairs, or None
+        (layout channel, recorder channel): the recorder channel is a 1-based index or a name
+        (TDMS ``group/channel``, iXML track). None: recorder channel k is layout channel k.
+    calibration : Path or None
+        Its calibration table (keyed by layout channel); None: the pass's.
+    start_utc_ns : int or None
+        A typed start time of its first sample; None: from its files or its time code.
+    clock_offset_s : float
+        Its own correction, added to the pass's ``clock_offset_s``.
+    rate_error_ppm : float
+        Its sample-rate error when no timing channel measures it.
+    timing_channels : tuple of (int or str)
+        PPS and/or IRIG-B channels (detected by their content); empty for none.
+    """
 
     name: str
-    recording: Path
-    calibration: Path
+    files: tuple[Path, ...]
+    channels: tuple[tuple[int, int | str], ...] | None = None
+    calibration: Path | None = None
+    start_utc_ns: int | None = None
+    clock_offset_s: float = 0.0
+    rate_error_ppm: float = 0.0
+    timing_channels: tuple[int | str, ...] = ()
+
+
+@dataclass(frozen=True)
+class PassSpec:
+    """One pass of the campaign: its recorders, track, clock and atmosphere.
+
+    ``clock_offset_s`` is common to all recorders (a number, or ``"auto"`` for the acoustic
+    estimate); ``calibration`` is the pass's table for recorders without their own.
+    """
+
+    name: str
+    recorders: tuple[RecorderSpec, ...]
+    calibration: Path | None
     track: Path
-    recording_start_utc_ns: int
     clock_offset_s: float | str
     atmosphere: Atmosphere
     label: str = ""
-    rate_error_ppm: float = 0.0
     track_time_scale: str = "utc"
     track_height_datum: str = "ellipsoidal"
     track_position_noise_m: float = 0.05
@@ -145,6 +181,16 @@ class PassSpec:
     clock_anchor_m: tuple[float, float, float] | None = None
     clock_search_s: float = 1.0
     keep_channels: tuple[int, ...] = ()
+
+    def input_files(self) -> list[Path]:
+        """Every file of the pass: recordings, calibrations and the track."""
+        files = [f for r in self.recorders for f in r.files]
+        files += [c for c in [self.calibration] + [r.calibration for r in self.recorders] if c]
+        return list(dict.fromkeys(files + [self.track]))
+
+    @property
+    def recording_files(self) -> list[Path]:
+        return [f for r in self.recorders for f in r.files]
 
 
 # What a per-pass stage may read of its pass: everything but the label, which only groups passes
@@ -189,5 +235,5 @@ class Campaign:
         """Every input file the campaign names: config, layout, recordings, calibrations, tracks."""
         files = [self.config_path, self.array.layout]
         for p in self.passes.values():
-            files += [p.recording, p.calibration, p.track]
+            files += p.input_files()
         return list(dict.fromkeys(files))

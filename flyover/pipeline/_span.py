@@ -21,7 +21,7 @@ def dedopplerize_span(campaign: Campaign, inputs: PassInputs, start_s: float, n_
     float32 array (n_mics, n_samples), or None when the track or the recording does not hold
     the span (no absorption compensation: for checks and spectrograms, not for levels).
     """
-    fs = inputs.recording.sample_rate_hz
+    fs = inputs.sample_rate_hz
     track = inputs.track
     if start_s < track.start_s or start_s + n_samples / fs > track.end_s:
         return None
@@ -33,7 +33,7 @@ def dedopplerize_span(campaign: Campaign, inputs: PassInputs, start_s: float, n_
     geo = reception_geometry(track, span, [body_m], inputs.layout.enu_m, inputs.spec.atmosphere,
                              settings.pressure_gain, node_step=settings.node_step)
     first, count = required_frames(geo, inputs.clock, "cubic")
-    if first < 0 or first + count > inputs.recording.n_frames:
+    if not inputs.holds(first, count):
         return None
     signals = inputs.read_pressure_pa(first, count)
     return dedopplerized_signals(signals, first, geo, inputs.clock, span, settings)[0]

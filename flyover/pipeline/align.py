@@ -4,7 +4,6 @@ from __future__ import annotations
 
 from pathlib import Path
 
-import numpy as np
 
 from flyover.acoustics.bands import third_octave_bands
 from flyover.geometry.windows import plan_windows
@@ -42,11 +41,10 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> dict:
     estimate = None
     if inputs.spec.clock_offset_s == "auto":
         estimate = _estimate_offset(campaign, inputs)
-        inputs = load_pass(campaign, pass_name, estimate.offset_s)
+        measured = {r.spec.name: r.timing for r in inputs.recorders if r.timing is not None}
+        inputs = load_pass(campaign, pass_name, estimate.offset_s, measured_clocks=measured)
     summary = pass_summary(inputs)
-    summary["recording_start_utc_ns"] = int(inputs.spec.recording_start_utc_ns)
     summary["epoch_utc_ns"] = int(inputs.clock.epoch_utc_ns)
-    summary["rate_error_ppm"] = inputs.clock.rate_error_ppm
     summary["clock_offset_source"] = "config"
     quality = pass_channel_quality(campaign, inputs, summary["covered_s"], summary["overhead_s"])
     flagged = [q["channel"] for q in quality if q["verdict"] != "ok"]
@@ -77,29 +75,23 @@ def _estimate_offset(campaign: Campaign, inputs):
     """Clock offset from the anchor source, on up to five windows near overhead."""
     an = campaign.analysis
     spec = inputs.spec
-    fs = inputs.recording.sample_rate_hz
+    fs = inputs.sample_rate_hz
     search = spec.clock_search_s
     span = (search + 0.5, inputs.recording_span_s[1] - search - 0.5)
     windows = plan_windows(inputs.track, inputs.layout.center_enu_m, span, an.window_s,
                            an.window_s, fs, max_polar_offset_deg=30.0)
     if not windows:
         raise FlyoverInputError(
-            "no window near overhead to estimate the clock offset from", str(spec.recording),
+            "no window near overhead to estimate the clock offset from",
+            f"{campaign.config_path}, key passes.{spec.name}.recording",
             f"a recording covering the overhead time with {search} s to spare on each side",
             hint="set clock_search_s smaller, or give clock_offset_s as a number")
     pick = windows[:: max(1, len(windows) // 5)][:5]
     bands = third_octave_bands(max(an.band_min_hz, 250.0), an.band_max_hz)
     settings = ChainSettings(bands, inputs.weights, campaign.array.pressure_gain, "cubic")
-    info = inputs.recording
-
     def read_frames(first, n):
         # Silence outside the recording: candidate offsets may look past its ends.
-        first_ok = max(0, first)
-        last_ok = min(info.n_frames, first + n)
-        out = np.zeros((len(inputs.channel_index), n), np.float32)
-        out[:, first_ok - first:last_ok - first] = inputs.read_pressure_pa(first_ok,
-                                                                           last_ok - first_ok)
-        return out
+        return inputs.read_pressure_pa(first, n, pad=True)
 
     estimate = estimate_clock_offset(read_frames, inputs.track, pick, spec.clock_anchor_m,
                                      inputs.layout.enu_m, spec.atmosphere, inputs.clock,
@@ -127,7 +119,7 @@ def pass_channel_quality(campaign: Campaign, inputs, covered_s, overhead_s: floa
     each channel's coherence with its neighbours at low frequency, on the signals de-Dopplerized
     to the first region's centre over ``coherence_span_s`` of emission time around overhead
     (aligned in source time, so the moving source's changing delays do not decorrelate them)."""
-    acc = ChannelAccumulator(len(inputs.channel_index))
+    acc = ChannelAccumulator(len(inputs.layout.channel))
     for block in inputs.raw_blocks(*inputs.covered_frames(covered_s)):
         acc.add(block)
     return channel_quality(acc, inputs.pa_per_unit, inputs.layout.enu_m, inputs.layout.channel,
@@ -137,7 +129,7 @@ def pass_channel_quality(campaign: Campaign, inputs, covered_s, overhead_s: floa
 def _aligned_coherence(campaign: Campaign, inputs, overhead_s: float, span_s: float):
     """Low-band neighbour coherence of the de-Dopplerized channels, or None when the recording
     does not hold the span."""
-    fs = inputs.recording.sample_rate_hz
+    fs = inputs.sample_rate_hz
     centre = next(iter(campaign.regions.values())).center_m
     aligned = dedopplerize_span(campaign, inputs, overhead_s - span_s / 2, int(span_s * fs),
                                 centre)

@@ -23,7 +23,7 @@ def check_campaign(campaign: Campaign) -> list[dict]:
     """
     check_output_folder(campaign)
     loaded = [load_pass(campaign, name) for name in campaign.passes]
-    rates = {p.spec.name: p.recording.sample_rate_hz for p in loaded}
+    rates = {p.spec.name: p.sample_rate_hz for p in loaded}
     if len(set(rates.values())) > 1:
         raise FlyoverInputError(
             "passes that share the array layout have different sample rates",
@@ -44,12 +44,12 @@ def check_campaign(campaign: Campaign) -> list[dict]:
 def _check_against_recording(campaign: Campaign, inputs: PassInputs) -> None:
     """Windows and bands that the recording can hold."""
     an = campaign.analysis
-    fs = inputs.recording.sample_rate_hz
-    if an.window_s > inputs.recording.duration_s:
+    fs = inputs.sample_rate_hz
+    if an.window_s > inputs.duration_s:
         raise FlyoverInputError(
             "the analysis window is longer than the recording",
             f"{campaign.config_path}, key analysis.window_s",
-            f"at most the {inputs.recording.duration_s:.2f} s of {inputs.spec.recording.name}",
+            f"at most the {inputs.duration_s:.2f} s recorded in pass {inputs.spec.name}",
             f"{an.window_s} s", "use a shorter window_s (0.25-1 s is usual for drones)")
     top = third_octave_bands(an.band_min_hz, an.band_max_hz).upper_hz[-1]
     if top > fs / 2:
@@ -57,23 +57,23 @@ def _check_against_recording(campaign: Campaign, inputs: PassInputs) -> None:
             "bands above what the recording's sample rate can hold",
             f"{campaign.config_path}, key analysis.band_max_hz",
             f"bands whose upper edge lies below half the sample rate ({fs / 2:g} Hz)",
-            f"the band up to {top:.0f} Hz for {inputs.spec.recording.name} at {fs:g} Hz",
+            f"the band up to {top:.0f} Hz for pass {inputs.spec.name} at {fs:g} Hz",
             "lower band_max_hz")
 
 
 def _check_samples(inputs: PassInputs, covered_s) -> None:
     """Finite samples everywhere in the span the pass uses, and not a silent recording."""
-    rec = inputs.recording
-    first, last = inputs.covered_frames(covered_s)
+    first, n = inputs.covered_frames(covered_s)
     peak = 0.0
     # The reader refuses NaN or Inf samples, naming the channel and the frame.
-    for block in inputs.raw_blocks(first, last):
+    for block in inputs.raw_blocks(first, n):
         peak = max(peak, float(np.max(np.abs(block))))
     if peak == 0.0:
         raise FlyoverInputError(
-            "the recording holds only zeros where the track covers it", str(rec.path),
-            "sound on the microphone channels", f"all {len(inputs.channel_index)} channels "
-            f"silent from frame {first} to {last}",
+            "the recording holds only zeros where the track covers it",
+            ", ".join(str(p) for r in inputs.recorders for p in r.recording.paths),
+            "sound on the microphone channels", f"all {len(inputs.layout.channel)} channels "
+            f"silent over the {n} frames the track covers",
             "was the recorder armed, or the wrong file or channels chosen?")
 
 
@@ -115,7 +115,7 @@ def check_output_folder(campaign: Campaign) -> None:
 def format_summary(campaign: Campaign, summaries: list[dict]) -> str:
     """Human-readable text of :func:`check_campaign`'s result."""
     lines = [f"campaign {campaign.config_path}",
-             f"  array: {summaries[0]['channels']} channels, aperture "
+             f"  array: {summaries[0]['microphones']} microphones, aperture "
              f"{summaries[0]['array_aperture_m']:.2f} m, {campaign.array.mounting}",
              f"  grid: {campaign.grid.shape[0]} x {campaign.grid.shape[1]} points at "
              f"{campaign.grid.spacing_m} m; regions: {', '.join(campaign.regions)}"]
@@ -124,8 +124,10 @@ def format_summary(campaign: Campaign, summaries: list[dict]) -> str:
                  if s["clock_offset_auto"] else f"clock offset {s['clock_offset_s']:+.3f} s")
         lines += [
             f"  {s['pass']} ({campaign.passes[s['pass']].label or 'no label'}): "
-            f"{s['channels_used']}/{s['channels']} "
-            f"channels, {s['duration_s']:.2f} s at {s['sample_rate_hz']:.0f} Hz",
+            f"{s['channels_used']}/{s['microphones']} microphones used "
+            f"({s['channels']} channels recorded), {s['duration_s']:.2f} s at "
+            f"{s['sample_rate_hz']:.0f} Hz",
+            *_recorder_lines(s),
             f"    recording from {s['epoch_utc']} ({clock}); "
             f"track {s['track_start_utc']} to {s['track_end_utc']}",
             f"    track covers {s['covered_s'][1] - s['covered_s'][0]:.2f} s of the recording; "
@@ -136,3 +138,32 @@ def format_summary(campaign: Campaign, summaries: list[dict]) -> str:
             f"track noise ~{s['track_noise_estimate_m'] * 100:.1f} cm"]
     lines.append("all inputs are valid")
     return "\n".join(lines)
+
+
+def _recorder_lines(s: dict) -> list[str]:
+    """Each recorder of a pass: files, channels, span on the pass's time base, clock; and how
+    the recorders' spans overlap."""
+    lines = []
+    for r in s["recorders"]:
+        files = (f"{len(r['files'])} {r['format']} files ({r['files'][0]} ... {r['files'][-1]})"
+                 if len(r["files"]) > 1 else f"{r['format']} file {r['files'][0]}")
+        residual = r.get("timing_residual_rms_us", float("nan"))
+        clock = {"timing channel": f"clock from its {r.get('timing_kind', 'timing channel')}: "
+                                   f"drift {r['drift_ppm']:+.2f} ppm, residual "
+                                   f"{residual:.1f} us rms",
+                 "acoustic": "clock offset estimated acoustically",
+                 "given": f"clock as given ({r['start_source'] or 'typed start'})"
+                 }[r["clock_method"]]
+        if "own_clock_error_s" in r and r["clock_method"] == "timing channel":
+            clock += f"; its own clock was off by {r['own_clock_error_s']:+.4f} s"
+        lines += [f"    recorder {r['name']}: {files}, {r['channels']} channels "
+                  f"(microphones {r['layout_channels']}), from {r['start_utc']} for "
+                  f"{r['duration_s']:.2f} s (t = {r['span_s'][0]:.3f} to {r['span_s'][1]:.3f} s)",
+                  f"      {clock}"]
+        lines += [f"      timing: {e}" for e in r.get("timing_events", [])]
+    if len(s["recorders"]) > 1:
+        lo = max(r["span_s"][0] for r in s["recorders"])
+        hi = min(r["span_s"][1] for r in s["recorders"])
+        lines.append(f"    all recorders record together from t = {lo:.3f} s to {hi:.3f} s "
+                     f"({max(hi - lo, 0.0):.2f} s)")
+    return lines

@@ -11,13 +11,45 @@ from flyover.acoustics.bands import third_octave_bands
 from flyover.geometry.overview import pass_geometry
 from flyover.geometry.track import TrackModel, fit_track
 from flyover.imaging.dedoppler import ChainSettings, window_memory_bytes
-from flyover.io.readers import Recording, read
+from flyover.io.readers import read
+from flyover.io.recorders import JoinedRecording, join_files
 from flyover.io.readers.layout_csv import ArrayLayout
 from flyover.io.results import pass_output_bytes
 from flyover.io.results.alignment import read_alignment
-from flyover.model.campaign import Campaign, PassSpec
-from flyover.model.errors import FlyoverInputError
-from flyover.sync.timebase import RecordingClock, iso_utc
+from flyover.model.campaign import Campaign, PassSpec, RecorderSpec
+from flyover.model.errors import FlyoverInputError, suggest
+from flyover.sync.timebase import ArrayClock, RecordingClock, iso_utc
+from flyover.sync.timecode import TimingFit, measure_clock
+
+
+@dataclass(frozen=True)
+class RecorderInputs:
+    """One recorder of a pass, opened and mapped.
+
+    Attributes
+    ----------
+    spec : RecorderSpec
+    recording : JoinedRecording
+        Its files as one stream.
+    mics : ndarray of int
+        Rows of the layout (microphones) it recorded.
+    channels : ndarray of int
+        0-based channel of the recording for each of those microphones.
+    clock : RecordingClock
+        Its clock (before the pass's common offset).
+    timing : TimingFit or None
+        The clock measured from its timing channel(s), when it has one.
+    start_source : str
+        Where its start time came from.
+    """
+
+    spec: RecorderSpec
+    recording: JoinedRecording
+    mics: np.ndarray
+    channels: np.ndarray
+    clock: RecordingClock
+    timing: TimingFit | None
+    start_source: str
 
 
 @dataclass(frozen=True)
@@ -30,8 +62,9 @@ class PassInputs:
     layout : ArrayLayout
     pa_per_unit : ndarray, shape (n_mics,)
         Calibration of each layout microphone (layout order).
-    recording : Recording
-    clock : RecordingClock
+    recorders : tuple of RecorderInputs
+    clock : ArrayClock
+        Every microphone's sample clock on the pass epoch (the first recorder's corrected start).
     track : TrackModel
         Times in seconds after the clock's epoch.
     weights : ndarray, shape (n_mics,)
@@ -41,37 +74,86 @@ class PassInputs:
     spec: PassSpec
     layout: ArrayLayout
     pa_per_unit: np.ndarray
-    recording: Recording
-    clock: RecordingClock
+    recorders: tuple[RecorderInputs, ...]
+    clock: ArrayClock
     track: TrackModel
     weights: np.ndarray
 
     @property
-    def channel_index(self) -> np.ndarray:
-        """0-based recording channel of each microphone (layout order)."""
-        return self.layout.channel - 1
+    def sample_rate_hz(self) -> float:
+        """The recorders' nominal sample rate (one for the whole pass)."""
+        return self.recorders[0].recording.sample_rate_hz
 
-    def read_pressure_pa(self, first_frame: int, n_frames: int) -> np.ndarray:
-        """Calibrated pressure (Pa) of the microphones, float32 (n_mics, n_frames)."""
-        units = self.recording.read(first_frame, n_frames, self.channel_index)
+    @property
+    def n_channels(self) -> int:
+        return sum(r.recording.n_channels for r in self.recorders)
+
+    def holds(self, first_frame, n_frames: int) -> bool:
+        """Whether every recorder holds its frames [first, first + n)."""
+        return all(0 <= first_frame[r.mics[0]] and first_frame[r.mics[0]] + n_frames
+                   <= r.recording.n_frames for r in self.recorders)
+
+    def read_units(self, first_frame, n_frames: int, *, pad: bool = False) -> np.ndarray:
+        """The microphones' samples in recorded units, float32 (n_mics, n_frames), row m from
+        frame ``first_frame[m]`` of its recorder; ``pad`` fills frames outside a recording
+        with silence instead of refusing them."""
+        out = np.zeros((len(self.layout.channel), n_frames), np.float32)
+        for r in self.recorders:
+            first = int(first_frame[r.mics[0]])
+            lo, hi = (max(0, first), min(r.recording.n_frames, first + n_frames)) if pad else (
+                first, first + n_frames)
+            if hi > lo:
+                out[r.mics, lo - first:hi - first] = r.recording.read(lo, hi - lo, r.channels)
+        return out
+
+    def read_pressure_pa(self, first_frame, n_frames: int, *, pad: bool = False) -> np.ndarray:
+        """Calibrated pressure (Pa) of the microphones, float32 (n_mics, n_frames); see
+        :meth:`read_units`."""
+        units = self.read_units(first_frame, n_frames, pad=pad)
         return units * self.pa_per_unit[:, None].astype(np.float32)
 
-    def covered_frames(self, covered_s) -> tuple[int, int]:
-        """Frames [first, last) of the recording within a span of seconds after the epoch."""
-        first = max(0, int(np.floor(self.clock.sample_index(covered_s[0]))))
-        last = min(self.recording.n_frames, int(np.ceil(self.clock.sample_index(covered_s[1]))) + 1)
-        return first, last
+    def frames_at(self, time_s: float) -> np.ndarray:
+        """Per microphone, the frame of its recorder at a time (s after the epoch), floored."""
+        idx = self.clock.sample_index(np.full((len(self.layout.channel), 1), float(time_s)))
+        return self.clock.first_frames(idx)
 
-    def raw_blocks(self, first: int, last: int, block_frames: int = 1 << 16):
-        """The microphones' samples in recorded units over [first, last), block by block
-        (float32 (n_mics, <= block_frames)): memory follows the block, not the span."""
-        for start in range(first, last, block_frames):
-            yield self.recording.read(start, min(block_frames, last - start), self.channel_index)
+    def covered_frames(self, covered_s) -> tuple[np.ndarray, int]:
+        """Per microphone the first frame of its recorder within a span of seconds after the
+        epoch, and the frames from there that every recorder holds."""
+        first = np.maximum(self.frames_at(covered_s[0]), 0)
+        last = self.frames_at(covered_s[1]) + 2
+        n = min(min(r.recording.n_frames, int(last[r.mics[0]])) - int(first[r.mics[0]])
+                for r in self.recorders)
+        return first, max(n, 0)
+
+    def raw_blocks(self, first_frame, n_frames: int, block_frames: int = 1 << 16):
+        """The microphones' samples in recorded units over ``n_frames`` from ``first_frame``,
+        block by block (float32 (n_mics, <= block_frames)): memory follows the block."""
+        for start in range(0, n_frames, block_frames):
+            yield self.read_units(np.asarray(first_frame) + start,
+                                  min(block_frames, n_frames - start))
 
     @property
     def recording_span_s(self) -> tuple[float, float]:
-        """First and last sample times, seconds after the epoch."""
-        return 0.0, float(self.clock.sample_time_s(self.recording.n_frames - 1))
+        """First and last times (s after the epoch) at which every recorder records."""
+        spans = [self.recorder_span_s(r) for r in self.recorders]
+        return max(s[0] for s in spans), min(s[1] for s in spans)
+
+    def recorder_span_s(self, r: RecorderInputs) -> tuple[float, float]:
+        m = r.mics[0]
+        return (float(self.clock.start_s[m]),
+                float(self.clock.start_s[m] + (r.recording.n_frames - 1) / self.clock.rate_hz[m]))
+
+    @property
+    def duration_s(self) -> float:
+        lo, hi = self.recording_span_s
+        return hi - lo
+
+    @property
+    def common_offset_s(self) -> float:
+        """The clock offset common to all recorders (the pass's ``clock_offset_s``)."""
+        r = self.recorders[0]
+        return r.clock.clock_offset_s - r.spec.clock_offset_s
 
 
 MAX_HEIGHT_ABOVE_ARRAY_M = 600.0
@@ -85,8 +167,8 @@ def load_layout(campaign: Campaign) -> ArrayLayout:
 
 
 def load_pass(campaign: Campaign, name: str, clock_offset_s: float | None = None,
-              quality_excluded=()) -> PassInputs:
-    """Read and check the layout, calibration, recording header and track of one pass.
+              quality_excluded=(), measured_clocks: dict | None = None) -> PassInputs:
+    """Read and check the layout, recorders, calibrations, clocks and track of one pass.
 
     Parameters
     ----------
@@ -94,33 +176,46 @@ def load_pass(campaign: Campaign, name: str, clock_offset_s: float | None = None
     name : str
         Pass name.
     clock_offset_s : float, optional
-        Overrides the config's clock offset (used once an 'auto' offset has been estimated).
+        Overrides the config's common clock offset (once an 'auto' offset has been estimated).
     quality_excluded : sequence of int
         Channels the data-quality checks flagged; left out unless the config keeps them.
+    measured_clocks : dict, optional
+        Recorder name -> ``{"start_utc_ns", "drift_ppm"}`` already measured from its timing
+        channel (the alignment's), so that later stages do not decode it again.
     """
     if name not in campaign.passes:
         raise FlyoverInputError(f"no pass named '{name}'", str(campaign.config_path),
                                 f"one of {sorted(campaign.passes)}")
     spec = campaign.passes[name]
     layout = load_layout(campaign)
-    info = read("recording", spec.recording)
-    extra = set(campaign.array.extra_channels)
-    expected = set(layout.channel.tolist()) | extra
-    if expected != set(range(1, info.n_channels + 1)) or extra & set(layout.channel.tolist()):
+    where = f"{campaign.config_path}, key passes.{name}.recording"
+    streams = [join_files(r.files, where=f"{where}, recorder '{r.name}'") for r in spec.recorders]
+    maps = _channel_maps(campaign, spec, layout, streams, where)
+    rates = {r.name: s.sample_rate_hz for r, s in zip(spec.recorders, streams)}
+    if len(set(rates.values())) > 1:
         raise FlyoverInputError(
-            "layout and recording disagree on the channels", str(spec.recording),
-            f"{len(layout.channel)} microphone channels as in {campaign.array.layout}"
-            + (f" plus extra channels {sorted(extra)}" if extra else ""),
-            f"{info.n_channels} channels in the recording",
-            "give one layout row per microphone channel, and list channels that are not "
-            "microphones (a PPS or timecode track) in array.extra_channels")
-    cal = read("calibration", spec.calibration, channels=layout.channel)
-    pa_per_unit = np.array([cal[int(c)] for c in layout.channel])
+            "the recorders of a pass have different sample rates", where,
+            "one nominal sample rate for all recorders of a pass",
+            ", ".join(f"{n}: {v:g} Hz" for n, v in rates.items()),
+            "set the recorders to one rate (their drifts are measured separately)")
+    pa_per_unit = np.empty(len(layout.channel))
+    for r, (mics, _, _) in zip(spec.recorders, maps):
+        table = r.calibration or spec.calibration
+        cal = read("calibration", table, channels=layout.channel[mics])
+        pa_per_unit[mics] = [cal[int(c)] for c in layout.channel[mics]]
     offset = clock_offset_s if clock_offset_s is not None else spec.clock_offset_s
     if offset == "auto":
-        offset = 0.0  # the alignment stage estimates it; until then the header time is used
-    clock = RecordingClock(spec.recording_start_utc_ns, float(offset), info.sample_rate_hz,
-                           spec.rate_error_ppm)
+        offset = 0.0  # the alignment stage estimates it; until then the recorders' times are used
+    recorders = []
+    for r, stream, (mics, chans, timing) in zip(spec.recorders, streams, maps):
+        clock, fit, source = _recorder_clock(r, stream, timing, float(offset),
+                                             (measured_clocks or {}).get(r.name),
+                                             f"{where}, recorder '{r.name}'")
+        recorders.append(RecorderInputs(r, stream, mics, chans, clock, fit, source))
+    mic_recorder = np.empty(len(layout.channel), int)
+    for k, (mics, _, _) in enumerate(maps):
+        mic_recorder[mics] = k
+    clock = ArrayClock.of_recorders([r.clock for r in recorders], mic_recorder)
     samples = read("track", spec.track, site=campaign.site, time_scale=spec.track_time_scale,
                    height_datum=spec.track_height_datum,
                    geoid_undulation_m=campaign.geoid_undulation_m)
@@ -135,18 +230,140 @@ def load_pass(campaign: Campaign, name: str, clock_offset_s: float | None = None
                                 f"{campaign.config_path}, passes.{name}.exclude_channels",
                                 f"channels of {campaign.array.layout}", f"{unknown}")
     weights = np.array([0.0 if int(c) in excluded else 1.0 for c in layout.channel])
-    _check_coverage(track, clock, info, spec, layout)
-    return PassInputs(spec, layout, pa_per_unit, info, clock, track, weights)
+    inputs = PassInputs(spec, layout, pa_per_unit, tuple(recorders), clock, track, weights)
+    _check_coverage(inputs)
+    return inputs
 
 
-def _check_coverage(track: TrackModel, clock: RecordingClock, info: Recording,
-                    spec: PassSpec, layout: ArrayLayout) -> None:
-    rec_end = float(clock.sample_time_s(info.n_frames - 1))
-    lo, hi = max(track.start_s, 0.0), min(track.end_s, rec_end)
+def _recorder_channel(value, stream: JoinedRecording, where: str) -> int:
+    """0-based channel of a recording from a 1-based index or a channel name."""
+    if isinstance(value, str):
+        names = list(stream.channel_names)
+        matches = [k for k, n in enumerate(names) if n == value or n.split("/")[-1] == value]
+        if len(matches) != 1:
+            raise FlyoverInputError(
+                f"no channel named '{value}' in the recording" if not matches else
+                f"several channels named '{value}' in the recording", where,
+                "one of " + ", ".join(repr(n) for n in names) if names else
+                "a channel number (this file has no channel names)",
+                f"'{value}' in {stream.path.name}", suggest(value, names))
+        return matches[0]
+    if not 1 <= int(value) <= stream.n_channels:
+        raise FlyoverInputError("recorder channel out of range", where,
+                                f"a channel from 1 to {stream.n_channels} of {stream.path.name}",
+                                f"{value}")
+    return int(value) - 1
+
+
+def _channel_maps(campaign: Campaign, spec: PassSpec, layout: ArrayLayout,
+                  streams: list[JoinedRecording], where: str):
+    """Per recorder: layout rows of its microphones, their 0-based recording channels, and its
+    timing channels by name (0-based). Every microphone is on exactly one recorder channel."""
+    row_of = {int(c): k for k, c in enumerate(layout.channel)}
+    owner: dict[int, str] = {}
+    out = []
+    for r, stream in zip(spec.recorders, streams):
+        at = f"{where}, recorder '{r.name}'"
+        timing = {str(t): _recorder_channel(t, stream, f"{at}, timing_channel")
+                  for t in r.timing_channels}
+        if r.channels is None:  # one recorder: recording channel k is layout channel k
+            extra = set(campaign.array.extra_channels) | {t + 1 for t in timing.values()}
+            expected = set(layout.channel.tolist()) | extra
+            if expected != set(range(1, stream.n_channels + 1)) or extra & set(row_of):
+                raise FlyoverInputError(
+                    "layout and recording disagree on the channels", str(stream.path),
+                    f"{len(layout.channel)} microphone channels as in {campaign.array.layout}"
+                    + (f" plus extra channels {sorted(extra)}" if extra else ""),
+                    f"{stream.n_channels} channels in the recording",
+                    "give one layout row per microphone channel, and list channels that are "
+                    "not microphones (a PPS or timecode track) in array.extra_channels")
+            pairs = [(int(c), int(c)) for c in layout.channel]
+        else:
+            pairs = list(r.channels)
+        mics, chans, used = [], [], {}
+        for lay, rec in pairs:
+            if lay not in row_of:
+                raise FlyoverInputError("a mapped channel is not in the layout",
+                                        f"{at}, channels", f"channels of {campaign.array.layout}",
+                                        f"layout channel {lay}")
+            if lay in owner:
+                raise FlyoverInputError(
+                    f"layout channel {lay} is mapped twice", f"{at}, channels",
+                    "each microphone on exactly one recorder channel",
+                    f"also on recorder '{owner[lay]}'" if owner[lay] != r.name else
+                    "twice on this recorder")
+            ch = _recorder_channel(rec, stream, f"{at}, channels.{lay}")
+            if ch in used or ch in timing.values():
+                raise FlyoverInputError(
+                    f"recorder channel {rec} is mapped twice", f"{at}, channels",
+                    "each recorder channel used once",
+                    f"layout channel {lay} and " + (f"layout channel {used[ch]}" if ch in used
+                                                    else "the timing channel"))
+            owner[lay], used[ch] = r.name, lay
+            mics.append(row_of[lay])
+            chans.append(ch)
+        if not mics:
+            raise FlyoverInputError("a recorder records no microphone", f"{at}, channels",
+                                    "at least one layout channel")
+        order = np.argsort(mics)
+        out.append((np.asarray(mics)[order], np.asarray(chans)[order], timing))
+    missing = sorted(set(row_of) - set(owner))
+    if missing:
+        raise FlyoverInputError("layout channels mapped to no recorder", where,
+                                "every microphone of the layout on one recorder channel",
+                                f"no recorder channel for layout channel(s) {missing}",
+                                "add them to a recorder's channels, or remove them from the "
+                                "layout")
+    return out
+
+
+def _recorder_clock(r: RecorderSpec, stream: JoinedRecording, timing: dict[str, int],
+                    common_offset_s: float, measured, where: str):
+    """A recorder's clock: measured from its timing channels, or its start time (typed, else
+    from its files) with its offset and rate error; plus the pass's common offset.
+
+    ``measured`` is a :class:`TimingFit` or a mapping with ``start_utc_ns`` and ``drift_ppm``
+    from an earlier measurement, or None to decode the timing channels here.
+    """
+    fs = stream.sample_rate_hz
+    typed = r.start_utc_ns
+    own = typed if typed is not None else stream.start_utc_ns
+    if timing:
+        fit = measured if isinstance(measured, TimingFit) else None
+        if measured is None:
+            fit = measure_clock(
+                {name: (lambda first, n, ch=ch: stream.read(first, n, [ch])[0])
+                 for name, ch in timing.items()},
+                stream.n_frames, fs, own, where=where)
+        start, drift = ((fit.start_utc_ns, fit.drift_ppm) if fit is not None else
+                        (int(measured["start_utc_ns"]), float(measured["drift_ppm"])))
+        return RecordingClock(start, common_offset_s, fs, drift), fit, "timing channel"
+    if own is None:
+        raise FlyoverInputError(
+            "no start time for the recorder", where,
+            "recording_start_utc (or start_utc), a file with a time reference (Broadcast WAV, "
+            "TDMS), or an IRIG-B timing channel", f"none in {stream.path.name}")
+    source = "typed start" if typed is not None else stream.time_reference
+    return (RecordingClock(own, r.clock_offset_s + common_offset_s, fs, r.rate_error_ppm),
+            None, source)
+
+
+def _check_coverage(inputs: PassInputs) -> None:
+    track, clock, spec, layout = inputs.track, inputs.clock, inputs.spec, inputs.layout
+    rec_start, rec_end = inputs.recording_span_s
+    if rec_end <= rec_start:
+        raise FlyoverInputError(
+            "the recorders of the pass never record at the same time",
+            f"{spec.name}: recorders " + ", ".join(r.spec.name for r in inputs.recorders),
+            "recorders whose spans overlap", "spans " + "; ".join(
+                f"{r.spec.name} {_utc(clock, a)} to {_utc(clock, b)}"
+                for r in inputs.recorders for a, b in [inputs.recorder_span_s(r)]),
+            "check the recorders' start times and files")
+    lo, hi = max(track.start_s, rec_start), min(track.end_s, rec_end)
     if hi <= lo:
         raise FlyoverInputError(
             "the track does not cover the recording", str(spec.track),
-            f"track times overlapping the recording ({_utc(clock, 0.0)} to "
+            f"track times overlapping the recording ({_utc(clock, rec_start)} to "
             f"{_utc(clock, rec_end)})",
             f"track from {_utc(clock, track.start_s)} to {_utc(clock, track.end_s)}",
             "check the recording start time, the clock offset and the track's time scale "
@@ -181,7 +398,7 @@ def _check_coverage(track: TrackModel, clock: RecordingClock, info: Recording,
                                 f"closest {closest:.0f} m")
 
 
-def _utc(clock: RecordingClock, t_s: float) -> str:
+def _utc(clock: ArrayClock, t_s: float) -> str:
     return iso_utc(int(clock.utc_ns(t_s)))
 
 
@@ -192,13 +409,15 @@ def pass_summary(inputs: PassInputs) -> dict:
     atm = inputs.spec.atmosphere
     return {
         "pass": inputs.spec.name,
-        "channels": int(inputs.recording.n_channels),
+        "channels": int(inputs.n_channels),
+        "microphones": len(inputs.layout.channel),
         "channels_used": int(inputs.weights.sum()),
-        "sample_rate_hz": inputs.recording.sample_rate_hz,
-        "duration_s": inputs.recording.duration_s,
+        "sample_rate_hz": inputs.sample_rate_hz,
+        "duration_s": inputs.duration_s,
         "epoch_utc": iso_utc(clock.epoch_utc_ns),
-        "clock_offset_s": clock.clock_offset_s,
+        "clock_offset_s": inputs.common_offset_s,
         "clock_offset_auto": inputs.spec.clock_offset_s == "auto",
+        "recorders": [recorder_summary(inputs, r) for r in inputs.recorders],
         "track_start_utc": iso_utc(int(clock.utc_ns(inputs.track.start_s))),
         "track_end_utc": iso_utc(int(clock.utc_ns(inputs.track.end_s))),
         "covered_s": [geo.covered_s[0], geo.covered_s[1]],
@@ -213,12 +432,58 @@ def pass_summary(inputs: PassInputs) -> dict:
     }
 
 
+def recorder_summary(inputs: PassInputs, r: RecorderInputs) -> dict:
+    """One recorder's facts: files, channels, span on the pass epoch, and its clock."""
+    span = inputs.recorder_span_s(r)
+    lay = inputs.layout.channel[r.mics]
+    out = {
+        "name": r.spec.name,
+        "files": [p.name for p in r.recording.paths],
+        "format": r.recording.format,
+        "channels": int(r.recording.n_channels),
+        "microphones": len(r.mics),
+        "layout_channels": _ranges(lay),
+        "sample_rate_hz": r.recording.sample_rate_hz,
+        "duration_s": r.recording.duration_s,
+        "start_utc": iso_utc(int(inputs.clock.utc_ns(span[0]))),
+        "span_s": [span[0], span[1]],
+        "clock_method": ("timing channel" if r.spec.timing_channels else
+                         "acoustic" if inputs.spec.clock_offset_s == "auto" else "given"),
+        "start_source": r.start_source,
+        "start_utc_ns": int(r.clock.start_utc_ns),
+        "offset_s": r.clock.clock_offset_s,
+        "drift_ppm": r.clock.rate_error_ppm,
+    }
+    if r.recording.start_utc_ns is not None:
+        # The recorder's own time of its first sample against the UTC it is found to have.
+        out["own_clock_error_s"] = (r.recording.start_utc_ns - r.clock.epoch_utc_ns) / 1e9
+    if r.timing is not None:
+        t = r.timing
+        out.update(timing_kind=t.kind, timing_edges=t.n_edges,
+                   timing_residual_rms_us=t.residual_rms_s * 1e6,
+                   timing_residual_max_us=t.residual_max_s * 1e6,
+                   start_uncertainty_us=t.start_uncertainty_s * 1e6,
+                   drift_uncertainty_ppm=t.drift_uncertainty_ppm, timing_events=list(t.events))
+    return out
+
+
+def _ranges(channels) -> str:
+    """'1-24, 30' from a list of channel numbers."""
+    c = sorted(int(v) for v in channels)
+    parts, lo = [], c[0]
+    for a, b in zip(c, c[1:] + [None]):
+        if b != a + 1:
+            parts.append(f"{lo}-{a}" if a > lo else f"{a}")
+            lo = b
+    return ", ".join(parts)
+
+
 def check_memory(campaign: Campaign, inputs: PassInputs, share: float = 0.5) -> None:
     """Refuse a window or grid whose processing would need more than ``share`` of the memory."""
     an = campaign.analysis
     settings = ChainSettings(third_octave_bands(an.band_min_hz, an.band_max_hz), inputs.weights,
                              campaign.array.pressure_gain, an.interpolation)
-    fs = inputs.recording.sample_rate_hz
+    fs = inputs.sample_rate_hz
     n_grid = int(np.prod(campaign.grid.shape))
     need = window_memory_bytes(n_grid, len(inputs.layout.channel), int(an.window_s * fs),
                                len(settings.bands), settings)
@@ -237,14 +502,16 @@ def check_memory(campaign: Campaign, inputs: PassInputs, share: float = 0.5) -> 
 def load_aligned_pass(campaign: Campaign, name: str, out_dir) -> tuple[PassInputs, dict]:
     """A pass loaded with what its alignment decided (clock offset, channels left out)."""
     alignment = read_alignment(out_dir)
+    measured = {r["name"]: r for r in alignment.get("recorders", [])
+                if r.get("clock_method") == "timing channel"}
     inputs = load_pass(campaign, name, float(alignment["clock_offset_s"]),
-                       alignment.get("quality_excluded_channels", []))
+                       alignment.get("quality_excluded_channels", []), measured)
     return inputs, alignment
 
 
 def output_bytes(campaign: Campaign, inputs: PassInputs) -> int:
     """About how many bytes the results of a pass will take."""
     an = campaign.analysis
-    n_windows = int(inputs.recording.duration_s / an.hop_s) + 1
+    n_windows = int(inputs.duration_s / an.hop_s) + 1
     return pass_output_bytes(n_windows, len(third_octave_bands(an.band_min_hz, an.band_max_hz)),
                              int(np.prod(campaign.grid.shape)))

@@ -46,7 +46,7 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path, *, threads: int = 1,
     atm = inputs.spec.atmosphere
     clock = inputs.clock
     bands = third_octave_bands(an.band_min_hz, an.band_max_hz)
-    fs = inputs.recording.sample_rate_hz
+    fs = inputs.sample_rate_hz
     settings = ChainSettings(bands, inputs.weights, campaign.array.pressure_gain,
                              an.interpolation)
     points = campaign.grid.points_m()
@@ -66,7 +66,7 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path, *, threads: int = 1,
                              grid_points_m=points, settings=settings,
                              diagonal_removal=an.diagonal_removal, workers=threads)
         geo, first, n = ctx.geometry, ctx.first_frame, ctx.n_frames
-        if first < 0 or first + n > inputs.recording.n_frames:
+        if not inputs.holds(first, n):
             row.update(status="skipped", reason="sound reaches the array outside the recording")
             rows.append(row)
             progress.step(f"window {w.index} skipped")

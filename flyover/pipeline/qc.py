@@ -29,7 +29,7 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> None:
     done = read_analysed(out_dir)
     save_figure(track_figure(inputs, summary, done["center_s"].to_numpy()),
                 out_dir / "qc_track.png")
-    fs = inputs.recording.sample_rate_hz
+    fs = inputs.sample_rate_hz
     main = next(iter(campaign.regions.values()))
     a = None
     if len(done):
@@ -45,8 +45,8 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> None:
     beam = np.average(a[used], axis=0, weights=inputs.weights[used])
     # The same stretch as received: emission times plus about the closest travel time.
     delay_s = summary["closest_distance_m"] / inputs.spec.atmosphere.c_m_s
-    first = max(0, int(inputs.clock.sample_index(start + delay_s)))
-    signals = inputs.read_pressure_pa(first, min(n, inputs.recording.n_frames - first))
+    first, held = inputs.covered_frames((start + delay_s, start + delay_s + n / fs))
+    signals = inputs.read_pressure_pa(first, min(n, held))
     mic = int(np.argmin(np.linalg.norm(inputs.layout.enu_m - inputs.layout.center_enu_m, axis=1)))
     nper = int(2 ** np.round(np.log2(0.08 * fs)))
     raw = spectrogram(signals[mic].astype(float), fs, nperseg=nper, noverlap=nper * 3 // 4)

@@ -203,7 +203,8 @@ def run(campaign: Campaign, out_dir: Path) -> None:
                             "temperature (C)": p.atmosphere.temperature_c,
                             "humidity (%)": p.atmosphere.relative_humidity_pct,
                             "wind (m/s)": p.atmosphere.wind_speed_m_s,
-                            "recording": p.recording.name} for n, p in campaign.passes.items()])
+                            "recording": ", ".join(f.name for f in p.recording_files)}
+                           for n, p in campaign.passes.items()])
     shown = camp[np.isfinite(camp["mean_db"])] if len(camp) else camp
     n_flags = int(shown["wide_interval"].sum()) if len(shown) else 0
     an = campaign.analysis

@@ -13,17 +13,56 @@ from flyover.acoustics.reference import level_1m_db
 from flyover.io.atomic import write_text
 from flyover.io.csvtable import write_csv
 from flyover.io.readers.soundfile_recording import write_recording
+from flyover.io.readers.tdms_recording import write_tdms
 from flyover.io.scenario import load_scenario
 from flyover.model.errors import FlyoverInputError
-from flyover.sim.scenario import simulate_pass
+from flyover.sim.scenario import PassScenario, simulate_pass
+from flyover.sim.timing import irig_b_signal, pps_signal
 from flyover.sync.timebase import iso_utc
 
 
-def pass_files(out_dir: Path, pass_name: str, fmt: str = "wav") -> dict[str, Path]:
-    """Where the simulator writes the files of one pass."""
-    base = Path(out_dir) / pass_name
-    return {"recording": base / f"recording.{fmt}", "calibration": base / "calibration.csv",
-            "track": base / "track.csv"}
+def pass_files(out_dir: Path, ps: PassScenario, fmt: str = "wav",
+               sample_rate_hz: float | None = None) -> dict:
+    """Where the simulator writes the files of one pass: ``recording`` (one path) or
+    ``recorders`` (name -> list of paths), ``calibration`` and ``track``."""
+    base = Path(out_dir) / ps.name
+    files = {"calibration": base / "calibration.csv", "track": base / "track.csv"}
+    if not ps.recorders:
+        return {"recording": base / f"recording.{fmt}", **files}
+    n = int(round(ps.duration_s * sample_rate_hz))
+    recs = {}
+    for r in ps.recorders:
+        per = n if r.file_s is None else int(round(r.file_s * sample_rate_hz))
+        ext = "tdms" if r.format == "tdms" else "wav"
+        recs[r.name] = [base / f"{r.name}-{k + 1:02d}.{ext}" for k in range(-(-n // per))]
+    return {"recorders": recs, **files}
+
+
+def _write_recorders(ps: PassScenario, sim, fs: float, subtype: str, paths: dict) -> None:
+    """Each recorder's microphones and timing channels, split into its files, stamped by its
+    own (wrong) clock."""
+    n = sim.units.shape[1]
+    base_s = ps.epoch_utc_ns // 1_000_000_000
+    after_base = (ps.epoch_utc_ns - base_s * 1_000_000_000) / 1e9
+    for r in ps.recorders:
+        true_t = after_base + r.start_after_s + np.arange(n) / (fs * r.rate_factor)
+        timing = [pps_signal(true_t, rise_s=1.0 / fs) if kind == "pps" else
+                  irig_b_signal(true_t, base_s, form=kind.split("-")[-1], rise_s=1.0 / fs)
+                  for kind in r.timing]
+        data = np.vstack([sim.units[np.asarray(r.microphones) - 1]]
+                         + [np.asarray(t, np.float32)[None] for t in timing])
+        names = [f"Mic {m:02d}" for m in r.microphones] + [t.upper() for t in r.timing]
+        own_ns = ps.epoch_utc_ns + int(round((r.start_after_s + r.clock_error_s) * 1e9))
+        files = paths[r.name]
+        per = -(-n // len(files))
+        for k, path in enumerate(files):
+            part = data[:, k * per:(k + 1) * per]
+            stamp = own_ns + int(round(k * per / fs * 1e9))   # its clock counts nominal samples
+            if r.format == "tdms":
+                write_tdms(path, part, fs, stamp, names)
+            else:
+                write_recording(path, part, fs, subtype,
+                                start_utc_ns=stamp if r.format == "bwf" else None)
 
 
 def write_campaign(scenario_path, out_dir, progress=print) -> None:
@@ -47,18 +86,20 @@ def write_campaign(scenario_path, out_dir, progress=print) -> None:
     for ps in scenario.passes:
         progress(f"simulating {ps.name}: {n_mics} microphones, {ps.duration_s} s")
         sim = simulate_pass(scenario, ps)
-        files = pass_files(out, ps.name, fmt)
+        files = pass_files(out, ps, fmt, scenario.sample_rate_hz)
         peak = float(np.max(np.abs(sim.units)))
         if peak >= 1.0:
             raise FlyoverInputError(f"simulated pass {ps.name} clips", str(scenario_path),
                                     "a peak below full scale", f"{peak:.2f} of full scale",
                                     "raise recording.pa_per_unit in the scenario")
-        write_recording(files["recording"], sim.units, scenario.sample_rate_hz, subtype)
+        if ps.recorders:
+            _write_recorders(ps, sim, scenario.sample_rate_hz, subtype, files["recorders"])
+        else:
+            write_recording(files["recording"], sim.units, scenario.sample_rate_hz, subtype)
         write_csv(files["calibration"], pd.DataFrame({"channel": np.arange(1, n_mics + 1),
                                                       "pa_per_unit": sim.pa_per_unit}),
                   float_format="%.9g")
-        epoch = ps.recording_start_utc_ns + int(round(ps.clock_offset_s * 1e9))
-        utc = epoch + np.round(sim.gnss_time_s * 1e9).astype(np.int64)
+        utc = ps.epoch_utc_ns + np.round(sim.gnss_time_s * 1e9).astype(np.int64)
         tl, tn, th = site.to_wgs84(sim.gnss_enu_m)
         write_csv(files["track"], pd.DataFrame({
             "time_utc": [iso_utc(int(u)) for u in utc], "lat_deg": tl, "lon_deg": tn,
@@ -81,13 +122,40 @@ def _campaign_mapping(scenario, raw, fmt) -> dict:
     camp = dict(raw["campaign"])
     camp = {"site": raw["site"], "array": {"layout": "layout.csv",
                                            "mounting": raw["array"]["mounting"]}, **camp}
-    camp["passes"] = {
-        ps.name: {"label": ps.label, **{k: str(v) for k, v in pass_files(Path("."), ps.name, fmt)
-                                        .items()},
-                  "recording_start_utc": iso_utc(ps.recording_start_utc_ns),
-                  "clock_offset_s": ps.clock_offset_s,
-                  "track_position_noise_m": max(scenario.gnss_noise_m, 1e-3),
-                  "atmosphere": raw["passes"][ps.name]["atmosphere"]}
-        for ps in scenario.passes}
+    camp["passes"] = {ps.name: _pass_mapping(scenario, raw, ps, fmt) for ps in scenario.passes}
     camp.setdefault("output", "results")
     return camp
+
+
+def _pass_mapping(scenario, raw, ps: PassScenario, fmt) -> dict:
+    """A pass of the generated campaign file: what an engineer would type for these files."""
+    files = pass_files(Path("."), ps, fmt, scenario.sample_rate_hz)
+    out = {"label": ps.label}
+    if not ps.recorders:
+        out.update(recording=str(files["recording"]),
+                   recording_start_utc=iso_utc(ps.recording_start_utc_ns),
+                   clock_offset_s=ps.clock_offset_s)
+    else:
+        recorders = []
+        for r in ps.recorders:
+            n_mic = len(r.microphones)
+            entry = {"name": r.name, "files": [str(f) for f in files["recorders"][r.name]],
+                     "channels": {f"{m}": k + 1 for k, m in enumerate(r.microphones)}}
+            if list(r.microphones) == list(range(r.microphones[0], r.microphones[-1] + 1)):
+                entry["channels"] = {f"{r.microphones[0]}-{r.microphones[-1]}": f"1-{n_mic}"}
+            if r.timing:
+                entry["timing_channel"] = ([t.upper() for t in r.timing] if r.format == "tdms"
+                                           else [n_mic + k + 1 for k in range(len(r.timing))])
+            else:
+                entry["clock_offset_s"] = -r.clock_error_s
+            if r.format == "wav":  # a plain WAV carries no time: the engineer types it
+                own_ns = ps.epoch_utc_ns + int(round((r.start_after_s + r.clock_error_s) * 1e9))
+                entry["start_utc"] = iso_utc(own_ns)
+            recorders.append(entry)
+        out["recording"] = recorders
+        if not all(r.timing for r in ps.recorders):
+            out["clock_offset_s"] = 0.0
+    out.update(calibration=str(files["calibration"]), track=str(files["track"]),
+               track_position_noise_m=max(scenario.gnss_noise_m, 1e-3),
+               atmosphere=raw["passes"][ps.name]["atmosphere"])
+    return out

@@ -48,6 +48,43 @@ def incoherent_noise_pa(n_mics: int, n_samples: int, spl_db: float, seed: int) -
 
 
 @dataclass(frozen=True)
+class RecorderScenario:
+    """One simulated recorder of a pass: which microphones, its files and its clock.
+
+    Attributes
+    ----------
+    name : str
+    microphones : tuple of int
+        Layout channels (1-based) it records, in its channel order.
+    format : {'wav', 'bwf', 'tdms'}
+        Plain WAV (no time in the file), Broadcast WAV (bext time reference) or TDMS.
+    file_s : float or None
+        Length of its files (a take split every ``file_s`` seconds); None for one file.
+    start_after_s : float
+        True time of its sample 0 after the pass epoch.
+    clock_error_s : float
+        Its own time of sample 0 minus the true time (what its files and stamps are off by).
+    drift_ppm : float
+        Its true sample rate over the nominal, minus 1.
+    timing : tuple of str
+        Timing channels it records after the microphones: 'pps', 'irig-b-dcls', 'irig-b-am'.
+    """
+
+    name: str
+    microphones: tuple[int, ...]
+    format: str = "wav"
+    file_s: float | None = None
+    start_after_s: float = 0.0
+    clock_error_s: float = 0.0
+    drift_ppm: float = 0.0
+    timing: tuple[str, ...] = ()
+
+    @property
+    def rate_factor(self) -> float:
+        return 1.0 + self.drift_ppm * 1e-6
+
+
+@dataclass(frozen=True)
 class PassScenario:
     """One simulated pass: a straight, constant-speed line over the array.
 
@@ -69,6 +106,12 @@ class PassScenario:
     gain_db: dict = field(default_factory=dict)
     pitch_deg: float = 0.0
     seed: int = 0
+    recorders: tuple[RecorderScenario, ...] = ()
+
+    @property
+    def epoch_utc_ns(self) -> int:
+        """True UTC of the pass epoch (the simulation's time zero)."""
+        return self.recording_start_utc_ns + int(round(self.clock_offset_s * 1e9))
 
 
 @dataclass(frozen=True)
@@ -119,12 +162,19 @@ def simulate_pass(scenario: Scenario, ps: PassScenario) -> SimulatedPass:
     truth = pass_truth_track(scenario, ps)
     n = int(round(ps.duration_s * fs))
     margin = scenario.track_margin_s
-    signals = [SourceSignal(src, fs, -margin, ps.duration_s, ps.gain_db.get(src.name, 0.0))
+    n_mics = len(scenario.mic_enu_m)
+    # Each microphone sampled on its recorder's true clock (one clock when there are none).
+    start, rate = np.zeros(n_mics), np.full(n_mics, fs)
+    for r in ps.recorders:
+        rows = np.asarray(r.microphones) - 1
+        start[rows], rate[rows] = r.start_after_s, fs * r.rate_factor
+    end = ps.duration_s + (max(0.0, *(r.start_after_s for r in ps.recorders)) + 0.1
+                           if ps.recorders else 0.0)
+    signals = [SourceSignal(src, fs, -margin, end, ps.gain_db.get(src.name, 0.0))
                for src in scenario.sources]
     prop = Propagator(scenario.mic_enu_m, ps.atmosphere, scenario.pressure_gain)
     p = received_pressure_pa(truth, signals, [np.asarray(s.body_m) for s in scenario.sources],
-                             prop, fs, 0.0, n)
-    n_mics = len(scenario.mic_enu_m)
+                             prop, rate, start, n)
     p += incoherent_noise_pa(n_mics, n, scenario.noise_spl_db, ps.seed + 1)
     rng = np.random.default_rng(ps.seed + 2)
     spread_db = rng.normal(0.0, scenario.calibration_spread_db, n_mics)

@@ -20,7 +20,7 @@ from flyover.acoustics.atmosphere import Atmosphere
 from flyover.geometry.track import TrackModel
 from flyover.geometry.windows import Window
 from flyover.imaging.dedoppler import ChainSettings, reception_geometry, window_band_powers
-from flyover.sync.timebase import RecordingClock
+from flyover.sync.timebase import ArrayClock
 
 
 @dataclass(frozen=True)
@@ -56,12 +56,13 @@ class ClockEstimate:
 
 
 def anchor_power(read_frames, track: TrackModel, windows: list[Window], anchor_body_m,
-                 mic_enu_m, atmosphere: Atmosphere, clock: RecordingClock,
+                 mic_enu_m, atmosphere: Atmosphere, clock: ArrayClock,
                  settings: ChainSettings, *, offsets_s, max_offset_s: float) -> np.ndarray:
     """Coherence at the anchor for each candidate offset (band sums, then the windows' mean).
 
-    ``read_frames(first, n)`` returns calibrated pressure (n_mics, n) of the recording;
-    ``clock`` must have a zero clock offset: candidates are applied to the reception times.
+    ``read_frames(first, n)`` returns calibrated pressure (n_mics, n) of the recording, row m
+    from frame ``first[m]``; ``clock`` must carry no common offset: candidates are applied to the
+    reception times (a common offset of all recorders).
     """
     total = np.zeros(len(offsets_s))
     w_used = np.asarray(settings.weights, float)
@@ -70,9 +71,9 @@ def anchor_power(read_frames, track: TrackModel, windows: list[Window], anchor_b
         geo = reception_geometry(track, w, np.asarray(anchor_body_m, float)[None], mic_enu_m,
                                  atmosphere, settings.pressure_gain, node_step=settings.node_step)
         idx = clock.sample_index(geo.reception_s)
-        pad = int(np.ceil(max_offset_s * clock.true_rate_hz)) + 8
-        first = int(np.floor(idx.min())) - pad
-        n = int(np.ceil(idx.max())) + pad - first
+        pad = int(np.ceil(max_offset_s * clock.rate_hz.max())) + 8
+        first = clock.first_frames(idx) - pad
+        n = int(np.max(np.ceil(idx.max(axis=(0, 2))) + pad - first))
         signals = read_frames(first, n)
         for k, dt in enumerate(offsets_s):
             shifted = replace(geo, reception_s=geo.reception_s - dt)
@@ -86,7 +87,7 @@ def anchor_power(read_frames, track: TrackModel, windows: list[Window], anchor_b
 
 
 def estimate_clock_offset(read_frames, track: TrackModel, windows: list[Window], anchor_body_m,
-                          mic_enu_m, atmosphere: Atmosphere, clock: RecordingClock,
+                          mic_enu_m, atmosphere: Atmosphere, clock: ArrayClock,
                           settings: ChainSettings, *, max_offset_s: float = 1.0,
                           coarse_step_s: float = 0.01, fine_step_s: float = 0.001
                           ) -> ClockEstimate:

@@ -21,6 +21,7 @@ from flyover.acoustics.bands import third_octave_bands
 from flyover.imaging.dedoppler import ChainSettings, window_memory_bytes
 from flyover.io.config import load_campaign
 from flyover.io.readers import read
+from flyover.io.scenario import load_scenario
 from flyover.model.campaign import Campaign
 from flyover.model.errors import FlyoverInputError
 from flyover.model.reads import read_values
@@ -117,24 +118,34 @@ class CampaignPlan:
     def simulated_files(self) -> list[str]:
         """Every file the simulation writes, checked against the paths the campaign names."""
         folder = self.simulation_folder
+        scenario, _, raw = load_scenario(self.campaign.scenario)
+        fmt = raw["recording"].get("format", "wav")
         files = [folder / "layout.csv", folder / "truth.csv"]
-        for name, spec in self.campaign.passes.items():
-            expected = pass_files(folder, name, spec.recording.suffix.lstrip("."))
-            named = {"recording": spec.recording, "calibration": spec.calibration,
-                     "track": spec.track}
-            for key, p in expected.items():
-                if Path(named[key]) != p:
+        for ps in scenario.passes:
+            spec = self.campaign.passes.get(ps.name)
+            expected = pass_files(folder, ps, fmt, scenario.sample_rate_hz)
+            recordings = ([expected["recording"]] if "recording" in expected else
+                          [f for fs in expected["recorders"].values() for f in fs])
+            named = {"recording": spec.recording_files if spec else [],
+                     "calibration": [spec.calibration] if spec else [],
+                     "track": [spec.track] if spec else []}
+            for key, want in (("recording", recordings),
+                              ("calibration", [expected["calibration"]]),
+                              ("track", [expected["track"]])):
+                if [Path(p) for p in named[key]] != want:
                     raise FlyoverInputError(
                         "a simulated campaign's files are where the simulator writes them",
-                        f"{self.path}, key passes.{name}.{key}", f"{p}", f"{named[key]}",
+                        f"{self.path}, key passes.{ps.name}.{key}",
+                        ", ".join(str(p) for p in want),
+                        ", ".join(str(p) for p in named[key]) or "no such pass",
                         "drop the 'scenario' key to use files of your own")
-            files += list(expected.values())
+            files += recordings + [expected["calibration"], expected["track"]]
         return [str(f) for f in files]
 
-    def pass_inputs(self, name: str) -> dict[str, str]:
+    def pass_inputs(self, name: str) -> dict:
         spec = self.campaign.passes[name]
-        return {"recording": str(spec.recording), "calibration": str(spec.calibration),
-                "track": str(spec.track), "layout": str(self.campaign.array.layout)}
+        return {"files": [str(p) for p in spec.input_files()],
+                "layout": str(self.campaign.array.layout)}
 
     def memory_mb(self, name: str | None, stage: str) -> int:
         """Memory to ask a scheduler for: the stage's measured peak scaled to this campaign's
@@ -154,8 +165,10 @@ class CampaignPlan:
         camp = self.campaign
         spec = camp.passes[name] if name is not None else next(iter(camp.passes.values()))
         try:
-            rec = read("recording", spec.recording)
-            channels, fs, duration = rec.n_channels, rec.sample_rate_hz, rec.duration_s
+            heads = [[read("recording", f) for f in r.files] for r in spec.recorders]
+            channels = sum(h[0].n_channels for h in heads)
+            fs = heads[0][0].sample_rate_hz
+            duration = sum(h.n_frames for h in heads[0]) / fs
         except FlyoverInputError:  # not there yet (a simulated campaign): typical field sizes
             channels, fs, duration = 64, 51200.0, 60.0
         an = camp.analysis

@@ -39,9 +39,9 @@ def point_spread(body_m, points, context: WindowContext, seed: int) -> PointSpre
                           w.start_s + w.n_samples / w.sample_rate_hz + 1.0)
     medium = Propagator(context.mic_enu_m, context.atmosphere, settings.pressure_gain,
                         absorption=settings.absorption)
-    start_s = float(context.clock.sample_time_s(context.first_frame))
+    start_s = context.clock.sample_time_s(context.first_frame[:, None])[:, 0]
     received = received_pressure_pa(context.track, [signal], [np.asarray(body_m, float)], medium,
-                                    context.clock.true_rate_hz, start_s,
+                                    context.clock.rate_hz, start_s,
                                     context.n_frames).astype(np.float32)
     maps = window_band_powers(received, context.first_frame, subset(context.geometry, points),
                               context.clock, w, settings, context.atmosphere,

@@ -8,13 +8,17 @@ wrapped size field.
 
 from __future__ import annotations
 
+import io
 import struct
 from dataclasses import dataclass
 from pathlib import Path
 
+import xml.etree.ElementTree as ET
+
 import numpy as np
 import soundfile as sf
 
+from flyover.io import bwf
 from flyover.io.readers import Reader, register
 from flyover.model.errors import FlyoverInputError
 
@@ -33,6 +37,12 @@ class RecordingInfo:
     n_frames : int
     format, subtype : str
         soundfile's names, e.g. 'RF64', 'PCM_24'.
+    start_utc_ns : int or None
+        UTC of the first sample from a Broadcast WAV time reference (``bext``, else iXML).
+    time_reference : str
+        Where ``start_utc_ns`` came from, empty when the file has none.
+    channel_names : tuple of str
+        Track names from iXML, in channel order (empty when absent).
     """
 
     path: Path
@@ -41,6 +51,9 @@ class RecordingInfo:
     n_frames: int
     format: str
     subtype: str
+    start_utc_ns: int | None = None
+    time_reference: str = ""
+    channel_names: tuple[str, ...] = ()
 
     @property
     def duration_s(self) -> float:
@@ -51,28 +64,38 @@ class RecordingInfo:
         return read_span(self, start_frame, n_frames, channels)
 
 
-def _declared_data_bytes(path: Path) -> tuple[int, int] | None:
-    """(data offset, declared data bytes) from a RIFF/RF64/W64 header, or None for other formats."""
+def _riff_chunks(path: Path):
+    """(chunk id, body offset, body size) of a RIFF/RF64 WAVE file, the data chunk last; nothing
+    for other formats. The data chunk's size comes from the ds64 chunk where RF64 needs it."""
     with open(path, "rb") as fh:
         head = fh.read(12)
-        if len(head) < 12:
-            return None
-        if head[:4] in (b"RIFF", b"RF64") and head[8:12] == b"WAVE":
-            ds64_data = None
-            while True:
-                hdr = fh.read(8)
-                if len(hdr) < 8:
-                    return None
-                cid, size = hdr[:4], struct.unpack("<I", hdr[4:])[0]
-                if cid == b"ds64":
-                    body = fh.read(size)
-                    ds64_data = struct.unpack("<Q", body[8:16])[0]
-                    fh.seek(size % 2, 1)
-                    continue
-                if cid == b"data":
-                    declared = ds64_data if (head[:4] == b"RF64" and size == 0xFFFFFFFF) else size
-                    return fh.tell(), int(declared)
-                fh.seek(size + size % 2, 1)
+        if len(head) < 12 or head[:4] not in (b"RIFF", b"RF64") or head[8:12] != b"WAVE":
+            return
+        ds64_data = None
+        while True:
+            hdr = fh.read(8)
+            if len(hdr) < 8:
+                return
+            cid, size = hdr[:4], struct.unpack("<I", hdr[4:])[0]
+            if cid == b"ds64":
+                ds64_data = struct.unpack("<Q", fh.read(size)[8:16])[0]
+                fh.seek(size % 2, 1)
+                continue
+            if cid == b"data":
+                declared = ds64_data if (head[:4] == b"RF64" and size == 0xFFFFFFFF) else size
+                yield cid, fh.tell(), int(declared)
+                return
+            yield cid, fh.tell(), size
+            fh.seek(size + size % 2, 1)
+
+
+def _declared_data_bytes(path: Path) -> tuple[int, int] | None:
+    """(data offset, declared data bytes) from a RIFF/RF64/W64 header, or None for other formats."""
+    for cid, offset, size in _riff_chunks(path):
+        if cid == b"data":
+            return offset, size
+    with open(path, "rb") as fh:
+        head = fh.read(12)
         if head[:4] == b"riff":  # Sony Wave64: 16-byte GUID ids, 8-byte sizes including header
             fh.seek(40)
             while True:
@@ -133,7 +156,37 @@ def recording_info(path) -> RecordingInfo:
     if info.frames <= 0:
         raise FlyoverInputError("recording holds no samples", str(path), "audio frames", "0")
     return RecordingInfo(path, float(info.samplerate), int(info.channels), int(n_frames),
-                         info.format, info.subtype)
+                         info.format, info.subtype, *_broadcast_wav_facts(path, info.samplerate))
+
+
+def _broadcast_wav_facts(path: Path, sample_rate_hz: float):
+    """(start UTC ns or None, its source, iXML track names) of a (Broadcast) WAV file."""
+    chunks = {}
+    for cid, offset, size in _riff_chunks(path):
+        if cid in (b"bext", b"iXML") and cid not in chunks:
+            with open(path, "rb") as fh:
+                fh.seek(offset)
+                chunks[cid] = fh.read(size)
+    start, source, names = None, "", ()
+    try:
+        if b"iXML" in chunks:
+            ixml = bwf.parse_ixml(chunks[b"iXML"])
+            names = ixml.track_names
+            if ixml.time_reference_samples is not None and ixml.date:
+                start = bwf.start_utc_ns(ixml.date, "", ixml.time_reference_samples,
+                                         ixml.time_reference_rate_hz or sample_rate_hz)
+                source = "iXML time stamp"
+        if b"bext" in chunks:
+            bext = bwf.parse_bext(chunks[b"bext"])
+            if bext.origination_date:
+                start = bwf.start_utc_ns(bext.origination_date, bext.origination_time,
+                                         bext.time_reference_samples, sample_rate_hz)
+                source = "Broadcast WAV time reference (bext)"
+    except (ValueError, ET.ParseError) as exc:
+        raise FlyoverInputError("the Broadcast WAV metadata cannot be read", str(path),
+                                "a bext chunk as EBU Tech 3285 lays it out, and well-formed iXML",
+                                str(exc)) from None
+    return start, source, names
 
 
 def read_span(info: RecordingInfo, start_frame: int, n_frames: int, channels=None,
@@ -186,13 +239,17 @@ def read_span(info: RecordingInfo, start_frame: int, n_frames: int, channels=Non
     return out
 
 
-def write_recording(path, samples, sample_rate_hz: float, subtype: str = "FLOAT") -> None:
+def write_recording(path, samples, sample_rate_hz: float, subtype: str = "FLOAT", *,
+                    start_utc_ns: int | None = None) -> None:
     """Write a multichannel recording; RF64 when the data would pass 4 GiB, FLAC by extension.
 
     Parameters
     ----------
     samples : ndarray, shape (n_channels, n_frames)
         Values in full-scale units.
+    start_utc_ns : int, optional
+        Write a Broadcast WAV whose ``bext`` time reference gives this start (rounded to a
+        sample); WAV only.
     """
     from flyover.io.atomic import atomic_path
     path = Path(path)
@@ -207,7 +264,20 @@ def write_recording(path, samples, sample_rate_hz: float, subtype: str = "FLOAT"
         width = {"PCM_16": 2, "PCM_24": 3, "PCM_32": 4, "FLOAT": 4, "DOUBLE": 8}[subtype]
         fmt = "RF64" if data.size * width > 2 ** 32 - 1024 else "WAV"
     with atomic_path(path) as tmp:
-        sf.write(str(tmp), data, int(round(sample_rate_hz)), subtype=subtype, format=fmt)
+        if start_utc_ns is None:
+            sf.write(str(tmp), data, int(round(sample_rate_hz)), subtype=subtype, format=fmt)
+            return
+        buffer = io.BytesIO()
+        sf.write(buffer, data, int(round(sample_rate_hz)), subtype=subtype, format="WAV")
+        day_ns = 86_400 * 10 ** 9
+        midnight_ns = start_utc_ns - start_utc_ns % day_ns
+        when = np.datetime64(int(start_utc_ns), "ns").astype("datetime64[s]").item()
+        chunk = bwf.bext_chunk(
+            time_reference_samples=int(round((start_utc_ns - midnight_ns) * 1e-9
+                                             * sample_rate_hz)),
+            origination_date=when.strftime("%Y-%m-%d"), origination_time=when.strftime("%H:%M:%S"),
+            description="flyover simulated recording")
+        Path(tmp).write_bytes(bwf.insert_chunks(buffer.getvalue(), {b"bext": chunk}))
 
 
 def _sniff(path: Path) -> bool:
