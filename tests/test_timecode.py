@@ -141,3 +141,16 @@ def test_bad_timing_channels_are_refused_clearly():
     from flyover.sync.timecode import pps_seconds
     with pytest.raises(FlyoverInputError, match="jumps"):
         pps_seconds(edges, FS, own_ns, where="rack-a")
+
+
+def test_a_clock_step_is_refused_and_small_misfits_reported():
+    from flyover.sync.timecode import fit_clock
+    sec = np.arange(BASE, BASE + 10)
+    pos = (sec - BASE + 0.25) * FS
+    fit = fit_clock(pos + np.r_[np.zeros(9), 8e-6 * FS], sec, np.zeros(10), FS, "PPS", [],
+                    where="rack-a")
+    assert any("more than 5 us off" in e and "07:49:09" in e for e in fit.events)
+    with pytest.raises(FlyoverInputError, match="do not follow one clock") as err:
+        fit_clock(pos + np.r_[np.zeros(5), np.full(5, 300e-6 * FS)], sec, np.zeros(10), FS,
+                  "PPS", [], where="rack-a")
+    assert "rack-a" in str(err.value)

@@ -45,7 +45,10 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> dict:
         inputs = load_pass(campaign, pass_name, estimate.offset_s, measured_clocks=measured)
     summary = pass_summary(inputs)
     summary["epoch_utc_ns"] = int(inputs.clock.epoch_utc_ns)
-    summary["clock_offset_source"] = "config"
+    timed = all(r.spec.timing_channels for r in inputs.recorders)
+    # With every recorder on a timing channel the pass's offset is only a common correction.
+    summary["clock_offset_source"] = ("timing channels (plus the config's common offset)"
+                                      if timed else "config")
     quality = pass_channel_quality(campaign, inputs, summary["covered_s"], summary["overhead_s"])
     flagged = [q["channel"] for q in quality if q["verdict"] != "ok"]
     summary["channel_quality"] = quality

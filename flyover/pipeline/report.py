@@ -172,6 +172,7 @@ def _pass_section(campaign: Campaign, name: str, out: Path) -> str:
 <h2 id="pass-{html.escape(name)}">Pass {html.escape(name)}</h2>
 <section class="pass" data-pass="{html.escape(name)}">
 <h3>Conditions and alignment</h3>{_table(conditions)}
+<h3>Recorders and clocks</h3>{_table(_recorder_table(al))}
 <h3>Data quality</h3>{warn_html}
 <h3>Track</h3>{_img(d / "qc_track.png", "track over the array")}
 <h3>Spectrograms</h3>{_img(d / "qc_spectrogram.png", "spectrograms")}
@@ -180,6 +181,32 @@ panel in dB re its own peak over {campaign.analysis.map_dynamic_range_db:g} dB.<
 <h3>Region spectra</h3>{_img(d / "spectra.png", "region spectra")}
 <h3>Directivity</h3>{_img(d / "directivity.png", "directivity")}
 </section>"""
+
+
+def _recorder_table(al: dict) -> pd.DataFrame:
+    """Each recorder of a pass: its files and microphones, how its clock was found, and how
+    well (drift and start uncertainties, residual of the timing edges, timing events)."""
+    rows = []
+    for r in al.get("recorders", []):
+        timed = r["clock_method"] == "timing channel"
+        rows.append({
+            "recorder": r["name"],
+            "files": f"{len(r['files'])} {r['format']}",
+            "microphones": r["layout_channels"],
+            "clock": (r.get("timing_kind", "timing channel") if timed else
+                      f"{r['clock_method']} ({r['start_source'] or 'typed start'})"),
+            "start (UTC)": r["start_utc"],
+            "own clock off by (s)": (f"{r['own_clock_error_s']:+.4f}"
+                                     if timed and "own_clock_error_s" in r else ""),
+            "drift (ppm)": (f"{r['drift_ppm']:+.2f} +- {r['drift_uncertainty_ppm']:.2f}"
+                            if timed else f"{r['drift_ppm']:+.2f} (given)"),
+            "start uncertainty (us)": f"{r['start_uncertainty_us']:.1f}" if timed else "",
+            "edge residual rms / max (us)": (f"{r['timing_residual_rms_us']:.1f} / "
+                                             f"{r['timing_residual_max_us']:.1f} "
+                                             f"({r['timing_edges']} edges)" if timed else ""),
+            "timing events": "; ".join(r.get("timing_events", [])) or ("none" if timed else ""),
+        })
+    return pd.DataFrame(rows)
 
 
 def _processing_time_s(out: Path) -> float:

@@ -38,6 +38,9 @@ def pass_files(out_dir: Path, ps: PassScenario, fmt: str = "wav",
     return {"recorders": recs, **files}
 
 
+TIMING_NOISE = 0.001   # full-scale units, on timing channels whose pulses are 0.5
+
+
 def _write_recorders(ps: PassScenario, sim, fs: float, subtype: str, paths: dict) -> None:
     """Each recorder's microphones and timing channels, split into its files, stamped by its
     own (wrong) clock."""
@@ -46,9 +49,11 @@ def _write_recorders(ps: PassScenario, sim, fs: float, subtype: str, paths: dict
     after_base = (ps.epoch_utc_ns - base_s * 1_000_000_000) / 1e9
     for r in ps.recorders:
         true_t = after_base + r.start_after_s + np.arange(n) / (fs * r.rate_factor)
-        timing = [pps_signal(true_t, rise_s=1.0 / fs) if kind == "pps" else
-                  irig_b_signal(true_t, base_s, form=kind.split("-")[-1], rise_s=1.0 / fs)
-                  for kind in r.timing]
+        rng = np.random.default_rng(ps.seed + 3)
+        # A little noise on the timing inputs too (about 54 dB under the pulses).
+        timing = [(pps_signal(true_t, rise_s=1.0 / fs) if kind == "pps" else
+                   irig_b_signal(true_t, base_s, form=kind.split("-")[-1], rise_s=1.0 / fs))
+                  + rng.normal(0.0, TIMING_NOISE, n) for kind in r.timing]
         data = np.vstack([sim.units[np.asarray(r.microphones) - 1]]
                          + [np.asarray(t, np.float32)[None] for t in timing])
         names = [f"Mic {m:02d}" for m in r.microphones] + [t.upper() for t in r.timing]
@@ -148,7 +153,8 @@ def _pass_mapping(scenario, raw, ps: PassScenario, fmt) -> dict:
                                            else [n_mic + k + 1 for k in range(len(r.timing))])
             else:
                 entry["clock_offset_s"] = -r.clock_error_s
-            if r.format == "wav":  # a plain WAV carries no time: the engineer types it
+            if r.format == "wav" and not any(t.startswith("irig") for t in r.timing):
+                # A plain WAV carries no time (an IRIG-B channel would): the engineer types it.
                 own_ns = ps.epoch_utc_ns + int(round((r.start_after_s + r.clock_error_s) * 1e9))
                 entry["start_utc"] = iso_utc(own_ns)
             recorders.append(entry)

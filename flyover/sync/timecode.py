@@ -53,7 +53,8 @@ _IRIG_FIELDS = {  # name: (first bit, weights)
 }
 IRIG_MARKERS = (0,) + tuple(range(9, 100, 10))
 EDGE_HALF_WIDTH = 6       # samples each side of a crossing over which its rise is averaged
-MAX_RESIDUAL_S = 5e-6     # a clean PPS through a DAQ fits to about 1 us; 5 us flags a problem
+NOTED_RESIDUAL_S = 5e-6   # a clean PPS through a DAQ fits to about 1 us: edges further off are
+MAX_RESIDUAL_S = 50e-6    # reported with their second; an edge 50 us off means the clock stepped
 MAX_DRIFT_PPM = 500.0     # quartz clocks of recorders are within about 100 ppm
 
 
@@ -353,6 +354,11 @@ def fit_clock(positions, utc_s, fraction_s, sample_rate_hz: float, kind: str,
                                 f"{rate:.3f} Hz ({drift:+.0f} ppm)",
                                 "is the recorder's nominal rate in the file header right?")
     worst = int(np.argmax(np.abs(res_s)))
+    off = np.flatnonzero(np.abs(res_s) > NOTED_RESIDUAL_S)
+    if len(off):
+        events = events + [f"{len(off)} edge(s) more than {NOTED_RESIDUAL_S * 1e6:.0f} us off "
+                           f"the clock line, the worst {abs(res_s[worst]) * 1e6:.1f} us at "
+                           f"{_iso(t[worst])}"]
     if abs(res_s[worst]) > MAX_RESIDUAL_S:
         raise FlyoverInputError(
             "the timing channel's edges do not follow one clock", where,
