@@ -66,6 +66,9 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> dict:
         summary["clock_estimate_coherence"] = estimate.coherence
         summary["clock_estimate_prominence"] = estimate.prominence
         summary["clock_offset_uncertainty_s"] = estimate.uncertainty_s
+        for r in summary["recorders"]:
+            if r["clock_method"] == "acoustic":
+                r["offset_uncertainty_s"] = estimate.uncertainty_s
         summary["clock_scan_offsets_s"] = [round(float(v), 6) for v in estimate.scan_offsets_s]
         summary["clock_scan_power"] = [round(float(v), 6) for v in estimate.scan_power]
     fig = track_figure(inputs, summary)

@@ -154,8 +154,8 @@ def _recorder_lines(s: dict) -> list[str]:
                  "acoustic": "clock offset estimated acoustically",
                  "given": f"clock as given ({r['start_source'] or 'typed start'})"
                  }[r["clock_method"]]
-        if "own_clock_error_s" in r and r["clock_method"] == "timing channel":
-            clock += f"; its own clock was off by {r['own_clock_error_s']:+.4f} s"
+        if r["offset_s"] is not None and r["clock_method"] == "timing channel":
+            clock += f"; its own clock was off by {-r['offset_s']:+.4f} s"
         lines += [f"    recorder {r['name']}: {files}, {r['channels']} channels "
                   f"(microphones {r['layout_channels']}), from {r['start_utc']} for "
                   f"{r['duration_s']:.2f} s (t = {r['span_s'][0]:.3f} to {r['span_s'][1]:.3f} s)",

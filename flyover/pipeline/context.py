@@ -451,13 +451,17 @@ def recorder_summary(inputs: PassInputs, r: RecorderInputs) -> dict:
                          "acoustic" if inputs.spec.clock_offset_s == "auto" else "given"),
         "start_source": r.start_source,
         "start_utc_ns": int(r.clock.start_utc_ns),
-        "offset_s": r.clock.clock_offset_s,
         "drift_ppm": r.clock.rate_error_ppm,
+        # Given clocks: the stated offset, uncertainty unknown (the acoustic estimate and the
+        # timing channels give theirs).
+        "offset_uncertainty_s": None,
     }
-    if r.recording.start_utc_ns is not None:
-        # The recorder's own time of its first sample against the UTC it is found to have.
-        out["own_clock_error_s"] = (r.recording.start_utc_ns - r.clock.epoch_utc_ns) / 1e9
+    own = r.spec.start_utc_ns if r.spec.start_utc_ns is not None else r.recording.start_utc_ns
+    # The correction that the recorder's own time of its first sample needed (None for a
+    # recorder with no time of its own, timed by IRIG-B alone).
+    out["offset_s"] = None if own is None else (r.clock.epoch_utc_ns - own) / 1e9
     if r.timing is not None:
+        out["offset_uncertainty_s"] = r.timing.start_uncertainty_s
         t = r.timing
         out.update(timing_kind=t.kind, timing_edges=t.n_edges,
                    timing_residual_rms_us=t.residual_rms_s * 1e6,

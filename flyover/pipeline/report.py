@@ -196,11 +196,11 @@ def _recorder_table(al: dict) -> pd.DataFrame:
             "clock": (r.get("timing_kind", "timing channel") if timed else
                       f"{r['clock_method']} ({r['start_source'] or 'typed start'})"),
             "start (UTC)": r["start_utc"],
-            "own clock off by (s)": (f"{r['own_clock_error_s']:+.4f}"
-                                     if timed and "own_clock_error_s" in r else ""),
+            "offset (s)": "" if r["offset_s"] is None else f"{r['offset_s']:+.4f}",
+            "offset uncertainty (us)": ("" if r["offset_uncertainty_s"] is None else
+                                        f"{r['offset_uncertainty_s'] * 1e6:.1f}"),
             "drift (ppm)": (f"{r['drift_ppm']:+.2f} +- {r['drift_uncertainty_ppm']:.2f}"
                             if timed else f"{r['drift_ppm']:+.2f} (given)"),
-            "start uncertainty (us)": f"{r['start_uncertainty_us']:.1f}" if timed else "",
             "edge residual rms / max (us)": (f"{r['timing_residual_rms_us']:.1f} / "
                                              f"{r['timing_residual_max_us']:.1f} "
                                              f"({r['timing_edges']} edges)" if timed else ""),
