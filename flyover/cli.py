@@ -86,7 +86,8 @@ def _parser() -> argparse.ArgumentParser:
                    help="open it in the default browser (default: print its path)")
 
     g = add("stage", "run one per-pass workflow step (called by the workflow)", internal=True)
-    g.add_argument("name", choices=["align", "image", "levels", "qc"], help="the step")
+    g.add_argument("name", choices=["align", "image", "levels", "metrics", "qc"],
+                   help="the step")
     g.add_argument("--campaign", type=Path, default=_campaign_from_environment(),
                    help="campaign file (default: $FLYOVER_CAMPAIGN, set by the workflow)")
     g.add_argument("--pass", dest="pass_name", required=True, help="the pass's name")

@@ -140,3 +140,21 @@ def test_results_that_would_not_fit_on_the_disk(tiny_copy, capsys, monkeypatch):
                   "found 1 MiB free")
     need = float(err.split("expected about ")[1].split(" MiB")[0])
     assert 2 < need < 50  # two tiny passes: maps, figures, tables and their share of the report
+
+
+def test_warnings_for_bands_beyond_the_interpolation_and_mixed_labels(tiny_copy, capsys):
+    # 8 kHz recording, cubic interpolation accurate to 0.135 fs = 1080 Hz; the 1000 Hz band's
+    # upper edge (1122 Hz) is received higher still ahead of the vehicle: f / (1 - M cos theta).
+    edit_campaign(tiny_copy, lambda d: d["analysis"].update(band_max_hz=1000))
+    assert main(["check", str(tiny_copy / "campaign.yaml")]) == 0
+    out = capsys.readouterr().out
+    assert "warning: bands from 1000 Hz are received above the cubic interpolation's" in out
+    # Passes of one label flown 30 m and 38 m up (each 12 % off their median), at one speed.
+    from flyover.pipeline.check import _label_warnings
+    from flyover.io.config import load_campaign
+    campaign = load_campaign(tiny_copy / "campaign.yaml")
+    summaries = [{"pass": "p1", "height_above_array_m": 30.0, "speed_m_s": 20.0, "warnings": []},
+                 {"pass": "p2", "height_above_array_m": 38.0, "speed_m_s": 20.3, "warnings": []}]
+    _label_warnings(campaign, summaries)
+    assert all(len(s["warnings"]) == 1 and "height" in s["warnings"][0] for s in summaries)
+    assert "label 'a'" in summaries[0]["warnings"][0]

@@ -13,7 +13,7 @@ from flyover.imaging.integration import region_powers
 from flyover.imaging.resolution import main_lobe_width_m, regions_resolved
 from flyover.io.config import load_campaign
 from flyover.io.results.maps import read_maps
-from flyover.pipeline import align, image, levels, qc
+from flyover.pipeline import align, image, levels, metrics, qc
 
 
 def test_reference_level_spreading_and_absorption():
@@ -85,10 +85,14 @@ def test_stages_on_the_tiny_campaign(tiny_copy):
     image.run(campaign, "p1", out, threads=2, quiet=True)
     levels.run(campaign, "p1", out)
     qc.run(campaign, "p1", out)  # every per-pass stage, each through its guarded campaign view
+    metrics.run(campaign, "p1", out)
     table = pd.read_csv(out / "levels.csv")
     assert list(table.columns[:6]) == ["window", "time_utc", "polar_angle_deg", "band_hz",
                                        "region", "level_db"]
     assert set(table["region"]) == {"front", "rear", "total"}
+    # A level left empty (not separable, not measurable) is empty in every level column.
+    empty = table["level_db"].isna()
+    assert empty.any() and table.loc[empty, "level_1m_db"].isna().all()
     truth = pd.read_csv(tiny_copy / "truth.csv")
     truth = truth[truth["pass"] == "p1"]
     # The total of all regions at 1 m against the simulator's expected band power of both
@@ -104,7 +108,9 @@ def test_stages_on_the_tiny_campaign(tiny_copy):
     err = mean - expected.loc[mean.index]
     assert len(err) == 7 and near["window"].nunique() >= 4
     assert np.max(np.abs(err)) < 1.0
-    for name in ("levels_overall.csv", "spectra.csv", "directivity.csv", "spectra.png",
+    for name in ("event_metrics.csv", "level_history.csv", "band_history.csv",
+                 "level_history.png", "spectra.csv", "directivity.csv",
+                 "spectra.png",
                  "directivity.png", "maps.npz", "windows.csv"):
         assert (out / name).exists(), name
     maps = read_maps(out)
@@ -168,3 +174,33 @@ def test_auto_clock_offset_needs_an_anchor(tiny_copy):
     path.write_text(yaml.safe_dump(data))
     with pytest.raises(FlyoverInputError, match="needs an anchor"):
         load_campaign(path)
+
+
+def levels_rows(window: int, present: dict) -> pd.DataFrame:
+    """A levels table of one window: region -> {band: level}, other bands empty."""
+    rows = []
+    for region, by_band in present.items():
+        for band in (400.0, 500.0, 630.0, 800.0, 1000.0, 1250.0, 1600.0, 2000.0):
+            rows.append({"window": window, "time_utc": "2026-06-17T07:42:12Z",
+                         "polar_angle_deg": 80.0 + window, "band_hz": band, "region": region,
+                         "level_db": by_band.get(band, np.nan)})
+    return pd.DataFrame(rows)
+
+
+def test_overall_sums_one_band_range_never_fewer_bands():
+    from flyover.pipeline._overall import common_band_range, overall_table
+    full = {b: 60.0 for b in (400.0, 500.0, 630.0, 800.0, 1000.0, 1250.0, 1600.0, 2000.0)}
+    gap = {b: v for b, v in full.items() if b not in (400.0, 630.0)}
+    pass_a = pd.concat([levels_rows(0, {"front": full}), levels_rows(1, {"front": gap})])
+    pass_b = levels_rows(0, {"front": {b: v for b, v in full.items() if b != 2000.0}})
+    # Bands with a level in every window of both passes: 500, 800-1600; the widest run wins.
+    assert common_band_range([pass_a, pass_b]) == {"front": (800.0, 1600.0)}
+    table = overall_table(pass_a, {"front": (800.0, 1600.0)})
+    # Four bands of 60 dB: 60 + 10 lg 4 = 66.02 dB in every window, the range in a column.
+    np.testing.assert_allclose(table["overall_db"], 60 + 10 * np.log10(4), atol=1e-9)
+    assert list(table["band_range_hz"]) == ["800-1600", "800-1600"]
+    assert list(table["bands_summed"]) == [4, 4]
+    # A range holding a band a window lacks: that window has no overall, and says why.
+    wide = overall_table(pass_a, {"front": (500.0, 2000.0)})
+    assert np.isfinite(wide["overall_db"].iloc[0]) and np.isnan(wide["overall_db"].iloc[1])
+    assert "630 Hz" in wide["note"].iloc[1] and "fewer bands" in wide["note"].iloc[1]

@@ -51,7 +51,7 @@ def test_fingerprints_follow_the_declared_reads(tiny_copy):
     # The band range is read by the alignment (channel coherence) and so re-runs it; the
     # reference distance is read by the levels only; a label re-runs no per-pass stage.
     path = tiny_copy / "campaign.yaml"
-    stages = ("align", "image", "levels", "qc")
+    stages = ("align", "image", "levels", "qc", "metrics")
 
     def rerun_by(change) -> set[str]:
         before = {s: CampaignPlan.load(path).fingerprint("p1", s) for s in stages}
@@ -86,9 +86,9 @@ def test_run_progress_and_failure_reading(tmp_path):
 
 
 def test_pass_without_any_window_says_why(tiny_copy):
-    # No window within 0.01 deg of overhead at this hop: the stages still succeed, write empty
-    # tables, and the run's summary says why.
-    edit_campaign(tiny_copy, lambda d: d["analysis"].update(max_polar_offset_deg=0.01))
+    # No window fits (windows longer than the 3 s recording): the stages still succeed, write
+    # empty tables, and the run's summary says why.
+    edit_campaign(tiny_copy, lambda d: d["analysis"].update(window_s=3.5))
     campaign = load_campaign(tiny_copy / "campaign.yaml")
     out = tiny_copy / "results" / "p1"
     align.run(campaign, "p1", out)

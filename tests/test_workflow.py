@@ -136,7 +136,8 @@ def test_revised_track_reruns_that_pass_only(run_copy):
                         for i, v in enumerate(r.split(","))) for r in rows]
     track.write_text("\n".join([head] + revised) + "\n")
     assert planned(run_copy) == {("align", "p1"), ("image", "p1"), ("levels", "p1"),
-                                 ("qc", "p1"), ("campaign_summary", ""), ("report", "")}
+                                 ("qc", "p1"), ("metrics", "p1"), ("campaign_summary", ""),
+                                 ("report", "")}
 
 
 @pytest.mark.slow
@@ -152,7 +153,8 @@ def test_one_pass_atmosphere_reruns_that_pass(finished_run):
     with edited_config(finished_run,
                        lambda d: d["passes"]["p2"]["atmosphere"].update(temperature_c=16.0)):
         assert planned(finished_run) == {("align", "p2"), ("image", "p2"), ("levels", "p2"),
-                                         ("qc", "p2"), ("campaign_summary", ""), ("report", "")}
+                                         ("qc", "p2"), ("metrics", "p2"), ("campaign_summary", ""),
+                                         ("report", "")}
 
 
 @pytest.mark.slow
@@ -160,7 +162,8 @@ def test_added_pass_runs_alone_then_summary(finished_run):
     with edited_config(finished_run,
                        lambda d: d["passes"].update(p3=dict(d["passes"]["p2"], label="b"))):
         assert planned(finished_run) == {("align", "p3"), ("image", "p3"), ("levels", "p3"),
-                                         ("qc", "p3"), ("campaign_summary", ""), ("report", "")}
+                                         ("qc", "p3"), ("metrics", "p3"), ("campaign_summary", ""),
+                                         ("report", "")}
 
 
 @pytest.mark.slow

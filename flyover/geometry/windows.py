@@ -67,23 +67,58 @@ def polar_angle_deg(velocity_enu_m_s, position_enu_m, target_enu_m) -> np.ndarra
     return np.rad2deg(np.arccos(np.clip(cos, -1.0, 1.0)))
 
 
+def overhead_time_s(track: TrackModel, array_center_enu_m, span_s: tuple[float, float],
+                    step_s: float = 0.01) -> float | None:
+    """Emission time in a span at which the polar angle is 90 deg (the array abeam of the
+    flight direction), or None when the span holds no such time.
+
+    The sign change of v . (x_array - x) is found on a grid of ``step_s`` and refined by
+    bisection to a microsecond.
+    """
+    c = np.asarray(array_center_enu_m, float)
+
+    def ahead(t):
+        return np.sum(track.velocity(t) * (c - track.position(t)), axis=-1)
+
+    t = np.arange(span_s[0], span_s[1] + step_s / 2, step_s)
+    if len(t) < 2:
+        return None
+    g = ahead(t)
+    k = np.flatnonzero((g[:-1] > 0) & (g[1:] <= 0))    # array ahead, then behind
+    if len(k) == 0:
+        return None
+    a, b = float(t[k[0]]), float(t[k[0] + 1])
+    while b - a > 1e-6:
+        m = 0.5 * (a + b)
+        a, b = (m, b) if ahead(np.array([m]))[0] > 0 else (a, m)
+    return 0.5 * (a + b)
+
+
 def plan_windows(track: TrackModel, array_center_enu_m, span_s: tuple[float, float],
                  window_s: float, hop_s: float, sample_rate_hz: float, *,
                  max_polar_offset_deg: float = 90.0) -> list[Window]:
     """Windows of ``window_s`` every ``hop_s`` within an emission-time span.
 
-    Windows are placed symmetrically about the span's centre grid (hop multiples from its
-    start) and kept when their polar angle lies within ``max_polar_offset_deg`` of 90 deg.
-    Whether each window's sound reaches the microphones inside the recording is checked by the
-    caller, who knows the grid and the microphones.
+    Windows are anchored on overhead: one is centred on the emission time at which the polar
+    angle is 90 deg (:func:`overhead_time_s`), the others at whole hops from it, so that every
+    pass has a 90 deg window and the windows of passes line up in polar angle. A span that never
+    comes abeam of the array anchors on its start. Windows are kept when their polar angle lies
+    within ``max_polar_offset_deg`` of 90 deg. Whether each window's sound reaches the
+    microphones inside the recording is checked by the caller, who knows the grid and the
+    microphones.
     """
     n = int(round(window_s * sample_rate_hz))
+    half = 0.5 * (n - 1) / sample_rate_hz
     lo = max(span_s[0], track.start_s)
     hi = min(span_s[1], track.end_s) - n / sample_rate_hz
     if hi < lo:
         return []
-    starts = lo + hop_s * np.arange(int(np.floor((hi - lo) / hop_s + 1e-9)) + 1)
-    centers = starts + 0.5 * (n - 1) / sample_rate_hz
+    overhead = overhead_time_s(track, array_center_enu_m, (lo + half, hi + half))
+    anchor = lo if overhead is None else overhead - half      # a window's start on the grid
+    k = np.arange(np.ceil((lo - anchor) / hop_s - 1e-9), np.floor((hi - anchor) / hop_s + 1e-9)
+                  + 1)
+    starts = anchor + hop_s * k
+    centers = starts + half
     pos = track.position(centers)
     vel = track.velocity(centers)
     att = track.attitude_deg(centers)

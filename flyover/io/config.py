@@ -418,6 +418,9 @@ def campaign_from_mapping(data: dict, path: Path) -> Campaign:
         map_dynamic_range_db=float(an.get("map_dynamic_range_db", 15.0)),
         spectra_polar_deg=tuple(float(v) for v in an.get("spectra_polar_deg",
                                                           (60.0, 75.0, 90.0, 105.0, 120.0))),
+        metrics_channel=an.get("metrics_channel"),
+        overall_band_range_hz=(_range(an["overall_band_range_hz"])
+                               if "overall_band_range_hz" in an else None),
     )
     if analysis.band_min_hz > analysis.band_max_hz:
         raise FlyoverInputError("band range inverted", f"{source}, key analysis.band_min_hz",

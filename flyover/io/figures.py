@@ -285,8 +285,10 @@ def campaign_figure(overall, quantity: str = "A-weighted"):
         for i, region in enumerate(dict.fromkeys(part["region"])):
             s = part[part["region"] == region].sort_values("polar_bin_deg")
             err = np.nan_to_num(s["ci_half_width_db"].to_numpy(), nan=0.0)
+            ranges = ", ".join(str(v) for v in dict.fromkeys(s["band_range_hz"]) if str(v))
             ax.errorbar(s["polar_bin_deg"], s["mean_db"], yerr=err, marker="o", ms=3.5,
-                        capsize=2.5, lw=1.3, color=colours[i % len(colours)], label=region)
+                        capsize=2.5, lw=1.3, color=colours[i % len(colours)],
+                        label=f"{region} ({ranges} Hz)" if ranges else region)
         n = int(part["n_passes"].max()) if len(part) else 0
         ax.set_title(f"{label} ({n} pass{'es' if n != 1 else ''})")
         ax.set_xlabel("polar emission angle (deg, 90 = overhead)")
@@ -295,7 +297,49 @@ def campaign_figure(overall, quantity: str = "A-weighted"):
     if not labels:
         axes[0][0].text(0.5, 0.5, "no levels", ha="center", transform=axes[0][0].transAxes)
     fig.suptitle("Campaign: mean over passes with its 90 % interval (Student t)", fontsize=11)
-    fig.text(0.5, -0.02, "Regions sum the bands where they are resolved; 'total' sums all bands.",
-             ha="center", fontsize=8, color="#6b7380")
+    fig.text(0.5, -0.02, "Each region sums one band range per label (in brackets): a window "
+             "missing a band of it has no overall.", ha="center", fontsize=8, color="#6b7380")
     fig.tight_layout()
+    return fig
+
+
+@_styled
+def level_history_figure(history, bands, metrics_row: dict, pass_name: str):
+    """The A-weighted F and S levels against time with LAFmax, LASmax and the 10 dB-down
+    interval marked, above the one-third-octave band levels every 0.5 s.
+
+    ``history`` is the level_history table, ``bands`` the band_history table.
+    """
+    fig, axes = plt.subplots(2, 1, figsize=(9, 6.2), sharex=True,
+                             gridspec_kw={"height_ratios": [1.0, 1.1]})
+    ax = axes[0]
+    t = history["time_s"].to_numpy()
+    ax.plot(t, history["laf_db"], color=ACCENT, lw=1.0, label="L_AF (F, 125 ms)")
+    ax.plot(t, history["las_db"], color=INK, lw=1.6, label="L_AS (S, 1 s)")
+    lo, hi = metrics_row["ten_db_down_start_s"], metrics_row["ten_db_down_end_s"]
+    ax.axvspan(lo, hi, color=ARRAY, alpha=0.15,
+               label=f"10 dB down: {hi - lo:.2f} s, LAE {metrics_row['lae_db']:.1f} dB")
+    ax.axhline(metrics_row["lasmax_db"], color=INK, lw=0.6, ls=":")
+    ax.set_ylabel("A-weighted level (dB)")
+    top = max(metrics_row["lafmax_db"], metrics_row["lasmax_db"])
+    ax.set_ylim(top - 40, top + 3)
+    ax.legend(loc="lower center", fontsize=8)
+    ax.set_title(f"LAFmax {metrics_row['lafmax_db']:.1f} dB, LASmax "
+                 f"{metrics_row['lasmax_db']:.1f} dB at channel {metrics_row['channel']} "
+                 "(as received)")
+    ax = axes[1]
+    ax.grid(False)
+    wide = bands.pivot_table(index="band_hz", columns="time_s", values="level_db")
+    if wide.size:
+        peak = float(np.nanmax(wide.to_numpy()))
+        mesh = ax.pcolormesh(wide.columns, np.arange(len(wide.index)), wide.to_numpy(),
+                             shading="nearest", cmap=MAP_CMAP, vmin=peak - 50, vmax=peak)
+        step = max(1, len(wide.index) // 8)
+        ax.set_yticks(np.arange(len(wide.index))[::step])
+        ax.set_yticklabels([f"{b:g}" for b in wide.index[::step]])
+        bar = fig.colorbar(mesh, ax=axes, shrink=0.5, pad=0.02)
+        bar.set_label("band level (dB re 20 uPa)")
+    ax.set_ylabel("one-third-octave band (Hz)")
+    ax.set_xlabel("time as received (s after the pass epoch)")
+    fig.suptitle(f"{pass_name}: single-event levels", fontsize=11)
     return fig

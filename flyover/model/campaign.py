@@ -98,6 +98,12 @@ class AnalysisSettings:
         Range shown under each map's peak in the figures.
     spectra_polar_deg : tuple of float
         Polar angles at which region spectra are tabulated and drawn.
+    overall_band_range_hz : (float, float) or None
+        Bands summed into every overall level (None: per label, the bands with a level in every
+        analysed window of every pass of the label).
+    metrics_channel : int or None
+        Layout channel of the microphone the single-event metrics are measured at (None: the
+        used microphone nearest the array centre).
     """
 
     window_s: float
@@ -112,6 +118,8 @@ class AnalysisSettings:
     max_polar_offset_deg: float = 60.0
     map_dynamic_range_db: float = 15.0
     spectra_polar_deg: tuple[float, ...] = (60.0, 75.0, 90.0, 105.0, 120.0)
+    metrics_channel: int | None = None
+    overall_band_range_hz: tuple[float, float] | None = None
 
     def __post_init__(self):
         require(self.window_s > 0 and self.hop_s > 0, "window and hop must be positive",

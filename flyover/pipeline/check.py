@@ -9,6 +9,7 @@ from pathlib import Path
 import numpy as np
 
 from flyover.acoustics.bands import third_octave_bands
+from flyover.imaging.dedoppler import ACCURATE_FRACTION
 from flyover.model.campaign import Campaign
 from flyover.model.errors import FlyoverInputError
 from flyover.pipeline.context import (PassInputs, check_memory, load_pass, output_bytes,
@@ -36,9 +37,56 @@ def check_campaign(campaign: Campaign) -> list[dict]:
         summary = pass_summary(p)
         _check_against_recording(campaign, p)
         _check_samples(p, summary["covered_s"])
+        summary["warnings"] = _band_warnings(campaign, summary)
         summaries.append(summary)
+    _label_warnings(campaign, summaries)
     _check_free_space(campaign, sum(output_bytes(campaign, p) for p in loaded))
     return summaries
+
+
+# Passes averaged under one label should fly one condition: their heights within +-10 % and
+# speeds within +-5 % of the label's median (our tolerances; certification procedures allow
+# for instance +-20 % of the reference height in 14 CFR 36 App. G, so these are tighter).
+LABEL_HEIGHT_TOLERANCE = 0.10
+LABEL_SPEED_TOLERANCE = 0.05
+
+
+def _band_warnings(campaign: Campaign, summary: dict) -> list[str]:
+    """Bands whose received upper edge passes the interpolation's accurate range in the windows
+    furthest ahead of the vehicle (received frequency f / (1 - M cos theta))."""
+    an = campaign.analysis
+    bands = third_octave_bands(an.band_min_hz, an.band_max_hz)
+    limit = ACCURATE_FRACTION[an.interpolation] * summary["sample_rate_hz"]
+    mach = summary["speed_m_s"] / summary["speed_of_sound_m_s"]
+    theta = np.deg2rad(90.0 - an.max_polar_offset_deg)
+    received = bands.upper_hz / (1.0 - mach * np.cos(theta))
+    over = bands.nominal_hz[received > limit]
+    if not len(over):
+        return []
+    return [f"bands from {over[0]:g} Hz are received above the {an.interpolation} "
+            f"interpolation's accurate range ({limit:.0f} Hz) in the windows "
+            f"{an.max_polar_offset_deg:g} deg ahead of overhead: they will be marked invalid "
+            "there (interpolation: sinc reaches 0.4 fs)"]
+
+
+def _label_warnings(campaign: Campaign, summaries: list[dict]) -> None:
+    """Passes of one label whose height or speed is off the label's median by more than the
+    tolerances above (added to each such pass's warnings)."""
+    by_label: dict[str, list[dict]] = {}
+    for s in summaries:
+        by_label.setdefault(campaign.passes[s["pass"]].label, []).append(s)
+    for label, group in by_label.items():
+        if not label or len(group) < 2:
+            continue
+        for key, tol, what in (("height_above_array_m", LABEL_HEIGHT_TOLERANCE, "height"),
+                               ("speed_m_s", LABEL_SPEED_TOLERANCE, "speed")):
+            median = float(np.median([s[key] for s in group]))
+            for s in group:
+                if abs(s[key] - median) > tol * median:
+                    s["warnings"].append(
+                        f"{what} {s[key]:.1f} differs from the median {median:.1f} of label "
+                        f"'{label}' by more than {tol:.0%}: averaging it with the label's "
+                        "other passes mixes conditions")
 
 
 def _check_against_recording(campaign: Campaign, inputs: PassInputs) -> None:
@@ -136,6 +184,7 @@ def format_summary(campaign: Campaign, summaries: list[dict]) -> str:
             f"height {s['height_above_array_m']:.1f} m, "
             f"speed {s['speed_m_s']:.1f} m/s, c = {s['speed_of_sound_m_s']:.2f} m/s, "
             f"track noise ~{s['track_noise_estimate_m'] * 100:.1f} cm"]
+        lines += [f"    warning: {w}" for w in s.get("warnings", [])]
     lines.append("all inputs are valid")
     return "\n".join(lines)
 

@@ -112,6 +112,13 @@ class PassInputs:
         units = self.read_units(first_frame, n_frames, pad=pad)
         return units * self.pa_per_unit[:, None].astype(np.float32)
 
+    def read_microphone_pa(self, mic: int, first_frame: int, n_frames: int) -> np.ndarray:
+        """Calibrated pressure (Pa) of one microphone (layout row), float64 (n_frames,), from
+        frame ``first_frame`` of its recorder: that channel alone is read."""
+        r = next(r for r in self.recorders if mic in r.mics)
+        ch = r.channels[int(np.flatnonzero(r.mics == mic)[0])]
+        return r.recording.read(first_frame, n_frames, [ch])[0] * float(self.pa_per_unit[mic])
+
     def frames_at(self, time_s: float) -> np.ndarray:
         """Per microphone, the frame of its recorder at a time (s after the epoch), floored."""
         idx = self.clock.sample_index(np.full((len(self.layout.channel), 1), float(time_s)))

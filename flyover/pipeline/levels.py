@@ -8,12 +8,11 @@ import numpy as np
 import pandas as pd
 
 from flyover.acoustics.bands import third_octave_bands
-from flyover.acoustics.reference import level_1m_db, overall_db, reference_level_db
+from flyover.acoustics.reference import level_1m_db, reference_level_db
 from flyover.imaging.window import TOTAL
 from flyover.io.figures import directivity_figure, save_figure, spectra_figure
 from flyover.io.results.directivity import DIRECTIVITY
 from flyover.io.results.levels import LEVELS
-from flyover.io.results.levels_overall import LEVELS_OVERALL
 from flyover.io.results.region_power import REGION_POWER
 from flyover.io.results.spectra import SPECTRA
 from flyover.io.results.windows import read_analysed
@@ -30,14 +29,14 @@ READS = ("regions", "analysis.reference_distance_m", "analysis.reference_atmosph
 
 
 def run(campaign: Campaign, pass_name: str, out_dir: Path) -> None:
-    """Write levels.csv, levels_overall.csv, spectra.csv, directivity.csv and their figures."""
+    """Write levels.csv, spectra.csv, directivity.csv and their figures (the overall levels
+    follow in the campaign summary, over the band range of the pass's label)."""
     campaign = guarded(campaign, READS, stage="levels", pass_name=pass_name)
     out_dir = Path(out_dir)
     windows = read_analysed(out_dir).set_index("window")
     powers = REGION_POWER.read(out_dir)
     levels = level_table(powers, windows, campaign)
     LEVELS.write(out_dir, levels)
-    LEVELS_OVERALL.write(out_dir, overall_table(levels))
     spectra = spectra_table(levels, campaign.analysis.spectra_polar_deg)
     SPECTRA.write(out_dir, spectra)
     DIRECTIVITY.write(out_dir, directivity_table(levels))
@@ -69,8 +68,9 @@ def level_table(powers: pd.DataFrame, windows: pd.DataFrame, campaign: Campaign)
     l1 = level_1m_db(p["power_1m_pa2"].to_numpy())
     lref = reference_level_db(np.zeros(len(bands)), bands, an.reference_distance_m,
                               an.reference_atmosphere)[k] + l1
-    p["level_1m_db"] = l1
     ok = p["resolved"] & p["band_valid"]
+    # A level that cannot be separated or measured is not given at any distance.
+    p["level_1m_db"] = np.where(ok, l1, np.nan)
     p["level_db"] = np.where(ok, lref, np.nan)
     p["note"] = np.where(~p["band_valid"], p["band_note"],
                          np.where(p["resolved"], "", UNRESOLVED))
@@ -80,25 +80,6 @@ def level_table(powers: pd.DataFrame, windows: pd.DataFrame, campaign: Campaign)
     order = {name: i for i, name in enumerate(list(campaign.regions) + [TOTAL])}
     p = p.assign(_o=p["region"].map(order)).sort_values(["window", "_o", "band_hz"])
     return p[cols].reset_index(drop=True)
-
-
-def overall_table(levels: pd.DataFrame) -> pd.DataFrame:
-    """Overall and A-weighted sums per window and region, over the resolved bands."""
-    rows = []
-    for (window, region), g in levels.groupby(["window", "region"], sort=False):
-        ok = g[np.isfinite(g["level_db"])]
-        overall = a_weighted = np.nan
-        if len(ok):
-            bands = third_octave_bands(ok["band_hz"].min(), ok["band_hz"].max())
-            by_band = ok.set_index("band_hz")["level_db"].reindex(bands.nominal_hz)
-            overall, a_weighted = overall_db(by_band.to_numpy(), bands)
-        rows.append({"window": window, "time_utc": g["time_utc"].iloc[0],
-                     "polar_angle_deg": g["polar_angle_deg"].iloc[0], "region": region,
-                     "overall_db": overall, "a_weighted_db": a_weighted,
-                     "bands_summed": len(ok),
-                     "band_range_hz": f"{ok['band_hz'].min():g}-{ok['band_hz'].max():g}"
-                     if len(ok) else ""})
-    return pd.DataFrame(rows, columns=LEVELS_OVERALL.column_names)
 
 
 def spectra_table(levels: pd.DataFrame, polar_deg,

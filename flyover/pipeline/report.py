@@ -17,6 +17,7 @@ from flyover import __version__
 from flyover.io.atomic import write_text
 from flyover.io.results.alignment import read_alignment
 from flyover.io.results.campaign_tables import CAMPAIGN_LEVELS, CAMPAIGN_OVERALL
+from flyover.io.results.event_metrics import EVENT_METRICS
 from flyover.io.results.windows import WINDOWS
 from flyover.model.campaign import Campaign
 from flyover.model.reads import guarded
@@ -173,6 +174,8 @@ def _pass_section(campaign: Campaign, name: str, out: Path) -> str:
 <section class="pass" data-pass="{html.escape(name)}">
 <h3>Conditions and alignment</h3>{_table(conditions)}
 <h3>Recorders and clocks</h3>{_table(_recorder_table(al))}
+<h3>Single-event metrics (as received)</h3>{_table(_metrics_table(d))}
+{_img(d / "level_history.png", "A-weighted level and band levels against time")}
 <h3>Data quality</h3>{warn_html}
 <h3>Track</h3>{_img(d / "qc_track.png", "track over the array")}
 <h3>Spectrograms</h3>{_img(d / "qc_spectrogram.png", "spectrograms")}
@@ -181,6 +184,20 @@ panel in dB re its own peak over {campaign.analysis.map_dynamic_range_db:g} dB.<
 <h3>Region spectra</h3>{_img(d / "spectra.png", "region spectra")}
 <h3>Directivity</h3>{_img(d / "directivity.png", "directivity")}
 </section>"""
+
+
+def _metrics_table(d: Path) -> pd.DataFrame:
+    """The pass's single-event metrics, rounded to what they can defend (0.1 dB, 0.01 s)."""
+    m = EVENT_METRICS.read(d).iloc[0]
+    cut = "" if bool(m["ten_db_down_complete"]) else " (cut short by the recording)"
+    rows = [("reference microphone", f"channel {int(m['channel'])} ({m['as_measured']})"),
+            ("LAFmax (dB)", f"{m['lafmax_db']:.1f} at {m['lafmax_utc']}"),
+            ("LASmax (dB)", f"{m['lasmax_db']:.1f} at {m['lasmax_utc']}"),
+            ("LAE, 10 dB down (dB)", f"{m['lae_db']:.1f}{cut}"),
+            ("10 dB-down duration (s)", f"{m['ten_db_down_s']:.2f} from "
+                                        f"{m['ten_db_down_start_utc']}"),
+            ("LAeq (dB)", f"{m['laeq_db']:.1f} over {m['laeq_duration_s']:.2f} s")]
+    return pd.DataFrame(rows, columns=["quantity", "value"])
 
 
 def _recorder_table(al: dict) -> pd.DataFrame:

@@ -9,17 +9,19 @@ import pandas as pd
 
 from flyover.acoustics.statistics import (WIDE_INTERVAL_DB, energetic_mean_db, mean_and_interval,
                                           polar_bin_deg)
+from flyover.acoustics.bands import third_octave_bands
 from flyover.io.figures import campaign_figure, save_figure
 from flyover.io.results.campaign_tables import CAMPAIGN_LEVELS, CAMPAIGN_OVERALL
 from flyover.io.results.levels import LEVELS
 from flyover.io.results.levels_overall import LEVELS_OVERALL
 from flyover.model.campaign import Campaign
 from flyover.model.reads import guarded
+from flyover.pipeline._overall import common_band_range, overall_table
 
 POLAR_BIN_DEG = 10.0
 
 # What this stage reads of the campaign (flyover.model.reads): its re-run fingerprint too.
-READS = ("passes",)
+READS = ("passes", "analysis.overall_band_range_hz")
 
 
 
@@ -57,21 +59,40 @@ def summarise(per_pass: dict[str, pd.DataFrame], labels: dict[str, str], value: 
     return out
 
 
+def label_band_ranges(campaign: Campaign, tables) -> dict:
+    """The band range of the overall levels per region for the passes of one label: the
+    campaign's ``analysis.overall_band_range_hz``, else the bands with a level in every
+    analysed window of every one of these passes."""
+    chosen = campaign.analysis.overall_band_range_hz
+    found = common_band_range(tables)
+    if chosen is None:
+        return found
+    nominal = third_octave_bands(*chosen).nominal_hz
+    return {r: (float(nominal[0]), float(nominal[-1])) for r in found}
+
+
 def run(campaign: Campaign, out_dir: Path) -> None:
-    """Write campaign_levels.csv (bands), campaign_overall.csv (overall, A-weighted) and
+    """Write every pass's levels_overall.csv (over its label's band range), then
+    campaign_levels.csv (bands), campaign_overall.csv (overall, A-weighted) and
     campaign_overall.png."""
     campaign = guarded(campaign, READS, stage="summary")
     out_dir = Path(out_dir)
     labels = {n: p.label for n, p in campaign.passes.items()}
     bands = {n: LEVELS.read(out_dir / n) for n in campaign.passes}
-    overall = {n: LEVELS_OVERALL.read(out_dir / n) for n in campaign.passes}
+    overall = {}
+    for label in dict.fromkeys(labels.values()):
+        names = [n for n in campaign.passes if labels[n] == label]
+        ranges = label_band_ranges(campaign, [bands[n] for n in names])
+        for n in names:
+            overall[n] = overall_table(bands[n], ranges)
+            LEVELS_OVERALL.write(out_dir / n, overall[n])
     table = summarise(bands, labels, "level_db", ["region", "band_hz"])
     CAMPAIGN_LEVELS.write(out_dir, table)
     parts = []
     for value in ("overall_db", "a_weighted_db"):
-        s = summarise(overall, labels, value, ["region"])
-        s.insert(2, "quantity", "overall" if value == "overall_db" else "A-weighted")
+        s = summarise(overall, labels, value, ["region", "band_range_hz"])
+        s.insert(3, "quantity", "overall" if value == "overall_db" else "A-weighted")
         parts.append(s)
-    overall_table = pd.concat(parts, ignore_index=True)
-    CAMPAIGN_OVERALL.write(out_dir, overall_table)
-    save_figure(campaign_figure(overall_table), out_dir / "campaign_overall.png")
+    overall_summary = pd.concat(parts, ignore_index=True)
+    CAMPAIGN_OVERALL.write(out_dir, overall_summary)
+    save_figure(campaign_figure(overall_summary), out_dir / "campaign_overall.png")

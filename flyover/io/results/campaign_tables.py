@@ -18,4 +18,6 @@ CAMPAIGN_LEVELS = TableFile("campaign_levels.csv", (
     ("band_hz", "nominal midband")) + _STATISTICS, float_format="%.3f")
 CAMPAIGN_OVERALL = TableFile("campaign_overall.csv", (
     ("label", "configuration label"), ("region", "region name, or 'total'"),
+    ("band_range_hz", "the nominal bands summed, lowest-highest (one range per label and "
+                      "region)"),
     ("quantity", "'overall' or 'A-weighted'")) + _STATISTICS, float_format="%.3f")

@@ -10,7 +10,7 @@ LEVELS = TableFile("levels.csv", (
     ("region", "region name, or 'total'"),
     ("level_db", "dB re 20 uPa at the reference distance in the reference atmosphere; empty "
                  "where not separable or not measurable"),
-    ("level_1m_db", "dB re 20 uPa, source strength at 1 m"),
+    ("level_1m_db", "dB re 20 uPa, source strength at 1 m; empty where level_db is"),
     ("resolved", "region centres at least one main-lobe width apart"),
     ("band_valid", "the window can measure the band"),
     ("note", "why a level is empty"),

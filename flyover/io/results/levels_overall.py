@@ -10,5 +10,8 @@ LEVELS_OVERALL = TableFile("levels_overall.csv", (
     ("overall_db", "dB re 20 uPa at the reference distance"),
     ("a_weighted_db", "dB(A) re 20 uPa (IEC 61672-1)"),
     ("bands_summed", "number of bands in the sums"),
-    ("band_range_hz", "lowest-highest band summed"),
+    ("band_range_hz", "lowest-highest nominal band of the range summed: one range per label and "
+                      "region (analysis.overall_band_range_hz, or the bands with a level in every "
+                      "analysed window of every pass of the label)"),
+    ("note", "why an overall is empty"),
 ), float_format="%.3f")

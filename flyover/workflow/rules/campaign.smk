@@ -4,8 +4,11 @@
 
 rule campaign_summary:
     input:
-        PLAN.pass_results(("levels.csv", "levels_overall.csv")),
+        PLAN.pass_results(("levels.csv",)),
     output:
+        # Each pass's overall levels sum its label's band range: they follow from all the
+        # label's passes, so they are written here.
+        pass_overall=update(PLAN.pass_results(("levels_overall.csv",))),
         levels=update(f"{OUTP}/campaign_levels.csv"),
         overall=update(f"{OUTP}/campaign_overall.csv"),
         figure=update(f"{OUTP}/campaign_overall.png"),
@@ -28,7 +31,8 @@ rule report:
     input:
         rules.campaign_summary.output,
         PLAN.pass_results(("alignment.json", "windows.csv", "qc_track.png", "qc_spectrogram.png",
-                           "spectra.png", "directivity.png")),
+                           "spectra.png", "directivity.png", "event_metrics.csv",
+                           "level_history.png")),
         PLAN.input_files(),
     output:
         update(f"{OUTP}/report.html"),

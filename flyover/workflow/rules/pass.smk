@@ -59,7 +59,6 @@ rule levels:
         regions=f"{OUTP}/{{pass_name}}/region_power.csv",
     output:
         levels=update(f"{OUTP}/{{pass_name}}/levels.csv"),
-        overall=update(f"{OUTP}/{{pass_name}}/levels_overall.csv"),
         spectra=update(f"{OUTP}/{{pass_name}}/spectra.csv"),
         directivity=update(f"{OUTP}/{{pass_name}}/directivity.csv"),
         spectra_png=update(f"{OUTP}/{{pass_name}}/spectra.png"),
@@ -79,6 +78,32 @@ rule levels:
         CONDA_ENV,
     shell:
         f"{STAGE} levels --pass {{wildcards.pass_name:q}} > {{log:q}} 2>&1"
+
+
+rule metrics:
+    input:
+        unpack(lambda w: PLAN.pass_inputs(w.pass_name)),
+        alignment=f"{OUTP}/{{pass_name}}/alignment.json",
+    output:
+        metrics=update(f"{OUTP}/{{pass_name}}/event_metrics.csv"),
+        history=update(f"{OUTP}/{{pass_name}}/level_history.csv"),
+        bands=update(f"{OUTP}/{{pass_name}}/band_history.csv"),
+        figure=update(f"{OUTP}/{{pass_name}}/level_history.png"),
+    params:
+        fingerprint=lambda w: PLAN.fingerprint(w.pass_name, "metrics"),
+    log:
+        f"{OUTP}/logs/{{pass_name}}/metrics.log",
+    benchmark:
+        f"{OUTP}/benchmarks/{{pass_name}}/metrics.tsv"
+    group:
+        "pass_light"
+    resources:
+        mem_mb=lambda w: PLAN.memory_mb(w.pass_name, "metrics"),
+        runtime=lambda w: PLAN.runtime_min(w.pass_name, "metrics"),
+    conda:
+        CONDA_ENV,
+    shell:
+        f"{STAGE} metrics --pass {{wildcards.pass_name:q}} > {{log:q}} 2>&1"
 
 
 rule qc:

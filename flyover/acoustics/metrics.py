@@ -1,0 +1,158 @@
+"""Single-event metrics of a pass as received at one microphone: time-weighted A levels, their
+maxima, the sound exposure level over the 10 dB-down interval, the equivalent level, and
+one-third-octave band levels in short blocks.
+
+Definitions (IEC 61672-1:2013, clause 3; common practice for flyover noise):
+
+- A-weighted pressure p_A(t): the pressure through the A-weighting of IEC 61672-1 (applied here
+  in the frequency domain with the standard's analytic response, so its magnitude is exact at
+  every frequency; its phase is zero, which the squared and averaged quantities below do not
+  depend on beyond the filter's own few-millisecond memory).
+- Time-weighted level L_A,tau(t) = 10 lg( (1/tau) int_{-inf}^t p_A^2(x) e^{-(t-x)/tau} dx / p0^2 )
+  with tau = 0.125 s (F, fast) or 1 s (S, slow): a first-order low pass of p_A^2, run here as
+  the exact discrete exponential recursion sample by sample.
+- LAFmax, LASmax: their maxima over the pass.
+- Sound exposure level LAE = 10 lg( int_{t1}^{t2} p_A^2 dt / (p0^2 * 1 s) ) over the 10 dB-down
+  interval [t1, t2]: from the first to the last time at which L_AS is within 10 dB of LASmax.
+- LAeq,T = 10 lg( (1/T) int_T p_A^2 dt / p0^2 ): over the whole span analysed, so that
+  LAE over the same span = LAeq,T + 10 lg(T / 1 s).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.signal import lfilter
+
+from flyover.acoustics.bands import ThirdOctaveBands, a_weighting_db
+from flyover.model.constants import P0_PA
+
+TIME_CONSTANT_S = {"F": 0.125, "S": 1.0}   # IEC 61672-1 time weightings
+TEN_DB_DOWN = 10.0
+
+
+def a_weighted(pressure_pa, sample_rate_hz: float) -> np.ndarray:
+    """A-weighted pressure (Pa), shape (n,): the IEC 61672-1 response applied to the spectrum.
+
+    The signal is padded to twice its length so that the weighting's memory does not wrap
+    around its ends.
+    """
+    x = np.asarray(pressure_pa, dtype=float)
+    n = len(x)
+    m = 2 * n
+    f = np.fft.rfftfreq(m, 1.0 / sample_rate_hz)
+    gain = np.zeros_like(f)
+    gain[1:] = 10.0 ** (a_weighting_db(f[1:]) / 20.0)
+    return np.fft.irfft(np.fft.rfft(x, m) * gain, m)[:n]
+
+
+def time_weighted_mean_square(p2, sample_rate_hz: float, time_constant_s: float) -> np.ndarray:
+    """Exponentially time-weighted mean square (Pa^2) of a squared signal, from rest.
+
+    The exact discrete form of d y/dt = (p^2 - y) / tau over each sample interval.
+    """
+    a = np.exp(-1.0 / (sample_rate_hz * time_constant_s))
+    return lfilter([1.0 - a], [1.0, -a], np.asarray(p2, dtype=float))
+
+
+def level_db(mean_square_pa2) -> np.ndarray:
+    """10 lg(p^2 / p0^2), -inf for zero."""
+    with np.errstate(divide="ignore"):
+        return 10.0 * np.log10(np.asarray(mean_square_pa2, dtype=float) / P0_PA ** 2)
+
+
+@dataclass(frozen=True)
+class EventMetrics:
+    """Single-event metrics of one signal (times in seconds from its first sample).
+
+    Attributes
+    ----------
+    lafmax_db, lafmax_s, lasmax_db, lasmax_s : float
+    lae_db : float
+        Over the 10 dB-down interval of L_AS.
+    ten_db_down_s : tuple of float
+        Its first and last time.
+    laeq_db, laeq_duration_s : float
+        Over the whole signal.
+    ten_db_down_complete : bool
+        False when L_AS is still within 10 dB of its maximum at an end of the signal: the
+        interval, and LAE with it, are then cut short by the recording.
+    """
+
+    lafmax_db: float
+    lafmax_s: float
+    lasmax_db: float
+    lasmax_s: float
+    lae_db: float
+    ten_db_down_s: tuple[float, float]
+    laeq_db: float
+    laeq_duration_s: float
+    ten_db_down_complete: bool
+
+    @property
+    def ten_db_down_duration_s(self) -> float:
+        return self.ten_db_down_s[1] - self.ten_db_down_s[0]
+
+
+def event_metrics(pressure_pa, sample_rate_hz: float) -> tuple[EventMetrics, dict]:
+    """The single-event metrics of a received pressure signal (see the module notes).
+
+    Parameters
+    ----------
+    pressure_pa : ndarray, shape (n,)
+        Pressure at the microphone (Pa), free of the ground-plate doubling or not: as measured.
+    sample_rate_hz : float
+
+    Returns
+    -------
+    metrics : EventMetrics
+    history : dict of str -> ndarray (n,)
+        ``"LAF"`` and ``"LAS"``: the time-weighted levels (dB), sample by sample.
+    """
+    fs = float(sample_rate_hz)
+    p2 = a_weighted(pressure_pa, fs) ** 2
+    laf = level_db(time_weighted_mean_square(p2, fs, TIME_CONSTANT_S["F"]))
+    las = level_db(time_weighted_mean_square(p2, fs, TIME_CONSTANT_S["S"]))
+    kf, ks = int(np.argmax(laf)), int(np.argmax(las))
+    above = np.flatnonzero(las >= las[ks] - TEN_DB_DOWN)
+    i1, i2 = int(above[0]), int(above[-1])
+    energy = np.cumsum(p2) / fs                     # Pa^2 s
+    exposure = energy[i2] - (energy[i1 - 1] if i1 > 0 else 0.0)
+    n = len(p2)
+    metrics = EventMetrics(
+        float(laf[kf]), kf / fs, float(las[ks]), ks / fs,
+        float(level_db(exposure / 1.0)), (i1 / fs, i2 / fs),
+        float(level_db(energy[-1] / (n / fs))), n / fs,
+        bool(i1 > 0 and i2 < n - 1))
+    return metrics, {"LAF": laf, "LAS": las}
+
+
+def band_level_history(pressure_pa, sample_rate_hz: float, bands: ThirdOctaveBands,
+                       block_s: float = 0.5) -> tuple[np.ndarray, np.ndarray]:
+    """One-third-octave band levels of consecutive blocks (energy per band from the block's
+    spectrum, Parseval: rectangular blocks that tile the signal, so the blocks' energies add up
+    to the signal's).
+
+    Returns
+    -------
+    centre_s : ndarray, shape (n_blocks,)
+        Block centres, seconds from the first sample.
+    levels_db : ndarray, shape (n_blocks, n_bands)
+        Band levels (dB re 20 uPa, mean square over the block); -inf for an empty band.
+    """
+    fs = float(sample_rate_hz)
+    x = np.asarray(pressure_pa, dtype=float)
+    n = int(round(block_s * fs))
+    n_blocks = len(x) // n
+    blocks = x[:n_blocks * n].reshape(n_blocks, n)
+    spec = np.abs(np.fft.rfft(blocks, axis=1)) ** 2
+    weight = np.full(spec.shape[1], 2.0)
+    weight[0] = 1.0
+    if n % 2 == 0:
+        weight[-1] = 1.0
+    power = spec * weight / n ** 2                   # mean square per line, Pa^2
+    f = np.fft.rfftfreq(n, 1.0 / fs)
+    out = np.stack([power[:, (f >= lo) & (f < hi)].sum(axis=1)
+                    for lo, hi in zip(bands.lower_hz, bands.upper_hz)], axis=1)
+    return (np.arange(n_blocks) + 0.5) * n / fs, level_db(out)
