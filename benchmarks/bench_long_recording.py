@@ -34,7 +34,8 @@ from flyover.forward.moving_source import (Broadband, PointSource, Propagator,  
 from flyover.geometry.frames import SiteFrame  # noqa: E402
 from flyover.io.readers.soundfile_recording import (_declared_data_bytes,  # noqa: E402
                                                     recording_info)
-from flyover.sim.scenario import incoherent_noise_pa, spiral_layout, straight_track  # noqa: E402
+from flyover.geometry.track import straight_track  # noqa: E402
+from flyover.sim.scenario import incoherent_noise_pa, spiral_layout  # noqa: E402
 from flyover.sync.timebase import iso_utc  # noqa: E402
 
 FS = 51200

@@ -17,7 +17,8 @@ from flyover.imaging.methods import method_named
 from flyover.imaging.resolution import main_lobe_width_m
 from flyover.imaging.window import image_window, window_context
 from flyover.model.campaign import Region, VehicleGrid
-from flyover.sim.scenario import incoherent_noise_pa, spiral_layout, straight_track
+from flyover.geometry.track import straight_track
+from flyover.sim.scenario import incoherent_noise_pa, spiral_layout
 from flyover.sync.timebase import ArrayClock, RecordingClock
 
 FS = 12800.0

@@ -64,7 +64,7 @@ def test_simulated_flyover_exposure_against_band_energies():
     from flyover.acoustics.atmosphere import Atmosphere
     from flyover.forward.moving_source import (Broadband, PointSource, Propagator, SourceSignal,
                                                Tone, received_pressure_pa)
-    from flyover.sim.scenario import straight_track
+    from flyover.geometry.track import straight_track
     fs = 25600.0
     track, *_ = straight_track(25.0, 40.0, 90.0, 9.0, -4.0, 22.0)
     source = PointSource("s", (0.0, 0.0, 0.0), tones=(Tone(240.0, 100.0), Tone(480.0, 94.0)),

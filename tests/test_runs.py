@@ -58,8 +58,12 @@ def test_fingerprints_follow_the_declared_reads(tiny_copy):
         edit_campaign(tiny_copy, change)
         return {s for s in stages if CampaignPlan.load(path).fingerprint("p1", s) != before[s]}
 
-    assert rerun_by(lambda d: d["analysis"].update(band_min_hz=400)) == {"align", "image", "qc"}
-    assert rerun_by(lambda d: d["analysis"].update(reference_distance_m=80.0)) == {"levels"}
+    # The metrics compare the measurement with its reconstruction in the analysed bands, and
+    # reconstruct for a reference flight at the reference distance.
+    assert rerun_by(lambda d: d["analysis"].update(band_min_hz=400)) == {"align", "image", "qc",
+                                                                          "metrics"}
+    assert rerun_by(lambda d: d["analysis"].update(reference_distance_m=80.0)) == {"levels",
+                                                                                   "metrics"}
     assert rerun_by(lambda d: d["passes"]["p1"].update(label="other")) == set()
     # File paths are not part of a fingerprint (the workflow tracks the files themselves).
     values = read_values(load_campaign(path), align.READS, "p1")

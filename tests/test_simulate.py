@@ -12,7 +12,7 @@ from flyover.forward import _sinc
 from flyover.forward.moving_source import (Broadband, PointSource, Propagator, SourceSignal, Tone,
                                            received_pressure_pa)
 from flyover.imaging import _kernels
-from flyover.sim.scenario import straight_track
+from flyover.geometry.track import straight_track
 
 FS = 16000.0
 V, H = 30.0, 40.0

@@ -21,3 +21,15 @@ def test_energetic_mean_and_bins():
     # Energetic mean of 60 and 70 dB: 10 lg((1e6 + 1e7) / 2) = 67.404 dB (common practice).
     assert energetic_mean_db([60.0, 70.0, np.nan]) == pytest.approx(67.4036, abs=1e-4)
     np.testing.assert_array_equal(polar_bin_deg([84.9, 85.1, 94.9, 131.0]), [80, 90, 90, 130])
+
+
+def test_interval_combines_scatter_and_stated_uncertainties():
+    # One pass: the normal 90 % interval of its own uncertainty, 1.645 u (GUM, coverage 90 %).
+    one = mean_and_interval([70.0], uncertainty_db=[1.0])
+    assert one["ci_half_width_db"] == pytest.approx(1.6449, abs=1e-3)
+    # Two passes 2 dB apart, 1 dB each: t(0.95, 1) = 6.314 (Student's table) times s / sqrt(2)
+    # = 1.414 / 1.414, in quadrature with 1.645 * 1 / sqrt(2).
+    two = mean_and_interval([70.0, 72.0], uncertainty_db=[1.0, 1.0])
+    assert two["ci_half_width_db"] == pytest.approx(np.hypot(6.314, 1.6449 / np.sqrt(2)),
+                                                    abs=2e-3)
+    assert two["uncertainty_db"] == pytest.approx(1 / np.sqrt(2))

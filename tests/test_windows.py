@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 
 from flyover.geometry.windows import overhead_time_s, plan_windows
-from flyover.sim.scenario import straight_track
+from flyover.geometry.track import straight_track
 
 FS = 12800.0
 

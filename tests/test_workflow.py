@@ -144,8 +144,10 @@ def test_revised_track_reruns_that_pass_only(run_copy):
 def test_reference_distance_reruns_levels_not_imaging(finished_run):
     with edited_config(finished_run,
                        lambda d: d["analysis"].update(reference_distance_m=100.0)):
-        assert planned(finished_run) == {("levels", "p1"), ("levels", "p2"),
-                                         ("campaign_summary", ""), ("report", "")}
+        # The reconstructed metrics use the reference flight's default height: they follow.
+        assert planned(finished_run) == {("levels", "p1"), ("levels", "p2"), ("metrics", "p1"),
+                                         ("metrics", "p2"), ("campaign_summary", ""),
+                                         ("report", "")}
 
 
 @pytest.mark.slow
@@ -234,7 +236,12 @@ def test_report_is_self_contained(finished_run):
     assert text.count('class="pass"') == 2
     assert 'data-pass="p1"' in text and 'data-pass="p2"' in text
     assert 'id="campaign-summary"' in text and "<table>" in text
-    assert "certification standards" in text and "aviation rules" in text
+    assert "certification standards" in text and text.count("aviation rules") == 1
+    # The summary's numbers per pass and label, and file paths relative to the campaign file.
+    for fragment in ("LASmax measured", "reference LASmax / LAE", "overall A at 90 deg",
+                     "Recorders and clocks", "Reconstructed per component"):
+        assert fragment in text, fragment
+    assert str(finished_run) not in text
 
 
 @pytest.mark.slow

@@ -32,8 +32,9 @@ TIME_CONSTANT_S = {"F": 0.125, "S": 1.0}   # IEC 61672-1 time weightings
 TEN_DB_DOWN = 10.0
 
 
-def a_weighted(pressure_pa, sample_rate_hz: float) -> np.ndarray:
-    """A-weighted pressure (Pa), shape (n,): the IEC 61672-1 response applied to the spectrum.
+def a_weighted(pressure_pa, sample_rate_hz: float, band_hz=None) -> np.ndarray:
+    """A-weighted pressure (Pa), shape (n,): the IEC 61672-1 response applied to the spectrum,
+    optionally only between ``band_hz = (low, high)`` (an analysis's band range).
 
     The signal is padded to twice its length so that the weighting's memory does not wrap
     around its ends.
@@ -44,6 +45,8 @@ def a_weighted(pressure_pa, sample_rate_hz: float) -> np.ndarray:
     f = np.fft.rfftfreq(m, 1.0 / sample_rate_hz)
     gain = np.zeros_like(f)
     gain[1:] = 10.0 ** (a_weighting_db(f[1:]) / 20.0)
+    if band_hz is not None:
+        gain[(f < band_hz[0]) | (f >= band_hz[1])] = 0.0
     return np.fft.irfft(np.fft.rfft(x, m) * gain, m)[:n]
 
 
@@ -95,7 +98,7 @@ class EventMetrics:
         return self.ten_db_down_s[1] - self.ten_db_down_s[0]
 
 
-def event_metrics(pressure_pa, sample_rate_hz: float) -> tuple[EventMetrics, dict]:
+def event_metrics(pressure_pa, sample_rate_hz: float, band_hz=None) -> tuple[EventMetrics, dict]:
     """The single-event metrics of a received pressure signal (see the module notes).
 
     Parameters
@@ -103,6 +106,8 @@ def event_metrics(pressure_pa, sample_rate_hz: float) -> tuple[EventMetrics, dic
     pressure_pa : ndarray, shape (n,)
         Pressure at the microphone (Pa), free of the ground-plate doubling or not: as measured.
     sample_rate_hz : float
+    band_hz : (float, float), optional
+        Keep only the frequencies of this range (to compare with levels of the analysed bands).
 
     Returns
     -------
@@ -110,8 +115,16 @@ def event_metrics(pressure_pa, sample_rate_hz: float) -> tuple[EventMetrics, dic
     history : dict of str -> ndarray (n,)
         ``"LAF"`` and ``"LAS"``: the time-weighted levels (dB), sample by sample.
     """
+    return metrics_of_mean_square(a_weighted(pressure_pa, sample_rate_hz, band_hz) ** 2,
+                                  sample_rate_hz)
+
+
+def metrics_of_mean_square(p2, sample_rate_hz: float) -> tuple[EventMetrics, dict]:
+    """:func:`event_metrics` from the squared A-weighted pressure (Pa^2) or from an A-weighted
+    mean-square envelope sampled at ``sample_rate_hz`` (a reconstructed level history): the time
+    weightings and integrals act on the squared signal alone."""
     fs = float(sample_rate_hz)
-    p2 = a_weighted(pressure_pa, fs) ** 2
+    p2 = np.asarray(p2, dtype=float)
     laf = level_db(time_weighted_mean_square(p2, fs, TIME_CONSTANT_S["F"]))
     las = level_db(time_weighted_mean_square(p2, fs, TIME_CONSTANT_S["S"]))
     kf, ks = int(np.argmax(laf)), int(np.argmax(las))

@@ -20,20 +20,33 @@ def polar_bin_deg(polar_angle_deg, width_deg: float = 10.0):
     return np.round(np.asarray(polar_angle_deg, float) / width_deg) * width_deg
 
 
-def mean_and_interval(values_db, confidence: float = 0.90) -> dict:
-    """Mean, standard deviation and two-sided Student-t interval of the mean.
+def mean_and_interval(values_db, confidence: float = 0.90, uncertainty_db=None) -> dict:
+    """Mean, standard deviation and two-sided interval of the mean.
+
+    Without ``uncertainty_db`` the interval is Student t's from the pass-to-pass scatter alone.
+    With each value's own standard uncertainty it combines both in quadrature: the scatter's
+    t-interval and the normal interval of the values' rms uncertainty over sqrt(n) (which also
+    covers what all passes share and the scatter cannot show; for one pass it is the interval).
 
     Returns a dict with ``mean_db``, ``std_db`` (n - 1 in the denominator), ``n``,
-    ``ci_half_width_db`` (NaN for fewer than two values), ``ci_low_db``, ``ci_high_db``.
+    ``ci_half_width_db`` (NaN for fewer than two values and no uncertainties), ``ci_low_db``,
+    ``ci_high_db``, and ``uncertainty_db`` (the values' rms uncertainty over sqrt(n), NaN
+    without them).
     """
     x = np.asarray(values_db, float)
-    x = x[np.isfinite(x)]
+    keep = np.isfinite(x)
+    x = x[keep]
+    u = (np.asarray(uncertainty_db, float)[keep] if uncertainty_db is not None
+         else np.full(x.size, np.nan))
     n = int(x.size)
     if n == 0:
         return {"mean_db": np.nan, "std_db": np.nan, "n": 0, "ci_half_width_db": np.nan,
-                "ci_low_db": np.nan, "ci_high_db": np.nan}
+                "ci_low_db": np.nan, "ci_high_db": np.nan, "uncertainty_db": np.nan}
     mean = float(np.mean(x))
     std = float(np.std(x, ddof=1)) if n > 1 else np.nan
     half = float(stats.t.ppf(0.5 + confidence / 2, n - 1) * std / np.sqrt(n)) if n > 1 else np.nan
+    own = float(np.sqrt(np.mean(u ** 2)) / np.sqrt(n)) if np.all(np.isfinite(u)) else np.nan
+    if np.isfinite(own):
+        half = float(np.hypot(np.nan_to_num(half), stats.norm.ppf(0.5 + confidence / 2) * own))
     return {"mean_db": mean, "std_db": std, "n": n, "ci_half_width_db": half,
-            "ci_low_db": mean - half, "ci_high_db": mean + half}
+            "ci_low_db": mean - half, "ci_high_db": mean + half, "uncertainty_db": own}

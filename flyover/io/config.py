@@ -15,10 +15,11 @@ from jsonschema import Draft202012Validator
 from flyover.acoustics.atmosphere import Atmosphere
 from flyover.acoustics.bands import third_octave_bands
 from flyover.geometry.frames import SiteFrame
+from flyover.acoustics.uncertainty import InputUncertainty
 from flyover.imaging.methods import DEFAULT_METHOD, methods
 from flyover.io.timestamps import parse_utc_ns
 from flyover.model.campaign import (AnalysisSettings, ArraySpec, Campaign, PassSpec,
-                                    RecorderSpec, Region, VehicleGrid)
+                                    RecorderSpec, ReferenceFlight, Region, VehicleGrid)
 from flyover.model.errors import FlyoverInputError, suggest
 
 
@@ -419,6 +420,8 @@ def campaign_from_mapping(data: dict, path: Path) -> Campaign:
         spectra_polar_deg=tuple(float(v) for v in an.get("spectra_polar_deg",
                                                           (60.0, 75.0, 90.0, 105.0, 120.0))),
         metrics_channel=an.get("metrics_channel"),
+        reference_flight=ReferenceFlight(**an.get("reference_flight", {})),
+        uncertainty=InputUncertainty(**an.get("uncertainty", {})),
         overall_band_range_hz=(_range(an["overall_band_range_hz"])
                                if "overall_band_range_hz" in an else None),
     )

@@ -13,6 +13,7 @@ from pathlib import Path
 import numpy as np
 
 from flyover.acoustics.atmosphere import Atmosphere
+from flyover.acoustics.uncertainty import InputUncertainty
 from flyover.geometry.frames import SiteFrame
 from flyover.model.errors import require
 
@@ -76,6 +77,18 @@ class VehicleGrid:
 
 
 @dataclass(frozen=True)
+class ReferenceFlight:
+    """The flight the single-event metrics are reconstructed for: straight and level at
+    ``height_m`` (default: the reference distance) and ``speed_m_s`` (default: the pass's own)
+    over an observer on a ground plate or 1.2 m above hard ground (``raised``), in the
+    reference atmosphere."""
+
+    height_m: float | None = None
+    speed_m_s: float | None = None
+    observer: str = "ground-plate"
+
+
+@dataclass(frozen=True)
 class AnalysisSettings:
     """How windows, bands and levels are formed.
 
@@ -101,6 +114,9 @@ class AnalysisSettings:
     overall_band_range_hz : (float, float) or None
         Bands summed into every overall level (None: per label, the bands with a level in every
         analysed window of every pass of the label).
+    reference_flight : ReferenceFlight
+    uncertainty : InputUncertainty
+        Standard uncertainties of the inputs behind every level's uncertainty.
     metrics_channel : int or None
         Layout channel of the microphone the single-event metrics are measured at (None: the
         used microphone nearest the array centre).
@@ -119,6 +135,8 @@ class AnalysisSettings:
     map_dynamic_range_db: float = 15.0
     spectra_polar_deg: tuple[float, ...] = (60.0, 75.0, 90.0, 105.0, 120.0)
     metrics_channel: int | None = None
+    reference_flight: ReferenceFlight = ReferenceFlight()
+    uncertainty: InputUncertainty = InputUncertainty()
     overall_band_range_hz: tuple[float, float] | None = None
 
     def __post_init__(self):

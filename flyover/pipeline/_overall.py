@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from flyover.acoustics.bands import third_octave_bands
+from flyover.acoustics.bands import a_weighting_db, third_octave_bands
 from flyover.acoustics.reference import overall_db
 from flyover.io.results.levels import LEVELS
 from flyover.io.results.levels_overall import LEVELS_OVERALL
@@ -37,7 +37,7 @@ def overall_table(levels: pd.DataFrame, band_range: dict) -> pd.DataFrame:
     range gets no overall (with a note), never a sum over fewer bands."""
     rows = []
     for (window, region), g in levels.groupby(["window", "region"], sort=False):
-        overall = a_weighted = np.nan
+        overall = a_weighted = u_overall = np.nan
         limits = band_range.get(region)
         note, summed, text = "no band range with a level in every window of the label", 0, ""
         if limits is not None:
@@ -52,8 +52,16 @@ def overall_table(levels: pd.DataFrame, band_range: dict) -> pd.DataFrame:
             else:
                 overall, a_weighted = overall_db(by_band.to_numpy(), bands)
                 note, summed = "", len(bands)
+                if "uncertainty_db" in g:
+                    u = (g.set_index("band_hz")["uncertainty_db"].astype(float)
+                         .reindex(bands.nominal_hz).to_numpy())
+                    # Each band's share of the A-weighted sum carries its uncertainty
+                    # (independent bands, first order).
+                    share = 10 ** ((by_band.to_numpy() + a_weighting_db(bands.center_hz)) / 10)
+                    u_overall = float(np.sqrt(np.sum((share / share.sum() * u) ** 2)))
         rows.append({"window": window, "time_utc": g["time_utc"].iloc[0],
                      "polar_angle_deg": g["polar_angle_deg"].iloc[0], "region": region,
                      "overall_db": overall, "a_weighted_db": a_weighted,
-                     "bands_summed": summed, "band_range_hz": text, "note": note})
+                     "bands_summed": summed, "band_range_hz": text, "note": note,
+                     "uncertainty_db": u_overall})
     return pd.DataFrame(rows, columns=LEVELS_OVERALL.column_names)

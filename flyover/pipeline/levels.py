@@ -9,9 +9,11 @@ import pandas as pd
 
 from flyover.acoustics.bands import third_octave_bands
 from flyover.acoustics.reference import level_1m_db, reference_level_db
+from flyover.acoustics.uncertainty import Z90, InputUncertainty, band_level_uncertainty_db
 from flyover.imaging.window import TOTAL
 from flyover.io.figures import directivity_figure, save_figure, spectra_figure
 from flyover.io.results.directivity import DIRECTIVITY
+from flyover.io.results.alignment import read_alignment
 from flyover.io.results.levels import LEVELS
 from flyover.io.results.region_power import REGION_POWER
 from flyover.io.results.spectra import SPECTRA
@@ -24,7 +26,7 @@ UNRESOLVED = "not separable: region centres closer than one main-lobe width"
 
 # What this stage reads of the campaign (flyover.model.reads): its re-run fingerprint too.
 READS = ("regions", "analysis.reference_distance_m", "analysis.reference_atmosphere",
-         "analysis.spectra_polar_deg")
+         "analysis.spectra_polar_deg", "analysis.uncertainty", "passes.{pass}.atmosphere")
 
 
 
@@ -36,6 +38,7 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> None:
     windows = read_analysed(out_dir).set_index("window")
     powers = REGION_POWER.read(out_dir)
     levels = level_table(powers, windows, campaign)
+    levels = with_uncertainty(levels, read_alignment(out_dir), campaign, pass_name)
     LEVELS.write(out_dir, levels)
     spectra = spectra_table(levels, campaign.analysis.spectra_polar_deg)
     SPECTRA.write(out_dir, spectra)
@@ -79,7 +82,61 @@ def level_table(powers: pd.DataFrame, windows: pd.DataFrame, campaign: Campaign)
         p[c] = w[c].to_numpy()
     order = {name: i for i, name in enumerate(list(campaign.regions) + [TOTAL])}
     p = p.assign(_o=p["region"].map(order)).sort_values(["window", "_o", "band_hz"])
+    p["uncertainty_db"] = p["ci90_low_db"] = p["ci90_high_db"] = np.nan
     return p[cols].reset_index(drop=True)
+
+
+def window_scatter_db(levels: pd.DataFrame) -> pd.Series:
+    """Per region and band, the rms difference of consecutive windows' levels over sqrt(2):
+    one window's scatter about the pass's smooth trend (NaN without two consecutive levels)."""
+    def scatter(v):
+        d = np.diff(v.to_numpy(float))
+        d = d[np.isfinite(d)]
+        return float(np.sqrt(np.mean(d ** 2) / 2.0)) if len(d) else np.nan
+    ordered = levels.sort_values("window")
+    return ordered.groupby(["region", "band_hz"])["level_1m_db"].apply(scatter)
+
+
+def clock_uncertainty_s(alignment: dict, inputs: InputUncertainty) -> float:
+    """The clock offset's standard uncertainty: the acoustic estimate's, the timing channels'
+    (the largest of the recorders'), or the stated default for a clock given by hand."""
+    if "clock_offset_uncertainty_s" in alignment:
+        return float(alignment["clock_offset_uncertainty_s"])
+    timed = [r["offset_uncertainty_s"] for r in alignment.get("recorders", [])
+             if r.get("clock_method") == "timing channel"]
+    if timed and len(timed) == len(alignment["recorders"]):
+        return float(max(timed))
+    return inputs.clock_s
+
+
+def with_uncertainty(levels: pd.DataFrame, alignment: dict, campaign: Campaign,
+                     pass_name: str) -> pd.DataFrame:
+    """Add each level's standard uncertainty and 90 % interval
+    (:func:`flyover.acoustics.uncertainty.band_level_uncertainty_db`)."""
+    out = levels.copy()
+    if len(out) == 0:
+        return out
+    inputs = campaign.analysis.uncertainty
+    scatter = window_scatter_db(out)
+    key = pd.MultiIndex.from_arrays([out["region"], out["band_hz"].astype(float)])
+    band_scatter = scatter.reindex(key).to_numpy()
+    bands = third_octave_bands(out["band_hz"].min(), out["band_hz"].max())
+    centre = dict(zip(bands.nominal_hz, bands.center_hz))
+    u = band_level_uncertainty_db(
+        out["band_hz"].map(centre).to_numpy(float), distance_m=out["distance_m"].to_numpy(float),
+        polar_deg=out["polar_angle_deg"].to_numpy(float), n_mics=int(alignment["channels_used"]),
+        aperture_m=float(alignment["array_aperture_m"]),
+        c_m_s=float(alignment["speed_of_sound_m_s"]),
+        temperature_c=campaign.passes[pass_name].atmosphere.temperature_c,
+        speed_m_s=float(alignment["speed_m_s"]),
+        track_m=float(alignment["track_noise_estimate_m"]),
+        clock_s=clock_uncertainty_s(alignment, inputs), inputs=inputs,
+        scatter_db=np.nan_to_num(band_scatter, nan=0.0))
+    has = np.isfinite(out["level_db"].to_numpy(float))
+    out["uncertainty_db"] = np.where(has, u, np.nan)
+    out["ci90_low_db"] = out["level_db"] - Z90 * out["uncertainty_db"]
+    out["ci90_high_db"] = out["level_db"] + Z90 * out["uncertainty_db"]
+    return out[LEVELS.column_names]
 
 
 def spectra_table(levels: pd.DataFrame, polar_deg,

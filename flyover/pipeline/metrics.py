@@ -9,9 +9,15 @@ import numpy as np
 import pandas as pd
 
 from flyover.acoustics.bands import third_octave_bands
-from flyover.acoustics.metrics import band_level_history, event_metrics
+from flyover.acoustics.metrics import (EventMetrics, band_level_history, event_metrics,
+                                      metrics_of_mean_square)
+from flyover.acoustics.reconstruct import (RAISED_MICROPHONE_M, Directivity, received_history,
+                                          reference_flight)
+from flyover.imaging.window import TOTAL
 from flyover.io.figures import level_history_figure, save_figure
-from flyover.io.results.event_metrics import BAND_HISTORY, EVENT_METRICS, LEVEL_HISTORY
+from flyover.io.results.event_metrics import (BAND_HISTORY, EVENT_METRICS, LEVEL_HISTORY,
+                                             RECONSTRUCTED)
+from flyover.io.results.levels import LEVELS
 from flyover.model.campaign import PASS_INPUTS, Campaign
 from flyover.model.errors import FlyoverInputError
 from flyover.model.reads import guarded
@@ -19,7 +25,16 @@ from flyover.pipeline.context import PassInputs, load_aligned_pass, pass_summary
 from flyover.sync.timebase import iso_utc
 
 # What this stage reads of the campaign (flyover.model.reads): its re-run fingerprint too.
-READS = PASS_INPUTS + ("analysis.metrics_channel",)
+READS = PASS_INPUTS + ("analysis.metrics_channel", "analysis.reference_flight",
+                       "analysis.reference_distance_m", "analysis.reference_atmosphere",
+                       "analysis.band_min_hz", "analysis.band_max_hz", "regions")
+ENVELOPE_RATE_HZ = 100.0    # reconstructed mean-square histories, sampled every 10 ms
+# Certification-style adjustments of a measured level to another height and speed (stated in
+# the reference notes from the text of 14 CFR 36): LASmax + 22 lg(H_T / H_R) (App. G, G36.201,
+# inside its temperature and humidity window; 20 lg outside it) and LAE + 12.5 lg(H_T / H_R)
+# + 10 lg(V_T / V_R) (App. J, J36.205, for helicopters' SEL).
+LASMAX_HEIGHT_SLOPE_DB = 22.0
+LAE_HEIGHT_SLOPE_DB = 12.5
 
 HISTORY_STEP_S = 0.01
 BAND_BLOCK_S = 0.5
@@ -85,3 +100,100 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> None:
                       ten_db_down_end_s=t0 + metrics.ten_db_down_s[1])
     save_figure(level_history_figure(level_history, band_history, figure_row, pass_name),
                 out_dir / "level_history.png")
+    RECONSTRUCTED.write(out_dir, reconstruction_table(
+        campaign, inputs, LEVELS.read(out_dir), pressure, fs, mic, (t0, t0 + n / fs)))
+
+
+def directivities(levels: pd.DataFrame) -> dict[str, Directivity]:
+    """Each component's band levels at 1 m against polar angle from a pass's levels table."""
+    out = {}
+    if len(levels) == 0:
+        return out
+    bands = third_octave_bands(levels["band_hz"].min(), levels["band_hz"].max())
+    for region, g in levels.groupby("region", sort=False):
+        wide = g.pivot_table(index="polar_angle_deg", columns="band_hz", values="level_1m_db",
+                             aggfunc="first", dropna=False).reindex(columns=bands.nominal_hz)
+        wide = wide.sort_index()
+        out[region] = Directivity(wide.index.to_numpy(float), bands.center_hz,
+                                  wide.to_numpy(float))
+    return out
+
+
+def _covered_metrics(env) -> EventMetrics | None:
+    """Metrics of a reconstructed mean-square history over its longest stretch that the
+    directivity covers (None where it covers none)."""
+    ok = np.isfinite(env)
+    if not ok.any():
+        return None
+    edges = np.flatnonzero(np.diff(np.r_[0, ok.astype(int), 0]))
+    starts, stops = edges[::2], edges[1::2]
+    k = int(np.argmax(stops - starts))
+    return metrics_of_mean_square(env[starts[k]:stops[k]], ENVELOPE_RATE_HZ)[0]
+
+
+def reconstruction_table(campaign: Campaign, inputs: PassInputs, levels: pd.DataFrame,
+                         pressure, fs: float, mic: int, span_s) -> pd.DataFrame:
+    """LASmax and LAE per component: rebuilt on the measured path at the measured microphone
+    (against the measurement in the analysed bands: the check of the reconstruction), for the
+    reference flight, and the measured levels with certification-style adjustments."""
+    an = campaign.analysis
+    ref = an.reference_flight
+    summary = pass_summary(inputs)
+    height_t, speed_t = summary["height_above_array_m"], summary["speed_m_s"]
+    height_r = ref.height_m or an.reference_distance_m
+    speed_r = ref.speed_m_s or speed_t
+    bands = third_octave_bands(an.band_min_hz, an.band_max_hz)
+    measured = event_metrics(pressure, fs, (bands.lower_hz[0], bands.upper_hz[-1]))[0]
+    mounting, gain = campaign.array.mounting, campaign.array.pressure_gain
+    rows = [_row("measured", "total", measured, height_t, speed_t, mounting,
+                 f"channel {inputs.layout.channel[mic]}, {bands.nominal_hz[0]:g}-"
+                 f"{bands.nominal_hz[-1]:g} Hz bands only")]
+    dirs = directivities(levels)
+    centres = {name: r.center_m for name, r in campaign.regions.items()}
+    # Reception times whose emission the track holds.
+    track, obs, c = inputs.track, inputs.layout.enu_m[mic], inputs.spec.atmosphere.c_m_s
+    first = track.start_s + np.linalg.norm(track.position(track.start_s) - obs) / c + 0.1
+    measured_path = dict(track=track, observer_enu_m=obs,
+                         reception_s=np.arange(max(span_s[0], first), min(span_s[1], track.end_s),
+                                               1 / ENVELOPE_RATE_HZ),
+                         atmosphere=inputs.spec.atmosphere, pressure_gain=gain)
+    duration = 2 * height_r * np.tan(np.deg2rad(85.0)) / speed_r    # 85 deg either side
+    reach_s = np.hypot(height_r, speed_r * duration / 2) / an.reference_atmosphere.c_m_s
+    raised = ref.observer == "raised"
+    reference = dict(track=reference_flight(height_r, speed_r,
+                                            duration_s=duration + 2 * reach_s + 2.0),
+                     observer_enu_m=[0.0, 0.0, RAISED_MICROPHONE_M if raised else 0.0],
+                     reception_s=np.arange(-duration / 2, duration / 2, 1 / ENVELOPE_RATE_HZ),
+                     atmosphere=an.reference_atmosphere, pressure_gain=1.0 if raised else 2.0,
+                     ground_image=raised)
+    for route, kw, h, v, obs in (("rebuilt on the measured path", measured_path, height_t,
+                                  speed_t, mounting),
+                                 ("reference flight", reference, height_r, speed_r,
+                                  ref.observer)):
+        envs = {name: received_history(d, body_m=centres.get(name, np.zeros(3)), **kw)
+                .a_weighted_mean_square() for name, d in dirs.items()}
+        parts = [e for name, e in envs.items() if name != TOTAL]
+        if parts:   # empty where a component is uncovered
+            envs["components"] = np.sum(parts, axis=0)
+        for name, env in envs.items():
+            m = _covered_metrics(env)
+            if m is not None:
+                rows.append(_row(route, name, m, h, v, obs, "from the measured directivity"))
+    full = event_metrics(pressure, fs)[0]
+    adjusted = EventMetrics(
+        full.lafmax_db, full.lafmax_s,
+        full.lasmax_db + LASMAX_HEIGHT_SLOPE_DB * np.log10(height_t / height_r), full.lasmax_s,
+        full.lae_db + LAE_HEIGHT_SLOPE_DB * np.log10(height_t / height_r)
+        + 10 * np.log10(speed_t / speed_r), full.ten_db_down_s, full.laeq_db,
+        full.laeq_duration_s, full.ten_db_down_complete)
+    rows.append(_row("adjusted measurement", "total", adjusted, height_r, speed_r, mounting,
+                     "all frequencies; LASmax + 22 lg(H_T/H_R) (14 CFR 36 App. G), LAE + 12.5 "
+                     "lg(H_T/H_R) + 10 lg(V_T/V_R) (App. J)"))
+    return pd.DataFrame(rows, columns=RECONSTRUCTED.column_names)
+
+
+def _row(route, component, m: EventMetrics, height, speed, observer, note) -> dict:
+    return {"route": route, "component": component, "lasmax_db": m.lasmax_db,
+            "lae_db": m.lae_db, "ten_db_down_s": m.ten_db_down_duration_s,
+            "complete": m.ten_db_down_complete, "height_m": height, "speed_m_s": speed,
+            "observer": observer, "note": note}

@@ -5,6 +5,7 @@ from __future__ import annotations
 import base64
 import hashlib
 import html
+import os
 import platform
 from datetime import datetime, timezone
 from importlib import metadata
@@ -17,7 +18,9 @@ from flyover import __version__
 from flyover.io.atomic import write_text
 from flyover.io.results.alignment import read_alignment
 from flyover.io.results.campaign_tables import CAMPAIGN_LEVELS, CAMPAIGN_OVERALL
-from flyover.io.results.event_metrics import EVENT_METRICS
+from flyover.acoustics.uncertainty import Z90
+from flyover.io.results.event_metrics import EVENT_METRICS, RECONSTRUCTED
+from flyover.io.results.levels_overall import LEVELS_OVERALL
 from flyover.io.results.windows import WINDOWS
 from flyover.model.campaign import Campaign
 from flyover.model.reads import guarded
@@ -175,6 +178,11 @@ def _pass_section(campaign: Campaign, name: str, out: Path) -> str:
 <h3>Conditions and alignment</h3>{_table(conditions)}
 <h3>Recorders and clocks</h3>{_table(_recorder_table(al))}
 <h3>Single-event metrics (as received)</h3>{_table(_metrics_table(d))}
+<h4>Reconstructed per component</h4><p class="muted">From the measured directivity at 1 m:
+rebuilt on the measured path (the check against the measurement in the analysed bands), and for
+the reference flight; beside them, the measured levels with the certification-style height and
+speed adjustments. Incomplete means the 10 dB-down interval runs past the angles or the recording
+available.</p>{_table(_reconstruction_table(d))}
 {_img(d / "level_history.png", "A-weighted level and band levels against time")}
 <h3>Data quality</h3>{warn_html}
 <h3>Track</h3>{_img(d / "qc_track.png", "track over the array")}
@@ -198,6 +206,20 @@ def _metrics_table(d: Path) -> pd.DataFrame:
                                         f"{m['ten_db_down_start_utc']}"),
             ("LAeq (dB)", f"{m['laeq_db']:.1f} over {m['laeq_duration_s']:.2f} s")]
     return pd.DataFrame(rows, columns=["quantity", "value"])
+
+
+def _reconstruction_table(d: Path) -> pd.DataFrame:
+    """The reconstructed metrics, rounded (0.1 dB, 0.01 s)."""
+    t = RECONSTRUCTED.read(d)
+    return pd.DataFrame({
+        "route": t["route"], "component": t["component"],
+        "LASmax (dB)": t["lasmax_db"].map(lambda v: f"{v:.1f}"),
+        "LAE (dB)": t["lae_db"].map(lambda v: f"{v:.1f}"),
+        "10 dB down (s)": t["ten_db_down_s"].map(lambda v: f"{v:.2f}"),
+        "complete": t["complete"].map(lambda v: "yes" if str(v).lower() == "true" else "no"),
+        "flight": [f"{h:.1f} m, {v:.1f} m/s, {o}" for h, v, o in
+                   zip(t["height_m"], t["speed_m_s"], t["observer"])],
+        "how": t["note"]})
 
 
 def _recorder_table(al: dict) -> pd.DataFrame:
@@ -226,6 +248,58 @@ def _recorder_table(al: dict) -> pd.DataFrame:
     return pd.DataFrame(rows)
 
 
+def _numbers_per_pass(campaign: Campaign, out: Path) -> pd.DataFrame:
+    """Per pass: height, speed, LASmax and LAE measured, the reference flight's per component,
+    and each component's overall A level nearest overhead with its band range and interval."""
+    rows = []
+    for name, spec in campaign.passes.items():
+        d = out / name
+        al = read_alignment(d)
+        m = EVENT_METRICS.read(d).iloc[0]
+        row = {"pass": name, "label": spec.label, "height (m)": f"{al['height_above_array_m']:.1f}",
+               "speed (m/s)": f"{al['speed_m_s']:.1f}",
+               "LASmax measured (dB)": f"{m['lasmax_db']:.1f}",
+               "LAE measured (dB)": f"{m['lae_db']:.1f}",
+               "10 dB down (s)": f"{m['ten_db_down_s']:.2f}"}
+        rec = RECONSTRUCTED.read(d)
+        for _, r in rec[rec["route"] == "reference flight"].iterrows():
+            mark = "" if str(r["complete"]).lower() == "true" else " (incomplete)"
+            row[f"{r['component']}: reference LASmax / LAE (dB)"] = (
+                f"{r['lasmax_db']:.1f} / {r['lae_db']:.1f}{mark}")
+        overall = LEVELS_OVERALL.read(d)
+        if len(overall):
+            near = overall.loc[(overall["polar_angle_deg"] - 90).abs()
+                               == (overall["polar_angle_deg"] - 90).abs().min()]
+            for _, r in near.iterrows():
+                value = (f"{r['a_weighted_db']:.1f} +- {Z90 * r['uncertainty_db']:.1f}"
+                         if np.isfinite(r["a_weighted_db"]) else "none")
+                row[f"{r['region']}: overall A at {r['polar_angle_deg']:.0f} deg, "
+                    f"{r['band_range_hz']} Hz (dB)"] = value
+        rows.append(row)
+    return pd.DataFrame(rows).T.reset_index().rename(columns={"index": "quantity"})
+
+
+def _numbers_per_label(campaign: Campaign, out: Path, overall: pd.DataFrame) -> pd.DataFrame:
+    """Per label: the passes' mean measured LASmax and LAE, and the campaign's overall A level
+    per component in the 90 deg bin with its 90 % interval and band range."""
+    rows = []
+    labels = dict.fromkeys(p.label for p in campaign.passes.values())
+    for label in labels:
+        names = [n for n, p in campaign.passes.items() if p.label == label]
+        m = pd.concat([EVENT_METRICS.read(out / n) for n in names])
+        row = {"label": label or "unlabelled", "passes": len(names),
+               "LASmax measured, mean (dB)": f"{m['lasmax_db'].mean():.1f}",
+               "LAE measured, mean (dB)": f"{m['lae_db'].mean():.1f}"}
+        sel = overall[(overall["label"] == (label or "unlabelled"))
+                      & (overall["quantity"] == "A-weighted")
+                      & (overall["polar_bin_deg"] == 90.0)] if len(overall) else overall
+        for _, r in sel.iterrows():
+            row[f"{r['region']}: overall A at 90 deg, {r['band_range_hz']} Hz (dB)"] = (
+                f"{r['mean_db']:.1f} +- {r['ci_half_width_db']:.1f}")
+        rows.append(row)
+    return pd.DataFrame(rows).T.reset_index().rename(columns={"index": "quantity"})
+
+
 def _processing_time_s(out: Path) -> float:
     """Sum of the wall times in the workflow's benchmark files (0 when there are none)."""
     total = 0.0
@@ -252,7 +326,8 @@ def run(campaign: Campaign, out_dir: Path) -> None:
     shown = camp[np.isfinite(camp["mean_db"])] if len(camp) else camp
     n_flags = int(shown["wide_interval"].sum()) if len(shown) else 0
     an = campaign.analysis
-    digests = pd.DataFrame([{"file": str(f), "sha256": file_digest(f)}
+    base = campaign.config_path.parent
+    digests = pd.DataFrame([{"file": os.path.relpath(f, base), "sha256": file_digest(f)}
                             for f in campaign.input_files()])
     versions = pd.DataFrame([{"software": "flyover", "version": __version__},
                              {"software": "python", "version": platform.python_version()}]
@@ -266,12 +341,20 @@ def run(campaign: Campaign, out_dir: Path) -> None:
 <title>flyover report: {html.escape(campaign.config_path.stem)}</title>
 <style>{_STYLE}</style></head><body>
 <h1>Flyover campaign report</h1>
-<p class="muted">{html.escape(str(campaign.config_path))} &middot; generated {now}</p>
+<p class="muted">{html.escape(campaign.config_path.name)} &middot; generated {now}; file paths
+are relative to the campaign file's folder</p>
 <p class="caution"><strong>Caution.</strong> {html.escape(CAUTION)}</p>
 <nav><a href="#summary">summary</a>{nav}<a href="#provenance">provenance</a></nav>
 <h2 id="summary">Campaign summary</h2>
 <section id="campaign-summary">
 {_table(passes)}
+<h3>The numbers per pass and per label</h3>
+<p class="muted">Measured at each pass's metrics microphone (as it measured them); reconstructed
+per component for the reference flight from the measured directivity; overall A-weighted
+levels of the window nearest overhead over the label's band range, with their 90&nbsp;%
+intervals. Rounded to 0.1 dB, 0.01 s and 0.1 m.</p>
+{_table(_numbers_per_pass(campaign, out))}
+{_table(_numbers_per_label(campaign, out, overall))}
 <p>Levels at {an.reference_distance_m:g} m in the reference atmosphere
 ({an.reference_atmosphere.temperature_c:g} &deg;C, {an.reference_atmosphere.relative_humidity_pct:g} %
 RH), free field, convective amplification removed. Per configuration label, region,
@@ -299,7 +382,6 @@ with standard deviations and intervals, are in campaign_levels.csv.</p>
 {_table(versions)}
 <h3>Input files</h3>{_table(digests)}
 </section>
-<p class="caution">{html.escape(CAUTION)}</p>
 </body></html>
 """
     write_text(out / "report.html", body)

@@ -26,12 +26,17 @@ READS = ("passes", "analysis.overall_band_range_hz")
 
 
 def pass_bins(levels: pd.DataFrame, value: str, keys: list[str]) -> pd.DataFrame:
-    """Energetic mean of a pass's windows within each polar bin."""
+    """Energetic mean of a pass's windows within each polar bin, and the rms of their stated
+    uncertainties where the table has them (``uncertainty_db``, else NaN)."""
     if len(levels) == 0:
-        return pd.DataFrame(columns=keys + ["polar_bin_deg", value])
+        return pd.DataFrame(columns=keys + ["polar_bin_deg", value, "uncertainty_db"])
     d = levels.assign(polar_bin_deg=polar_bin_deg(levels["polar_angle_deg"], POLAR_BIN_DEG))
-    return (d.groupby(keys + ["polar_bin_deg"])[value].apply(energetic_mean_db)
-            .reset_index())
+    if "uncertainty_db" not in d:
+        d["uncertainty_db"] = np.nan
+    g = d.groupby(keys + ["polar_bin_deg"])
+    return pd.concat([g[value].apply(energetic_mean_db),
+                      g["uncertainty_db"].apply(lambda u: float(np.sqrt(np.mean(u ** 2))))],
+                     axis=1).reset_index()
 
 
 def summarise(per_pass: dict[str, pd.DataFrame], labels: dict[str, str], value: str,
@@ -48,7 +53,7 @@ def summarise(per_pass: dict[str, pd.DataFrame], labels: dict[str, str], value: 
         return pd.DataFrame()
     allb = pd.concat(frames, ignore_index=True)
     for key, g in allb.groupby(["label"] + keys + ["polar_bin_deg"], sort=True):
-        s = mean_and_interval(g[value])
+        s = mean_and_interval(g[value], uncertainty_db=g["uncertainty_db"])
         row = dict(zip(["label"] + keys + ["polar_bin_deg"], key))
         row.update(s)
         row["passes"] = " ".join(sorted(g.loc[np.isfinite(g[value]), "pass"]))

@@ -12,33 +12,8 @@ import numpy as np
 from flyover.acoustics.atmosphere import Atmosphere
 from flyover.forward.moving_source import (PointSource, Propagator, SourceSignal,
                                            received_pressure_pa)
-from flyover.geometry.track import TrackModel, fit_track
+from flyover.geometry.track import TrackModel, straight_track
 from flyover.model.constants import P0_PA
-
-
-def straight_track(speed_m_s: float, height_m: float, heading_deg: float, overhead_s: float,
-                   start_s: float, end_s: float, *, over_enu_m=(0.0, 0.0), climb_m_s: float = 0.0,
-                   pitch_deg: float = 0.0, roll_deg: float = 0.0, rate_hz: float = 50.0):
-    """A true straight, constant-speed path as a :class:`TrackModel`, and its exact samples.
-
-    The vehicle passes over ``over_enu_m`` (east, north) at ``overhead_s`` at ``height_m``.
-
-    Returns
-    -------
-    model : TrackModel
-    time_s : ndarray, shape (n,)
-    enu_m : ndarray, shape (n, 3)
-    attitude_deg : ndarray, shape (n, 3)
-        yaw, pitch, roll.
-    """
-    t = np.arange(start_s, end_s + 1.0 / rate_hz, 1.0 / rate_hz)
-    h = np.deg2rad(heading_deg)
-    d = t - overhead_s
-    enu = np.stack([over_enu_m[0] + speed_m_s * np.sin(h) * d,
-                    over_enu_m[1] + speed_m_s * np.cos(h) * d,
-                    height_m + climb_m_s * d], axis=1)
-    att = np.tile([heading_deg % 360.0, pitch_deg, roll_deg], (len(t), 1))
-    return fit_track(t, enu, 1e-6, attitude_deg=att), t, enu, att
 
 
 def incoherent_noise_pa(n_mics: int, n_samples: int, spl_db: float, seed: int) -> np.ndarray:

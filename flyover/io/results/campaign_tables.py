@@ -7,7 +7,11 @@ _STATISTICS = (
     ("mean_db", "dB, mean over passes of the passes' energetic bin means"),
     ("std_db", "dB, standard deviation over passes"),
     ("n_passes", "passes with a level"),
-    ("ci_half_width_db", "dB, half-width of the 90 % Student-t interval of the mean"),
+    ("ci_half_width_db", "dB, half-width of the 90 % interval of the mean: the Student-t "
+                         "interval of the pass-to-pass scatter and the passes' own stated "
+                         "uncertainties (levels.csv) combined in quadrature"),
+    ("uncertainty_db", "dB, the passes' rms stated uncertainty over sqrt(passes) (empty for "
+                       "overall levels)"),
     ("ci_low_db", "dB"),
     ("ci_high_db", "dB"),
     ("passes", "names of the passes averaged"),

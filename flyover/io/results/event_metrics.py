@@ -36,3 +36,18 @@ BAND_HISTORY = TableFile("band_history.csv", (
     ("band_hz", "nominal one-third-octave midband"),
     ("level_db", "dB re 20 uPa, mean square over the block"),
 ), float_format="%.3f")
+
+RECONSTRUCTED = TableFile("reconstructed_metrics.csv", (
+    ("route", "'measured' (the microphone, in the analysed bands), 'rebuilt on the measured "
+              "path', 'reference flight', or 'adjusted measurement' (certification-style "
+              "height and speed adjustments of the measured levels)"),
+    ("component", "region name, 'components' (their sum), or 'total' (all regions together)"),
+    ("lasmax_db", "dB(A) re 20 uPa"),
+    ("lae_db", "dB(A) re 20 uPa and 1 s, over the 10 dB-down interval"),
+    ("ten_db_down_s", "s"),
+    ("complete", "the 10 dB-down interval lies inside the span reconstructed or measured"),
+    ("height_m", "m, of the flight (above the observer's ground)"),
+    ("speed_m_s", "m/s"),
+    ("observer", "'ground-plate' or 'raised' (1.2 m over hard ground)"),
+    ("note", "how the row was obtained"),
+), float_format="%.3f")

@@ -11,6 +11,9 @@ LEVELS = TableFile("levels.csv", (
     ("level_db", "dB re 20 uPa at the reference distance in the reference atmosphere; empty "
                  "where not separable or not measurable"),
     ("level_1m_db", "dB re 20 uPa, source strength at 1 m; empty where level_db is"),
+    ("uncertainty_db", "dB, standard uncertainty of both levels (inputs and window scatter)"),
+    ("ci90_low_db", "dB, level_db - 1.645 uncertainty_db: the 90 % interval"),
+    ("ci90_high_db", "dB, level_db + 1.645 uncertainty_db"),
     ("resolved", "region centres at least one main-lobe width apart"),
     ("band_valid", "the window can measure the band"),
     ("note", "why a level is empty"),

@@ -14,4 +14,6 @@ LEVELS_OVERALL = TableFile("levels_overall.csv", (
                       "region (analysis.overall_band_range_hz, or the bands with a level in every "
                       "analysed window of every pass of the label)"),
     ("note", "why an overall is empty"),
+    ("uncertainty_db", "dB, standard uncertainty of the A-weighted level from its bands' "
+                       "(independent bands, first order)"),
 ), float_format="%.3f")

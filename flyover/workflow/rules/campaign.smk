@@ -32,7 +32,7 @@ rule report:
         rules.campaign_summary.output,
         PLAN.pass_results(("alignment.json", "windows.csv", "qc_track.png", "qc_spectrogram.png",
                            "spectra.png", "directivity.png", "event_metrics.csv",
-                           "level_history.png")),
+                           "level_history.png", "reconstructed_metrics.csv")),
         PLAN.input_files(),
     output:
         update(f"{OUTP}/report.html"),

@@ -55,6 +55,7 @@ rule image:
 
 rule levels:
     input:
+        alignment=f"{OUTP}/{{pass_name}}/alignment.json",
         windows=f"{OUTP}/{{pass_name}}/windows.csv",
         regions=f"{OUTP}/{{pass_name}}/region_power.csv",
     output:
@@ -84,8 +85,10 @@ rule metrics:
     input:
         unpack(lambda w: PLAN.pass_inputs(w.pass_name)),
         alignment=f"{OUTP}/{{pass_name}}/alignment.json",
+        levels=f"{OUTP}/{{pass_name}}/levels.csv",
     output:
         metrics=update(f"{OUTP}/{{pass_name}}/event_metrics.csv"),
+        rebuilt=update(f"{OUTP}/{{pass_name}}/reconstructed_metrics.csv"),
         history=update(f"{OUTP}/{{pass_name}}/level_history.csv"),
         bands=update(f"{OUTP}/{{pass_name}}/band_history.csv"),
         figure=update(f"{OUTP}/{{pass_name}}/level_history.png"),

@@ -1,0 +1,94 @@
+"""Standard uncertainty of a band level, propagated from the inputs by linearisation.
+
+Each input's standard uncertainty is carried to the level of a region in a band through a
+first-order sensitivity (the terms are independent and added in quadrature, GUM 5.1.2):
+
+- calibration, ``calibration_db`` per microphone, independent: the beam power scales with the
+  square of the mean gain, so the level's uncertainty is ``calibration_db / sqrt(N)``;
+- microphone positions, ``mic_position_m`` per coordinate: phase errors k delta along the
+  propagation direction make the delay-and-sum lose e^(-(k sigma)^2) of its power, which the
+  unit sources (on the nominal positions) do not see: ``10 lg(e) (k sigma)^2`` dB;
+- speed of sound from the temperature, ``temperature_k``: c = 331.3 sqrt(1 + T/273.15) moves by
+  c sigma_T / (2 T); delays across an aperture D change by D / c times that ratio, a position-like
+  error of ``D sigma_c / (c sqrt(12))`` (the rms over the aperture);
+- the track's position, the smoothed track's error ``track_m``, and the clock offset's
+  ``clock_s`` as an along-track error V sigma_t: the level's distance correction 20 lg r moves by
+  ``20 lg(e) sigma_r / r``, with sigma_r the error along the line of sight (the clock's part is
+  V sigma_t cos(theta), theta the polar angle);
+- the window's own scatter: a band power measured over T seconds of a band B Hz wide scatters by
+  about 1/sqrt(B T) (noise) and less for tones; flyover takes it from the data, as the rms
+  difference of consecutive windows' levels over sqrt(2) (``scatter_db``, computed by the
+  levels stage per region and band).
+
+The first four are checked on the simulator by the coverage benchmark
+(``benchmarks/bench_uncertainty_coverage.py``).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+DB_PER_NEPER_POWER = 10.0 / np.log(10.0)     # 10 lg(e) = 4.343 dB
+Z90 = 1.6449                                  # two-sided 90 % of the normal distribution
+
+
+@dataclass(frozen=True)
+class InputUncertainty:
+    """Standard uncertainties of the inputs (defaults stated in the README).
+
+    Attributes
+    ----------
+    calibration_db : float
+        Per microphone, independent (a class 1 calibrator and careful work: 0.2 dB).
+    mic_position_m : float
+        Per coordinate of a surveyed microphone (a total station: 5 mm).
+    temperature_k : float
+        Of the air temperature on the path (0.5 K).
+    clock_s : float
+        Of the clock offset where nothing measured it (given by hand): 1 ms.
+    """
+
+    calibration_db: float = 0.2
+    mic_position_m: float = 0.005
+    temperature_k: float = 0.5
+    clock_s: float = 0.001
+
+
+def band_level_uncertainty_db(band_center_hz, *, distance_m, polar_deg, n_mics: int,
+                              aperture_m: float, c_m_s: float, temperature_c: float,
+                              speed_m_s: float, track_m: float, clock_s: float,
+                              inputs: InputUncertainty, scatter_db=0.0) -> np.ndarray:
+    """Standard uncertainty (dB) of band levels from the inputs and the window scatter.
+
+    Parameters
+    ----------
+    band_center_hz : array
+        Band centres (broadcast with ``distance_m``, ``polar_deg`` and ``scatter_db``).
+    distance_m, polar_deg : array
+        Of the window.
+    n_mics : int
+        Microphones used.
+    aperture_m, c_m_s, temperature_c, speed_m_s : float
+    track_m : float
+        Standard error of the smoothed track's position.
+    clock_s : float
+        Standard uncertainty of the clock offset used.
+    inputs : InputUncertainty
+    scatter_db : array
+        The window scatter of the level.
+    """
+    f = np.asarray(band_center_hz, float)
+    k = 2 * np.pi * f / c_m_s
+    sigma_c = c_m_s * inputs.temperature_k / (2.0 * (temperature_c + 273.15))
+    position_like = np.hypot(inputs.mic_position_m, aperture_m * sigma_c / (c_m_s * np.sqrt(12)))
+    r = np.asarray(distance_m, float)
+    along = speed_m_s * clock_s * np.abs(np.cos(np.deg2rad(np.asarray(polar_deg, float))))
+    terms = [
+        np.full_like(f, inputs.calibration_db / np.sqrt(max(n_mics, 1))),
+        DB_PER_NEPER_POWER * (k * position_like) ** 2,
+        2 * DB_PER_NEPER_POWER * np.hypot(track_m, along) / r,
+        np.asarray(scatter_db, float),
+    ]
+    return np.sqrt(sum(np.broadcast_to(t, np.broadcast(*terms).shape) ** 2 for t in terms))
