@@ -102,6 +102,8 @@ def test_rebuilt_on_the_measured_path_matches_the_measurement(tmp_path):
     rebuilt = table.loc[("rebuilt on the measured path", "total")]
     assert rebuilt["lasmax_db"] == pytest.approx(measured["lasmax_db"], abs=1.0)
     assert rebuilt["lae_db"] == pytest.approx(measured["lae_db"], abs=1.0)
+    same = table.loc[("measured over the rebuilt stretch", "total")]
+    assert rebuilt["lae_db"] == pytest.approx(same["lae_db"], abs=1.0)
     # The reference flight (50 m, the reference distance) is twice as high: quieter.
     assert table.loc[("reference flight", "total"), "lasmax_db"] < measured["lasmax_db"] - 3
     assert {"front", "rear", "components"} <= set(

@@ -296,7 +296,8 @@ def campaign_figure(overall, quantity: str = "A-weighted"):
     axes[0][0].set_ylabel(f"{quantity} level at reference distance (dB)")
     if not labels:
         axes[0][0].text(0.5, 0.5, "no levels", ha="center", transform=axes[0][0].transAxes)
-    fig.suptitle("Campaign: mean over passes with its 90 % interval (Student t)", fontsize=11)
+    fig.suptitle("Campaign: mean over passes with its 90 % interval (pass-to-pass scatter and "
+                 "stated uncertainties)", fontsize=11)
     fig.text(0.5, -0.02, "Each region sums one band range per label (in brackets): a window "
              "missing a band of it has no overall.", ha="center", fontsize=8, color="#6b7380")
     fig.tight_layout()

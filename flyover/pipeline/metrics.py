@@ -9,8 +9,8 @@ import numpy as np
 import pandas as pd
 
 from flyover.acoustics.bands import third_octave_bands
-from flyover.acoustics.metrics import (EventMetrics, band_level_history, event_metrics,
-                                      metrics_of_mean_square)
+from flyover.acoustics.metrics import (EventMetrics, a_weighted, band_level_history,
+                                      event_metrics, metrics_of_mean_square)
 from flyover.acoustics.reconstruct import (RAISED_MICROPHONE_M, Directivity, received_history,
                                           reference_flight)
 from flyover.imaging.window import TOTAL
@@ -119,16 +119,16 @@ def directivities(levels: pd.DataFrame) -> dict[str, Directivity]:
     return out
 
 
-def _covered_metrics(env) -> EventMetrics | None:
-    """Metrics of a reconstructed mean-square history over its longest stretch that the
-    directivity covers (None where it covers none)."""
+def covered_stretch(env) -> slice | None:
+    """The longest stretch of a reconstructed mean-square history that the directivity covers
+    (None where it covers none)."""
     ok = np.isfinite(env)
     if not ok.any():
         return None
     edges = np.flatnonzero(np.diff(np.r_[0, ok.astype(int), 0]))
     starts, stops = edges[::2], edges[1::2]
     k = int(np.argmax(stops - starts))
-    return metrics_of_mean_square(env[starts[k]:stops[k]], ENVELOPE_RATE_HZ)[0]
+    return slice(int(starts[k]), int(stops[k]))
 
 
 def reconstruction_table(campaign: Campaign, inputs: PassInputs, levels: pd.DataFrame,
@@ -143,7 +143,8 @@ def reconstruction_table(campaign: Campaign, inputs: PassInputs, levels: pd.Data
     height_r = ref.height_m or an.reference_distance_m
     speed_r = ref.speed_m_s or speed_t
     bands = third_octave_bands(an.band_min_hz, an.band_max_hz)
-    measured = event_metrics(pressure, fs, (bands.lower_hz[0], bands.upper_hz[-1]))[0]
+    band = (bands.lower_hz[0], bands.upper_hz[-1])
+    measured = event_metrics(pressure, fs, band)[0]
     mounting, gain = campaign.array.mounting, campaign.array.pressure_gain
     rows = [_row("measured", "total", measured, height_t, speed_t, mounting,
                  f"channel {inputs.layout.channel[mic]}, {bands.nominal_hz[0]:g}-"
@@ -176,9 +177,21 @@ def reconstruction_table(campaign: Campaign, inputs: PassInputs, levels: pd.Data
         if parts:   # empty where a component is uncovered
             envs["components"] = np.sum(parts, axis=0)
         for name, env in envs.items():
-            m = _covered_metrics(env)
-            if m is not None:
-                rows.append(_row(route, name, m, h, v, obs, "from the measured directivity"))
+            stretch = covered_stretch(env)
+            if stretch is None:
+                continue
+            m = metrics_of_mean_square(env[stretch], ENVELOPE_RATE_HZ)[0]
+            rows.append(_row(route, name, m, h, v, obs, "from the measured directivity"))
+            if route.startswith("rebuilt") and name == TOTAL:
+                # The like-for-like check: the measurement over the stretch the
+                # reconstruction covers (the directivity's angles may end before 10 dB down).
+                t = kw["reception_s"][stretch]
+                k0, k1 = (int(round((v_s - span_s[0]) * fs)) for v_s in (t[0], t[-1]))
+                p2 = a_weighted(pressure, fs, band)[max(k0, 0):k1 + 1] ** 2
+                rows.append(_row("measured over the rebuilt stretch", TOTAL,
+                                 metrics_of_mean_square(p2, fs)[0], h, v, obs,
+                                 f"{t[0] - span_s[0]:.2f} to {t[-1] - span_s[0]:.2f} s of the "
+                                 "measured span, the analysed bands only"))
     full = event_metrics(pressure, fs)[0]
     adjusted = EventMetrics(
         full.lafmax_db, full.lafmax_s,
@@ -189,7 +202,20 @@ def reconstruction_table(campaign: Campaign, inputs: PassInputs, levels: pd.Data
     rows.append(_row("adjusted measurement", "total", adjusted, height_r, speed_r, mounting,
                      "all frequencies; LASmax + 22 lg(H_T/H_R) (14 CFR 36 App. G), LAE + 12.5 "
                      "lg(H_T/H_R) + 10 lg(V_T/V_R) (App. J)"))
-    return pd.DataFrame(rows, columns=RECONSTRUCTED.column_names)
+    table = pd.DataFrame(rows, columns=RECONSTRUCTED.column_names)
+    rebuilt = table[(table["route"] == "reference flight") & (table["component"] == TOTAL)]
+    if len(rebuilt):
+        r = rebuilt.iloc[0]
+        table.loc[len(table)] = {
+            "route": "reference flight minus adjusted measurement", "component": TOTAL,
+            "lasmax_db": r["lasmax_db"] - adjusted.lasmax_db,
+            "lae_db": r["lae_db"] - adjusted.lae_db,
+            "ten_db_down_s": r["ten_db_down_s"] - adjusted.ten_db_down_duration_s,
+            "complete": bool(r["complete"]) and adjusted.ten_db_down_complete,
+            "height_m": height_r, "speed_m_s": speed_r, "observer": ref.observer,
+            "note": "the two routes to the reference flight compared (the reconstruction holds "
+                    "the analysed bands only)"}
+    return table
 
 
 def _row(route, component, m: EventMetrics, height, speed, observer, note) -> dict:

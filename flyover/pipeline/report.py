@@ -359,13 +359,14 @@ intervals. Rounded to 0.1 dB, 0.01 s and 0.1 m.</p>
 ({an.reference_atmosphere.temperature_c:g} &deg;C, {an.reference_atmosphere.relative_humidity_pct:g} %
 RH), free field, convective amplification removed. Per configuration label, region,
 one-third-octave band and 10&deg; polar-angle bin: the mean over passes, its standard
-deviation, the number of passes and the 90&nbsp;% confidence interval of the mean (Student t).
+deviation, the number of passes and the 90&nbsp;% interval of the mean (the Student-t interval
+of the pass-to-pass scatter and the passes' stated uncertainties, combined).
 Means whose interval is wider than &plusmn;1.5&nbsp;dB are shaded ({n_flags} band cells here).</p>
 {_img(out / "campaign_overall.png", "campaign A-weighted levels")}
 <h3>Overall and A-weighted levels</h3>
 <p class="muted">Mean level (dB) per polar bin; shaded: interval wider than &plusmn;1.5&nbsp;dB;
-italics: one pass only. Regions sum the bands where they are resolved, 'total' sums all bands.
-</p>
+italics: one pass only. Each region sums one band range per label (the column band_range_hz of
+campaign_overall.csv): a window missing a band of it has no overall.</p>
 {_level_grids(overall, ["label", "quantity"], "region", str, "region")}
 <h3>Band levels</h3>
 <p class="muted">Mean level (dB) per band and polar bin; shaded: interval wider than

@@ -39,8 +39,10 @@ BAND_HISTORY = TableFile("band_history.csv", (
 
 RECONSTRUCTED = TableFile("reconstructed_metrics.csv", (
     ("route", "'measured' (the microphone, in the analysed bands), 'rebuilt on the measured "
-              "path', 'reference flight', or 'adjusted measurement' (certification-style "
-              "height and speed adjustments of the measured levels)"),
+              "path', 'measured over the rebuilt stretch' (the check, like for like), "
+              "'reference flight', 'adjusted measurement' (certification-style "
+              "height and speed adjustments of the measured levels), or 'reference flight "
+              "minus adjusted measurement' (the two routes compared)"),
     ("component", "region name, 'components' (their sum), or 'total' (all regions together)"),
     ("lasmax_db", "dB(A) re 20 uPa"),
     ("lae_db", "dB(A) re 20 uPa and 1 s, over the 10 dB-down interval"),
