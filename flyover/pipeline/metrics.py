@@ -63,7 +63,8 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> None:
     out_dir = Path(out_dir)
     inputs, _ = load_aligned_pass(campaign, pass_name, out_dir)
     mic = reference_microphone(campaign, inputs)
-    first, n = inputs.covered_frames(pass_summary(inputs)["covered_s"])
+    summary = pass_summary(inputs)
+    first, n = inputs.covered_frames(summary["covered_s"])
     pressure = inputs.read_microphone_pa(mic, int(first[mic]), n)
     fs = float(inputs.clock.rate_hz[mic])          # the recorder's true rate: true seconds
     t0 = float(inputs.clock.start_s[mic] + first[mic] / fs)
@@ -101,7 +102,8 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> None:
     save_figure(level_history_figure(level_history, band_history, figure_row, pass_name),
                 out_dir / "level_history.png")
     RECONSTRUCTED.write(out_dir, reconstruction_table(
-        campaign, inputs, LEVELS.read(out_dir), pressure, fs, mic, (t0, t0 + n / fs)))
+        campaign, inputs, summary, LEVELS.read(out_dir), pressure, fs, mic, (t0, t0 + n / fs),
+        metrics))
 
 
 def directivities(levels: pd.DataFrame) -> dict[str, Directivity]:
@@ -131,14 +133,15 @@ def covered_stretch(env) -> slice | None:
     return slice(int(starts[k]), int(stops[k]))
 
 
-def reconstruction_table(campaign: Campaign, inputs: PassInputs, levels: pd.DataFrame,
-                         pressure, fs: float, mic: int, span_s) -> pd.DataFrame:
+def reconstruction_table(campaign: Campaign, inputs: PassInputs, summary: dict,
+                         levels: pd.DataFrame, pressure, fs: float, mic: int, span_s,
+                         full: EventMetrics) -> pd.DataFrame:
     """LASmax and LAE per component: rebuilt on the measured path at the measured microphone
     (against the measurement in the analysed bands: the check of the reconstruction), for the
-    reference flight, and the measured levels with certification-style adjustments."""
+    reference flight, and the measured levels (``full``: all frequencies) with
+    certification-style adjustments. ``summary`` is the pass's :func:`pass_summary`."""
     an = campaign.analysis
     ref = an.reference_flight
-    summary = pass_summary(inputs)
     height_t, speed_t = summary["height_above_array_m"], summary["speed_m_s"]
     height_r = ref.height_m or an.reference_distance_m
     speed_r = ref.speed_m_s or speed_t
@@ -192,7 +195,6 @@ def reconstruction_table(campaign: Campaign, inputs: PassInputs, levels: pd.Data
                                  metrics_of_mean_square(p2, fs)[0], h, v, obs,
                                  f"{t[0] - span_s[0]:.2f} to {t[-1] - span_s[0]:.2f} s of the "
                                  "measured span, the analysed bands only"))
-    full = event_metrics(pressure, fs)[0]
     adjusted = EventMetrics(
         full.lafmax_db, full.lafmax_s,
         full.lasmax_db + LASMAX_HEIGHT_SLOPE_DB * np.log10(height_t / height_r), full.lasmax_s,

@@ -248,6 +248,14 @@ def _recorder_table(al: dict) -> pd.DataFrame:
     return pd.DataFrame(rows)
 
 
+def _with_band_range(overall: pd.DataFrame) -> pd.DataFrame:
+    """The campaign's overall table with each region named with its band range."""
+    if len(overall) == 0:
+        return overall
+    return overall.assign(region=[f"{r} ({b} Hz)" for r, b in
+                                  zip(overall["region"], overall["band_range_hz"])])
+
+
 def _numbers_per_pass(campaign: Campaign, out: Path) -> pd.DataFrame:
     """Per pass: height, speed, LASmax and LAE measured, the reference flight's per component,
     and each component's overall A level nearest overhead with its band range and interval."""
@@ -276,7 +284,13 @@ def _numbers_per_pass(campaign: Campaign, out: Path) -> pd.DataFrame:
                 row[f"{r['region']}: overall A at {r['polar_angle_deg']:.0f} deg, "
                     f"{r['band_range_hz']} Hz (dB)"] = value
         rows.append(row)
-    return pd.DataFrame(rows).T.reset_index().rename(columns={"index": "quantity"})
+    return _by_column(rows, "pass")
+
+
+def _by_column(rows: list[dict], key: str) -> pd.DataFrame:
+    """Rows of dicts as a table with one column per ``key`` value and one row per quantity."""
+    return (pd.DataFrame(rows).set_index(key).T.fillna("").rename_axis(key)
+            .reset_index().rename(columns={key: "quantity"}))
 
 
 def _numbers_per_label(campaign: Campaign, out: Path, overall: pd.DataFrame) -> pd.DataFrame:
@@ -297,7 +311,7 @@ def _numbers_per_label(campaign: Campaign, out: Path, overall: pd.DataFrame) -> 
             row[f"{r['region']}: overall A at 90 deg, {r['band_range_hz']} Hz (dB)"] = (
                 f"{r['mean_db']:.1f} +- {r['ci_half_width_db']:.1f}")
         rows.append(row)
-    return pd.DataFrame(rows).T.reset_index().rename(columns={"index": "quantity"})
+    return _by_column(rows, "label")
 
 
 def _processing_time_s(out: Path) -> float:
@@ -367,7 +381,7 @@ Means whose interval is wider than &plusmn;1.5&nbsp;dB are shaded ({n_flags} ban
 <p class="muted">Mean level (dB) per polar bin; shaded: interval wider than &plusmn;1.5&nbsp;dB;
 italics: one pass only. Each region sums one band range per label (the column band_range_hz of
 campaign_overall.csv): a window missing a band of it has no overall.</p>
-{_level_grids(overall, ["label", "quantity"], "region", str, "region")}
+{_level_grids(_with_band_range(overall), ["label", "quantity"], "region", str, "region")}
 <h3>Band levels</h3>
 <p class="muted">Mean level (dB) per band and polar bin; shaded: interval wider than
 &plusmn;1.5&nbsp;dB; italics: one pass only; empty: not resolved or not measurable. All columns,
