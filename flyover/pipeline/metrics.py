@@ -146,8 +146,9 @@ def reconstruction_table(campaign: Campaign, inputs: PassInputs, summary: dict,
     height_r = ref.height_m or an.reference_distance_m
     speed_r = ref.speed_m_s or speed_t
     bands = third_octave_bands(an.band_min_hz, an.band_max_hz)
-    band = (bands.lower_hz[0], bands.upper_hz[-1])
-    measured = event_metrics(pressure, fs, band)[0]
+    # The measurement in the analysed bands, A-weighted once for the whole span and its stretch.
+    p2_band = a_weighted(pressure, fs, (bands.lower_hz[0], bands.upper_hz[-1])) ** 2
+    measured = metrics_of_mean_square(p2_band, fs)[0]
     mounting, gain = campaign.array.mounting, campaign.array.pressure_gain
     rows = [_row("measured", "total", measured, height_t, speed_t, mounting,
                  f"channel {inputs.layout.channel[mic]}, {bands.nominal_hz[0]:g}-"
@@ -190,9 +191,9 @@ def reconstruction_table(campaign: Campaign, inputs: PassInputs, summary: dict,
                 # reconstruction covers (the directivity's angles may end before 10 dB down).
                 t = kw["reception_s"][stretch]
                 k0, k1 = (int(round((v_s - span_s[0]) * fs)) for v_s in (t[0], t[-1]))
-                p2 = a_weighted(pressure, fs, band)[max(k0, 0):k1 + 1] ** 2
                 rows.append(_row("measured over the rebuilt stretch", TOTAL,
-                                 metrics_of_mean_square(p2, fs)[0], h, v, obs,
+                                 metrics_of_mean_square(p2_band[max(k0, 0):k1 + 1], fs)[0],
+                                 h, v, obs,
                                  f"{t[0] - span_s[0]:.2f} to {t[-1] - span_s[0]:.2f} s of the "
                                  "measured span, the analysed bands only"))
     adjusted = EventMetrics(
