@@ -90,6 +90,14 @@ def test_stages_on_the_tiny_campaign(tiny_copy):
     assert list(table.columns[:6]) == ["window", "time_utc", "polar_angle_deg", "band_hz",
                                        "region", "level_db"]
     assert set(table["region"]) == {"front", "rear", "total"}
+    # p1 flies level straight over the array: every region sees it straight down (azimuth 0,
+    # within the GNSS noise), the body origin at the window's polar angle, and the front region
+    # (1 m ahead) later than the rear one.
+    assert np.abs(table["emission_azimuth_deg"]).max() < 1.0
+    total = table[table["region"] == "total"]
+    np.testing.assert_allclose(total["emission_polar_deg"], total["polar_angle_deg"], atol=0.5)
+    by_region = table.pivot_table(index="window", columns="region", values="emission_polar_deg")
+    assert (by_region["front"] > by_region["rear"]).all()
     # A level left empty (not separable, not measurable) is empty in every level column.
     empty = table["level_db"].isna()
     assert empty.any() and table.loc[empty, "level_1m_db"].isna().all()

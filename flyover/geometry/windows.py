@@ -12,6 +12,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from flyover.geometry.frames import attitude_rotation, enu_from_body_matrix
 from flyover.geometry.track import TrackModel
 
 
@@ -65,6 +66,42 @@ def polar_angle_deg(velocity_enu_m_s, position_enu_m, target_enu_m) -> np.ndarra
     d = np.asarray(target_enu_m, float) - np.asarray(position_enu_m, float)
     cos = np.sum(v * d, axis=-1) / (np.linalg.norm(v, axis=-1) * np.linalg.norm(d, axis=-1))
     return np.rad2deg(np.arccos(np.clip(cos, -1.0, 1.0)))
+
+
+def emission_angles_deg(position_enu_m, attitude_deg, source_body_m, target_enu_m):
+    """Emission angles of the line from a body point to a target, in body axes.
+
+    The polar angle is measured from the nose (body +x: 0 deg ahead, 90 deg abeam, 180 deg
+    behind); the azimuth turns about the body x axis from straight down (body +z, 0 deg),
+    positive towards starboard (body +y), so that a target below and to the right of the
+    vehicle has a positive azimuth and one below-left a negative one. The attitude turns the
+    line into body axes: a right wing down roll of 10 deg moves a target straight below to
+    +10 deg (the dipped starboard wing points towards it).
+
+    Parameters
+    ----------
+    position_enu_m : ndarray, shape (n, 3)
+        Body origin in the site frame.
+    attitude_deg : ndarray, shape (n, 3)
+        Yaw, pitch, roll (:mod:`flyover.geometry.frames`).
+    source_body_m : ndarray, shape (3,)
+        The point the line starts from, body axes.
+    target_enu_m : ndarray, shape (3,)
+        E.g. the array centre, site frame.
+
+    Returns
+    -------
+    polar_deg, azimuth_deg : ndarray, shape (n,)
+        Polar angle in [0, 180], azimuth in (-180, 180].
+    """
+    pos = np.atleast_2d(np.asarray(position_enu_m, float))
+    att = np.atleast_2d(np.asarray(attitude_deg, float))
+    enu_from_body = enu_from_body_matrix(attitude_rotation(att[:, 0], att[:, 1], att[:, 2]))
+    start = pos + enu_from_body @ np.asarray(source_body_m, float)
+    line_enu = np.asarray(target_enu_m, float) - start
+    line = np.einsum("nji,nj->ni", enu_from_body, line_enu)    # transpose: ENU -> body
+    polar = np.rad2deg(np.arccos(np.clip(line[:, 0] / np.linalg.norm(line, axis=1), -1, 1)))
+    return polar, np.rad2deg(np.arctan2(line[:, 1], line[:, 2]))
 
 
 def overhead_time_s(track: TrackModel, array_center_enu_m, span_s: tuple[float, float],

@@ -436,6 +436,7 @@ def pass_summary(inputs: PassInputs) -> dict:
         "track_noise_estimate_m": inputs.track.residual_rms_m(),
         "speed_of_sound_m_s": atm.c_m_s,
         "array_aperture_m": inputs.layout.aperture_m,
+        "array_center_enu_m": [float(v) for v in inputs.layout.center_enu_m],
     }
 
 

@@ -10,6 +10,7 @@ import pandas as pd
 from flyover.acoustics.bands import third_octave_bands
 from flyover.acoustics.reference import level_1m_db, reference_level_db
 from flyover.acoustics.uncertainty import Z90, InputUncertainty, band_level_uncertainty_db
+from flyover.geometry.windows import emission_angles_deg
 from flyover.imaging.window import TOTAL
 from flyover.io.figures import directivity_figure, save_figure, spectra_figure
 from flyover.io.results.directivity import DIRECTIVITY
@@ -37,8 +38,9 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> None:
     out_dir = Path(out_dir)
     windows = read_analysed(out_dir).set_index("window")
     powers = REGION_POWER.read(out_dir)
-    levels = level_table(powers, windows, campaign)
-    levels = with_uncertainty(levels, read_alignment(out_dir), campaign, pass_name)
+    alignment = read_alignment(out_dir)
+    levels = level_table(powers, windows, campaign, alignment["array_center_enu_m"])
+    levels = with_uncertainty(levels, alignment, campaign, pass_name)
     LEVELS.write(out_dir, levels)
     spectra = spectra_table(levels, campaign.analysis.spectra_polar_deg)
     SPECTRA.write(out_dir, spectra)
@@ -47,8 +49,10 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> None:
     save_figure(directivity_figure(levels, pass_name), out_dir / "directivity.png")
 
 
-def level_table(powers: pd.DataFrame, windows: pd.DataFrame, campaign: Campaign) -> pd.DataFrame:
-    """One row per window, band and region (plus the 'total' of all regions)."""
+def level_table(powers: pd.DataFrame, windows: pd.DataFrame, campaign: Campaign,
+                array_center_enu_m) -> pd.DataFrame:
+    """One row per window, band and region (plus the 'total' of all regions), with each
+    region's emission angles towards the array centre (site frame, m)."""
     an = campaign.analysis
     cols = LEVELS.column_names
     if len(powers) == 0:
@@ -80,6 +84,15 @@ def level_table(powers: pd.DataFrame, windows: pd.DataFrame, campaign: Campaign)
     w = windows.loc[p["window"]]
     for c in ("time_utc", "polar_angle_deg", "height_m", "speed_m_s", "distance_m"):
         p[c] = w[c].to_numpy()
+    p["emission_polar_deg"] = p["emission_azimuth_deg"] = np.nan
+    for region, rows in p.groupby("region").groups.items():
+        centre = campaign.regions[region].center_m if region != TOTAL else np.zeros(3)
+        at = windows.loc[p.loc[rows, "window"]]
+        polar, azimuth = emission_angles_deg(at[["east_m", "north_m", "up_m"]].to_numpy(float),
+                                             at[["yaw_deg", "pitch_deg", "roll_deg"]]
+                                             .to_numpy(float), centre, array_center_enu_m)
+        p.loc[rows, "emission_polar_deg"] = polar
+        p.loc[rows, "emission_azimuth_deg"] = azimuth
     order = {name: i for i, name in enumerate(list(campaign.regions) + [TOTAL])}
     p = p.assign(_o=p["region"].map(order)).sort_values(["window", "_o", "band_hz"])
     p["uncertainty_db"] = p["ci90_low_db"] = p["ci90_high_db"] = np.nan

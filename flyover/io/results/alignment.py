@@ -21,6 +21,7 @@ REQUIRED_KEYS = {
     "channels_used": "channels in the beamforming",
     "overhead_utc": "ISO 8601 UTC of the closest approach",
     "closest_distance_m": "m",
+    "array_center_enu_m": "m, site frame: the array centre the emission angles point to",
 }
 
 

@@ -5,7 +5,8 @@ from flyover.io.results import TableFile
 LEVELS = TableFile("levels.csv", (
     ("window", "index"),
     ("time_utc", "ISO 8601 UTC, emission time of the window centre"),
-    ("polar_angle_deg", "deg"),
+    ("polar_angle_deg", "deg, between the flight direction and the line from the body origin to "
+                        "the array centre (90 = overhead); the window's angle"),
     ("band_hz", "nominal one-third-octave midband"),
     ("region", "region name, or 'total'"),
     ("level_db", "dB re 20 uPa at the reference distance in the reference atmosphere; empty "
@@ -20,4 +21,9 @@ LEVELS = TableFile("levels.csv", (
     ("height_m", "m above the array centre"),
     ("speed_m_s", "m/s"),
     ("distance_m", "m"),
+    ("emission_polar_deg", "deg, body axes: the line from the region's centre (the body origin "
+                           "for 'total') to the array centre, from the nose (0) to the tail "
+                           "(180)"),
+    ("emission_azimuth_deg", "deg, body axes: the same line's angle about the body x axis from "
+                             "straight down (0), positive to starboard"),
 ), float_format="%.3f")
