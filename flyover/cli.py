@@ -86,8 +86,7 @@ def _parser() -> argparse.ArgumentParser:
                    help="open it in the default browser (default: print its path)")
 
     g = add("stage", "run one per-pass workflow step (called by the workflow)", internal=True)
-    g.add_argument("name", choices=["align", "image", "levels", "metrics", "qc"],
-                   help="the step")
+    g.add_argument("name", help="the step (a per-pass stage of flyover.pipeline)")
     g.add_argument("--campaign", type=Path, default=_campaign_from_environment(),
                    help="campaign file (default: $FLYOVER_CAMPAIGN, set by the workflow)")
     g.add_argument("--pass", dest="pass_name", required=True, help="the pass's name")
@@ -98,7 +97,7 @@ def _parser() -> argparse.ArgumentParser:
 
     h = add("stage-campaign", "run one campaign-level workflow step (called by the workflow)",
             internal=True)
-    h.add_argument("name", choices=["summary", "report"], help="the step")
+    h.add_argument("name", help="the step (a campaign stage of flyover.pipeline)")
     h.add_argument("--campaign", type=Path, default=_campaign_from_environment(),
                    help="campaign file (default: $FLYOVER_CAMPAIGN, set by the workflow)")
     return p
@@ -194,6 +193,11 @@ def _dispatch(args) -> int:
     if args.campaign is None:
         raise FlyoverInputError("no campaign file", f"flyover {args.command}",
                                 "--campaign FILE (or $FLYOVER_CAMPAIGN)")
+    from flyover.pipeline import stages
+    known = stages("campaign" if args.command == "stage-campaign" else "pass")
+    if args.name not in known:
+        raise FlyoverInputError("no such workflow step", f"flyover {args.command}",
+                                ", ".join(known), args.name)
     campaign = load_campaign(args.campaign)
     stage = importlib.import_module(f"flyover.pipeline.{args.name}")
     if args.command == "stage-campaign":

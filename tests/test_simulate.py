@@ -9,7 +9,8 @@ from scipy.signal import hilbert
 from flyover.acoustics.atmosphere import Atmosphere
 from flyover.acoustics.bands import third_octave_bands
 from flyover.forward import _sinc
-from flyover.forward.moving_source import (Broadband, PointSource, Propagator, SourceSignal, Tone,
+from flyover.forward.moving_source import (Broadband, DipoleLike, PointSource, Propagator,
+                                           SourceSignal, Tone,
                                            received_pressure_pa)
 from flyover.imaging import _kernels
 from flyover.geometry.track import straight_track
@@ -21,10 +22,11 @@ C = ATM.c_m_s
 M = V / C
 
 
-def level_flyover(tone_hz, gain=1.0, absorption=False, mic=(0.0, 0.0, 0.0)):
+def level_flyover(tone_hz, gain=1.0, absorption=False, mic=(0.0, 0.0, 0.0), directivity=None):
     """A tone source flying east at V, height H, overhead at t = 2 s; 1 s of reception."""
     track, *_ = straight_track(V, H, 90.0, 2.0, -3.0, 6.0)
-    src = PointSource("s", (0.0, 0.0, 0.0), tones=(Tone(tone_hz, 100.0),))
+    src = PointSource("s", (0.0, 0.0, 0.0), tones=(Tone(tone_hz, 100.0),),
+                      directivity=directivity)
     sig = SourceSignal(src, FS, -3.0, 6.0)
     prop = Propagator(np.array([mic]), ATM, gain, absorption)
     t = 1.6 + np.arange(int(FS)) / FS
@@ -73,6 +75,21 @@ def test_received_amplitude_follows_source_model():
     for k in (3000, 8000, 12000):
         _, r, cos_theta = closed_form_emission(t[k])
         expected = 2.0 * a1 / (r * (1 - M * cos_theta) ** 2)
+        assert 20 * np.log10(env[k] / expected) == pytest.approx(0.0, abs=0.01)
+
+
+def test_directive_source_scales_the_amplitude_by_its_pattern():
+    # The same flyover with a known pattern: the envelope is the moving monopole's times
+    # sqrt((1 - w) + w (e . a)^2), e the emission direction in body axes. Flying east level,
+    # body x is east and z down, so e = (cos theta_e, 0, H / r) from the closed form.
+    pattern = DipoleLike((0.6, 0.0, 0.8), 0.75)
+    t, p = level_flyover(1000.0, gain=2.0, directivity=pattern)
+    env = np.abs(hilbert(p))
+    a1 = np.sqrt(2) * 20e-6 * 10 ** (100 / 20)
+    for k in (3000, 8000, 12000):
+        _, r, cos_theta = closed_form_emission(t[k])
+        g = 0.25 + 0.75 * (0.6 * cos_theta + 0.8 * H / r) ** 2
+        expected = 2.0 * a1 * np.sqrt(g) / (r * (1 - M * cos_theta) ** 2)
         assert 20 * np.log10(env[k] / expected) == pytest.approx(0.0, abs=0.01)
 
 

@@ -20,6 +20,7 @@ from scipy.interpolate import CubicSpline
 from flyover.acoustics.atmosphere import Atmosphere
 from flyover.acoustics.bands import ThirdOctaveBands
 from flyover.forward import _sinc
+from flyover.geometry.frames import enu_from_body_matrix
 from flyover.geometry.propagation import paths_between
 from flyover.geometry.track import TrackModel
 from flyover.model.constants import P0_PA
@@ -60,6 +61,37 @@ class Broadband:
 
 
 @dataclass(frozen=True)
+class DipoleLike:
+    """A known directivity: mean-square gain ``(1 - w) + w (e . a)^2`` in direction ``e``.
+
+    ``e`` is the unit vector from the source at emission to the receiver, in body axes; ``a``
+    the pattern's axis (normalised here); ``w`` the dipole fraction. The gain is 1 (0 dB) along
+    the axis and ``1 - w`` across it, the same at every frequency. It shapes levels only: the
+    pressure keeps its sign on both sides of the axis (a level pattern, not a true dipole's
+    phase).
+    """
+
+    axis_body: tuple[float, float, float]
+    dipole_fraction: float
+
+    def __post_init__(self):
+        require(0.0 <= self.dipole_fraction < 1.0, "dipole fraction out of range",
+                "directivity.dipole_fraction", "0 <= w < 1", f"{self.dipole_fraction}")
+        require(np.linalg.norm(self.axis_body) > 0, "directivity axis is zero",
+                "directivity.axis_body", "a non-zero vector in body axes", f"{self.axis_body}")
+
+    def gain(self, direction_body) -> np.ndarray:
+        """Mean-square gain for directions (..., 3) in body axes (normalised here)."""
+        e = np.asarray(direction_body, float)
+        a = np.asarray(self.axis_body, float) / np.linalg.norm(self.axis_body)
+        cos = e @ a / np.linalg.norm(e, axis=-1)
+        return (1.0 - self.dipole_fraction) + self.dipole_fraction * cos ** 2
+
+    def gain_db(self, direction_body) -> np.ndarray:
+        return 10.0 * np.log10(self.gain(direction_body))
+
+
+@dataclass(frozen=True)
 class PointSource:
     """A point source fixed to the vehicle.
 
@@ -72,6 +104,9 @@ class PointSource:
     broadband : Broadband or None
     seed : int
         Seed of the broadband noise (and nothing else), so sources are independent.
+    directivity : DipoleLike or None
+        Its level pattern; None radiates the same in every direction. Tone and band levels
+        hold along the pattern's axis.
     """
 
     name: str
@@ -79,6 +114,7 @@ class PointSource:
     tones: tuple[Tone, ...] = ()
     broadband: Broadband | None = None
     seed: int = 0
+    directivity: DipoleLike | None = None
 
     def band_power_pa2(self, bands: ThirdOctaveBands, gain_db: float = 0.0) -> np.ndarray:
         """Expected mean-square pressure at 1 m in each band (Pa^2), tones and broadband."""
@@ -196,6 +232,19 @@ def emission_times_s(track: TrackModel, body_m, mic_enu_m, reception_s, wind_enu
     return tau, paths_between(pos, vel, mics, wind_enu_m_s, c_m_s)
 
 
+def emission_directions_body(track: TrackModel, body_m, mic_enu_m, tau_s) -> np.ndarray:
+    """Unit vectors from a body point at emission times to each microphone, in body axes.
+
+    ``tau_s`` has shape (n_mics, n); returns (n_mics, n, 3).
+    """
+    tau = np.asarray(tau_s, float)
+    pos = track.body_points_enu(np.asarray(body_m, float)[None, :], tau.ravel())
+    line = np.asarray(mic_enu_m, float)[:, None, :] - pos.reshape(tau.shape + (3,))
+    enu_from_body = enu_from_body_matrix(track.rotation(tau.ravel()))
+    body = np.einsum("nji,nj->ni", enu_from_body, line.reshape(-1, 3))
+    return (body / np.linalg.norm(body, axis=1, keepdims=True)).reshape(tau.shape + (3,))
+
+
 def _absorb(signal, distance_m, air_per_received, frequency_hz_to_alpha, fs, block: int = 2048):
     """Apply a time-varying absorption filter: per block, gain 10**(-alpha(f_air) r / 20).
 
@@ -263,6 +312,9 @@ def received_pressure_pa(track: TrackModel, signals: list[SourceSignal], bodies_
     for signal, body in zip(signals, bodies_m):
         tau_c, geo = emission_times_s(track, body, prop.mic_enu_m, tc, wind, c)
         amp_c = prop.pressure_gain / (geo.distance_m * (1.0 - geo.mach_r) ** 2)
+        if signal.source.directivity is not None:
+            amp_c = amp_c * np.sqrt(signal.source.directivity.gain(
+                emission_directions_body(track, body, prop.mic_enu_m, tau_c)))
         tau = CubicSpline(kc, tau_c, axis=1)(k)
         amp = CubicSpline(kc, amp_c, axis=1)(k)
         contrib = signal(tau) * amp

@@ -15,6 +15,7 @@ from jsonschema import Draft202012Validator
 from flyover.acoustics.atmosphere import Atmosphere
 from flyover.acoustics.bands import third_octave_bands
 from flyover.geometry.frames import SiteFrame
+from flyover.acoustics.hemisphere import HemisphereSettings
 from flyover.acoustics.uncertainty import InputUncertainty
 from flyover.imaging.methods import DEFAULT_METHOD, methods
 from flyover.io.timestamps import parse_utc_ns
@@ -192,6 +193,14 @@ def _atmosphere(merged: dict, where: str) -> Atmosphere:
                                     "a value in the pass's atmosphere or in the campaign-level "
                                     "'atmosphere' default")
     return Atmosphere(**merged)
+
+
+def _hemisphere(h: dict) -> HemisphereSettings:
+    return HemisphereSettings(
+        polar_step_deg=float(h.get("polar_step_deg", 10.0)),
+        azimuth_step_deg=float(h.get("azimuth_step_deg", 10.0)),
+        fit_degree=h.get("fit_degree"),
+        band_ranges_hz=tuple(_range(r) for r in h.get("band_ranges_hz", ())))
 
 
 def _imaging_method(name: str, source: str) -> str:
@@ -424,6 +433,7 @@ def campaign_from_mapping(data: dict, path: Path) -> Campaign:
         uncertainty=InputUncertainty(**an.get("uncertainty", {})),
         overall_band_range_hz=(_range(an["overall_band_range_hz"])
                                if "overall_band_range_hz" in an else None),
+        hemisphere=_hemisphere(an.get("hemisphere", {})),
     )
     if analysis.band_min_hz > analysis.band_max_hz:
         raise FlyoverInputError("band range inverted", f"{source}, key analysis.band_min_hz",

@@ -344,3 +344,96 @@ def level_history_figure(history, bands, metrics_row: dict, pass_name: str):
     ax.set_xlabel("time as received (s after the pass epoch)")
     fig.suptitle(f"{pass_name}: single-event levels", fontsize=11)
     return fig
+
+
+def _hemisphere_axes(ax, polar_deg, azimuth_deg) -> None:
+    """Polar across (nose left, tail right), azimuth down (port horizon at the top)."""
+    ax.grid(False)
+    ax.set_xlim(polar_deg[0] - 5, polar_deg[-1] + 5)
+    ax.set_ylim(azimuth_deg[-1] + 5, azimuth_deg[0] - 5)
+    ax.set_xticks(np.arange(0, 181, 30))
+    ax.set_yticks(np.arange(-90, 91, 30))
+    ax.set_xlabel("polar angle from the nose (deg)")
+    ax.set_ylabel("azimuth (deg, + starboard)")
+
+
+def _grid_values(cells, polar_deg, azimuth_deg, value: str) -> np.ndarray:
+    """A (n_azimuth, n_polar) array of a cell column, NaN where no cell is given."""
+    out = np.full((len(azimuth_deg), len(polar_deg)), np.nan)
+    i = np.searchsorted(azimuth_deg, cells["azimuth_deg"].to_numpy(float))
+    j = np.searchsorted(polar_deg, cells["polar_deg"].to_numpy(float))
+    out[i, j] = cells[value].to_numpy(float)
+    return out
+
+
+@_styled
+def hemisphere_figure(panels, polar_deg, azimuth_deg, label: str):
+    """Maps of the lower hemisphere, one row per region and band range.
+
+    ``panels`` is a list of (title, cells, fit_cells) with cells a table of ``polar_deg``,
+    ``azimuth_deg`` and ``level_db``; fit_cells the same for the smooth fit or None. Each row
+    shows the data, then the fit and its residual where there is one; empty cells stay white.
+    """
+    def fitted(fit):
+        return fit is not None and bool(np.isfinite(fit["fit_db"].to_numpy(float)).any())
+
+    n_cols = 3 if any(fitted(f) for _, _, f in panels) else 1
+    fig, axes = plt.subplots(max(1, len(panels)), n_cols, squeeze=False,
+                             figsize=(4.6 * n_cols, 2.9 * max(1, len(panels))))
+    for row, (title, cells, fit) in zip(axes, panels):
+        data = _grid_values(cells, polar_deg, azimuth_deg, "level_db")
+        peak = float(np.nanmax(data)) if np.isfinite(data).any() else 0.0
+        mesh = row[0].pcolormesh(polar_deg, azimuth_deg, data, shading="nearest",
+                                 cmap=MAP_CMAP, vmin=peak - 15, vmax=peak)
+        fig.colorbar(mesh, ax=row[0], pad=0.02).set_label("dB re 20 uPa at 1 m")
+        row[0].set_title(f"{title}: measured", fontsize=9)
+        if fitted(fit):
+            fitted_db = _grid_values(fit, polar_deg, azimuth_deg, "fit_db")
+            mesh = row[1].pcolormesh(polar_deg, azimuth_deg, fitted_db, shading="nearest",
+                                     cmap=MAP_CMAP, vmin=peak - 15, vmax=peak)
+            fig.colorbar(mesh, ax=row[1], pad=0.02).set_label("dB (fit)")
+            rms = float(np.sqrt(np.nanmean(fit["fit_residual_db"].to_numpy(float) ** 2)))
+            row[1].set_title("FIT (spherical harmonics), covered cells only", fontsize=9)
+            resid = _grid_values(fit, polar_deg, azimuth_deg, "fit_residual_db")
+            mesh = row[2].pcolormesh(polar_deg, azimuth_deg, resid, shading="nearest",
+                                     cmap="PuOr", vmin=-3, vmax=3)
+            fig.colorbar(mesh, ax=row[2], pad=0.02).set_label("measured - fit (dB)")
+            row[2].set_title(f"residual, rms {rms:.2f} dB", fontsize=9)
+        elif n_cols > 1:
+            for ax in row[1:]:
+                ax.axis("off")
+            row[1].text(0.5, 0.5, "no fit: too few covered cells for its degree",
+                        ha="center", transform=row[1].transAxes)
+        for ax in row[:n_cols if fitted(fit) else 1]:
+            _hemisphere_axes(ax, polar_deg, azimuth_deg)
+    if not panels:
+        axes[0][0].text(0.5, 0.5, "no covered cell", ha="center", transform=axes[0][0].transAxes)
+    fig.suptitle(f"{label}: directivity hemispheres (body axes; white cells: no window)",
+                 fontsize=11)
+    fig.tight_layout()
+    return fig
+
+
+@_styled
+def coverage_figure(counts, traces, polar_deg, azimuth_deg, label: str):
+    """Which cells of the lower hemisphere a label's passes cover.
+
+    ``counts`` is a table of ``polar_deg``, ``azimuth_deg``, ``n_windows``; ``traces`` maps each
+    pass to its windows' (polar, azimuth) arrays, drawn as lines over the cells.
+    """
+    fig, ax = plt.subplots(figsize=(7.5, 4.6))
+    grid = _grid_values(counts, polar_deg, azimuth_deg, "n_windows")
+    mesh = ax.pcolormesh(polar_deg, azimuth_deg, grid, shading="nearest", cmap="Greys",
+                         vmin=0, vmax=max(1.0, float(np.nanmax(grid)) if np.isfinite(grid).any()
+                                          else 1.0), alpha=0.6)
+    fig.colorbar(mesh, ax=ax, pad=0.02).set_label("windows in the cell")
+    colours = [ACCENT, ARRAY, INK, "#7a4e9e", "#b03a2e", "#4a7a1f"]
+    for k, (name, (polar, azimuth)) in enumerate(traces.items()):
+        ax.plot(polar, azimuth, marker="o", ms=3, lw=1.2, color=colours[k % len(colours)],
+                label=name)
+    _hemisphere_axes(ax, polar_deg, azimuth_deg)
+    ax.legend(fontsize=8, frameon=False, loc="upper right")
+    ax.set_title(f"{label}: covered cells ({int(np.isfinite(grid).sum())} of {grid.size}); "
+                 "fly other offsets to fill the rest", fontsize=10)
+    fig.tight_layout()
+    return fig

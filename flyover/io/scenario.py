@@ -8,7 +8,7 @@ import numpy as np
 from jsonschema import Draft202012Validator
 
 from flyover.acoustics.atmosphere import Atmosphere
-from flyover.forward.moving_source import Broadband, PointSource, Tone
+from flyover.forward.moving_source import Broadband, DipoleLike, PointSource, Tone
 from flyover.geometry.frames import SiteFrame
 from flyover.io.config import read_schema, read_yaml
 from flyover.io.timestamps import parse_utc_ns
@@ -59,8 +59,12 @@ def load_scenario(path) -> tuple[Scenario, SiteFrame, dict]:
         broadband = None if bb is None else Broadband(
             bb["level_1khz_db"], bb.get("slope_db_per_octave", 0.0), bb.get("min_hz", 40.0),
             bb.get("max_hz", 8000.0))
+        pattern = src.get("directivity")
         sources.append(PointSource(src["name"], tuple(src["body_m"]), tones, broadband,
-                                   src.get("seed", 1000 + k)))
+                                   src.get("seed", 1000 + k),
+                                   None if pattern is None else DipoleLike(
+                                       tuple(pattern["axis_body"]),
+                                       pattern["dipole_fraction"])))
     passes = []
     for k, (name, p) in enumerate(data["passes"].items()):
         passes.append(PassScenario(

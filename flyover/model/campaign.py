@@ -13,6 +13,7 @@ from pathlib import Path
 import numpy as np
 
 from flyover.acoustics.atmosphere import Atmosphere
+from flyover.acoustics.hemisphere import HemisphereSettings
 from flyover.acoustics.uncertainty import InputUncertainty
 from flyover.geometry.frames import SiteFrame
 from flyover.model.errors import require
@@ -120,6 +121,8 @@ class AnalysisSettings:
     metrics_channel : int or None
         Layout channel of the microphone the single-event metrics are measured at (None: the
         used microphone nearest the array centre).
+    hemisphere : HemisphereSettings
+        The grid, fit and band ranges of the directivity hemispheres.
     """
 
     window_s: float
@@ -138,6 +141,7 @@ class AnalysisSettings:
     reference_flight: ReferenceFlight = ReferenceFlight()
     uncertainty: InputUncertainty = InputUncertainty()
     overall_band_range_hz: tuple[float, float] | None = None
+    hemisphere: HemisphereSettings = HemisphereSettings()
 
     def __post_init__(self):
         require(self.window_s > 0 and self.hop_s > 0, "window and hop must be positive",

@@ -9,6 +9,7 @@ from flyover.acoustics.bands import a_weighting_db, third_octave_bands
 from flyover.acoustics.reference import overall_db
 from flyover.io.results.levels import LEVELS
 from flyover.io.results.levels_overall import LEVELS_OVERALL
+from flyover.model.campaign import Campaign
 
 
 def common_band_range(tables) -> dict[str, tuple[float, float] | None]:
@@ -65,3 +66,15 @@ def overall_table(levels: pd.DataFrame, band_range: dict) -> pd.DataFrame:
                      "bands_summed": summed, "band_range_hz": text, "note": note,
                      "uncertainty_db": u_overall})
     return pd.DataFrame(rows, columns=LEVELS_OVERALL.column_names)
+
+
+def label_band_ranges(campaign: Campaign, tables) -> dict:
+    """The band range of the overall levels per region for the passes of one label: the
+    campaign's ``analysis.overall_band_range_hz``, else the bands with a level in every
+    analysed window of every one of these passes."""
+    chosen = campaign.analysis.overall_band_range_hz
+    found = common_band_range(tables)
+    if chosen is None:
+        return found
+    nominal = third_octave_bands(*chosen).nominal_hz
+    return {r: (float(nominal[0]), float(nominal[-1])) for r in found}

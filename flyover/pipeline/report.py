@@ -20,6 +20,7 @@ from flyover.io.results.alignment import read_alignment
 from flyover.io.results.campaign_tables import CAMPAIGN_LEVELS, CAMPAIGN_OVERALL
 from flyover.acoustics.uncertainty import Z90
 from flyover.io.results.event_metrics import EVENT_METRICS, RECONSTRUCTED
+from flyover.io.results.hemisphere import FOLDER as HEMISPHERE_FOLDER, HEMISPHERE, label_folders
 from flyover.io.results.levels_overall import LEVELS_OVERALL
 from flyover.io.results.windows import WINDOWS
 from flyover.model.campaign import Campaign
@@ -314,6 +315,30 @@ def _numbers_per_label(campaign: Campaign, out: Path, overall: pd.DataFrame) -> 
     return _by_column(rows, "label")
 
 
+def _hemisphere_section(campaign: Campaign, out: Path) -> str:
+    """Per label: what the hemispheres cover, their maps and the coverage map."""
+    parts = []
+    for label, folder in label_folders(p.label for p in campaign.passes.values()).items():
+        dest = out / HEMISPHERE_FOLDER / folder
+        table = HEMISPHERE.read(dest)
+        grid = campaign.analysis.hemisphere
+        cells = table.drop_duplicates(["region", "polar_deg", "azimuth_deg"])
+        summary = cells.groupby("region", sort=False).agg(
+            **{"covered cells": ("polar_deg", "size"),
+               "polar (deg)": ("polar_deg", lambda v: f"{v.min():g} to {v.max():g}"),
+               "azimuth (deg)": ("azimuth_deg", lambda v: f"{v.min():g} to {v.max():g}")})
+        summary["band levels"] = table.groupby("region").size()
+        summary = summary.reset_index()
+        parts.append(f"""<h3>{html.escape(label or "unlabelled")}</h3>
+<p class="muted">hemispheres/{html.escape(folder)}/: hemisphere.csv and hemisphere.nc (NetCDF,
+CF-style units); cells of {grid.polar_step_deg:g}&deg; polar &times; {grid.azimuth_step_deg:g}&deg;
+azimuth out of {len(grid.polar_deg) * len(grid.azimuth_deg)}.</p>
+{_table(summary)}
+{_img(dest / "hemisphere.png", f"hemispheres of {label}")}
+{_img(dest / "coverage.png", f"coverage of {label}")}""")
+    return "".join(parts)
+
+
 def _processing_time_s(out: Path) -> float:
     """Sum of the wall times in the workflow's benchmark files (0 when there are none)."""
     total = 0.0
@@ -387,6 +412,16 @@ campaign_overall.csv): a window missing a band of it has no overall.</p>
 &plusmn;1.5&nbsp;dB; italics: one pass only; empty: not resolved or not measurable. All columns,
 with standard deviations and intervals, are in campaign_levels.csv.</p>
 {_level_grids(shown, ["label", "region"], "band_hz", lambda b: f"{b:g} Hz", "band")}
+<h3 id="hemispheres">Directivity hemispheres</h3>
+<p class="muted">Levels at 1 m (free field, no absorption) of each component over the emission
+angles in body axes: polar from the nose across, azimuth about the body's x axis from straight
+down (positive to starboard) down the page; one map per region and band range (by default the
+label's overall band range). A cell holds the energetic mean of the windows of every pass of the
+label that fall in it; cells no window reached stay white and are never filled in. A panel
+marked FIT is a low-order spherical-harmonic fit at the covered cells, drawn beside the data
+with its residual: a smoothing of the measurement, not a measurement. The coverage map shows
+each pass's line across the hemisphere: the empty rows are the offsets to fly next.</p>
+{_hemisphere_section(campaign, out)}
 </section>
 {''.join(_pass_section(campaign, n, out) for n in campaign.passes)}
 <h2 id="provenance">Provenance</h2>

@@ -9,14 +9,13 @@ import pandas as pd
 
 from flyover.acoustics.statistics import (WIDE_INTERVAL_DB, energetic_mean_db, mean_and_interval,
                                           polar_bin_deg)
-from flyover.acoustics.bands import third_octave_bands
 from flyover.io.figures import campaign_figure, save_figure
 from flyover.io.results.campaign_tables import CAMPAIGN_LEVELS, CAMPAIGN_OVERALL
 from flyover.io.results.levels import LEVELS
 from flyover.io.results.levels_overall import LEVELS_OVERALL
 from flyover.model.campaign import Campaign
 from flyover.model.reads import guarded
-from flyover.pipeline._overall import common_band_range, overall_table
+from flyover.pipeline._overall import label_band_ranges, overall_table
 
 POLAR_BIN_DEG = 10.0
 
@@ -62,18 +61,6 @@ def summarise(per_pass: dict[str, pd.DataFrame], labels: dict[str, str], value: 
         rows.append(row)
     out = pd.DataFrame(rows).rename(columns={"n": "n_passes"})
     return out
-
-
-def label_band_ranges(campaign: Campaign, tables) -> dict:
-    """The band range of the overall levels per region for the passes of one label: the
-    campaign's ``analysis.overall_band_range_hz``, else the bands with a level in every
-    analysed window of every one of these passes."""
-    chosen = campaign.analysis.overall_band_range_hz
-    found = common_band_range(tables)
-    if chosen is None:
-        return found
-    nominal = third_octave_bands(*chosen).nominal_hz
-    return {r: (float(nominal[0]), float(nominal[-1])) for r in found}
 
 
 def run(campaign: Campaign, out_dir: Path) -> None:

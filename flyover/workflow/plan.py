@@ -21,6 +21,7 @@ from flyover.acoustics.bands import third_octave_bands
 from flyover.imaging.dedoppler import ChainSettings, window_memory_bytes
 from flyover.io.config import load_campaign
 from flyover.io.readers import read
+from flyover.io.results import hemisphere
 from flyover.io.scenario import load_scenario
 from flyover.model.campaign import Campaign
 from flyover.model.errors import FlyoverInputError
@@ -54,7 +55,7 @@ class JobSizes:
 # 16-microphone test campaign): peak resident memory of each stage beyond the chain itself, the
 # chain's temporaries per byte of `window_memory_bytes`, and the whole image stage's throughput.
 _BASE_MB = {"align": 320, "image": 330, "levels": 260, "qc": 380, "metrics": 300,
-            "campaign_summary": 300, "report": 300}
+            "campaign_summary": 300, "hemispheres": 400, "report": 300}
 _CHAIN_FACTOR = 1.7            # image: 561 MB at 142 MiB of chain (demo), 332 MB at 12 MiB
 # mic * grid point * sample per second, whole image stage with its unit sources, 2 threads:
 # demo pass-1, 48 mics x 775 points x 6400 samples x 16 windows in 50.6 s.
@@ -198,6 +199,13 @@ class CampaignPlan:
 
     def pass_results(self, files) -> list[str]:
         return [f"{self.output}/{p}/{f}" for p in self.passes for f in files]
+
+    def hemisphere_files(self) -> list[str]:
+        """Every label's hemisphere files (:mod:`flyover.io.results.hemisphere`)."""
+        labels = (p.label for p in self.campaign.passes.values())
+        return [f"{self.output}/{hemisphere.FOLDER}/{folder}/{f}"
+                for folder in hemisphere.label_folders(labels).values()
+                for f in hemisphere.FILES]
 
     def targets(self) -> list[str]:
         return [f"{self.output}/report.html", f"{self.output}/campaign_levels.csv"]

@@ -27,9 +27,30 @@ rule campaign_summary:
         '"$FLYOVER_PYTHON" -m flyover stage-campaign summary > {log:q} 2>&1'
 
 
+rule hemispheres:
+    input:
+        PLAN.pass_results(("levels.csv",)),
+    output:
+        update([f.replace("{", "{{").replace("}", "}}") for f in PLAN.hemisphere_files()]),
+    params:
+        fingerprint=PLAN.campaign_fingerprint("hemispheres"),
+    log:
+        f"{OUTP}/logs/hemispheres.log",
+    benchmark:
+        f"{OUTP}/benchmarks/hemispheres.tsv"
+    resources:
+        mem_mb=PLAN.memory_mb(None, "hemispheres"),
+        runtime=PLAN.runtime_min(None, "hemispheres"),
+    conda:
+        CONDA_ENV,
+    shell:
+        '"$FLYOVER_PYTHON" -m flyover stage-campaign hemispheres > {log:q} 2>&1'
+
+
 rule report:
     input:
         rules.campaign_summary.output,
+        rules.hemispheres.output,
         PLAN.pass_results(("alignment.json", "windows.csv", "qc_track.png", "qc_spectrogram.png",
                            "spectra.png", "directivity.png", "event_metrics.csv",
                            "level_history.png", "reconstructed_metrics.csv")),
