@@ -15,7 +15,7 @@ import numpy as np
 from scipy.interpolate import UnivariateSpline
 from scipy.spatial.transform import Rotation, Slerp
 
-from flyover.geometry.frames import attitude_rotation, body_to_site
+from flyover.geometry.frames import attitude_rotation, body_to_site, enu_from_body_matrix
 from flyover.model.errors import FlyoverInputError, require
 
 _SPLINE_DEGREE = 5  # quintic: continuous acceleration and jerk
@@ -224,3 +224,30 @@ def straight_track(speed_m_s: float, height_m: float, heading_deg: float, overhe
                     height_m + climb_m_s * d], axis=1)
     att = np.tile([heading_deg % 360.0, pitch_deg, roll_deg], (len(t), 1))
     return fit_track(t, enu, 1e-6, attitude_deg=att), t, enu, att
+
+
+def antenna_to_origin(enu_m, attitude_deg, offset_body_m) -> np.ndarray:
+    """Move positions from the GNSS antenna to the body origin.
+
+    ``x_origin = x_antenna - R(yaw, pitch, roll) r`` with ``r`` the antenna's position in body
+    axes (x forward, y starboard, z down) and R the body-to-site rotation at each sample.
+
+    Parameters
+    ----------
+    enu_m : ndarray, shape (n, 3)
+    attitude_deg : ndarray, shape (n, 3)
+        Yaw, pitch, roll.
+    offset_body_m : sequence of 3 floats
+    """
+    att = np.asarray(attitude_deg, float)
+    rot = enu_from_body_matrix(attitude_rotation(att[:, 0], att[:, 1], att[:, 2]))
+    return np.asarray(enu_m, float) - rot @ np.asarray(offset_body_m, float)
+
+
+def heading_from_ground_track(utc_ns, enu_m) -> np.ndarray:
+    """Yaw, pitch, roll (deg) with the yaw along the ground velocity and no pitch or roll: the
+    attitude assumed for a lever arm when the track has none."""
+    t = (np.asarray(utc_ns, np.int64) - int(utc_ns[0])) / 1e9
+    v = np.gradient(np.asarray(enu_m, float), t, axis=0)
+    yaw = np.mod(np.rad2deg(np.arctan2(v[:, 0], v[:, 1])), 360.0)
+    return np.stack([yaw, np.zeros_like(yaw), np.zeros_like(yaw)], axis=1)

@@ -19,7 +19,8 @@ from flyover.acoustics.hemisphere import HemisphereSettings
 from flyover.acoustics.uncertainty import InputUncertainty
 from flyover.imaging.methods import DEFAULT_METHOD, methods
 from flyover.io.timestamps import parse_utc_ns
-from flyover.model.campaign import (AnalysisSettings, ArraySpec, Campaign, PassSpec,
+from flyover.model.campaign import (AnalysisSettings, ArraySpec, Campaign, PassSpec, RotorSpec,
+                                    WeatherLimits, WeatherSpec,
                                     RecorderSpec, ReferenceFlight, Region, VehicleGrid)
 from flyover.model.errors import FlyoverInputError, suggest
 
@@ -362,18 +363,29 @@ def campaign_from_mapping(data: dict, path: Path) -> Campaign:
                       tuple(arr.get("exclude_channels", ())), tuple(arr.get("keep_channels", ())),
                       tuple(arr.get("extra_channels", ())))
     default_atm = data.get("atmosphere", {})
+    weather = None
+    if "weather" in data:
+        weather = WeatherSpec(_resolve_path(base, data["weather"]),
+                              WeatherLimits(**data.get("weather_limits", {})))
     passes = {}
     for name, p in data["passes"].items():
         where = f"passes.{name}"
         recorders = _recorders(p, base, source, where)
+        if weather is not None and "atmosphere" in p:
+            raise FlyoverInputError("a pass types its atmosphere although the campaign has a "
+                                    "weather file", f"{source}, key {where}.atmosphere",
+                                    "the weather file's means over the pass, or typed numbers "
+                                    "without a weather file", "both",
+                                    "drop one of them (the campaign-level 'atmosphere' may "
+                                    "still give what the station does not measure)")
         passes[name] = PassSpec(
             name=name,
             recorders=recorders,
             calibration=_resolve_path(base, p["calibration"]) if "calibration" in p else None,
             track=_resolve_path(base, p["track"]),
             clock_offset_s=p.get("clock_offset_s", 0.0),
-            atmosphere=_atmosphere({**default_atm, **p.get("atmosphere", {})},
-                                   f"{where}.atmosphere"),
+            atmosphere=None if weather is not None else _atmosphere(
+                {**default_atm, **p.get("atmosphere", {})}, f"{where}.atmosphere"),
             label=p.get("label", ""),
             track_time_scale=p.get("track_time_scale", "utc"),
             track_height_datum=p.get("track_height_datum", "ellipsoidal"),
@@ -382,6 +394,8 @@ def campaign_from_mapping(data: dict, path: Path) -> Campaign:
             clock_anchor_m=tuple(p["clock_anchor_m"]) if "clock_anchor_m" in p else None,
             clock_search_s=float(p.get("clock_search_s", 1.0)),
             keep_channels=tuple(p.get("keep_channels", ())),
+            track_antenna_offset_m=(tuple(float(v) for v in p["track_antenna_offset_m"])
+                                    if "track_antenna_offset_m" in p else None),
         )
     geoid = site_cfg.get("geoid_undulation_m")
     needs_geoid = array.height_datum == "msl" or any(
@@ -449,5 +463,8 @@ def campaign_from_mapping(data: dict, path: Path) -> Campaign:
     _check_regions_apart(regions, grid, source)
     outline = tuple(_range(v) for v in veh.get("outline_m", ()))
     scenario = _resolve_path(base, data["scenario"]) if "scenario" in data else None
+    rotors = {n: RotorSpec(n, tuple(float(v) for v in r["body_m"]), int(r["blades"]),
+                           int(r["motor"])) for n, r in veh.get("rotors", {}).items()}
     return Campaign(path, site, None if geoid is None else float(geoid), array, passes, grid,
-                    regions, analysis, _resolve_path(base, data["output"]), outline, scenario)
+                    regions, analysis, _resolve_path(base, data["output"]), outline, scenario,
+                    rotors, weather)

@@ -62,8 +62,10 @@ def track_figure(inputs, summary: dict, windows_s=None):
     pos = track.position(t)
     c = inputs.layout.center_enu_m
     lo, hi = summary["covered_s"]
-    fig, (ax_plan, ax_side) = plt.subplots(1, 2, figsize=(11, 4.4),
-                                           gridspec_kw={"width_ratios": [1.25, 1]})
+    rotors = getattr(inputs, "rotors", ())
+    fig, axes = plt.subplots(1, 3 if rotors else 2, figsize=(15.5 if rotors else 11, 4.4),
+                             gridspec_kw={"width_ratios": [1.25, 1, 1][:3 if rotors else 2]})
+    ax_plan, ax_side = axes[0], axes[1]
     ax_plan.plot(pos[:, 0], pos[:, 1], color="#9aa3ad", lw=1.0, label="track")
     rec = (t >= lo) & (t <= hi)
     ax_plan.plot(pos[rec, 0], pos[rec, 1], color=INK, lw=2.0, label="while recording")
@@ -109,6 +111,18 @@ def track_figure(inputs, summary: dict, windows_s=None):
     ax_side.axvline(summary["overhead_s"], color=ARRAY, lw=1.2, ls="--")
     ax_side.set_title(f"closest {summary['closest_distance_m']:.1f} m at "
                       f"t = {summary['overhead_s']:.2f} s")
+    if rotors:
+        ax_rpm = axes[2]
+        colours = [INK, ACCENT, ARRAY, "#7a4e9e", "#b03a2e", "#4a7a1f"]
+        for k, r in enumerate(rotors):
+            ax_rpm.plot(r.time_s, r.rpm, lw=1.2, color=colours[k % len(colours)],
+                        label=f"{r.spec.name} (motor {r.spec.motor}, {r.spec.blades} blades)")
+        ax_rpm.axvspan(lo, hi, color="#efe9dd", zorder=0)
+        ax_rpm.set_xlim(ax_side.get_xlim())
+        ax_rpm.set_xlabel("time after recording start (s)")
+        ax_rpm.set_ylabel("rotor speed (rpm)")
+        ax_rpm.set_title("rotor speeds from the flight log")
+        ax_rpm.legend(fontsize=8, frameon=False)
     fig.tight_layout()
     return fig
 

@@ -82,7 +82,9 @@ def load_scenario(path) -> tuple[Scenario, SiteFrame, dict]:
                 format=r.get("format", "wav"), file_s=r.get("file_s"),
                 start_after_s=r.get("start_after_s", 0.0),
                 clock_error_s=r.get("clock_error_s", 0.0), drift_ppm=r.get("drift_ppm", 0.0),
-                timing=tuple(r.get("timing", ()))) for r in p.get("recorders", ()))))
+                timing=tuple(r.get("timing", ()))) for r in p.get("recorders", ())),
+            track_format=p.get("track_format", "csv"),
+            motor_rpm={int(k): float(v) for k, v in p.get("motor_rpm", {}).items()}))
     for ps in passes:
         mics = [m for r in ps.recorders for m in r.microphones]
         if ps.recorders and sorted(mics) != list(range(1, len(mics_enu) + 1)):
@@ -106,5 +108,6 @@ def load_scenario(path) -> tuple[Scenario, SiteFrame, dict]:
         sample_rate_hz=float(rec["sample_rate_hz"]), noise_spl_db=float(rec["noise_spl_db"]),
         pa_per_unit=float(rec["pa_per_unit"]),
         calibration_spread_db=float(rec.get("calibration_spread_db", 0.0)),
-        gnss_rate_hz=float(gnss["rate_hz"]), gnss_noise_m=float(gnss["noise_m"]))
+        gnss_rate_hz=float(gnss["rate_hz"]), gnss_noise_m=float(gnss["noise_m"]),
+        weather=data.get("weather"))
     return scenario, site, data

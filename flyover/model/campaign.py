@@ -7,7 +7,7 @@ stages take them, never the raw config mapping.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, fields
+from dataclasses import dataclass, field, fields
 from pathlib import Path
 
 import numpy as np
@@ -195,6 +195,9 @@ class PassSpec:
 
     ``clock_offset_s`` is common to all recorders (a number, or ``"auto"`` for the acoustic
     estimate); ``calibration`` is the pass's table for recorders without their own.
+    ``atmosphere`` is None when the campaign's weather file gives it (resolved per pass when the
+    pass is loaded); ``track_antenna_offset_m`` is the GNSS antenna's position in body axes
+    (None: the track is the body origin's).
     """
 
     name: str
@@ -202,7 +205,7 @@ class PassSpec:
     calibration: Path | None
     track: Path
     clock_offset_s: float | str
-    atmosphere: Atmosphere
+    atmosphere: Atmosphere | None
     label: str = ""
     track_time_scale: str = "utc"
     track_height_datum: str = "ellipsoidal"
@@ -211,6 +214,7 @@ class PassSpec:
     clock_anchor_m: tuple[float, float, float] | None = None
     clock_search_s: float = 1.0
     keep_channels: tuple[int, ...] = ()
+    track_antenna_offset_m: tuple[float, float, float] | None = None
 
     def input_files(self) -> list[Path]:
         """Every file of the pass: recordings, calibrations and the track."""
@@ -226,8 +230,51 @@ class PassSpec:
 # What a per-pass stage may read of its pass: everything but the label, which only groups passes
 # in the campaign summary (a relabelled pass re-runs the summary, not the pass).
 PASS_SETTINGS = tuple(f"passes.{{pass}}.{f.name}" for f in fields(PassSpec) if f.name != "label")
-# What loading a pass reads (flyover.pipeline.context.load_pass): the array and the site frame.
-PASS_INPUTS = ("site", "geoid_undulation_m", "array", "config_path") + PASS_SETTINGS
+# What loading a pass reads (flyover.pipeline.context.load_pass): the array, the site frame, the
+# rotors the track's motor speeds belong to, the weather file and the span it is averaged over.
+PASS_INPUTS = ("site", "geoid_undulation_m", "array", "config_path", "rotors", "weather",
+               "analysis.max_polar_offset_deg") + PASS_SETTINGS
+
+
+@dataclass(frozen=True)
+class RotorSpec:
+    """A rotor or propeller of the vehicle: where it is, its blades, and its motor in the log.
+
+    Attributes
+    ----------
+    name : str
+    body_m : (float, float, float)
+        Hub position in body axes.
+    blades : int
+    motor : int
+        Its motor (ESC) number in the flight log, from 1.
+    """
+
+    name: str
+    body_m: tuple[float, float, float]
+    blades: int
+    motor: int
+
+
+@dataclass(frozen=True)
+class WeatherLimits:
+    """How much the weather over a pass may vary, and how windy it may be, before the pass is
+    flagged. The mean-wind limits are common certification practice (12 kt mean wind and 7 kt
+    crosswind, 14 CFR 36 Appendix A and ICAO Annex 16 flyover practice, from memory); the
+    spreads over the pass (highest minus lowest sample) are our choice."""
+
+    wind_mean_max_m_s: float = 6.17
+    crosswind_mean_max_m_s: float = 3.6
+    wind_spread_max_m_s: float = 3.0
+    temperature_spread_max_k: float = 1.0
+
+
+@dataclass(frozen=True)
+class WeatherSpec:
+    """A weather station's file for the whole campaign and the limits a pass is held to."""
+
+    path: Path
+    limits: WeatherLimits = WeatherLimits()
 
 
 @dataclass(frozen=True)
@@ -260,10 +307,14 @@ class Campaign:
     output: Path
     outline_m: tuple[tuple[float, float], ...] = ()
     scenario: Path | None = None
+    rotors: dict[str, RotorSpec] = field(default_factory=dict)
+    weather: WeatherSpec | None = None
 
     def input_files(self) -> list[Path]:
-        """Every input file the campaign names: config, layout, recordings, calibrations, tracks."""
-        files = [self.config_path, self.array.layout]
+        """Every input file the campaign names: config, layout, weather, recordings,
+        calibrations, tracks."""
+        files = [self.config_path, self.array.layout] + ([self.weather.path] if self.weather
+                                                         else [])
         for p in self.passes.values():
             files += p.input_files()
         return list(dict.fromkeys(files))

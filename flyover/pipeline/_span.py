@@ -30,7 +30,7 @@ def dedopplerize_span(campaign: Campaign, inputs: PassInputs, start_s: float, n_
     band = campaign.analysis.band_min_hz
     settings = ChainSettings(third_octave_bands(band, band), np.ones(len(inputs.weights)),
                              campaign.array.pressure_gain, "cubic", absorption=False)
-    geo = reception_geometry(track, span, [body_m], inputs.layout.enu_m, inputs.spec.atmosphere,
+    geo = reception_geometry(track, span, [body_m], inputs.layout.enu_m, inputs.atmosphere,
                              settings.pressure_gain, node_step=settings.node_step)
     first, count = required_frames(geo, inputs.clock, "cubic")
     if not inputs.holds(first, count):

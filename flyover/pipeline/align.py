@@ -100,7 +100,7 @@ def _estimate_offset(campaign: Campaign, inputs):
         return inputs.read_pressure_pa(first, n, pad=True)
 
     estimate = estimate_clock_offset(read_frames, inputs.track, pick, spec.clock_anchor_m,
-                                     inputs.layout.enu_m, spec.atmosphere, inputs.clock,
+                                     inputs.layout.enu_m, inputs.atmosphere, inputs.clock,
                                      settings, max_offset_s=search)
     hint = "check clock_anchor_m, or give clock_offset_s as a number from a timing log"
     if not estimate.coherence >= MIN_ANCHOR_COHERENCE:

@@ -178,6 +178,7 @@ def format_summary(campaign: Campaign, summaries: list[dict]) -> str:
             *_recorder_lines(s),
             f"    recording from {s['epoch_utc']} ({clock}); "
             f"track {s['track_start_utc']} to {s['track_end_utc']}",
+            *_track_lines(s),
             f"    track covers {s['covered_s'][1] - s['covered_s'][0]:.2f} s of the recording; "
             f"overhead at {s['overhead_utc']} (t = {s['overhead_s']:.2f} s)",
             f"    closest {s['closest_distance_m']:.1f} m, "
@@ -187,6 +188,31 @@ def format_summary(campaign: Campaign, summaries: list[dict]) -> str:
         lines += [f"    warning: {w}" for w in s.get("warnings", [])]
     lines.append("all inputs are valid")
     return "\n".join(lines)
+
+
+def _track_lines(s: dict) -> list[str]:
+    """The track's source, rate, span, contents and noise; rotor speeds; the weather."""
+    t = s["track"]
+    lever = (f", antenna at {t['antenna_offset_m']} m in body axes"
+             if t["antenna_offset_m"] is not None else "")
+    lines = [f"    track {t['file']}: {t['source']}, {t['rate_hz']:.1f} Hz, {t['samples']} "
+             f"samples from {t['start_utc']} to {t['end_utc']}; holds "
+             f"{', '.join(t['holds'])}; position noise ~"
+             f"{t['position_noise_estimate_m'] * 100:.1f} cm{lever}"]
+    lines += [f"      {n}" for n in t["notes"]]
+    for r in s["rotors"]:
+        lines.append(f"    rotor {r['rotor']} (motor {r['motor']}, {r['blades']} blades): "
+                     f"{r['samples']} speed samples, mean {r['rpm_mean']:.0f} rpm, blade "
+                     f"passing {r['blade_passing_hz_mean']:.1f} Hz")
+    a, w = s["atmosphere"], s["weather"]
+    if w is not None:
+        lines.append(f"    weather file: {w['samples']} samples over {w['start_utc']} to "
+                     f"{w['end_utc']}: {a['temperature_c']:.1f} C (spread "
+                     f"{w['temperature_spread_k']:.1f} K), {a['relative_humidity_pct']:.0f} %, "
+                     f"wind {a['wind_speed_m_s']:.1f} m/s from {a['wind_from_deg']:.0f} deg "
+                     f"(spread {w['wind_speed_spread_m_s']:.1f} m/s)")
+        lines += [f"    warning: weather {f}" for f in w["flags"]]
+    return lines
 
 
 def _recorder_lines(s: dict) -> list[str]:

@@ -3,20 +3,26 @@
 from __future__ import annotations
 
 import os
+import dataclasses
 from dataclasses import dataclass
 
 import numpy as np
 
 from flyover.acoustics.bands import third_octave_bands
 from flyover.geometry.overview import pass_geometry
-from flyover.geometry.track import TrackModel, fit_track
+from flyover.acoustics.atmosphere import Atmosphere
+from flyover.acoustics.weather import weather_flags, weather_over
+from flyover.geometry.track import (TrackModel, antenna_to_origin, fit_track,
+                                    heading_from_ground_track)
+from flyover.geometry.windows import polar_angle_deg
 from flyover.imaging.dedoppler import ChainSettings, window_memory_bytes
 from flyover.io.readers import read
 from flyover.io.recorders import JoinedRecording, join_files
 from flyover.io.readers.layout_csv import ArrayLayout
 from flyover.io.results import pass_output_bytes
 from flyover.io.results.alignment import read_alignment
-from flyover.model.campaign import Campaign, PassSpec, RecorderSpec
+from flyover.model.campaign import Campaign, PassSpec, RecorderSpec, RotorSpec
+from flyover.model.flightdata import TrackSamples
 from flyover.model.errors import FlyoverInputError, suggest
 from flyover.sync.timebase import ArrayClock, RecordingClock, iso_utc
 from flyover.sync.timecode import TimingFit, measure_clock
@@ -66,9 +72,18 @@ class PassInputs:
     clock : ArrayClock
         Every microphone's sample clock on the pass epoch (the first recorder's corrected start).
     track : TrackModel
-        Times in seconds after the clock's epoch.
+        Times in seconds after the clock's epoch (the body origin's path).
     weights : ndarray, shape (n_mics,)
         1 for microphones used, 0 for excluded ones.
+    atmosphere : Atmosphere
+        The pass's: typed, or the weather file's mean over the analysed stretch.
+    track_samples : TrackSamples
+        The track file's samples over the recording (as read: antenna positions).
+    rotors : tuple of RotorSpeeds
+        The campaign's rotors with their speeds from the track file (empty without).
+    weather : dict or None
+        The weather file's summary over the pass (:func:`flyover.acoustics.weather.weather_over`)
+        with its ``flags``; None when the atmosphere was typed.
     """
 
     spec: PassSpec
@@ -78,6 +93,10 @@ class PassInputs:
     clock: ArrayClock
     track: TrackModel
     weights: np.ndarray
+    atmosphere: Atmosphere
+    track_samples: TrackSamples
+    rotors: tuple[RotorSpeeds, ...] = ()
+    weather: dict | None = None
 
     @property
     def sample_rate_hz(self) -> float:
@@ -143,13 +162,10 @@ class PassInputs:
     @property
     def recording_span_s(self) -> tuple[float, float]:
         """First and last times (s after the epoch) at which every recorder records."""
-        spans = [self.recorder_span_s(r) for r in self.recorders]
-        return max(s[0] for s in spans), min(s[1] for s in spans)
+        return common_span_s(self.clock, self.recorders)
 
     def recorder_span_s(self, r: RecorderInputs) -> tuple[float, float]:
-        m = r.mics[0]
-        return (float(self.clock.start_s[m]),
-                float(self.clock.start_s[m] + (r.recording.n_frames - 1) / self.clock.rate_hz[m]))
+        return recorder_span_s(self.clock, r)
 
     @property
     def duration_s(self) -> float:
@@ -163,6 +179,49 @@ class PassInputs:
         return r.clock.clock_offset_s - r.spec.clock_offset_s
 
 
+def recorder_span_s(clock: ArrayClock, r: RecorderInputs) -> tuple[float, float]:
+    """First and last sample times of a recorder, seconds after the pass epoch."""
+    m = r.mics[0]
+    return (float(clock.start_s[m]),
+            float(clock.start_s[m] + (r.recording.n_frames - 1) / clock.rate_hz[m]))
+
+
+def common_span_s(clock: ArrayClock, recorders) -> tuple[float, float]:
+    """First and last times (s after the epoch) at which every recorder records."""
+    spans = [recorder_span_s(clock, r) for r in recorders]
+    return max(s[0] for s in spans), min(s[1] for s in spans)
+
+
+@dataclass(frozen=True)
+class RotorSpeeds:
+    """A rotor of the vehicle with its speed over the pass.
+
+    Attributes
+    ----------
+    spec : RotorSpec
+    time_s : ndarray, shape (n,)
+        Seconds after the pass epoch.
+    rpm : ndarray, shape (n,)
+    """
+
+    spec: RotorSpec
+    time_s: np.ndarray
+    rpm: np.ndarray
+
+    def summary(self) -> dict:
+        """What alignment.json records: the rotor, and its speed against time."""
+        return {"rotor": self.spec.name, "motor": self.spec.motor, "blades": self.spec.blades,
+                "body_m": list(self.spec.body_m), "samples": len(self.rpm),
+                "rpm_mean": float(np.mean(self.rpm)) if len(self.rpm) else None,
+                "blade_passing_hz_mean": (float(np.mean(self.rpm)) * self.spec.blades / 60.0
+                                          if len(self.rpm) else None),
+                "time_s": [round(float(t), 4) for t in self.time_s],
+                "rpm": [round(float(v), 2) for v in self.rpm]}
+
+
+# The track is cut to the recording and this margin before it is fitted: a whole flight's log
+# may hold gaps (no fix on the ground) that have nothing to do with the pass.
+TRACK_MARGIN_S = 10.0
 MAX_HEIGHT_ABOVE_ARRAY_M = 600.0
 MIN_TRACK_MOVEMENT_M = 1.0
 
@@ -223,11 +282,16 @@ def load_pass(campaign: Campaign, name: str, clock_offset_s: float | None = None
     for k, (mics, _, _) in enumerate(maps):
         mic_recorder[mics] = k
     clock = ArrayClock.of_recorders([r.clock for r in recorders], mic_recorder)
-    samples = read("track", spec.track, site=campaign.site, time_scale=spec.track_time_scale,
-                   height_datum=spec.track_height_datum,
-                   geoid_undulation_m=campaign.geoid_undulation_m)
-    track = fit_track(clock.seconds_since_epoch(samples.utc_ns), samples.enu_m,
+    span = common_span_s(clock, recorders)
+    samples = _track_samples(campaign, spec, clock, span)
+    enu = samples.enu_m
+    if spec.track_antenna_offset_m is not None:
+        att = (samples.attitude_deg if samples.attitude_deg is not None
+               else heading_from_ground_track(samples.utc_ns, enu))
+        enu = antenna_to_origin(enu, att, spec.track_antenna_offset_m)
+    track = fit_track(clock.seconds_since_epoch(samples.utc_ns), enu,
                       spec.track_position_noise_m, samples.attitude_deg, where=str(spec.track))
+    rotors = _rotor_speeds(campaign, spec, samples, clock)
     kept = set(campaign.array.keep_channels) | set(spec.keep_channels)
     excluded = (set(campaign.array.exclude_channels) | set(spec.exclude_channels)
                 | (set(int(c) for c in quality_excluded) - kept))
@@ -237,9 +301,72 @@ def load_pass(campaign: Campaign, name: str, clock_offset_s: float | None = None
                                 f"{campaign.config_path}, passes.{name}.exclude_channels",
                                 f"channels of {campaign.array.layout}", f"{unknown}")
     weights = np.array([0.0 if int(c) in excluded else 1.0 for c in layout.channel])
-    inputs = PassInputs(spec, layout, pa_per_unit, tuple(recorders), clock, track, weights)
+    inputs = PassInputs(spec, layout, pa_per_unit, tuple(recorders), clock, track, weights,
+                        spec.atmosphere, samples, rotors)
     _check_coverage(inputs)
+    if campaign.weather is not None:
+        atmosphere, weather = _weather_atmosphere(campaign, inputs)
+        inputs = dataclasses.replace(inputs, atmosphere=atmosphere, weather=weather)
     return inputs
+
+
+def _track_samples(campaign: Campaign, spec: PassSpec, clock: ArrayClock,
+                   span_s: tuple[float, float]) -> TrackSamples:
+    """The track file's samples over the recording and a margin (all of them when fewer than
+    eight fall there: the coverage check then says what is wrong)."""
+    samples = read("track", spec.track, site=campaign.site, time_scale=spec.track_time_scale,
+                   height_datum=spec.track_height_datum,
+                   geoid_undulation_m=campaign.geoid_undulation_m)
+    near = samples.between(int(clock.utc_ns(span_s[0] - TRACK_MARGIN_S)),
+                           int(clock.utc_ns(span_s[1] + TRACK_MARGIN_S)))
+    return near if len(near.utc_ns) >= 8 else samples
+
+
+def _rotor_speeds(campaign: Campaign, spec: PassSpec, samples: TrackSamples,
+                  clock: ArrayClock) -> tuple[RotorSpeeds, ...]:
+    """The campaign's rotors with their motors' speeds from a flight log. A log that logs motor
+    speeds must hold every motor the rotors name; a track without any (CSV, NMEA, GPX) leaves
+    the rotors without speeds."""
+    if not campaign.rotors or not samples.motors:
+        return ()
+    logged = {m.motor: m for m in samples.motors}
+    out = []
+    for rotor in campaign.rotors.values():
+        if rotor.motor not in logged:
+            raise FlyoverInputError(
+                f"rotor '{rotor.name}' names motor {rotor.motor}, which the log does not hold",
+                f"{spec.track} (key vehicle.rotors.{rotor.name}.motor)",
+                f"one of the logged motors {sorted(logged)}", f"{rotor.motor}")
+        m = logged[rotor.motor]
+        out.append(RotorSpeeds(rotor, clock.seconds_since_epoch(m.utc_ns), m.rpm))
+    return tuple(out)
+
+
+def analysed_stretch_s(inputs: PassInputs, max_polar_offset_deg: float) -> tuple[float, float]:
+    """The stretch of the track, while every recorder records, within ``max_polar_offset_deg``
+    of overhead (seconds after the epoch): what the pass's windows analyse."""
+    rec = inputs.recording_span_s
+    lo, hi = max(inputs.track.start_s, rec[0]), min(inputs.track.end_s, rec[1])
+    t = np.arange(lo, hi, 0.02)
+    polar = polar_angle_deg(inputs.track.velocity(t), inputs.track.position(t),
+                            inputs.layout.center_enu_m)
+    inside = t[np.abs(polar - 90.0) <= max_polar_offset_deg]
+    return (float(inside[0]), float(inside[-1])) if len(inside) > 1 else (lo, hi)
+
+
+def _weather_atmosphere(campaign: Campaign, inputs: PassInputs) -> tuple[Atmosphere, dict]:
+    """The weather file's mean atmosphere over the analysed stretch, its summary and flags."""
+    weather = campaign.weather
+    lo, hi = analysed_stretch_s(inputs, campaign.analysis.max_polar_offset_deg)
+    samples = read("weather", weather.path)
+    atm, summary = weather_over(samples, int(inputs.clock.utc_ns(lo)),
+                                int(inputs.clock.utc_ns(hi)), where=str(weather.path))
+    v = inputs.track.velocity(np.array([0.5 * (lo + hi)]))[0]
+    heading = float(np.rad2deg(np.arctan2(v[0], v[1])))
+    summary["flags"] = weather_flags(summary, weather.limits, heading)
+    summary["start_utc"], summary["end_utc"] = (iso_utc(summary.pop("start_utc_ns")),
+                                                iso_utc(summary.pop("end_utc_ns")))
+    return atm, summary
 
 
 def _recorder_channel(value, stream: JoinedRecording, where: str) -> int:
@@ -413,7 +540,7 @@ def pass_summary(inputs: PassInputs) -> dict:
     """The facts `flyover check` prints and the alignment stage records for one pass."""
     geo = pass_geometry(inputs.track, inputs.layout.center_enu_m, inputs.recording_span_s)
     clock = inputs.clock
-    atm = inputs.spec.atmosphere
+    atm = inputs.atmosphere
     return {
         "pass": inputs.spec.name,
         "channels": int(inputs.n_channels),
@@ -437,7 +564,27 @@ def pass_summary(inputs: PassInputs) -> dict:
         "speed_of_sound_m_s": atm.c_m_s,
         "array_aperture_m": inputs.layout.aperture_m,
         "array_center_enu_m": [float(v) for v in inputs.layout.center_enu_m],
+        "atmosphere": {"temperature_c": atm.temperature_c,
+                       "relative_humidity_pct": atm.relative_humidity_pct,
+                       "pressure_kpa": atm.pressure_kpa, "wind_speed_m_s": atm.wind_speed_m_s,
+                       "wind_from_deg": atm.wind_from_deg,
+                       "speed_of_sound_m_s": atm.speed_of_sound_m_s,
+                       "source": "typed" if inputs.weather is None else "weather file"},
+        "weather": inputs.weather,
+        "track": track_summary(inputs),
+        "rotors": [r.summary() for r in inputs.rotors],
     }
+
+
+def track_summary(inputs: PassInputs) -> dict:
+    """The track file's source, rate, span over the pass, what it holds and what was dropped."""
+    s = inputs.track_samples
+    return {"file": inputs.spec.track.name, "source": s.source, "rate_hz": s.rate_hz(),
+            "start_utc": iso_utc(int(s.utc_ns[0])), "end_utc": iso_utc(int(s.utc_ns[-1])),
+            "samples": len(s.utc_ns), "holds": s.holds, "notes": list(s.notes),
+            "antenna_offset_m": (list(inputs.spec.track_antenna_offset_m)
+                                 if inputs.spec.track_antenna_offset_m is not None else None),
+            "position_noise_estimate_m": inputs.track.residual_rms_m()}
 
 
 def recorder_summary(inputs: PassInputs, r: RecorderInputs) -> dict:

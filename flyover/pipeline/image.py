@@ -43,7 +43,7 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path, *, threads: int = 1,
     inputs, _ = load_aligned_pass(campaign, pass_name, out_dir)
     check_memory(campaign, inputs)
     an = campaign.analysis
-    atm = inputs.spec.atmosphere
+    atm = inputs.atmosphere
     clock = inputs.clock
     bands = third_octave_bands(an.band_min_hz, an.band_max_hz)
     fs = inputs.sample_rate_hz

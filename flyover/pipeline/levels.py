@@ -27,7 +27,7 @@ UNRESOLVED = "not separable: region centres closer than one main-lobe width"
 
 # What this stage reads of the campaign (flyover.model.reads): its re-run fingerprint too.
 READS = ("regions", "analysis.reference_distance_m", "analysis.reference_atmosphere",
-         "analysis.spectra_polar_deg", "analysis.uncertainty", "passes.{pass}.atmosphere")
+         "analysis.spectra_polar_deg", "analysis.uncertainty")
 
 
 
@@ -140,7 +140,7 @@ def with_uncertainty(levels: pd.DataFrame, alignment: dict, campaign: Campaign,
         polar_deg=out["polar_angle_deg"].to_numpy(float), n_mics=int(alignment["channels_used"]),
         aperture_m=float(alignment["array_aperture_m"]),
         c_m_s=float(alignment["speed_of_sound_m_s"]),
-        temperature_c=campaign.passes[pass_name].atmosphere.temperature_c,
+        temperature_c=float(alignment["atmosphere"]["temperature_c"]),
         speed_m_s=float(alignment["speed_m_s"]),
         track_m=float(alignment["track_noise_estimate_m"]),
         clock_s=clock_uncertainty_s(alignment, inputs), inputs=inputs,

@@ -156,12 +156,12 @@ def reconstruction_table(campaign: Campaign, inputs: PassInputs, summary: dict,
     dirs = directivities(levels)
     centres = {name: r.center_m for name, r in campaign.regions.items()}
     # Reception times whose emission the track holds.
-    track, obs, c = inputs.track, inputs.layout.enu_m[mic], inputs.spec.atmosphere.c_m_s
+    track, obs, c = inputs.track, inputs.layout.enu_m[mic], inputs.atmosphere.c_m_s
     first = track.start_s + np.linalg.norm(track.position(track.start_s) - obs) / c + 0.1
     measured_path = dict(track=track, observer_enu_m=obs,
                          reception_s=np.arange(max(span_s[0], first), min(span_s[1], track.end_s),
                                                1 / ENVELOPE_RATE_HZ),
-                         atmosphere=inputs.spec.atmosphere, pressure_gain=gain)
+                         atmosphere=inputs.atmosphere, pressure_gain=gain)
     duration = 2 * height_r * np.tan(np.deg2rad(85.0)) / speed_r    # 85 deg either side
     reach_s = np.hypot(height_r, speed_r * duration / 2) / an.reference_atmosphere.c_m_s
     raised = ref.observer == "raised"

@@ -44,7 +44,7 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> None:
     used = inputs.weights > 0
     beam = np.average(a[used], axis=0, weights=inputs.weights[used])
     # The same stretch as received: emission times plus about the closest travel time.
-    delay_s = summary["closest_distance_m"] / inputs.spec.atmosphere.c_m_s
+    delay_s = summary["closest_distance_m"] / inputs.atmosphere.c_m_s
     first, held = inputs.covered_frames((start + delay_s, start + delay_s + n / fs))
     signals = inputs.read_pressure_pa(first, min(n, held))
     mic = int(np.argmin(np.linalg.norm(inputs.layout.enu_m - inputs.layout.center_enu_m, axis=1)))

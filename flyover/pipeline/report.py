@@ -15,6 +15,7 @@ import numpy as np
 import pandas as pd
 
 from flyover import __version__
+from flyover.acoustics.atmosphere import Atmosphere
 from flyover.io.atomic import write_text
 from flyover.io.results.alignment import read_alignment
 from flyover.io.results.campaign_tables import CAMPAIGN_LEVELS, CAMPAIGN_OVERALL
@@ -128,11 +129,18 @@ def _level_grids(table: pd.DataFrame, group: list[str], row: str, row_text,
     return "".join(parts)
 
 
+def pass_atmosphere(alignment: dict) -> Atmosphere:
+    """The atmosphere a pass was processed with (typed or from the weather file)."""
+    a = alignment["atmosphere"]
+    return Atmosphere(a["temperature_c"], a["relative_humidity_pct"], a["pressure_kpa"],
+                      a["wind_speed_m_s"], a["wind_from_deg"], a.get("speed_of_sound_m_s"))
+
+
 def _pass_section(campaign: Campaign, name: str, out: Path) -> str:
     d = out / name
     al = read_alignment(d)
     spec = campaign.passes[name]
-    atm = spec.atmosphere
+    atm = pass_atmosphere(al)
     windows = WINDOWS.read(d)
     done = windows[windows["status"] == "analysed"]
     warnings = []
@@ -147,6 +155,10 @@ def _pass_section(campaign: Campaign, name: str, out: Path) -> str:
     if len(skipped):
         warnings.append(f"{len(skipped)} window(s) skipped: "
                         + "; ".join(sorted(set(skipped["reason"].astype(str)))))
+    weather = al.get("weather") or {}
+    for flag in weather.get("flags", []):
+        warnings.append(f"weather over the pass: {flag} (the levels use the mean; fly again or "
+                        "justify)")
     tq = al.get("track_quality", {})
     if tq.get("position_noise_estimate_m", 0) > 3 * spec.track_position_noise_m:
         warnings.append(f"track noise estimate {tq['position_noise_estimate_m']:.3f} m is over "
@@ -357,11 +369,13 @@ def run(campaign: Campaign, out_dir: Path) -> None:
     camp = CAMPAIGN_LEVELS.read(out)
     overall = CAMPAIGN_OVERALL.read(out)
     passes = pd.DataFrame([{"pass": n, "label": p.label,
-                            "temperature (C)": p.atmosphere.temperature_c,
-                            "humidity (%)": p.atmosphere.relative_humidity_pct,
-                            "wind (m/s)": p.atmosphere.wind_speed_m_s,
-                            "recording": ", ".join(f.name for f in p.recording_files)}
-                           for n, p in campaign.passes.items()])
+                            "temperature (C)": a.temperature_c,
+                            "humidity (%)": a.relative_humidity_pct,
+                            "wind (m/s)": a.wind_speed_m_s,
+                            "recording": ", ".join(f.name for f in p.recording_files),
+                            "track": p.track.name}
+                           for n, p in campaign.passes.items()
+                           for a in [pass_atmosphere(read_alignment(out / n))]])
     shown = camp[np.isfinite(camp["mean_db"])] if len(camp) else camp
     n_flags = int(shown["wide_interval"].sum()) if len(shown) else 0
     an = campaign.analysis

@@ -16,6 +16,7 @@ from flyover.io.readers.soundfile_recording import write_recording
 from flyover.io.readers.tdms_recording import write_tdms
 from flyover.io.scenario import load_scenario
 from flyover.model.errors import FlyoverInputError
+from flyover.sim.flightlogs import ESC_REPORT, px4_topics, write_ulog
 from flyover.sim.scenario import PassScenario, simulate_pass
 from flyover.sim.timing import irig_b_signal, pps_signal
 from flyover.sync.timebase import iso_utc
@@ -26,7 +27,8 @@ def pass_files(out_dir: Path, ps: PassScenario, fmt: str = "wav",
     """Where the simulator writes the files of one pass: ``recording`` (one path) or
     ``recorders`` (name -> list of paths), ``calibration`` and ``track``."""
     base = Path(out_dir) / ps.name
-    files = {"calibration": base / "calibration.csv", "track": base / "track.csv"}
+    files = {"calibration": base / "calibration.csv",
+             "track": base / f"track{TRACK_SUFFIX[ps.track_format]}"}
     if not ps.recorders:
         return {"recording": base / f"recording.{fmt}", **files}
     n = int(round(ps.duration_s * sample_rate_hz))
@@ -38,7 +40,11 @@ def pass_files(out_dir: Path, ps: PassScenario, fmt: str = "wav",
     return {"recorders": recs, **files}
 
 
+TRACK_SUFFIX = {"csv": ".csv", "ulog": ".ulg"}
+DEMO_GEOID_M = 47.6    # geoid height the simulated autopilot reports (its log has both heights)
+WEATHER_FILE = "weather.csv"
 TIMING_NOISE = 0.001   # full-scale units, on timing channels whose pulses are 0.5
+RPM_NOISE = 5.0        # rpm, 1-sigma scatter of an ESC's speed reading
 
 
 def _write_recorders(ps: PassScenario, sim, fs: float, subtype: str, paths: dict) -> None:
@@ -68,6 +74,59 @@ def _write_recorders(ps: PassScenario, sim, fs: float, subtype: str, paths: dict
             else:
                 write_recording(path, part, fs, subtype,
                                 start_utc_ns=stamp if r.format == "bwf" else None)
+
+
+def _write_track(path, ps: PassScenario, sim, site) -> None:
+    """The pass's GNSS track as the scenario says it was logged: flyover's CSV, or a PX4 ULog
+    with the attitude and the motors' speeds (constant at ``motor_rpm`` with an ESC's reading
+    scatter)."""
+    utc = ps.epoch_utc_ns + np.round(sim.gnss_time_s * 1e9).astype(np.int64)
+    lat, lon, h = site.to_wgs84(sim.gnss_enu_m)
+    att = sim.gnss_attitude_deg
+    if ps.track_format == "ulog":
+        rng = np.random.default_rng(ps.seed + 4)
+        rpm = np.array([ps.motor_rpm[m] + rng.normal(0.0, RPM_NOISE, len(utc))
+                        for m in sorted(ps.motor_rpm)]) if ps.motor_rpm else None
+        write_ulog(path, px4_topics(utc, lat, lon, h, att, geoid_m=DEMO_GEOID_M, rpm=rpm),
+                   nested=ESC_REPORT)
+        return
+    write_csv(path, pd.DataFrame({
+        "time_utc": [iso_utc(int(u)) for u in utc], "lat_deg": lat, "lon_deg": lon,
+        "height_m": h, "roll_deg": att[:, 2], "pitch_deg": att[:, 1], "yaw_deg": att[:, 0]}),
+        float_format="%.9f")
+
+
+def write_weather(path, scenario) -> None:
+    """A weather mast's 1 Hz log over the whole campaign: each pass's atmosphere over its pass
+    (plus the scenario's scatter), moving linearly between passes."""
+    cfg = scenario.weather
+    rate = float(cfg.get("rate_hz", 1.0))
+    rng = np.random.default_rng(int(cfg.get("seed", 7)))
+    passes = sorted(scenario.passes, key=lambda p: p.epoch_utc_ns)
+    margin_ns = 60 * 1_000_000_000
+    t = np.arange(passes[0].epoch_utc_ns - margin_ns,
+                  passes[-1].epoch_utc_ns + int(passes[-1].duration_s * 1e9) + margin_ns,
+                  int(1e9 / rate))
+    keys = [p.epoch_utc_ns + int(0.5 * p.duration_s * 1e9) for p in passes]
+
+    def along(values):
+        return np.interp(t, keys, values)
+
+    a = [p.atmosphere for p in passes]
+    wind = np.array([[x.wind_speed_m_s * np.sin(np.deg2rad(x.wind_from_deg)),
+                      x.wind_speed_m_s * np.cos(np.deg2rad(x.wind_from_deg))] for x in a])
+    east, north = along(wind[:, 0]), along(wind[:, 1])
+    speed = np.abs(np.hypot(east, north) + rng.normal(0, cfg.get("wind_sd_m_s", 0.0), len(t)))
+    direction = np.mod(np.rad2deg(np.arctan2(east, north))
+                       + rng.normal(0, cfg.get("direction_sd_deg", 0.0), len(t)), 360.0)
+    write_csv(path, pd.DataFrame({
+        "time_utc": [iso_utc(int(v)) for v in t],
+        "temperature_c": along([x.temperature_c for x in a])
+        + rng.normal(0, cfg.get("temperature_sd_k", 0.0), len(t)),
+        "relative_humidity_pct": along([x.relative_humidity_pct for x in a]),
+        "pressure_kpa": along([x.pressure_kpa for x in a]),
+        "wind_speed_m_s": speed, "wind_from_deg": direction, "sensor_height_m": 10.0}),
+        float_format="%.3f")
 
 
 def write_campaign(scenario_path, out_dir, progress=print) -> None:
@@ -104,13 +163,7 @@ def write_campaign(scenario_path, out_dir, progress=print) -> None:
         write_csv(files["calibration"], pd.DataFrame({"channel": np.arange(1, n_mics + 1),
                                                       "pa_per_unit": sim.pa_per_unit}),
                   float_format="%.9g")
-        utc = ps.epoch_utc_ns + np.round(sim.gnss_time_s * 1e9).astype(np.int64)
-        tl, tn, th = site.to_wgs84(sim.gnss_enu_m)
-        write_csv(files["track"], pd.DataFrame({
-            "time_utc": [iso_utc(int(u)) for u in utc], "lat_deg": tl, "lon_deg": tn,
-            "height_m": th, "roll_deg": sim.gnss_attitude_deg[:, 2],
-            "pitch_deg": sim.gnss_attitude_deg[:, 1], "yaw_deg": sim.gnss_attitude_deg[:, 0]}),
-            float_format="%.9f")
+        _write_track(files["track"], ps, sim, site)
         for src in scenario.sources:
             power = src.band_power_pa2(bands, ps.gain_db.get(src.name, 0.0))
             for k in np.flatnonzero(power > 0):
@@ -118,6 +171,8 @@ def write_campaign(scenario_path, out_dir, progress=print) -> None:
                                    "band_hz": bands.nominal_hz[k],
                                    "level_1m_db": level_1m_db(power[k])})
     write_csv(out / "truth.csv", pd.DataFrame(truth_rows), float_format="%.4f")
+    if scenario.weather is not None:
+        write_weather(out / WEATHER_FILE, scenario)
     if "campaign" in raw:
         write_text(out / "campaign.yaml", yaml.safe_dump(_campaign_mapping(scenario, raw, fmt),
                                                          sort_keys=False))
@@ -128,6 +183,10 @@ def _campaign_mapping(scenario, raw, fmt) -> dict:
     camp = {"site": raw["site"], "array": {"layout": "layout.csv",
                                            "mounting": raw["array"]["mounting"]}, **camp}
     camp["passes"] = {ps.name: _pass_mapping(scenario, raw, ps, fmt) for ps in scenario.passes}
+    if scenario.weather is not None:
+        camp["weather"] = WEATHER_FILE
+        for p in camp["passes"].values():
+            p.pop("atmosphere")
     camp.setdefault("output", "results")
     return camp
 

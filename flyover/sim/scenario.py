@@ -82,6 +82,8 @@ class PassScenario:
     pitch_deg: float = 0.0
     seed: int = 0
     recorders: tuple[RecorderScenario, ...] = ()
+    track_format: str = "csv"
+    motor_rpm: dict = field(default_factory=dict)
 
     @property
     def epoch_utc_ns(self) -> int:
@@ -105,6 +107,7 @@ class Scenario:
     gnss_rate_hz: float
     gnss_noise_m: float
     track_margin_s: float = 3.0
+    weather: dict | None = None
 
 
 @dataclass

@@ -14,8 +14,6 @@ import numpy as np
 
 from flyover.model.errors import require
 
-GPS_MINUS_UTC_S = 18  # leap seconds between GPS time and UTC since 2017-01-01 (IERS Bulletin C)
-
 
 def iso_utc(utc_ns: int) -> str:
     """ISO 8601 text with a 'Z' zone: milliseconds when exact, else nanoseconds.

@@ -26,7 +26,7 @@ from flyover.io.scenario import load_scenario
 from flyover.model.campaign import Campaign
 from flyover.model.errors import FlyoverInputError
 from flyover.model.reads import read_values
-from flyover.sim.demo import pass_files
+from flyover.sim.demo import WEATHER_FILE, pass_files
 
 
 @lru_cache(maxsize=1)
@@ -122,6 +122,14 @@ class CampaignPlan:
         scenario, _, raw = load_scenario(self.campaign.scenario)
         fmt = raw["recording"].get("format", "wav")
         files = [folder / "layout.csv", folder / "truth.csv"]
+        if scenario.weather is not None:
+            files.append(folder / WEATHER_FILE)
+            named = self.campaign.weather.path if self.campaign.weather else None
+            if named != folder / WEATHER_FILE:
+                raise FlyoverInputError(
+                    "a simulated campaign's weather file is where the simulator writes it",
+                    f"{self.path}, key weather", str(folder / WEATHER_FILE), str(named),
+                    "drop the 'scenario' key to use files of your own")
         for ps in scenario.passes:
             spec = self.campaign.passes.get(ps.name)
             expected = pass_files(folder, ps, fmt, scenario.sample_rate_hz)
@@ -145,7 +153,8 @@ class CampaignPlan:
 
     def pass_inputs(self, name: str) -> dict:
         spec = self.campaign.passes[name]
-        return {"files": [str(p) for p in spec.input_files()],
+        weather = [self.campaign.weather.path] if self.campaign.weather else []
+        return {"files": [str(p) for p in spec.input_files() + weather],
                 "layout": str(self.campaign.array.layout)}
 
     def memory_mb(self, name: str | None, stage: str) -> int:

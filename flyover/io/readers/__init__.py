@@ -19,7 +19,7 @@ import numpy as np
 from flyover.model.errors import FlyoverInputError
 from flyover.model.plugins import import_all
 
-KINDS = ("recording", "layout", "calibration", "track")
+KINDS = ("recording", "layout", "calibration", "track", "weather")
 
 
 class Recording(Protocol):

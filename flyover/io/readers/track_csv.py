@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-from dataclasses import dataclass
-
 import numpy as np
 
 from flyover.geometry.frames import SiteFrame
@@ -11,7 +9,8 @@ from flyover.io.csvtable import numeric_column, pick_columns, read_csv_table
 from flyover.io.readers import Reader, register
 from flyover.io.timestamps import parse_utc_ns_array
 from flyover.model.errors import FlyoverInputError
-from flyover.sync.timebase import GPS_MINUS_UTC_S
+from flyover.model.flightdata import TrackSamples
+from flyover.sync.gpstime import gps_to_utc_ns
 
 TRACK_SITE = ["time_utc", "east_m", "north_m", "up_m"]
 
@@ -20,15 +19,6 @@ TRACK_WGS84 = ["time_utc", "lat_deg", "lon_deg", "height_m"]
 
 
 ATTITUDE = ["roll_deg", "pitch_deg", "yaw_deg"]
-
-
-@dataclass(frozen=True)
-class TrackSamples:
-    """Raw track samples as read: absolute times and site-frame positions."""
-
-    utc_ns: np.ndarray
-    enu_m: np.ndarray
-    attitude_deg: np.ndarray | None  # (n, 3) yaw, pitch, roll
 
 
 def read_track(path, site: SiteFrame, time_scale: str = "utc", height_datum: str = "ellipsoidal",
@@ -41,14 +31,15 @@ def read_track(path, site: SiteFrame, time_scale: str = "utc", height_datum: str
         Columns ``time_utc`` and either ``lat_deg,lon_deg,height_m`` or ``east_m,north_m,up_m``,
         optionally ``roll_deg,pitch_deg,yaw_deg``.
     time_scale : {'utc', 'gps'}
-        'gps' when the receiver logged GPS time: UTC = GPS - 18 s (leap seconds since 2017).
+        'gps' when the receiver logged GPS time: UTC = GPS - the leap seconds in force
+        (:mod:`flyover.sync.gpstime`; 18 s since 2017).
     height_datum : {'ellipsoidal', 'msl'}
     """
     df = read_csv_table(path, "track")
     cols = pick_columns(df, [TRACK_WGS84, TRACK_SITE], path, "track")
     utc = parse_utc_ns_array(df["time_utc"], str(path), first_row=2)
     if time_scale == "gps":
-        utc = utc - GPS_MINUS_UTC_S * 1_000_000_000
+        utc = gps_to_utc_ns(utc)
     a, b, c = (numeric_column(df, k, path) for k in cols[1:])
     if cols == TRACK_WGS84:
         if np.any(np.abs(a) > 90):
@@ -76,7 +67,7 @@ def read_track(path, site: SiteFrame, time_scale: str = "utc", height_datum: str
                                     ",".join(present))
         roll, pitch, yaw = (numeric_column(df, k, path) for k in ATTITUDE)
         att = np.stack([yaw, pitch, roll], axis=1)
-    return TrackSamples(utc, enu, att)
+    return TrackSamples(utc, enu, att, "CSV")
 
 
 register(Reader("track", "CSV", (".csv", ".txt"), read_track))

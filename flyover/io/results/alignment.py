@@ -22,6 +22,7 @@ REQUIRED_KEYS = {
     "overhead_utc": "ISO 8601 UTC of the closest approach",
     "closest_distance_m": "m",
     "array_center_enu_m": "m, site frame: the array centre the emission angles point to",
+    "atmosphere": "the atmosphere used: typed, or the weather file's mean over the pass",
 }
 
 
