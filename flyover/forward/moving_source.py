@@ -92,6 +92,65 @@ class DipoleLike:
 
 
 @dataclass(frozen=True)
+class ShaftSpeed:
+    """A shaft's speed against time: rpm at knots (seconds after the pass epoch), linear between
+    and held beyond the ends."""
+
+    time_s: tuple[float, ...]
+    rpm: tuple[float, ...]
+
+    @classmethod
+    def constant(cls, rpm: float) -> "ShaftSpeed":
+        return cls((0.0,), (float(rpm),))
+
+    def rpm_at(self, time_s) -> np.ndarray:
+        return np.interp(np.asarray(time_s, float), self.time_s, self.rpm)
+
+    def revolutions(self, time_s) -> np.ndarray:
+        """Shaft angle in revolutions since t = 0: the exact integral of the piecewise-linear
+        speed (so the phase of every order is exact)."""
+        t = np.asarray(time_s, float)
+        knots = np.asarray(self.time_s, float)
+        rps = np.asarray(self.rpm, float) / 60.0
+        if len(knots) == 1:
+            return rps[0] * t
+        # Cumulative revolutions at the knots from t = 0, then within each segment.
+        grid = np.concatenate([[min(knots[0], 0.0, t.min()) - 1.0], knots,
+                               [max(knots[-1], 0.0, t.max()) + 1.0]])
+        speed = np.interp(grid, knots, rps)
+        cum = np.concatenate([[0.0], np.cumsum(np.diff(grid) * 0.5 * (speed[1:] + speed[:-1]))])
+        k = np.clip(np.searchsorted(grid, t, side="right") - 1, 0, len(grid) - 2)
+        at = np.interp(t, knots, rps)
+        rev = cum[k] + (t - grid[k]) * 0.5 * (speed[k] + at)
+        zero_k = int(np.clip(np.searchsorted(grid, 0.0, side="right") - 1, 0, len(grid) - 2))
+        zero = cum[zero_k] + (0.0 - grid[zero_k]) * 0.5 * (speed[zero_k]
+                                                           + np.interp(0.0, knots, rps))
+        return rev - zero
+
+
+@dataclass(frozen=True)
+class RotorTones:
+    """A rotor's blade-passing harmonics, locked to its shaft.
+
+    Harmonic k sits at shaft order k x ``blades``: ``A_k cos(2 pi k B rev(tau) + phi_k + j(tau))``
+    with ``rev`` the shaft's revolutions, rms level ``levels_db[k - 1]`` at 1 m, a random start
+    phase and a slow random phase jitter j of rms ``jitter_deg`` (blade-to-blade loading
+    changes), both from ``seed``.
+    """
+
+    blades: int
+    speed: ShaftSpeed
+    levels_db: tuple[float, ...]
+    jitter_deg: float = 0.0
+    motor: int = 1
+    seed: int = 0
+
+    def frequency_hz(self, k: int, time_s=0.0) -> np.ndarray:
+        """Frequency of harmonic k at emission times."""
+        return k * self.blades * self.speed.rpm_at(time_s) / 60.0
+
+
+@dataclass(frozen=True)
 class PointSource:
     """A point source fixed to the vehicle.
 
@@ -107,6 +166,8 @@ class PointSource:
     directivity : DipoleLike or None
         Its level pattern; None radiates the same in every direction. Tone and band levels
         hold along the pattern's axis.
+    rotor : RotorTones or None
+        Blade-passing harmonics locked to a shaft whose speed may change.
     """
 
     name: str
@@ -115,6 +176,7 @@ class PointSource:
     broadband: Broadband | None = None
     seed: int = 0
     directivity: DipoleLike | None = None
+    rotor: RotorTones | None = None
 
     def band_power_pa2(self, bands: ThirdOctaveBands, gain_db: float = 0.0) -> np.ndarray:
         """Expected mean-square pressure at 1 m in each band (Pa^2), tones and broadband."""
@@ -122,6 +184,11 @@ class PointSource:
         for tone in self.tones:
             inside = (bands.lower_hz <= tone.frequency_hz) & (tone.frequency_hz < bands.upper_hz)
             power[inside] += P0_PA ** 2 * 10.0 ** (tone.level_db / 10.0)
+        if self.rotor is not None:   # at the speed of t = 0
+            for k, level in enumerate(self.rotor.levels_db, start=1):
+                f = float(self.rotor.frequency_hz(k))
+                inside = (bands.lower_hz <= f) & (f < bands.upper_hz)
+                power[inside] += P0_PA ** 2 * 10.0 ** (level / 10.0)
         if self.broadband is not None:
             for k, (lo, hi) in enumerate(zip(bands.lower_hz, bands.upper_hz)):
                 f = np.geomspace(lo, hi, 513)
@@ -180,6 +247,19 @@ class SourceSignal:
         for tone in self.source.tones:
             amp = np.sqrt(2.0) * P0_PA * 10.0 ** (tone.level_db / 20.0) * self.gain
             out += amp * np.cos(2 * np.pi * tone.frequency_hz * flat + tone.phase_rad)
+        rotor = self.source.rotor
+        if rotor is not None:
+            rev = rotor.speed.revolutions(flat)
+            rng = np.random.default_rng(rotor.seed)
+            for k, level in enumerate(rotor.levels_db, start=1):
+                amp = np.sqrt(2.0) * P0_PA * 10.0 ** (level / 20.0) * self.gain
+                start = rng.uniform(0.0, 2 * np.pi)
+                # Jitter: four slow sinusoids (0.3-3 Hz) of random phase, rms jitter_deg.
+                rates, phases = rng.uniform(0.3, 3.0, 4), rng.uniform(0, 2 * np.pi, 4)
+                jitter = (np.deg2rad(rotor.jitter_deg) / np.sqrt(2.0) * np.sum(
+                    np.sin(2 * np.pi * rates[:, None] * flat[None, :] + phases[:, None]), axis=0)
+                    / 2.0)
+                out += amp * np.cos(2 * np.pi * k * rotor.blades * rev + start + jitter)
         return out.reshape(tau.shape)
 
 

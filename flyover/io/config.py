@@ -448,6 +448,7 @@ def campaign_from_mapping(data: dict, path: Path) -> Campaign:
         overall_band_range_hz=(_range(an["overall_band_range_hz"])
                                if "overall_band_range_hz" in an else None),
         hemisphere=_hemisphere(an.get("hemisphere", {})),
+        rotor_harmonics=int(an.get("rotor_harmonics", 4)),
     )
     if analysis.band_min_hz > analysis.band_max_hz:
         raise FlyoverInputError("band range inverted", f"{source}, key analysis.band_min_hz",

@@ -451,3 +451,30 @@ def coverage_figure(counts, traces, polar_deg, azimuth_deg, label: str):
                  "fly other offsets to fill the rest", fontsize=10)
     fig.tight_layout()
     return fig
+
+
+@_styled
+def rotor_tones_figure(tones, pass_name: str, note: str = ""):
+    """Each rotor's blade-passing harmonics at 1 m against polar angle (one panel a rotor)."""
+    rotors = list(dict.fromkeys(tones["rotor"])) if len(tones) else []
+    fig, axes = plt.subplots(1, max(1, len(rotors)), figsize=(4.8 * max(1, len(rotors)), 3.8),
+                             squeeze=False, sharey=True)
+    colours = [INK, ACCENT, ARRAY, "#7a4e9e", "#b03a2e", "#4a7a1f"]
+    for ax, rotor in zip(axes[0], rotors):
+        part = tones[tones["rotor"] == rotor]
+        for i, (k, g) in enumerate(part.groupby("harmonic")):
+            g = g.sort_values("polar_angle_deg")
+            ax.plot(g["polar_angle_deg"], g["level_1m_db"], marker="o", ms=3, lw=1.2,
+                    color=colours[i % len(colours)],
+                    label=f"k = {k} ({g['frequency_hz'].mean():.0f} Hz)")
+        ax.set_title(rotor)
+        ax.set_xlabel("polar emission angle (deg, 90 = overhead)")
+        ax.legend(fontsize=8, frameon=False)
+    axes[0][0].set_ylabel("harmonic level at 1 m (dB re 20 uPa)")
+    if not rotors:
+        axes[0][0].text(0.5, 0.5, note or "no rotor tones", ha="center", wrap=True,
+                        transform=axes[0][0].transAxes)
+    fig.suptitle(f"{pass_name}: blade-passing harmonics per rotor, from each rotor's own shaft "
+                 "speed (empty: not separable)", fontsize=10)
+    fig.tight_layout()
+    return fig

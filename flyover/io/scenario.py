@@ -8,7 +8,8 @@ import numpy as np
 from jsonschema import Draft202012Validator
 
 from flyover.acoustics.atmosphere import Atmosphere
-from flyover.forward.moving_source import Broadband, DipoleLike, PointSource, Tone
+from flyover.forward.moving_source import (Broadband, DipoleLike, PointSource, RotorTones,
+                                           ShaftSpeed, Tone)
 from flyover.geometry.frames import SiteFrame
 from flyover.io.config import read_schema, read_yaml
 from flyover.io.timestamps import parse_utc_ns
@@ -30,6 +31,13 @@ def _validate(data: dict, source: str) -> None:
             hint = suggest(bad, (err.schema.get("properties") or {}).keys())
         raise FlyoverInputError(err.message, f"{source}, key {where}" if where else source,
                                 hint=hint)
+
+
+def shaft_speed(value) -> ShaftSpeed:
+    """A constant rpm, or ``[[time_s, rpm], ...]`` knots (seconds after the pass epoch)."""
+    if isinstance(value, (int, float)):
+        return ShaftSpeed.constant(float(value))
+    return ShaftSpeed(tuple(float(t) for t, _ in value), tuple(float(r) for _, r in value))
 
 
 def load_scenario(path) -> tuple[Scenario, SiteFrame, dict]:
@@ -60,11 +68,15 @@ def load_scenario(path) -> tuple[Scenario, SiteFrame, dict]:
             bb["level_1khz_db"], bb.get("slope_db_per_octave", 0.0), bb.get("min_hz", 40.0),
             bb.get("max_hz", 8000.0))
         pattern = src.get("directivity")
-        sources.append(PointSource(src["name"], tuple(src["body_m"]), tones, broadband,
-                                   src.get("seed", 1000 + k),
-                                   None if pattern is None else DipoleLike(
-                                       tuple(pattern["axis_body"]),
-                                       pattern["dipole_fraction"])))
+        rotor = src.get("rotor")
+        sources.append(PointSource(
+            src["name"], tuple(src["body_m"]), tones, broadband, src.get("seed", 1000 + k),
+            None if pattern is None else DipoleLike(tuple(pattern["axis_body"]),
+                                                    pattern["dipole_fraction"]),
+            None if rotor is None else RotorTones(
+                int(rotor["blades"]), shaft_speed(rotor["rpm"]), tuple(rotor["harmonics_db"]),
+                float(rotor.get("jitter_deg", 0.0)), int(rotor.get("motor", 1)),
+                int(rotor.get("seed", 500 + k)))))
     passes = []
     for k, (name, p) in enumerate(data["passes"].items()):
         passes.append(PassScenario(
@@ -84,7 +96,7 @@ def load_scenario(path) -> tuple[Scenario, SiteFrame, dict]:
                 clock_error_s=r.get("clock_error_s", 0.0), drift_ppm=r.get("drift_ppm", 0.0),
                 timing=tuple(r.get("timing", ()))) for r in p.get("recorders", ())),
             track_format=p.get("track_format", "csv"),
-            motor_rpm={int(k): float(v) for k, v in p.get("motor_rpm", {}).items()}))
+            rotor_rpm={name: shaft_speed(v) for name, v in p.get("rotor_rpm", {}).items()}))
     for ps in passes:
         mics = [m for r in ps.recorders for m in r.microphones]
         if ps.recorders and sorted(mics) != list(range(1, len(mics_enu) + 1)):

@@ -123,6 +123,8 @@ class AnalysisSettings:
         used microphone nearest the array centre).
     hemisphere : HemisphereSettings
         The grid, fit and band ranges of the directivity hemispheres.
+    rotor_harmonics : int
+        Blade-passing harmonics fitted per rotor (k = 1..K).
     """
 
     window_s: float
@@ -142,6 +144,7 @@ class AnalysisSettings:
     uncertainty: InputUncertainty = InputUncertainty()
     overall_band_range_hz: tuple[float, float] | None = None
     hemisphere: HemisphereSettings = HemisphereSettings()
+    rotor_harmonics: int = 4
 
     def __post_init__(self):
         require(self.window_s > 0 and self.hop_s > 0, "window and hop must be positive",

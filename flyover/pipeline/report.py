@@ -21,6 +21,7 @@ from flyover.io.results.alignment import read_alignment
 from flyover.io.results.campaign_tables import CAMPAIGN_LEVELS, CAMPAIGN_OVERALL
 from flyover.acoustics.uncertainty import Z90
 from flyover.io.results.event_metrics import EVENT_METRICS, RECONSTRUCTED
+from flyover.io.results.rotor_tones import ROTOR_TONES
 from flyover.io.results.hemisphere import FOLDER as HEMISPHERE_FOLDER, HEMISPHERE, label_folders
 from flyover.io.results.levels_overall import LEVELS_OVERALL
 from flyover.io.results.windows import WINDOWS
@@ -204,7 +205,34 @@ available.</p>{_table(_reconstruction_table(d))}
 panel in dB re its own peak over {campaign.analysis.map_dynamic_range_db:g} dB.</p>{''.join(maps)}
 <h3>Region spectra</h3>{_img(d / "spectra.png", "region spectra")}
 <h3>Directivity</h3>{_img(d / "directivity.png", "directivity")}
+<h3>Rotor tones</h3><p class="muted">Each rotor's blade-passing harmonics, fitted along its own
+shaft angle from the logged speed (all rotors jointly, so rotors the map cannot tell apart are
+told apart by their speeds); levels at 1 m, free field. Harmonics within one frequency bin of
+another rotor's are not separable and have no level. Band levels split into the tonal part of
+the rotors whose hub lies in the region and the broadband rest: band_parts.csv.</p>
+{_table(_rotor_table(d))}
+{_img(d / "rotor_tones.png", "rotor harmonics against polar angle")}
 </section>"""
+
+
+def _rotor_table(d: Path) -> pd.DataFrame:
+    """Per rotor and harmonic: its frequency, how many windows could separate it, and its level
+    at 1 m in the window nearest overhead and over the pass."""
+    tones = ROTOR_TONES.read(d)
+    rows = []
+    for (rotor, k), g in tones.groupby(["rotor", "harmonic"], sort=True):
+        ok = g[g["separable"].astype(str).str.lower() == "true"]
+        near = ok.loc[(ok["polar_angle_deg"] - 90).abs().idxmin()] if len(ok) else None
+        rows.append({"rotor": rotor, "harmonic": int(k), "order": int(g["order"].iloc[0]),
+                     "frequency (Hz)": f"{g['frequency_hz'].mean():.1f}",
+                     "windows separable": f"{len(ok)} of {len(g)}",
+                     "level at 1 m near overhead (dB)": (
+                         f"{near['level_1m_db']:.1f} at {near['polar_angle_deg']:.0f} deg"
+                         if near is not None else ""),
+                     "range over the pass (dB)": (
+                         f"{ok['level_1m_db'].min():.1f} to {ok['level_1m_db'].max():.1f}"
+                         if len(ok) else "")})
+    return pd.DataFrame(rows)
 
 
 def _metrics_table(d: Path) -> pd.DataFrame:

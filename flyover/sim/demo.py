@@ -17,7 +17,7 @@ from flyover.io.readers.tdms_recording import write_tdms
 from flyover.io.scenario import load_scenario
 from flyover.model.errors import FlyoverInputError
 from flyover.sim.flightlogs import ESC_REPORT, px4_topics, write_ulog
-from flyover.sim.scenario import PassScenario, simulate_pass
+from flyover.sim.scenario import PassScenario, pass_source, simulate_pass
 from flyover.sim.timing import irig_b_signal, pps_signal
 from flyover.sync.timebase import iso_utc
 
@@ -76,17 +76,22 @@ def _write_recorders(ps: PassScenario, sim, fs: float, subtype: str, paths: dict
                                 start_utc_ns=stamp if r.format == "bwf" else None)
 
 
-def _write_track(path, ps: PassScenario, sim, site) -> None:
+def _write_track(path, ps: PassScenario, sim, site, sources) -> None:
     """The pass's GNSS track as the scenario says it was logged: flyover's CSV, or a PX4 ULog
-    with the attitude and the motors' speeds (constant at ``motor_rpm`` with an ESC's reading
-    scatter)."""
+    with the attitude and the speeds of the rotors' motors (with an ESC's reading scatter)."""
     utc = ps.epoch_utc_ns + np.round(sim.gnss_time_s * 1e9).astype(np.int64)
     lat, lon, h = site.to_wgs84(sim.gnss_enu_m)
     att = sim.gnss_attitude_deg
     if ps.track_format == "ulog":
         rng = np.random.default_rng(ps.seed + 4)
-        rpm = np.array([ps.motor_rpm[m] + rng.normal(0.0, RPM_NOISE, len(utc))
-                        for m in sorted(ps.motor_rpm)]) if ps.motor_rpm else None
+        rotors = sorted((s.rotor for s in (pass_source(src, ps) for src in sources)
+                         if s.rotor is not None), key=lambda r: r.motor)
+        if rotors and [r.motor for r in rotors] != list(range(1, len(rotors) + 1)):
+            raise FlyoverInputError("the simulated rotors' motors must be numbered 1, 2, ...",
+                                    f"pass {ps.name}", "motors 1 to n",
+                                    f"{[r.motor for r in rotors]}")
+        rpm = np.array([r.speed.rpm_at(sim.gnss_time_s) + rng.normal(0.0, RPM_NOISE, len(utc))
+                        for r in rotors]) if rotors else None
         write_ulog(path, px4_topics(utc, lat, lon, h, att, geoid_m=DEMO_GEOID_M, rpm=rpm),
                    nested=ESC_REPORT)
         return
@@ -163,7 +168,7 @@ def write_campaign(scenario_path, out_dir, progress=print) -> None:
         write_csv(files["calibration"], pd.DataFrame({"channel": np.arange(1, n_mics + 1),
                                                       "pa_per_unit": sim.pa_per_unit}),
                   float_format="%.9g")
-        _write_track(files["track"], ps, sim, site)
+        _write_track(files["track"], ps, sim, site, scenario.sources)
         for src in scenario.sources:
             power = src.band_power_pa2(bands, ps.gain_db.get(src.name, 0.0))
             for k in np.flatnonzero(power > 0):

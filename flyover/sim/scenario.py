@@ -5,7 +5,7 @@ The physics lives in :mod:`flyover.forward.moving_source`; this module only sets
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -83,7 +83,7 @@ class PassScenario:
     seed: int = 0
     recorders: tuple[RecorderScenario, ...] = ()
     track_format: str = "csv"
-    motor_rpm: dict = field(default_factory=dict)
+    rotor_rpm: dict = field(default_factory=dict)    # source name -> ShaftSpeed for this pass
 
     @property
     def epoch_utc_ns(self) -> int:
@@ -134,6 +134,13 @@ def pass_truth_track(scenario: Scenario, ps: PassScenario) -> TrackModel:
     return model
 
 
+def pass_source(source: PointSource, ps: PassScenario) -> PointSource:
+    """A source as flown in a pass: its rotor at the pass's own speed when the pass gives one."""
+    if source.rotor is None or source.name not in ps.rotor_rpm:
+        return source
+    return replace(source, rotor=replace(source.rotor, speed=ps.rotor_rpm[source.name]))
+
+
 def simulate_pass(scenario: Scenario, ps: PassScenario) -> SimulatedPass:
     """Simulate one pass: received pressures, recorder units, noisy GNSS samples."""
     fs = scenario.sample_rate_hz
@@ -148,8 +155,8 @@ def simulate_pass(scenario: Scenario, ps: PassScenario) -> SimulatedPass:
         start[rows], rate[rows] = r.start_after_s, fs * r.rate_factor
     end = ps.duration_s + (max(0.0, *(r.start_after_s for r in ps.recorders)) + 0.1
                            if ps.recorders else 0.0)
-    signals = [SourceSignal(src, fs, -margin, end, ps.gain_db.get(src.name, 0.0))
-               for src in scenario.sources]
+    signals = [SourceSignal(pass_source(src, ps), fs, -margin, end,
+                            ps.gain_db.get(src.name, 0.0)) for src in scenario.sources]
     prop = Propagator(scenario.mic_enu_m, ps.atmosphere, scenario.pressure_gain)
     p = received_pressure_pa(truth, signals, [np.asarray(s.body_m) for s in scenario.sources],
                              prop, rate, start, n)

@@ -53,7 +53,8 @@ rule report:
         rules.hemispheres.output,
         PLAN.pass_results(("alignment.json", "windows.csv", "qc_track.png", "qc_spectrogram.png",
                            "spectra.png", "directivity.png", "event_metrics.csv",
-                           "level_history.png", "reconstructed_metrics.csv")),
+                           "level_history.png", "reconstructed_metrics.csv",
+                           "rotor_tones.csv", "band_parts.csv", "rotor_tones.png")),
         PLAN.input_files(),
     output:
         update(f"{OUTP}/report.html"),

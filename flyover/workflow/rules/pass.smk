@@ -109,6 +109,33 @@ rule metrics:
         f"{STAGE} metrics --pass {{wildcards.pass_name:q}} > {{log:q}} 2>&1"
 
 
+rule tones:
+    input:
+        unpack(lambda w: PLAN.pass_inputs(w.pass_name)),
+        alignment=f"{OUTP}/{{pass_name}}/alignment.json",
+        windows=f"{OUTP}/{{pass_name}}/windows.csv",
+        levels=f"{OUTP}/{{pass_name}}/levels.csv",
+    output:
+        tones=update(f"{OUTP}/{{pass_name}}/rotor_tones.csv"),
+        parts=update(f"{OUTP}/{{pass_name}}/band_parts.csv"),
+        figure=update(f"{OUTP}/{{pass_name}}/rotor_tones.png"),
+    params:
+        fingerprint=lambda w: PLAN.fingerprint(w.pass_name, "tones"),
+    log:
+        f"{OUTP}/logs/{{pass_name}}/tones.log",
+    benchmark:
+        f"{OUTP}/benchmarks/{{pass_name}}/tones.tsv"
+    group:
+        "pass_light"
+    resources:
+        mem_mb=lambda w: PLAN.memory_mb(w.pass_name, "tones"),
+        runtime=lambda w: PLAN.runtime_min(w.pass_name, "tones"),
+    conda:
+        CONDA_ENV,
+    shell:
+        f"{STAGE} tones --pass {{wildcards.pass_name:q}} > {{log:q}} 2>&1"
+
+
 rule qc:
     input:
         unpack(lambda w: PLAN.pass_inputs(w.pass_name)),
