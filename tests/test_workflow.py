@@ -136,7 +136,8 @@ def test_revised_track_reruns_that_pass_only(run_copy):
                         for i, v in enumerate(r.split(","))) for r in rows]
     track.write_text("\n".join([head] + revised) + "\n")
     assert planned(run_copy) == {("align", "p1"), ("image", "p1"), ("levels", "p1"),
-                                 ("qc", "p1"), ("metrics", "p1"), ("campaign_summary", ""),
+                                 ("qc", "p1"), ("metrics", "p1"), ("tones", "p1"),
+                                 ("campaign_summary", ""),
                                  ("hemispheres", ""), ("report", "")}
 
 
@@ -146,7 +147,8 @@ def test_reference_distance_reruns_levels_not_imaging(finished_run):
                        lambda d: d["analysis"].update(reference_distance_m=100.0)):
         # The reconstructed metrics use the reference flight's default height: they follow.
         assert planned(finished_run) == {("levels", "p1"), ("levels", "p2"), ("metrics", "p1"),
-                                         ("metrics", "p2"), ("campaign_summary", ""),
+                                         ("metrics", "p2"), ("tones", "p1"), ("tones", "p2"),
+                                         ("campaign_summary", ""),
                                          ("hemispheres", ""), ("report", "")}
 
 
@@ -155,7 +157,8 @@ def test_one_pass_atmosphere_reruns_that_pass(finished_run):
     with edited_config(finished_run,
                        lambda d: d["passes"]["p2"]["atmosphere"].update(temperature_c=16.0)):
         assert planned(finished_run) == {("align", "p2"), ("image", "p2"), ("levels", "p2"),
-                                         ("qc", "p2"), ("metrics", "p2"), ("campaign_summary", ""),
+                                         ("qc", "p2"), ("metrics", "p2"), ("tones", "p2"),
+                                         ("campaign_summary", ""),
                                          ("hemispheres", ""), ("report", "")}
 
 
@@ -164,7 +167,8 @@ def test_added_pass_runs_alone_then_summary(finished_run):
     with edited_config(finished_run,
                        lambda d: d["passes"].update(p3=dict(d["passes"]["p2"], label="b"))):
         assert planned(finished_run) == {("align", "p3"), ("image", "p3"), ("levels", "p3"),
-                                         ("qc", "p3"), ("metrics", "p3"), ("campaign_summary", ""),
+                                         ("qc", "p3"), ("metrics", "p3"), ("tones", "p3"),
+                                         ("campaign_summary", ""),
                                          ("hemispheres", ""), ("report", "")}
 
 
