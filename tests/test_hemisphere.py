@@ -7,6 +7,7 @@ import pandas as pd
 import pytest
 import xarray as xr
 import yaml
+from conftest import TINY_SCENARIO
 
 from flyover.acoustics.hemisphere import (HemisphereSettings, band_range_cells, fit_cells,
                                           hemisphere_cells)
@@ -91,13 +92,10 @@ TONES_HZ = (250.0, 400.0, 630.0)   # below 0.1 fs: every window measures them
 _PASS = {"label": "h", "speed_m_s": 25.0, "height_m": 30.0, "duration_s": 4.4,
          "atmosphere": {"temperature_c": 15.0, "relative_humidity_pct": 70.0,
                         "wind_speed_m_s": 2.0, "wind_from_deg": 200.0}}
+# The tiny campaign's site, array, recorder and GNSS (conftest), with this source and passes.
 HEMI_SCENARIO = {
+    **{k: TINY_SCENARIO[k] for k in ("site", "array", "recording", "gnss")},
     "name": "hemisphere test campaign",
-    "site": {"origin_lat_deg": 47.0, "origin_lon_deg": 8.0, "origin_height_m": 400.0},
-    "array": {"arms": 4, "per_arm": 4, "r_min_m": 0.5, "r_max_m": 4.0, "mounting": "ground-plate"},
-    "recording": {"sample_rate_hz": 8000, "subtype": "FLOAT", "noise_spl_db": 30,
-                  "pa_per_unit": 20.0, "calibration_spread_db": 0.2},
-    "gnss": {"rate_hz": 10, "noise_m": 0.02},
     "sources": [{"name": "rotor", "body_m": [0.5, 0.0, 0.0],
                  "tones": [{"frequency_hz": f, "level_db": 90.0} for f in TONES_HZ],
                  "directivity": {"axis_body": list(PATTERN.axis_body),

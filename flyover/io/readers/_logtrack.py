@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 from scipy.spatial.transform import Rotation, Slerp
 
-from flyover.geometry.frames import SiteFrame
+from flyover.geometry.frames import SiteFrame, attitude_rotation
 from flyover.model.errors import FlyoverInputError
 
 
@@ -43,8 +43,7 @@ def attitude_at(utc_ns, att_utc_ns, quat_wxyz) -> np.ndarray:
 
 def quaternion_from_ypr(yaw_deg, pitch_deg, roll_deg) -> np.ndarray:
     """Scalar-first quaternions of yaw, pitch, roll (the inverse of :func:`attitude_at`)."""
-    angles = np.stack(np.broadcast_arrays(yaw_deg, pitch_deg, roll_deg), axis=-1)
-    return Rotation.from_euler("ZYX", angles, degrees=True).as_quat()[..., [3, 0, 1, 2]]
+    return attitude_rotation(yaw_deg, pitch_deg, roll_deg).as_quat()[..., [3, 0, 1, 2]]
 
 
 def no_fix_spans(gnss_utc_ns, has_fix) -> list[tuple[int, int]]:

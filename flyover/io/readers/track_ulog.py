@@ -61,7 +61,7 @@ def read_ulog(path, site: SiteFrame, geoid_undulation_m: float | None = None,
     except Exception as exc:  # pyulog raises bare exceptions on damaged files
         raise FlyoverInputError("not a readable ULog file", where, "a PX4 ULog (.ulg)",
                                 str(exc).split("\n")[0]) from None
-    gnss = next((_topic(ulog, n) for n in GNSS_TOPICS if _topic(ulog, n) is not None), None)
+    gnss = next((t for t in map(lambda n: _topic(ulog, n), GNSS_TOPICS) if t is not None), None)
     if gnss is None:
         raise FlyoverInputError("the log has no GNSS data", where,
                                 f"one of the topics {', '.join(GNSS_TOPICS)}",
