@@ -34,6 +34,20 @@ def test_valid_campaign_loads(tiny_campaign_dir):
     load_all(tiny_campaign_dir)
 
 
+def test_regions_lie_in_the_grid_plane_and_carry_their_source_type(tiny_copy):
+    # A map plane below the body origin (body z down): the unit sources at the region centres
+    # must sit in it, or source power integration compares points off the plane.
+    def change(d):
+        d["vehicle"]["grid"]["z_m"] = 0.3
+        d["vehicle"]["regions"]["front"]["convective_exponent"] = 3
+    edit_config(tiny_copy, change)
+    campaign = load_campaign(tiny_copy / "campaign.yaml")
+    assert [r.center_m[2] for r in campaign.regions.values()] == [0.3, 0.3]
+    assert campaign.regions["front"].convective_exponent == 3.0
+    assert campaign.regions["rear"].convective_exponent == 2.0
+    assert np.all(campaign.grid.points_m()[:, 2] == 0.3)
+
+
 def test_unknown_key_suggests_the_closest(tiny_copy):
     edit_config(tiny_copy, lambda d: d["analysis"].update(windw_s=0.2))
     expect_error(tiny_copy, "unknown key 'analysis.windw_s'", "did you mean 'window_s'?")

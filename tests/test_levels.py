@@ -9,7 +9,7 @@ import pytest
 from flyover.acoustics.atmosphere import Atmosphere
 from flyover.acoustics.bands import third_octave_bands
 from flyover.acoustics.reference import overall_db, reference_level_db
-from flyover.imaging.integration import region_powers
+from flyover.imaging.integration import MAX_CONDITION, region_powers
 from flyover.imaging.resolution import main_lobe_width_m, regions_resolved
 from flyover.io.config import load_campaign
 from flyover.io.results.maps import read_maps
@@ -66,6 +66,27 @@ def test_region_powers_removes_leakage_between_regions():
     same = np.array([[[1.0, 1.0], [1.0, 1.0]]])
     powers, total = region_powers(same, np.array([[5.0, 5.0]]))
     assert np.all(np.isnan(powers)) and total[0] == pytest.approx(5.0)
+
+
+def test_leakage_solve_refuses_systems_that_amplify_coupling_errors():
+    # The solve's relative error is bounded by cond(C) times the couplings' relative error
+    # (standard perturbation bound, Golub & Van Loan, Matrix Computations, section 2.6). Two
+    # regions with coupling 0.85 have cond = 1.85 / 0.15 = 12.3: a 3 % error in the strong
+    # source's leakage into the weak region then moves the weak region (4x weaker) by 2.2 dB, so
+    # it is left empty; at 0.6 (cond 4) the same error moves it by 0.5 dB and it stays.
+    truth = np.array([4.0, 1.0])
+    for leak, kept in ((0.6, True), (0.85, False)):
+        coupling = np.array([[[1.0, leak], [leak, 1.0]]])
+        assert (np.linalg.cond(coupling[0]) < MAX_CONDITION) == kept
+        measured = (coupling[0] @ truth)[None]
+        off = coupling * np.array([[[1.0, 1.0], [1.03, 1.0]]])    # one coupling 3 % off
+        powers, _ = region_powers(off, measured)
+        if kept:
+            assert abs(10 * np.log10(powers[0, 1] / truth[1])) < 1.0
+        else:
+            assert np.all(np.isnan(powers))
+            exact = np.linalg.solve(off[0], measured[0])
+            assert abs(10 * np.log10(exact[1] / truth[1])) > 1.0
 
 
 def test_overall_and_a_weighted_sums():

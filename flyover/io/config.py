@@ -410,7 +410,8 @@ def campaign_from_mapping(data: dict, path: Path) -> Campaign:
     g = veh["grid"]
     grid = VehicleGrid(_range(g["x_m"]), _range(g["y_m"]), float(g["spacing_m"]),
                        float(g.get("z_m", 0.0)))
-    regions = {name: Region(name, _range(r["x_m"]), _range(r["y_m"]))
+    regions = {name: Region(name, _range(r["x_m"]), _range(r["y_m"]), grid.z_m,
+                            float(r.get("convective_exponent", 2.0)))
                for name, r in veh["regions"].items()}
     points = grid.points_m()
     for r in regions.values():

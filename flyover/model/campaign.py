@@ -23,16 +23,30 @@ MOUNTING_GAIN = {"ground-plate": 2.0, "free-field": 1.0}
 
 @dataclass(frozen=True)
 class Region:
-    """A rectangle of the vehicle grid (body axes x forward, y starboard), e.g. the propulsion."""
+    """A rectangle of the vehicle grid (body axes x forward, y starboard), e.g. the propulsion.
+
+    ``z_m`` is the grid's plane (body z, down); ``convective_exponent`` the power of
+    ``1 / (1 - M_r)`` in its sources' pressure: 2 for a monopole (the source model's), about 3
+    for a dipole-like and 4 for a quadrupole-like source, under the normalisation of the source
+    model (source strength as the pressure at 1 m from the same source at rest; Dowling 1976).
+    """
 
     name: str
     x_m: tuple[float, float]
     y_m: tuple[float, float]
+    z_m: float = 0.0
+    convective_exponent: float = 2.0
+
+    def __post_init__(self):
+        require(0.0 <= self.convective_exponent <= 6.0, "convective exponent out of range",
+                f"vehicle.regions.{self.name}.convective_exponent",
+                "2 (monopole), about 3 (dipole-like) or 4 (quadrupole-like)",
+                f"{self.convective_exponent}")
 
     @property
     def center_m(self) -> np.ndarray:
-        """Centre in body axes, shape (3,), on the grid plane z = 0."""
-        return np.array([0.5 * sum(self.x_m), 0.5 * sum(self.y_m), 0.0])
+        """Centre in body axes, shape (3,), in the grid's plane."""
+        return np.array([0.5 * sum(self.x_m), 0.5 * sum(self.y_m), self.z_m])
 
     def contains(self, points_body_m) -> np.ndarray:
         p = np.asarray(points_body_m, dtype=float)
