@@ -5,6 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 import pytest
+from conftest import edit_campaign
 
 from flyover.acoustics.atmosphere import Atmosphere
 from flyover.acoustics.bands import third_octave_bands
@@ -97,6 +98,51 @@ def test_overall_and_a_weighted_sums():
     total, a = overall_db(levels_db, bands)
     assert total == pytest.approx(63.0103, abs=1e-3)
     assert a == pytest.approx(10 * np.log10(10 ** 6.0 + 10 ** 6.12), abs=0.01)
+
+
+@pytest.mark.parametrize("mach, polar_deg, per_exponent_db", [
+    # Levels of sources that are not monopoles, -20 lg(1 - M cos theta) per unit of exponent
+    # (Dowling 1976, J. Fluid Mech. 74(3); the figures): 0.35 dB at M = 0.08 and 60 deg,
+    # 1.3 dB at M = 0.2 and 45 deg.
+    (0.08, 60.0, 0.355), (0.2, 45.0, 1.324)])
+def test_levels_of_dipole_like_regions_and_plate_correction(tiny_copy, mach, polar_deg,
+                                                            per_exponent_db):
+    def change(d):
+        d["vehicle"]["regions"]["front"]["convective_exponent"] = 3
+        d["array"]["plate_correction_db"] = [[500, -0.4]]
+    edit_campaign(tiny_copy, change)
+    campaign = load_campaign(tiny_copy / "campaign.yaml")
+    c, h = 340.0, 40.0
+    # Level flight north (yaw 0) over the array centre; the front region's centre (1 m ahead of
+    # the origin) sees the array centre at polar_deg from the flight direction.
+    front_north = -h / np.tan(np.deg2rad(polar_deg))
+    windows = pd.DataFrame([{
+        "window": 0, "time_utc": "2026-06-01T10:00:00Z", "polar_angle_deg": polar_deg,
+        "height_m": h, "speed_m_s": mach * c, "distance_m": h, "east_m": 0.0,
+        "north_m": front_north - 1.0, "up_m": h, "yaw_deg": 0.0, "pitch_deg": 0.0,
+        "roll_deg": 0.0, "velocity_east_m_s": 0.0, "velocity_north_m_s": mach * c,
+        "velocity_up_m_s": 0.0}]).set_index("window")
+    powers = pd.DataFrame([{"window": 0, "region": r, "band_hz": b, "power_1m_pa2": 4e-4,
+                            "resolved": True, "band_valid": True, "band_note": ""}
+                           for r in ("front", "rear") for b in (400.0, 500.0)])
+    alignment = {"array_center_enu_m": [0.0, 0.0, 0.0], "speed_of_sound_m_s": c,
+                 "atmosphere": {"temperature_c": 15.0, "relative_humidity_pct": 70.0,
+                                "pressure_kpa": 101.325, "wind_speed_m_s": 0.0,
+                                "wind_from_deg": 0.0, "speed_of_sound_m_s": c}}
+    table = levels.level_table(powers, windows, campaign, alignment).set_index(
+        ["region", "band_hz"])
+    plain = 10 * np.log10(4e-4 / 4e-10)
+    front = table.loc[("front", 400.0)]
+    assert front["air_polar_deg"] == pytest.approx(polar_deg, abs=1e-6)
+    assert front["mach_r"] == pytest.approx(mach * np.cos(np.deg2rad(polar_deg)), abs=1e-9)
+    assert plain - front["level_1m_db"] == pytest.approx(per_exponent_db, abs=0.001)
+    assert front["convective_amplification_db"] == pytest.approx(3 * per_exponent_db, abs=0.003)
+    assert front["level_as_heard_db"] - front["level_db"] == pytest.approx(
+        front["convective_amplification_db"])
+    assert table.loc[("rear", 400.0), "level_1m_db"] == pytest.approx(plain)   # a monopole
+    # The plate fell 0.4 dB short of doubling at 500 Hz: the level is raised by 0.4 dB.
+    assert table.loc[("rear", 500.0), "level_1m_db"] == pytest.approx(plain + 0.4)
+    assert table.loc[("rear", 500.0), "plate_correction_db"] == -0.4
 
 
 def test_stages_on_the_tiny_campaign(tiny_copy):

@@ -38,6 +38,27 @@ def test_yaw_from_ground_track():
     np.testing.assert_allclose(ahead, [np.sqrt(0.5), np.sqrt(0.5), 0], atol=1e-6)
 
 
+def test_yaw_through_the_air_in_a_crosswind():
+    # The wind triangle (common practice in navigation): flying east over the ground at
+    # 27.6 m/s with a 6 m/s wind from the north (blowing south), the air-relative velocity is
+    # (27.6, +6) m/s, so the nose points atan(6 / 27.6) = 12.26 deg north of east: yaw 77.74 deg.
+    # A source 2.5 m ahead of the origin then sits 2.5 sin(12.26 deg) = 0.53 m north of the
+    # ground track, where the ground-track yaw would put it on the track.
+    t = np.arange(0, 10, 0.1)
+    p = np.stack([27.6 * t, 0 * t, 30 + 0 * t], 1)
+    wind = np.array([0.0, -6.0, 0.0])
+    model = fit_track(t, p, 0.01, wind_enu_m_s=wind)
+    crab = np.rad2deg(np.arctan2(6.0, 27.6))
+    assert crab == pytest.approx(12.26, abs=0.01)
+    assert model.attitude_deg([5.0])[0, 0] == pytest.approx(90.0 - crab, abs=1e-6)
+    ahead = model.body_points_enu([[2.5, 0.0, 0.0]], [5.0])[0, 0] - model.position(5.0)
+    assert ahead[1] == pytest.approx(0.53, abs=0.005)
+    assert "air-relative" in model.heading_source
+    calm = model.with_wind(np.zeros(3))
+    assert calm.attitude_deg([5.0])[0, 0] == pytest.approx(90.0, abs=1e-6)
+    assert "ground velocity" in calm.heading_source
+
+
 def test_attitude_interpolated_as_rotation():
     # Slerp halfway between yaw 350 and yaw 10 is yaw 0, not 180 (interpolation on rotations).
     t = np.arange(0, 1.0, 0.1)

@@ -91,3 +91,33 @@ def paths_between(source_enu_m, source_velocity_enu_m_s, mic_enu_m, wind_enu_m_s
     mach_r = np.einsum("...i,...i->...", n, vel - u) / c_m_s
     doppler = (1.0 - mach_r) / (1.0 + (n @ u) / c_m_s)
     return Paths(t, r, mach_r, doppler)
+
+
+def air_angles(source_enu_m, source_velocity_enu_m_s, target_enu_m, wind_enu_m_s,
+               c_m_s: float) -> tuple[np.ndarray, np.ndarray]:
+    """The emission angle in the moving air and the Mach number that sets the convective
+    amplification, from source points to a target (e.g. the array centre).
+
+    Parameters
+    ----------
+    source_enu_m, source_velocity_enu_m_s : ndarray, shape (n, 3)
+        Positions (m) and velocities over the ground (m/s), site frame.
+    target_enu_m : ndarray, shape (3,)
+    wind_enu_m_s : ndarray, shape (3,)
+    c_m_s : float
+
+    Returns
+    -------
+    polar_deg : ndarray, shape (n,)
+        Angle between the source's velocity through the air (ground velocity minus wind) and the
+        direction the sound travels in the moving air towards the target: 0 ahead, 90 abeam.
+    mach_r : ndarray, shape (n,)
+        M_r of :class:`Paths`: the air-relative velocity along that direction over c.
+    """
+    src = np.atleast_2d(np.asarray(source_enu_m, float))
+    vel = np.atleast_2d(np.asarray(source_velocity_enu_m_s, float))
+    p = paths_between(src, vel, np.asarray(target_enu_m, float)[None, :], wind_enu_m_s, c_m_s)
+    air = vel - np.asarray(wind_enu_m_s, float)
+    speed = np.linalg.norm(air, axis=1)
+    cos = np.clip(p.mach_r * c_m_s / np.where(speed > 0, speed, np.inf), -1.0, 1.0)
+    return np.rad2deg(np.arccos(cos)), p.mach_r

@@ -334,6 +334,22 @@ def _range(value) -> tuple[float, float]:
     return float(value[0]), float(value[1])
 
 
+def _plate_correction(pairs, source: str) -> dict[float, float]:
+    """The ``array.plate_correction_db`` table ([[band_hz, dB], ...]) keyed by nominal midband;
+    every band must be a nominal one-third-octave midband (IEC 61260-1), each listed once."""
+    nominal = set(third_octave_bands(10.0, 20000.0).nominal_hz.tolist())
+    table = {}
+    for k, (band, db) in enumerate(pairs):
+        if float(band) not in nominal or float(band) in table:
+            raise FlyoverInputError(
+                "plate correction for an unknown or repeated band",
+                f"{source}, key array.plate_correction_db, entry {k + 1}",
+                "nominal one-third-octave midbands such as 1000, 1250, 1600 (Hz), each once",
+                f"{band}")
+        table[float(band)] = float(db)
+    return table
+
+
 def load_campaign(path) -> Campaign:
     """Read, validate and convert a campaign config file.
 
@@ -361,7 +377,8 @@ def campaign_from_mapping(data: dict, path: Path) -> Campaign:
     array = ArraySpec(_resolve_path(base, arr["layout"]), arr["mounting"],
                       arr.get("height_datum", "ellipsoidal"),
                       tuple(arr.get("exclude_channels", ())), tuple(arr.get("keep_channels", ())),
-                      tuple(arr.get("extra_channels", ())))
+                      tuple(arr.get("extra_channels", ())),
+                      _plate_correction(arr.get("plate_correction_db", []), source))
     default_atm = data.get("atmosphere", {})
     weather = None
     if "weather" in data:

@@ -296,12 +296,21 @@ class WeatherSpec:
 
 @dataclass(frozen=True)
 class ArraySpec:
+    """The microphone array: its layout file and how its microphones are mounted.
+
+    ``plate_correction_db`` maps nominal one-third-octave midbands (Hz) to the measured response
+    of the ground plates minus the ideal pressure doubling (+6.02 dB), in dB: negative where a
+    plate on soft ground falls short at high frequency. Levels have it subtracted (bands not
+    listed: 0).
+    """
+
     layout: Path
     mounting: str
     height_datum: str = "ellipsoidal"
     exclude_channels: tuple[int, ...] = ()
     keep_channels: tuple[int, ...] = ()
     extra_channels: tuple[int, ...] = ()
+    plate_correction_db: dict[float, float] = field(default_factory=dict)
 
     @property
     def pressure_gain(self) -> float:

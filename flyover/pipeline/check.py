@@ -200,6 +200,8 @@ def _track_lines(s: dict) -> list[str]:
              f"{', '.join(t['holds'])}; position noise ~"
              f"{t['position_noise_estimate_m'] * 100:.1f} cm{lever}"]
     lines += [f"      {n}" for n in t["notes"]]
+    lines.append(f"      yaw from the {t['heading_source']}; crab angle "
+                 f"{t['crab_angle_deg']:+.1f} deg overhead")
     for r in s["rotors"]:
         lines.append(f"    rotor {r['rotor']} (motor {r['motor']}, {r['blades']} blades): "
                      f"{r['samples']} speed samples, mean {r['rpm_mean']:.0f} rpm, blade "

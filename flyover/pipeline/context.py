@@ -13,7 +13,7 @@ from flyover.geometry.overview import pass_geometry
 from flyover.acoustics.atmosphere import Atmosphere
 from flyover.acoustics.weather import weather_flags, weather_over
 from flyover.geometry.track import (TrackModel, antenna_to_origin, fit_track,
-                                    heading_from_ground_track)
+                                    heading_through_air)
 from flyover.geometry.windows import polar_angle_deg
 from flyover.imaging.dedoppler import ChainSettings, window_memory_bytes
 from flyover.io.readers import read
@@ -284,13 +284,7 @@ def load_pass(campaign: Campaign, name: str, clock_offset_s: float | None = None
     clock = ArrayClock.of_recorders([r.clock for r in recorders], mic_recorder)
     span = common_span_s(clock, recorders)
     samples = _track_samples(campaign, spec, clock, span)
-    enu = samples.enu_m
-    if spec.track_antenna_offset_m is not None:
-        att = (samples.attitude_deg if samples.attitude_deg is not None
-               else heading_from_ground_track(samples.utc_ns, enu))
-        enu = antenna_to_origin(enu, att, spec.track_antenna_offset_m)
-    track = fit_track(clock.seconds_since_epoch(samples.utc_ns), enu,
-                      spec.track_position_noise_m, samples.attitude_deg, where=str(spec.track))
+    track = _fit_track(spec, samples, clock, np.zeros(3))
     rotors = _rotor_speeds(campaign, spec, samples, clock)
     kept = set(campaign.array.keep_channels) | set(spec.keep_channels)
     excluded = (set(campaign.array.exclude_channels) | set(spec.exclude_channels)
@@ -307,7 +301,24 @@ def load_pass(campaign: Campaign, name: str, clock_offset_s: float | None = None
     if campaign.weather is not None:
         atmosphere, weather = _weather_atmosphere(campaign, inputs)
         inputs = dataclasses.replace(inputs, atmosphere=atmosphere, weather=weather)
+    if samples.attitude_deg is None and np.any(inputs.atmosphere.wind_enu_m_s[:2] != 0):
+        # Without attitude the yaw follows the air-relative velocity, which needs the wind
+        # (from the weather file, itself averaged over a stretch found from the positions).
+        inputs = dataclasses.replace(inputs, track=_fit_track(
+            spec, samples, clock, inputs.atmosphere.wind_enu_m_s))
     return inputs
+
+
+def _fit_track(spec: PassSpec, samples: TrackSamples, clock: ArrayClock, wind_enu_m_s):
+    """The track model of the body origin: the antenna moved by its lever arm (with the yaw
+    through the air when the track has no attitude) and the wind for that yaw."""
+    enu = samples.enu_m
+    if spec.track_antenna_offset_m is not None:
+        att = (samples.attitude_deg if samples.attitude_deg is not None
+               else heading_through_air(samples.utc_ns, enu, wind_enu_m_s))
+        enu = antenna_to_origin(enu, att, spec.track_antenna_offset_m)
+    return fit_track(clock.seconds_since_epoch(samples.utc_ns), enu, spec.track_position_noise_m,
+                     samples.attitude_deg, where=str(spec.track), wind_enu_m_s=wind_enu_m_s)
 
 
 def _track_samples(campaign: Campaign, spec: PassSpec, clock: ArrayClock,
@@ -584,7 +595,17 @@ def track_summary(inputs: PassInputs) -> dict:
             "samples": len(s.utc_ns), "holds": s.holds, "notes": list(s.notes),
             "antenna_offset_m": (list(inputs.spec.track_antenna_offset_m)
                                  if inputs.spec.track_antenna_offset_m is not None else None),
-            "position_noise_estimate_m": inputs.track.residual_rms_m()}
+            "position_noise_estimate_m": inputs.track.residual_rms_m(),
+            "heading_source": inputs.track.heading_source,
+            "crab_angle_deg": crab_angle_deg(inputs.track, pass_geometry(
+                inputs.track, inputs.layout.center_enu_m, inputs.recording_span_s).closest_s)}
+
+
+def crab_angle_deg(track, time_s: float) -> float:
+    """Yaw minus the ground track's direction at a time, in degrees from -180 to 180."""
+    v = track.velocity(np.array([time_s]))[0]
+    course = np.rad2deg(np.arctan2(v[0], v[1]))
+    return float((track.attitude_deg(np.array([time_s]))[0, 0] - course + 180.0) % 360.0 - 180.0)
 
 
 def recorder_summary(inputs: PassInputs, r: RecorderInputs) -> dict:

@@ -125,6 +125,9 @@ def _window_row(w, clock, array_center) -> dict:
             "east_m": w.position_enu_m[0], "north_m": w.position_enu_m[1],
             "up_m": w.position_enu_m[2],
             "height_m": w.position_enu_m[2] - array_center[2], "speed_m_s": w.speed_m_s,
+            "velocity_east_m_s": w.velocity_enu_m_s[0],
+            "velocity_north_m_s": w.velocity_enu_m_s[1],
+            "velocity_up_m_s": w.velocity_enu_m_s[2],
             "yaw_deg": w.attitude_deg[0], "pitch_deg": w.attitude_deg[1],
             "roll_deg": w.attitude_deg[2], "polar_angle_deg": w.polar_angle_deg,
             "distance_m": w.distance_m}

@@ -10,11 +10,13 @@ import pandas as pd
 from flyover.acoustics.bands import third_octave_bands
 from flyover.acoustics.reference import level_1m_db, reference_level_db
 from flyover.acoustics.uncertainty import Z90, InputUncertainty, band_level_uncertainty_db
+from flyover.geometry.frames import attitude_rotation, enu_from_body_matrix
+from flyover.geometry.propagation import air_angles
 from flyover.geometry.windows import emission_angles_deg
 from flyover.imaging.window import TOTAL
 from flyover.io.figures import directivity_figure, save_figure, spectra_figure
 from flyover.io.results.directivity import DIRECTIVITY
-from flyover.io.results.alignment import read_alignment
+from flyover.io.results.alignment import pass_atmosphere, read_alignment
 from flyover.io.results.levels import LEVELS
 from flyover.io.results.region_power import REGION_POWER
 from flyover.io.results.spectra import SPECTRA
@@ -26,7 +28,8 @@ from flyover.model.reads import guarded
 UNRESOLVED = "not separable: region centres closer than one main-lobe width"
 
 # What this stage reads of the campaign (flyover.model.reads): its re-run fingerprint too.
-READS = ("regions", "analysis.reference_distance_m", "analysis.reference_atmosphere",
+READS = ("regions", "array.plate_correction_db", "analysis.reference_distance_m",
+         "analysis.reference_atmosphere",
          "analysis.spectra_polar_deg", "analysis.uncertainty")
 
 
@@ -39,7 +42,7 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> None:
     windows = read_analysed(out_dir).set_index("window")
     powers = REGION_POWER.read(out_dir)
     alignment = read_alignment(out_dir)
-    levels = level_table(powers, windows, campaign, alignment["array_center_enu_m"])
+    levels = level_table(powers, windows, campaign, alignment)
     levels = with_uncertainty(levels, alignment, campaign, pass_name)
     LEVELS.write(out_dir, levels)
     spectra = spectra_table(levels, campaign.analysis.spectra_polar_deg)
@@ -50,9 +53,15 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> None:
 
 
 def level_table(powers: pd.DataFrame, windows: pd.DataFrame, campaign: Campaign,
-                array_center_enu_m) -> pd.DataFrame:
+                alignment: dict) -> pd.DataFrame:
     """One row per window, band and region (plus the 'total' of all regions), with each
-    region's emission angles towards the array centre (site frame, m)."""
+    region's emission angles towards the array centre, in body axes and in the moving air.
+
+    The level of a region whose sources are not monopoles (``convective_exponent`` n) is
+    corrected by ``20 (n - 2) lg(1 - M_r)`` (the chain assumes n = 2); ``plate_correction_db``
+    is subtracted; ``convective_amplification_db`` (``-20 n lg(1 - M_r)``) is what the motion
+    adds at the array, kept apart so that ``level_as_heard_db`` can be given for metrics.
+    """
     an = campaign.analysis
     cols = LEVELS.column_names
     if len(powers) == 0:
@@ -69,34 +78,65 @@ def level_table(powers: pd.DataFrame, windows: pd.DataFrame, campaign: Campaign,
         raise FlyoverInputError("region powers name regions the campaign does not have",
                                 "region_power.csv", f"regions {sorted(campaign.regions)}",
                                 f"{unknown}", "the imaging is stale: re-run the workflow")
+    w = windows.loc[p["window"]]
+    for c in ("time_utc", "polar_angle_deg", "height_m", "speed_m_s", "distance_m"):
+        p[c] = w[c].to_numpy()
+    _add_angles(p, windows, campaign, alignment)
     bands = third_octave_bands(p["band_hz"].min(), p["band_hz"].max())
     band_index = {b: k for k, b in enumerate(bands.nominal_hz)}
     k = p["band_hz"].map(band_index).to_numpy()
-    l1 = level_1m_db(p["power_1m_pa2"].to_numpy())
+    plate = campaign.array.plate_correction_db
+    p["plate_correction_db"] = p["band_hz"].map(lambda b: plate.get(b, 0.0)).astype(float)
+    one_minus = 1.0 - p["mach_r"].to_numpy(float)
+    source_type = 20.0 * (p["convective_exponent"].to_numpy(float) - 2.0) * np.log10(one_minus)
+    l1 = (level_1m_db(p["power_1m_pa2"].to_numpy()) + source_type
+          - p["plate_correction_db"].to_numpy(float))
     lref = reference_level_db(np.zeros(len(bands)), bands, an.reference_distance_m,
                               an.reference_atmosphere)[k] + l1
     ok = p["resolved"] & p["band_valid"]
     # A level that cannot be separated or measured is not given at any distance.
     p["level_1m_db"] = np.where(ok, l1, np.nan)
     p["level_db"] = np.where(ok, lref, np.nan)
+    p["convective_amplification_db"] = (-20.0 * p["convective_exponent"].to_numpy(float)
+                                        * np.log10(one_minus))
+    p["level_as_heard_db"] = p["level_db"] + p["convective_amplification_db"]
     p["note"] = np.where(~p["band_valid"], p["band_note"],
                          np.where(p["resolved"], "", UNRESOLVED))
-    w = windows.loc[p["window"]]
-    for c in ("time_utc", "polar_angle_deg", "height_m", "speed_m_s", "distance_m"):
-        p[c] = w[c].to_numpy()
-    p["emission_polar_deg"] = p["emission_azimuth_deg"] = np.nan
-    for region, rows in p.groupby("region").groups.items():
-        centre = campaign.regions[region].center_m if region != TOTAL else np.zeros(3)
-        at = windows.loc[p.loc[rows, "window"]]
-        polar, azimuth = emission_angles_deg(at[["east_m", "north_m", "up_m"]].to_numpy(float),
-                                             at[["yaw_deg", "pitch_deg", "roll_deg"]]
-                                             .to_numpy(float), centre, array_center_enu_m)
-        p.loc[rows, "emission_polar_deg"] = polar
-        p.loc[rows, "emission_azimuth_deg"] = azimuth
     order = {name: i for i, name in enumerate(list(campaign.regions) + [TOTAL])}
     p = p.assign(_o=p["region"].map(order)).sort_values(["window", "_o", "band_hz"])
     p["uncertainty_db"] = p["ci90_low_db"] = p["ci90_high_db"] = np.nan
     return p[cols].reset_index(drop=True)
+
+
+def _add_angles(p: pd.DataFrame, windows: pd.DataFrame, campaign: Campaign,
+                alignment: dict) -> None:
+    """Per row: the emission angles from its region's centre (the body origin for 'total') to
+    the array centre in body axes and in the moving air, M_r, and the region's exponent."""
+    target = np.asarray(alignment["array_center_enu_m"], float)
+    atm = pass_atmosphere(alignment)
+    c = float(alignment["speed_of_sound_m_s"])
+    for name in ("emission_polar_deg", "emission_azimuth_deg", "air_polar_deg", "mach_r"):
+        p[name] = np.nan
+    p["convective_exponent"] = 2.0
+    for region, rows in p.groupby("region").groups.items():
+        r = campaign.regions.get(region)
+        centre = r.center_m if r is not None else np.zeros(3)
+        at = windows.loc[p.loc[rows, "window"]]
+        position = at[["east_m", "north_m", "up_m"]].to_numpy(float)
+        attitude = at[["yaw_deg", "pitch_deg", "roll_deg"]].to_numpy(float)
+        velocity = at[["velocity_east_m_s", "velocity_north_m_s", "velocity_up_m_s"]].to_numpy(
+            float)
+        polar, azimuth = emission_angles_deg(position, attitude, centre, target)
+        # The region's centre moves with the origin (a rigid body turning slowly).
+        source = position + np.einsum("nij,j->ni", enu_from_body_matrix(attitude_rotation(
+            attitude[:, 0], attitude[:, 1], attitude[:, 2])), centre)
+        air_polar, mach_r = air_angles(source, velocity, target, atm.wind_enu_m_s, c)
+        p.loc[rows, "emission_polar_deg"] = polar
+        p.loc[rows, "emission_azimuth_deg"] = azimuth
+        p.loc[rows, "air_polar_deg"] = air_polar
+        p.loc[rows, "mach_r"] = mach_r
+        if r is not None:
+            p.loc[rows, "convective_exponent"] = r.convective_exponent
 
 
 def window_scatter_db(levels: pd.DataFrame) -> pd.Series:

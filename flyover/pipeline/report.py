@@ -15,9 +15,8 @@ import numpy as np
 import pandas as pd
 
 from flyover import __version__
-from flyover.acoustics.atmosphere import Atmosphere
 from flyover.io.atomic import write_text
-from flyover.io.results.alignment import read_alignment
+from flyover.io.results.alignment import pass_atmosphere, read_alignment
 from flyover.io.results.campaign_tables import CAMPAIGN_LEVELS, CAMPAIGN_OVERALL
 from flyover.acoustics.uncertainty import Z90
 from flyover.io.results.event_metrics import EVENT_METRICS, RECONSTRUCTED
@@ -128,13 +127,6 @@ def _level_grids(table: pd.DataFrame, group: list[str], row: str, row_text,
         parts.append(f"<h4>{title}</h4><table><tr><th>{html.escape(header)}</th>{head}</tr>"
                      f"{''.join(rows)}</table>")
     return "".join(parts)
-
-
-def pass_atmosphere(alignment: dict) -> Atmosphere:
-    """The atmosphere a pass was processed with (typed or from the weather file)."""
-    a = alignment["atmosphere"]
-    return Atmosphere(a["temperature_c"], a["relative_humidity_pct"], a["pressure_kpa"],
-                      a["wind_speed_m_s"], a["wind_from_deg"], a.get("speed_of_sound_m_s"))
 
 
 def _pass_section(campaign: Campaign, name: str, out: Path) -> str:

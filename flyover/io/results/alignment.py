@@ -9,6 +9,7 @@ from __future__ import annotations
 import json
 from pathlib import Path
 
+from flyover.acoustics.atmosphere import Atmosphere
 from flyover.io.atomic import write_text
 from flyover.model.errors import FlyoverInputError
 
@@ -49,3 +50,10 @@ def read_alignment(folder) -> dict:
                                 hint="it was written by another flyover version: re-run the "
                                      "workflow")
     return data
+
+
+def pass_atmosphere(alignment: dict) -> Atmosphere:
+    """The atmosphere a pass was processed with (typed or from the weather file)."""
+    a = alignment["atmosphere"]
+    return Atmosphere(a["temperature_c"], a["relative_humidity_pct"], a["pressure_kpa"],
+                      a["wind_speed_m_s"], a["wind_from_deg"], a.get("speed_of_sound_m_s"))

@@ -26,4 +26,16 @@ LEVELS = TableFile("levels.csv", (
                            "(180)"),
     ("emission_azimuth_deg", "deg, body axes: the same line's angle about the body x axis from "
                              "straight down (0), positive to starboard"),
+    ("air_polar_deg", "deg, in the moving air: between the region's velocity through the air "
+                      "(ground velocity minus wind) and the direction its sound travels in the "
+                      "air to the array centre (0 ahead, 90 abeam)"),
+    ("mach_r", "the region's Mach number through the air along that direction (+ approaching)"),
+    ("convective_exponent", "n of the region's sources: 2 monopole (the chain's), ~3 dipole-like,"
+                            " ~4 quadrupole-like; levels corrected by 20 (n - 2) lg(1 - M_r)"),
+    ("convective_amplification_db", "dB, -20 n lg(1 - M_r): what the motion adds at the array "
+                                    "(removed from the levels)"),
+    ("level_as_heard_db", "dB, level_db with the convective amplification kept: as heard on "
+                          "the ground from the moving vehicle, at the reference distance"),
+    ("plate_correction_db", "dB, the ground plate's measured response minus +6.02 dB in this "
+                            "band (array.plate_correction_db), subtracted from the levels"),
 ), float_format="%.3f")
