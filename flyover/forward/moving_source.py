@@ -1,7 +1,8 @@
 """Synthetic flyovers: exact received pressures of moving point sources on a ground array.
 
 The source model is the design notes' moving monopole: ``p_m(t) = G s(tau) / (r (1 - M_r)^2)``
-with ``t = tau + T`` and T the travel time in a uniformly moving medium, plus ISO 9613-1
+with ``t = tau + T``, T the travel time in a uniformly moving medium and r = c T the length of
+the path in the moving air (a source may carry another exponent than 2), plus ISO 9613-1
 absorption along each path applied as a slowly varying filter at the frequency the sound has in
 the air (the received frequency without wind).
 Reception samples are mapped to emission times by Newton iterations on the closed-form forward
@@ -168,6 +169,9 @@ class PointSource:
         hold along the pattern's axis.
     rotor : RotorTones or None
         Blade-passing harmonics locked to a shaft whose speed may change.
+    convective_exponent : float
+        n in ``p = G s / (r (1 - M_r)^n)``: 2 for the design notes' monopole, 1 for the
+        free-space Green's function of a mass source, about 3 dipole-like, 4 quadrupole-like.
     """
 
     name: str
@@ -177,6 +181,7 @@ class PointSource:
     seed: int = 0
     directivity: DipoleLike | None = None
     rotor: RotorTones | None = None
+    convective_exponent: float = 2.0
 
     def band_power_pa2(self, bands: ThirdOctaveBands, gain_db: float = 0.0) -> np.ndarray:
         """Expected mean-square pressure at 1 m in each band (Pa^2), tones and broadband."""
@@ -391,7 +396,8 @@ def received_pressure_pa(track: TrackModel, signals: list[SourceSignal], bodies_
     out = np.zeros((n_mics, n_samples))
     for signal, body in zip(signals, bodies_m):
         tau_c, geo = emission_times_s(track, body, prop.mic_enu_m, tc, wind, c)
-        amp_c = prop.pressure_gain / (geo.distance_m * (1.0 - geo.mach_r) ** 2)
+        amp_c = prop.pressure_gain / (geo.distance_m * (1.0 - geo.mach_r)
+                                      ** signal.source.convective_exponent)
         if signal.source.directivity is not None:
             amp_c = amp_c * np.sqrt(signal.source.directivity.gain(
                 emission_directions_body(track, body, prop.mic_enu_m, tau_c)))

@@ -23,7 +23,12 @@ class Paths:
     travel_time_s : ndarray
         T, from emission to reception.
     distance_m : ndarray
-        r = |x_m - x_s(tau)|, the distance at emission time (the source model's spreading term).
+        r = c T, the length of the path in the moving air (the source model's spreading term).
+        Without wind it is the straight distance |x_m - x_s(tau)|; with wind the two differ
+        (by 2.9 % for a 10 m/s wind along the path). With ``mach_r`` it gives the closed form
+        of the moving-medium Green's function of a source at rest over the ground,
+        ``r (1 - M_r) = R* = sqrt((M.d)^2 + (1 - M^2) d.d)`` with M = U / c (Morse & Ingard
+        1968, section 11.2).
     mach_r : ndarray
         M_r: the source's velocity relative to the medium, divided by c, along the unit vector of
         propagation in the medium frame, n = (x_m - U T - x_s) / (c T). Positive when approaching.
@@ -85,7 +90,7 @@ def paths_between(source_enu_m, source_velocity_enu_m_s, mic_enu_m, wind_enu_m_s
     dd = np.einsum("...i,...i->...", d, d)
     a = c_m_s ** 2 - u @ u
     t = (-du + np.sqrt(du ** 2 + a * dd)) / a
-    r = np.sqrt(dd)
+    r = c_m_s * t
     # Unit propagation direction in the medium frame.
     n = (d - t[..., None] * u) / (c_m_s * t[..., None])
     mach_r = np.einsum("...i,...i->...", n, vel - u) / c_m_s

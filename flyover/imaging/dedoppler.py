@@ -2,8 +2,9 @@
 
 For grid point g (a body point moved and turned with the track) and microphone m, sound emitted
 at tau reaches m at ``t = tau + T`` (closed-form travel time in the pass's uniform wind). The
-de-Dopplerized signal of m for g is ``a_gm(tau) = r (1 - M_r)^2 p_m(tau + T) / G``, read from the
-calibrated channel with 4-point Lagrange interpolation (or 4x band-limited oversampling first).
+de-Dopplerized signal of m for g is ``a_gm(tau) = r (1 - M_r)^2 p_m(tau + T) / G`` (r = c T, the
+path in the moving air), read from the calibrated channel with 4-point Lagrange interpolation (or
+4x band-limited oversampling first).
 Band powers are formed in source time from the windowed spectra of these signals:
 
     full map:      P = sum_band |sum_m w_m A_gm|^2 / (sum w)^2

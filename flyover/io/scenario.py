@@ -76,7 +76,8 @@ def load_scenario(path) -> tuple[Scenario, SiteFrame, dict]:
             None if rotor is None else RotorTones(
                 int(rotor["blades"]), shaft_speed(rotor["rpm"]), tuple(rotor["harmonics_db"]),
                 float(rotor.get("jitter_deg", 0.0)), int(rotor.get("motor", 1)),
-                int(rotor.get("seed", 500 + k)))))
+                int(rotor.get("seed", 500 + k))),
+            float(src.get("convective_exponent", 2.0))))
     passes = []
     for k, (name, p) in enumerate(data["passes"].items()):
         passes.append(PassScenario(
