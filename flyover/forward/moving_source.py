@@ -20,6 +20,7 @@ from scipy.interpolate import CubicSpline
 
 from flyover.acoustics.atmosphere import Atmosphere
 from flyover.acoustics.bands import ThirdOctaveBands
+from flyover.acoustics.ground import GroundSurface, reflection_transfer
 from flyover.forward import _sinc
 from flyover.geometry.frames import enu_from_body_matrix
 from flyover.geometry.propagation import paths_between
@@ -270,12 +271,19 @@ class SourceSignal:
 
 @dataclass(frozen=True)
 class Propagator:
-    """Everything about the medium and the receivers that a simulation needs."""
+    """Everything about the medium and the receivers that a simulation needs.
+
+    Raised microphones over the ground also receive the reflection: ``image_mic_enu_m`` (the
+    microphones mirrored in the ground, (n_mics, 3)) with the ground's reflection coefficient
+    (:mod:`flyover.acoustics.ground`); None for ground-plate or free-field microphones.
+    """
 
     mic_enu_m: np.ndarray
     atmosphere: Atmosphere
     pressure_gain: float
     absorption: bool = True
+    image_mic_enu_m: np.ndarray | None = None
+    ground: GroundSurface | None = None
 
 
 def emission_times_s(track: TrackModel, body_m, mic_enu_m, reception_s, wind_enu_m_s,
@@ -330,32 +338,64 @@ def emission_directions_body(track: TrackModel, body_m, mic_enu_m, tau_s) -> np.
     return (body / np.linalg.norm(body, axis=1, keepdims=True)).reshape(tau.shape + (3,))
 
 
-def _absorb(signal, distance_m, air_per_received, frequency_hz_to_alpha, fs, block: int = 2048):
-    """Apply a time-varying absorption filter: per block, gain 10**(-alpha(f_air) r / 20).
+def _filter_blocks(signal, transfer, fs, block: int = 2048):
+    """Apply a slowly time-varying linear filter block by block.
 
-    sqrt-Hann analysis and synthesis windows at 50 % overlap reconstruct exactly at unit gain.
-    ``distance_m`` gives r per sample of ``signal``; ``air_per_received`` the ratio of the
-    frequency in the air to the received one, 1 / (1 + n.U / c) (1 without wind).
+    ``transfer(freqs_hz, centre)`` gives the gains (n_blocks, n_freqs), real or complex (numpy
+    FFT convention), of blocks centred on samples ``centre`` (indices into ``signal``, clipped
+    to it). sqrt-Hann analysis and synthesis windows at 50 % overlap reconstruct exactly at
+    unit gain.
     """
     n = len(signal)
     hop = block // 2
     pad = np.concatenate([np.zeros(block), signal, np.zeros(block + hop)])
-    r_pad = np.concatenate([np.full(block, distance_m[0]), distance_m,
-                            np.full(block + hop, distance_m[-1])])
-    q_pad = np.concatenate([np.full(block, air_per_received[0]), air_per_received,
-                            np.full(block + hop, air_per_received[-1])])
     n_blocks = (len(pad) - block) // hop + 1
     idx = np.arange(n_blocks)[:, None] * hop + np.arange(block)[None, :]
     win = np.sqrt(np.hanning(block + 1)[:block])
     spec = np.fft.rfft(pad[idx] * win, axis=1)
-    freqs = np.fft.rfftfreq(block, 1.0 / fs)
-    centre = np.arange(n_blocks) * hop + hop
-    alpha = frequency_hz_to_alpha(freqs[None, :] * q_pad[centre][:, None])
-    spec *= 10.0 ** (-alpha * r_pad[centre][:, None] / 20.0)
+    centre = np.clip(np.arange(n_blocks) * hop + hop - block, 0, n - 1)
+    spec = spec * transfer(np.fft.rfftfreq(block, 1.0 / fs), centre)
     frames = np.fft.irfft(spec, block, axis=1) * win
     out = np.zeros(len(pad))
     np.add.at(out, idx.ravel(), frames.ravel())
     return out[block:block + n]
+
+
+def _path_pressure(track: TrackModel, signal: SourceSignal, body, mic_enu_m, prop: Propagator,
+                   fs, tc, kc, k, *, reflected: bool) -> np.ndarray:
+    """Pressure (n_mics, n) of one source along the paths to ``mic_enu_m`` (the microphones,
+    or their images in the ground for the reflection), emission times solved at the coarse
+    reception times ``tc`` (sample indices ``kc``) and interpolated to samples ``k``."""
+    atm = prop.atmosphere
+    tau_c, geo = emission_times_s(track, body, mic_enu_m, tc, atm.wind_enu_m_s, atm.c_m_s)
+    amp_c = prop.pressure_gain / (geo.distance_m * (1.0 - geo.mach_r)
+                                  ** signal.source.convective_exponent)
+    if signal.source.directivity is not None:
+        amp_c = amp_c * np.sqrt(signal.source.directivity.gain(
+            emission_directions_body(track, body, mic_enu_m, tau_c)))
+    contrib = signal(CubicSpline(kc, tau_c, axis=1)(k)) * CubicSpline(kc, amp_c, axis=1)(k)
+    if prop.absorption:
+        r = CubicSpline(kc, geo.distance_m, axis=1)(k)
+        # Frequency in the air over the received one: (dt/dtau) / (1 - M_r) = 1 / (1 + n.U/c).
+        q = CubicSpline(kc, geo.doppler_factor / (1.0 - geo.mach_r), axis=1)(k)
+        for m in range(len(mic_enu_m)):
+            contrib[m] = _filter_blocks(contrib[m], lambda f, c: 10.0 ** (
+                -atm.absorption_db_per_m(f[None, :] * q[m][c][:, None])
+                * r[m][c][:, None] / 20.0), fs[m])
+    if reflected and prop.ground is not None and prop.ground.surface != "hard":
+        # The ground is at rest with the microphone: Q at the received frequency, for the
+        # image path's incidence angle and length at each block.
+        src = track.body_points_enu(np.asarray(body, float)[None, :], tau_c.ravel()).reshape(
+            tau_c.shape + (3,))
+        line = np.asarray(mic_enu_m, float)[:, None, :] - src
+        length = np.linalg.norm(line, axis=-1)
+        cos = CubicSpline(kc, -line[..., 2] / length, axis=1)(k)
+        r2 = CubicSpline(kc, length, axis=1)(k)
+        for m in range(len(mic_enu_m)):
+            contrib[m] = _filter_blocks(contrib[m], lambda f, c: reflection_transfer(
+                f[None, :], cos[m][c][:, None], r2[m][c][:, None], atm.c_m_s, prop.ground),
+                fs[m])
+    return contrib
 
 
 def received_pressure_pa(track: TrackModel, signals: list[SourceSignal], bodies_m,
@@ -383,9 +423,6 @@ def received_pressure_pa(track: TrackModel, signals: list[SourceSignal], bodies_
     -------
     ndarray, shape (n_mics, n_samples), float64
     """
-    atm = prop.atmosphere
-    c = atm.c_m_s
-    wind = atm.wind_enu_m_s
     n_mics = len(prop.mic_enu_m)
     fs = np.broadcast_to(np.asarray(sample_rate_hz, float), (n_mics,))
     start = np.broadcast_to(np.asarray(start_s, float), (n_mics,))
@@ -395,22 +432,9 @@ def received_pressure_pa(track: TrackModel, signals: list[SourceSignal], bodies_
     tc = start[:, None] + kc[None, :] / fs[:, None]
     out = np.zeros((n_mics, n_samples))
     for signal, body in zip(signals, bodies_m):
-        tau_c, geo = emission_times_s(track, body, prop.mic_enu_m, tc, wind, c)
-        amp_c = prop.pressure_gain / (geo.distance_m * (1.0 - geo.mach_r)
-                                      ** signal.source.convective_exponent)
-        if signal.source.directivity is not None:
-            amp_c = amp_c * np.sqrt(signal.source.directivity.gain(
-                emission_directions_body(track, body, prop.mic_enu_m, tau_c)))
-        tau = CubicSpline(kc, tau_c, axis=1)(k)
-        amp = CubicSpline(kc, amp_c, axis=1)(k)
-        contrib = signal(tau) * amp
-        if prop.absorption:
-            r = CubicSpline(kc, geo.distance_m, axis=1)(k)
-            # Frequency in the air over the received one: (dt/dtau) / (1 - M_r) = 1 / (1 + n.U/c).
-            q = CubicSpline(kc, geo.doppler_factor / (1.0 - geo.mach_r), axis=1)(k)
-            for m in range(n_mics):
-                contrib[m] = _absorb(contrib[m], r[m], q[m], atm.absorption_db_per_m, fs[m])
-        out += contrib
+        out += _path_pressure(track, signal, body, prop.mic_enu_m, prop, fs, tc, kc, k,
+                              reflected=False)
+        if prop.image_mic_enu_m is not None:
+            out += _path_pressure(track, signal, body, prop.image_mic_enu_m, prop, fs, tc, kc,
+                                  k, reflected=True)
     return out
-
-

@@ -1,0 +1,127 @@
+"""Ground reflection under raised microphones: impedance models, Q, and the simulator's two paths."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from scipy.signal import hilbert
+from scipy.special import erfc
+
+from flyover.acoustics.atmosphere import Atmosphere
+from flyover.acoustics.ground import (GroundSurface, boundary_loss_factor, plane_wave_coefficient,
+                                      reflection_transfer, spherical_wave_coefficient,
+                                      surface_impedance)
+from flyover.forward.moving_source import (PointSource, Propagator, SourceSignal, Tone,
+                                           received_pressure_pa)
+from flyover.geometry.track import straight_track
+
+FS = 8000.0
+ATM = Atmosphere(20.0, 50.0)
+A1 = np.sqrt(2) * 20e-6 * 10 ** (100 / 20)    # amplitude of a 100 dB tone at 1 m
+
+
+@pytest.mark.parametrize("f_hz, sigma_k", [(100.0, 200.0), (1000.0, 200.0), (2000.0, 50.0),
+                                            (4000.0, 100.0)])
+def test_impedance_models_in_both_published_forms(f_hz, sigma_k):
+    # Delany & Bazley (1970) as usually quoted with sigma in kPa s/m^2 (kN s/m^4):
+    # Z = 1 + 9.08 (f/sigma)^-0.75 + i 11.9 (f/sigma)^-0.73 (from memory), against the X-form
+    # the code uses, X = rho0 f / sigma with 0.0571, 0.754, 0.087, 0.732.
+    y = f_hz / sigma_k
+    db = surface_impedance(f_hz, sigma_k * 1e3, "delany-bazley")
+    assert db.real - 1 == pytest.approx(9.08 * y ** -0.75, rel=0.015)
+    assert db.imag == pytest.approx(11.9 * y ** -0.73, rel=0.015)
+    # Miki (1990) with sigma in Pa s/m^2: Z = 1 + 0.0699 (f/sigma)^-0.632 + i 0.107
+    # (f/sigma)^-0.632 (from memory), against the code's form in kPa s/m^2 (5.50, 8.43).
+    miki = surface_impedance(f_hz, sigma_k * 1e3, "miki")
+    x = f_hz / (sigma_k * 1e3)
+    assert miki.real - 1 == pytest.approx(0.0699 * x ** -0.632, rel=0.005)
+    assert miki.imag == pytest.approx(0.107 * x ** -0.632, rel=0.005)
+
+
+def test_boundary_loss_factor_and_the_limits_of_q():
+    # F through the Faddeeva function against its definition with the complex erfc (scipy),
+    # where the definition does not overflow.
+    w = np.array([0.05 + 0.02j, 0.4 + 0.4j, 1.0 + 1.0j, 2.0 + 1.5j, 0.7 - 0.3j])
+    direct = 1 + 1j * np.sqrt(np.pi) * w * np.exp(-w ** 2) * erfc(-1j * w)
+    np.testing.assert_allclose(boundary_loss_factor(w), direct, rtol=1e-10)
+    # F(0) = 1: at a vanishing numerical distance the ground reflects as hard (Q = 1); far from
+    # the source (|w| large) F -> 0 and Q tends to the plane-wave coefficient (Attenborough,
+    # Hayek & Lawther 1980).
+    assert boundary_loss_factor(0.0) == 1.0
+    grass = GroundSurface("soft", 200e3)
+    q_near = spherical_wave_coefficient(1.0, 0.5, 0.01, 343.0, grass)
+    assert abs(q_near - 1.0) < 0.05
+    far = spherical_wave_coefficient(4000.0, 0.7, 1e6, 343.0, grass)
+    rp = plane_wave_coefficient(surface_impedance(4000.0, 200e3), 0.7)
+    assert abs(far - rp) < 1e-3
+    # At grazing incidence R_p = -1, but Q is not (the ground wave): the reason for the
+    # spherical-wave form.
+    assert plane_wave_coefficient(surface_impedance(300.0, 200e3), 0.0) == pytest.approx(-1.0)
+    assert abs(spherical_wave_coefficient(300.0, 0.0, 100.0, 343.0, grass)) > 0.5
+    # A hard ground is a perfect image source; a very stiff porous ground approaches it.
+    assert spherical_wave_coefficient(500.0, 0.9, 60.0, 343.0, GroundSurface()) == 1.0
+    stiff = spherical_wave_coefficient(500.0, 0.9, 60.0, 343.0, GroundSurface("soft", 1e8))
+    assert abs(stiff - 1.0) < 0.02
+
+
+def hovering_tones(frequencies_hz, ground, mic_height_m=1.2, height_m=50.0, east_m=0.0):
+    """Tones from a hovering source received by a microphone raised above the ground (z = 0)
+    and by the same microphone in free field; both (n,) pressures and the geometry."""
+    track, *_ = straight_track(0.0, height_m, 90.0, 0.0, -3.0, 6.0)
+    tones = tuple(Tone(f, 100.0, phase_rad=0.3 * k) for k, f in enumerate(frequencies_hz))
+    src = PointSource("s", (0.0, 0.0, 0.0), tones=tones)
+    mic = np.array([[east_m, 0.0, mic_height_m]])
+    image = mic * [1, 1, -1]
+    t0, n = 1.0, int(2 * FS)
+    sig = SourceSignal(src, FS, -3.0, 6.0)
+    raised = received_pressure_pa(track, [sig], [np.zeros(3)], Propagator(
+        mic, ATM, 1.0, absorption=False, image_mic_enu_m=image, ground=ground), FS, t0, n)[0]
+    free = received_pressure_pa(track, [sig], [np.zeros(3)], Propagator(
+        mic, ATM, 1.0, absorption=False), FS, t0, n)[0]
+    r1 = np.linalg.norm(mic[0] - [0, 0, height_m])
+    r2 = np.linalg.norm(image[0] - [0, 0, height_m])
+    return raised, free, r1, r2
+
+
+def tone_phasors(p, frequencies_hz):
+    """Complex amplitude of each tone by projection on the middle second (exact bins)."""
+    t = np.arange(len(p)) / FS
+    seg = slice(int(0.5 * FS), int(1.5 * FS))
+    return np.array([2 * np.mean(p[seg] * np.exp(-2j * np.pi * f * t[seg]))
+                     for f in frequencies_hz])
+
+
+def test_hard_ground_two_path_interference():
+    # A microphone 1.2 m above hard ground, source 50 m overhead: p / p_free =
+    # 1 + (r1 / r2) e^(-i k (r2 - r1)) (two-path formula, reference-values 6.4), +6 dB where the
+    # paths add and a deep notch at the first null f = c / (2 (r2 - r1)) ~ c / (4 h) = 71.5 Hz at
+    # 343 m/s (reference-values 6.4, normal incidence).
+    c = ATM.c_m_s
+    freqs = np.array([20.0, 71.0, 100.0, 142.0, 213.0, 300.0])
+    raised, free, r1, r2 = hovering_tones(freqs, GroundSurface("hard"))
+    null = c / (2 * (r2 - r1))
+    assert 343.0 / (4 * 1.2) == pytest.approx(71.46, abs=0.01)
+    assert null == pytest.approx(c / (4 * 1.2), rel=0.001)
+    ratio = tone_phasors(raised, freqs) / tone_phasors(free, freqs)
+    expected = 1 + (r1 / r2) * np.exp(-2j * np.pi * freqs * (r2 - r1) / c)
+    np.testing.assert_allclose(np.abs(ratio), np.abs(expected), rtol=0.003, atol=0.003)
+    assert 20 * np.log10(abs(ratio[1])) < -15.0
+    assert 20 * np.log10(abs(ratio[3])) == pytest.approx(20 * np.log10(1 + r1 / r2), abs=0.05)
+
+
+def test_soft_ground_reflection_follows_q():
+    # Over grass (Miki, 200 kPa s/m^2) the reflected path carries Q of the spherical wave: the
+    # received tone against the free-field one is 1 + (r1 / r2) Q e^(-i k (r2 - r1)), Q taken in
+    # the FFT convention (conjugate of the e^(-i w t) literature value), here 40 m off axis.
+    grass = GroundSurface("soft", 200e3)
+    c = ATM.c_m_s
+    freqs = np.array([100.0, 250.0, 500.0, 1000.0, 2000.0])
+    raised, free, r1, r2 = hovering_tones(freqs, grass, east_m=40.0)
+    cos = (50.0 + 1.2) / r2
+    q = reflection_transfer(freqs, cos, r2, c, grass)
+    ratio = tone_phasors(raised, freqs) / tone_phasors(free, freqs)
+    expected = 1 + (r1 / r2) * q * np.exp(-2j * np.pi * freqs * (r2 - r1) / c)
+    np.testing.assert_allclose(ratio, expected, atol=0.01)
+    # and differs from the hard ground's by more than the tolerance at the higher tones
+    hard = 1 + (r1 / r2) * np.exp(-2j * np.pi * freqs * (r2 - r1) / c)
+    assert np.max(np.abs(hard - expected)) > 0.3
