@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from scipy.signal import hilbert
 from scipy.special import erfc
 
 from flyover.acoustics.atmosphere import Atmosphere
