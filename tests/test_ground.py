@@ -1,4 +1,4 @@
-"""Ground reflection under raised microphones: impedance models, Q, and the simulator's two paths."""
+"""Ground reflection under raised microphones: impedance models, Q, the simulator's two paths."""
 
 from __future__ import annotations
 
