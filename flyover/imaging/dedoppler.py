@@ -31,13 +31,14 @@ samples) are linear: with a reception-time curvature V^2 / (c r) of 0.1 1/s the 
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, fields
 
 import numpy as np
 import scipy.fft
 from scipy.signal import firwin, resample_poly
 
 from flyover.acoustics.atmosphere import Atmosphere
+from flyover.acoustics.ground import GroundSurface, reflection_transfer
 from flyover.acoustics.bands import ThirdOctaveBands
 from flyover.geometry.propagation import paths_between
 from flyover.geometry.track import TrackModel
@@ -72,6 +73,11 @@ class ChainSettings:
         Emission samples between the nodes where delays are computed exactly.
     chunk_points : int
         Grid points processed together (memory: chunk x n_mics x n_samples float32).
+    image_mic_enu_m : ndarray, shape (n_mics, 3), or None
+        Raised microphones: the microphones mirrored in the ground, whose reflection the chain
+        removes per frequency line (:func:`ground_inverse`); None otherwise.
+    ground : GroundSurface or None
+        The ground under raised microphones (None: hard).
     """
 
     bands: ThirdOctaveBands
@@ -81,6 +87,8 @@ class ChainSettings:
     absorption: bool = True
     node_step: int = 128
     chunk_points: int = 32
+    image_mic_enu_m: np.ndarray | None = None
+    ground: GroundSurface | None = None
 
 
 @dataclass(frozen=True)
@@ -100,6 +108,8 @@ class ReceptionGeometry:
         M_r at the window centre (frequency in the air = emitted frequency / (1 - M_r)).
     distance_center_m : ndarray, shape (n_grid, n_mics)
         Emission distance r at the window centre.
+    image : ImagePaths or None
+        The ground reflection's paths at the window centre (raised microphones).
     """
 
     node_times_s: np.ndarray
@@ -108,12 +118,47 @@ class ReceptionGeometry:
     doppler_center: np.ndarray
     distance_center_m: np.ndarray
     mach_r_center: np.ndarray
+    image: ImagePaths | None = None
+
+
+@dataclass(frozen=True)
+class ImagePaths:
+    """The reflected path of raised microphones relative to the direct one, at the window
+    centre, as it appears in a de-Dopplerized signal: a copy delayed by ``delay_s`` in emission
+    time, scaled by ``ratio`` and filtered by the ground's Q. Arrays (n_grid, n_mics).
+
+    Attributes
+    ----------
+    delay_s : ndarray
+        (T_image - T_direct) / (dt/dtau of the image path).
+    ratio : ndarray
+        r (1 - M_r)^2 of the direct path over that of the image path.
+    doppler : ndarray
+        dt/dtau of the image path (Q is taken at the received frequency f / doppler).
+    cos_incidence : ndarray
+        Cosine of the image path's angle from the ground normal.
+    path_m : ndarray
+        Straight length of the image path.
+    delay_rate : ndarray
+        d(delay)/dtau over the window: the delay changes as the elevation does.
+    """
+
+    delay_s: np.ndarray
+    ratio: np.ndarray
+    doppler: np.ndarray
+    cos_incidence: np.ndarray
+    path_m: np.ndarray
+    delay_rate: np.ndarray
+
+    def take(self, points) -> "ImagePaths":
+        return ImagePaths(*(getattr(self, f.name)[points] for f in fields(self)))
 
 
 def reception_geometry(track: TrackModel, window: Window, points_body_m, mic_enu_m,
                        atmosphere: Atmosphere, pressure_gain: float, *, node_step: int = 128,
-                       chunk_points: int = 128) -> ReceptionGeometry:
-    """Forward travel times from every grid point to every microphone at the window's nodes.
+                       chunk_points: int = 128, image_mic_enu_m=None) -> ReceptionGeometry:
+    """Forward travel times from every grid point to every microphone at the window's nodes
+    (and, for raised microphones, the reflected paths to their images at the centre).
 
     Grid points are processed in chunks so that temporaries stay small.
     """
@@ -128,6 +173,7 @@ def reception_geometry(track: TrackModel, window: Window, points_body_m, mic_enu
     doppler = np.empty((n_g, n_m))
     distance = np.empty((n_g, n_m))
     mach = np.empty((n_g, n_m))
+    image = None if image_mic_enu_m is None else [np.empty((n_g, n_m)) for _ in range(6)]
     for c0 in range(0, n_g, chunk_points):
         sl = slice(c0, min(c0 + chunk_points, n_g))
         pos = track.body_points_enu(pts[sl], times)          # (n_t, n_c, 3)
@@ -140,14 +186,31 @@ def reception_geometry(track: TrackModel, window: Window, points_body_m, mic_enu
         doppler[sl] = geo.doppler_factor[-1]
         distance[sl] = geo.distance_m[-1]
         mach[sl] = geo.mach_r[-1]
-    return ReceptionGeometry(nodes, reception, amp, doppler, distance, mach)
+        if image is not None:
+            # At the first node, the last node and the centre (times[0], [-2], [-1]).
+            images = np.asarray(image_mic_enu_m, float)
+            img = paths_between(pos[[0, -2, -1]][:, :, None, :], vel[[0, -2, -1]][:, :, None, :],
+                                images[None, None], atmosphere.wind_enu_m_s, atmosphere.c_m_s)
+            delay = ((img.travel_time_s - geo.travel_time_s[[0, -2, -1]])
+                     / img.doppler_factor)
+            line = images[None] - pos[-1][:, None, :]
+            length = np.linalg.norm(line, axis=-1)
+            for target, value in zip(image, (
+                    delay[2], geo.distance_m[-1] * (1 - geo.mach_r[-1]) ** 2
+                    / (img.distance_m[2] * (1 - img.mach_r[2]) ** 2),
+                    img.doppler_factor[2], -line[..., 2] / length, length,
+                    (delay[1] - delay[0]) / (nodes[-1] - nodes[0]))):
+                target[sl] = value
+    return ReceptionGeometry(nodes, reception, amp, doppler, distance, mach,
+                             None if image is None else ImagePaths(*image))
 
 
 def subset(geometry: ReceptionGeometry, points) -> ReceptionGeometry:
     """The geometry of some grid points only (rows), e.g. a region's."""
     return ReceptionGeometry(geometry.node_times_s, geometry.reception_s[points],
                              geometry.amplitude[points], geometry.doppler_center[points],
-                             geometry.distance_center_m[points], geometry.mach_r_center[points])
+                             geometry.distance_center_m[points], geometry.mach_r_center[points],
+                             None if geometry.image is None else geometry.image.take(points))
 
 
 def required_frames(geometry: ReceptionGeometry, clock: ArrayClock,
@@ -292,6 +355,65 @@ def signal_band_power(signal, bands: ThirdOctaveBands, sample_rate_hz: float) ->
                     axis=-1)
 
 
+# Floor of the expected map power relative to free field in the ground correction: at most
+# +15 dB on a line in a notch of the two-path comb, where the reflection cancels the direct
+# sound at every microphone (overhead, at low frequency).
+GROUND_POWER_FLOOR = 0.03
+
+
+def ground_q(image: ImagePaths, frequency_hz, c_m_s: float,
+             ground: GroundSurface | None) -> np.ndarray:
+    """Q of each microphone's image path (FFT convention) at source frequencies,
+    (n_mics, n_freqs): taken at the grid's mean incidence and path length (Q changes little
+    across a vehicle grid) and at the received frequency f / (dt/dtau)."""
+    surface = ground or GroundSurface("hard")
+    f = np.asarray(frequency_hz, float)
+    if surface.surface == "hard":
+        return np.ones((image.delay_s.shape[1], len(f)), complex)
+    received = f[None, :] / image.doppler.mean(axis=0)[:, None]
+    return reflection_transfer(received, image.cos_incidence.mean(axis=0)[:, None],
+                               image.path_m.mean(axis=0)[:, None], c_m_s, surface)
+
+
+def _hann_squared_mean(x) -> np.ndarray:
+    """Mean of e^(-i 2 pi x u / T) over a window of length T weighted by the square of the
+    periodic Hann window (the weight of a windowed band power): real, 1 at x = 0.
+    cos^4 = 3/8 + cos(2 pi u / T) / 2 + cos(4 pi u / T) / 8, each term a sinc."""
+    return (np.sinc(x) + (2 / 3) * (np.sinc(x - 1) + np.sinc(x + 1))
+            + (1 / 6) * (np.sinc(x - 2) + np.sinc(x + 2)))
+
+
+def ground_gains(image: ImagePaths, q, frequency_hz, duration_s: float,
+                 weights) -> tuple[np.ndarray, np.ndarray]:
+    """What the reflection of raised microphones does to the maps of a source at the grid
+    point: expected power of the full and the diagonal-removed map per frequency line, relative
+    to free field, each (n_points, n_freqs).
+
+    Microphone m receives the reflection as a copy of the de-Dopplerized signal delayed by
+    ``delay + rate u`` (u from the window centre) and scaled by ``z_m = ratio Q
+    e^(-i 2 pi f delay)``. Over a window (Hann squared weights for power) the expected
+    cross-power of microphones m and n is ``1 + z_m W_m + conj(z_n W_n) + z_m conj(z_n)``,
+    W the window's mean of the delay's sweep (1 where the delay holds still, near 0 where it
+    sweeps many cycles: high frequencies away from overhead); the last term treats m and n as
+    sweeping alike (neighbours on the array). Summed with the weights this gives the beam's and
+    the diagonal's expected power in O(n_mics) per line. Dividing the maps by them leaves the
+    free-field source power for tonal and broadband content alike; the image source's leakage
+    into other grid points cancels in source power integration (the unit sources carry it too).
+    """
+    f = np.asarray(frequency_hz, float)
+    w = np.asarray(weights, float)[None, :, None]
+    z = image.ratio[..., None] * q[None] * np.exp(
+        -2j * np.pi * f[None, None, :] * image.delay_s[..., None])
+    sweep = _hann_squared_mean(f[None, None, :] * image.delay_rate[..., None] * duration_s)
+    s1, s2 = float(w.sum()), float((w ** 2).sum())
+    zw = np.sum(w * z * sweep, axis=1)
+    beam = s1 ** 2 + 2.0 * s1 * zw.real + np.abs(np.sum(w * z, axis=1)) ** 2
+    auto = np.sum(w ** 2 * (1.0 + np.abs(z) ** 2 + 2.0 * (z * sweep).real), axis=1)
+    full = beam / s1 ** 2
+    removed = (beam - auto) / (s1 ** 2 - s2)
+    return (np.maximum(full, GROUND_POWER_FLOOR), np.maximum(removed, GROUND_POWER_FLOOR))
+
+
 def window_band_powers(signals_pa, first_frame, geometry: ReceptionGeometry,
                        clock: ArrayClock, window: Window, settings: ChainSettings,
                        atmosphere: Atmosphere, *, workers: int = 1) -> BandPowers:
@@ -311,6 +433,9 @@ def window_band_powers(signals_pa, first_frame, geometry: ReceptionGeometry,
     first_used, clock_used = np.asarray(first_frame)[used], clock.take(used)
     win, norm = spectral_weights(window.n_samples)
     bins = band_bins(settings.bands, window.n_samples, window.sample_rate_hz)
+    freqs = np.fft.rfftfreq(window.n_samples, 1.0 / window.sample_rate_hz)
+    q = (None if sub.image is None else
+         ground_q(sub.image, freqs, atmosphere.c_m_s, settings.ground))
     n_b = len(bins)
     full = np.empty((n_grid, n_b))
     diag = np.empty((n_grid, n_b))
@@ -322,9 +447,15 @@ def window_band_powers(signals_pa, first_frame, geometry: ReceptionGeometry,
         for b, s in enumerate(bins):
             band = spec[:, :, s] * gain[pts, :, b, None]
             beam = np.einsum("m,gmf->gf", w_used, band)
-            beam_power = np.sum(beam.real ** 2 + beam.imag ** 2, axis=-1, dtype=np.float64)
-            auto = np.einsum("m,gm->g", w_used ** 2,
-                             np.sum(band.real ** 2 + band.imag ** 2, axis=-1, dtype=np.float64))
-            full[pts, b] = beam_power * norm / s1 ** 2
-            diag[pts, b] = (beam_power - auto) * norm / (s1 ** 2 - s2)
+            beam_power = (beam.real ** 2 + beam.imag ** 2).astype(np.float64)     # (n_c, n_f)
+            auto = np.einsum("m,gmf->gf", w_used ** 2,
+                             (band.real ** 2 + band.imag ** 2).astype(np.float64))
+            if q is None:
+                full[pts, b] = beam_power.sum(-1) * norm / s1 ** 2
+                diag[pts, b] = (beam_power - auto).sum(-1) * norm / (s1 ** 2 - s2)
+                continue
+            g_full, g_removed = ground_gains(sub.image.take(pts), q[:, s], freqs[s],
+                                             window.n_samples / window.sample_rate_hz, w_used)
+            full[pts, b] = (beam_power / g_full).sum(-1) * norm / s1 ** 2
+            diag[pts, b] = ((beam_power - auto) / g_removed).sum(-1) * norm / (s1 ** 2 - s2)
     return BandPowers(full, diag)

@@ -138,7 +138,8 @@ def window_context(window: Window, *, track: TrackModel, clock: ArrayClock,
                    diagonal_removal: bool = True, workers: int = 1) -> WindowContext:
     """The reception geometry of a window's grid points and the recording frames it needs."""
     geo = reception_geometry(track, window, grid_points_m, mic_enu_m, atmosphere,
-                             settings.pressure_gain, node_step=settings.node_step)
+                             settings.pressure_gain, node_step=settings.node_step,
+                             image_mic_enu_m=settings.image_mic_enu_m)
     first, n = required_frames(geo, clock, settings.interpolation)
     return WindowContext(window, track, clock, atmosphere, np.asarray(mic_enu_m, float),
                          settings, geo, first, n, diagonal_removal, workers)

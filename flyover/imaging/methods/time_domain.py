@@ -38,7 +38,8 @@ def point_spread(body_m, points, context: WindowContext, seed: int) -> PointSpre
     signal = SourceSignal(source, w.sample_rate_hz, w.start_s - 1.0,
                           w.start_s + w.n_samples / w.sample_rate_hz + 1.0)
     medium = Propagator(context.mic_enu_m, context.atmosphere, settings.pressure_gain,
-                        absorption=settings.absorption)
+                        absorption=settings.absorption,
+                        image_mic_enu_m=settings.image_mic_enu_m, ground=settings.ground)
     start_s = context.clock.sample_time_s(context.first_frame[:, None])[:, 0]
     received = received_pressure_pa(context.track, [signal], [np.asarray(body_m, float)], medium,
                                     context.clock.rate_hz, start_s,
