@@ -48,6 +48,28 @@ def test_regions_lie_in_the_grid_plane_and_carry_their_source_type(tiny_copy):
     assert np.all(campaign.grid.points_m()[:, 2] == 0.3)
 
 
+def test_raised_microphones_need_their_heights(tiny_copy):
+    # A pass flown over the array on stands: its own layout must say how high each microphone
+    # is above the ground, and a ground is refused for microphones that are not raised.
+    def raised(d):
+        d["passes"]["p1"]["array"] = {"layout": "layout.csv", "mounting": "raised",
+                                      "ground": {"surface": "soft"}}
+    edit_config(tiny_copy, raised)
+    expect_error(tiny_copy, "raised microphones need their heights above the ground",
+                 "mic_height_m", "layout.csv")
+    layout = pd.read_csv(tiny_copy / "layout.csv")
+    layout["mic_height_m"] = 1.2
+    layout.to_csv(tiny_copy / "layout.csv", index=False)
+    campaign = load_campaign(tiny_copy / "campaign.yaml")
+    inputs = load_pass(campaign, "p1")
+    assert inputs.array.mounting == "raised" and inputs.array.ground.surface == "soft"
+    np.testing.assert_allclose(inputs.layout.image_enu_m[:, 2],
+                               inputs.layout.enu_m[:, 2] - 2.4, atol=1e-9)
+    assert load_pass(campaign, "p2").array.mounting == "ground-plate"
+    edit_config(tiny_copy, lambda d: d["array"].update(ground={"surface": "hard"}))
+    expect_error(tiny_copy, "a ground is given for microphones that are not raised")
+
+
 def test_unknown_key_suggests_the_closest(tiny_copy):
     edit_config(tiny_copy, lambda d: d["analysis"].update(windw_s=0.2))
     expect_error(tiny_copy, "unknown key 'analysis.windw_s'", "did you mean 'window_s'?")

@@ -129,7 +129,7 @@ def test_levels_of_dipole_like_regions_and_plate_correction(tiny_copy, mach, pol
                  "atmosphere": {"temperature_c": 15.0, "relative_humidity_pct": 70.0,
                                 "pressure_kpa": 101.325, "wind_speed_m_s": 0.0,
                                 "wind_from_deg": 0.0, "speed_of_sound_m_s": c}}
-    table = levels.level_table(powers, windows, campaign, alignment).set_index(
+    table = levels.level_table(powers, windows, campaign, alignment, "p1").set_index(
         ["region", "band_hz"])
     plain = 10 * np.log10(4e-4 / 4e-10)
     front = table.loc[("front", 400.0)]

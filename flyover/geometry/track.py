@@ -223,10 +223,12 @@ def fit_track(time_s, enu_m, position_noise_m: float, attitude_deg=None,
 
 def straight_track(speed_m_s: float, height_m: float, heading_deg: float, overhead_s: float,
                    start_s: float, end_s: float, *, over_enu_m=(0.0, 0.0), climb_m_s: float = 0.0,
-                   pitch_deg: float = 0.0, roll_deg: float = 0.0, rate_hz: float = 50.0):
+                   pitch_deg: float = 0.0, roll_deg: float = 0.0, rate_hz: float = 50.0,
+                   yaw_deg: float | None = None):
     """A true straight, constant-speed path as a :class:`TrackModel`, and its exact samples.
 
-    The vehicle passes over ``over_enu_m`` (east, north) at ``overhead_s`` at ``height_m``.
+    The vehicle passes over ``over_enu_m`` (east, north) at ``overhead_s`` at ``height_m``,
+    its nose along ``heading_deg`` or, crabbing, along ``yaw_deg``.
 
     Returns
     -------
@@ -242,7 +244,8 @@ def straight_track(speed_m_s: float, height_m: float, heading_deg: float, overhe
     enu = np.stack([over_enu_m[0] + speed_m_s * np.sin(h) * d,
                     over_enu_m[1] + speed_m_s * np.cos(h) * d,
                     height_m + climb_m_s * d], axis=1)
-    att = np.tile([heading_deg % 360.0, pitch_deg, roll_deg], (len(t), 1))
+    yaw = heading_deg if yaw_deg is None else yaw_deg
+    att = np.tile([yaw % 360.0, pitch_deg, roll_deg], (len(t), 1))
     return fit_track(t, enu, 1e-6, attitude_deg=att), t, enu, att
 
 

@@ -14,6 +14,7 @@ from jsonschema import Draft202012Validator
 
 from flyover.acoustics.atmosphere import Atmosphere
 from flyover.acoustics.bands import third_octave_bands
+from flyover.acoustics.ground import GroundSurface
 from flyover.geometry.frames import SiteFrame
 from flyover.acoustics.hemisphere import HemisphereSettings
 from flyover.acoustics.uncertainty import InputUncertainty
@@ -334,6 +335,27 @@ def _range(value) -> tuple[float, float]:
     return float(value[0]), float(value[1])
 
 
+def _array(arr: dict, base: Path, source: str, where: str) -> ArraySpec:
+    """The campaign's array, or a pass's own (a pass flown over another set-up)."""
+    if "ground" in arr and arr["mounting"] != "raised":
+        raise FlyoverInputError("a ground is given for microphones that are not raised",
+                                f"{source}, key {where}.ground", "mounting: raised",
+                                f"mounting: {arr['mounting']}",
+                                "ground plates and free-field microphones see no reflection")
+    ground = None
+    if arr["mounting"] == "raised":
+        g = arr.get("ground", {})
+        ground = GroundSurface(g.get("surface", "hard"),
+                               float(g.get("flow_resistivity_pa_s_m2", 200e3)),
+                               g.get("impedance_model", "miki"))
+    return ArraySpec(_resolve_path(base, arr["layout"]), arr["mounting"],
+                     arr.get("height_datum", "ellipsoidal"),
+                     tuple(arr.get("exclude_channels", ())), tuple(arr.get("keep_channels", ())),
+                     tuple(arr.get("extra_channels", ())),
+                     _plate_correction(arr.get("plate_correction_db", []), f"{source}, key "
+                                                                           f"{where}"), ground)
+
+
 def _plate_correction(pairs, source: str) -> dict[float, float]:
     """The ``array.plate_correction_db`` table ([[band_hz, dB], ...]) keyed by nominal midband;
     every band must be a nominal one-third-octave midband (IEC 61260-1), each listed once."""
@@ -343,7 +365,7 @@ def _plate_correction(pairs, source: str) -> dict[float, float]:
         if float(band) not in nominal or float(band) in table:
             raise FlyoverInputError(
                 "plate correction for an unknown or repeated band",
-                f"{source}, key array.plate_correction_db, entry {k + 1}",
+                f"{source}.plate_correction_db, entry {k + 1}",
                 "nominal one-third-octave midbands such as 1000, 1250, 1600 (Hz), each once",
                 f"{band}")
         table[float(band)] = float(db)
@@ -373,12 +395,7 @@ def campaign_from_mapping(data: dict, path: Path) -> Campaign:
     site_cfg = data["site"]
     site = SiteFrame(site_cfg["origin_lat_deg"], site_cfg["origin_lon_deg"],
                      site_cfg["origin_height_m"])
-    arr = data["array"]
-    array = ArraySpec(_resolve_path(base, arr["layout"]), arr["mounting"],
-                      arr.get("height_datum", "ellipsoidal"),
-                      tuple(arr.get("exclude_channels", ())), tuple(arr.get("keep_channels", ())),
-                      tuple(arr.get("extra_channels", ())),
-                      _plate_correction(arr.get("plate_correction_db", []), source))
+    array = _array(data["array"], base, source, "array")
     default_atm = data.get("atmosphere", {})
     weather = None
     if "weather" in data:
@@ -413,6 +430,7 @@ def campaign_from_mapping(data: dict, path: Path) -> Campaign:
             keep_channels=tuple(p.get("keep_channels", ())),
             track_antenna_offset_m=(tuple(float(v) for v in p["track_antenna_offset_m"])
                                     if "track_antenna_offset_m" in p else None),
+            array=_array(p["array"], base, source, f"{where}.array") if "array" in p else None,
         )
     geoid = site_cfg.get("geoid_undulation_m")
     needs_geoid = array.height_datum == "msl" or any(

@@ -13,6 +13,7 @@ from flyover.forward.moving_source import (Broadband, DipoleLike, PointSource, R
 from flyover.geometry.frames import SiteFrame
 from flyover.io.config import read_schema, read_yaml
 from flyover.io.timestamps import parse_utc_ns
+from flyover.acoustics.ground import GroundSurface
 from flyover.model.campaign import MOUNTING_GAIN
 from flyover.model.errors import FlyoverInputError, suggest
 from flyover.sim.scenario import PassScenario, RecorderScenario, Scenario, spiral_layout
@@ -97,7 +98,10 @@ def load_scenario(path) -> tuple[Scenario, SiteFrame, dict]:
                 clock_error_s=r.get("clock_error_s", 0.0), drift_ppm=r.get("drift_ppm", 0.0),
                 timing=tuple(r.get("timing", ()))) for r in p.get("recorders", ())),
             track_format=p.get("track_format", "csv"),
-            rotor_rpm={name: shaft_speed(v) for name, v in p.get("rotor_rpm", {}).items()}))
+            rotor_rpm={name: shaft_speed(v) for name, v in p.get("rotor_rpm", {}).items()},
+            mic_height_m=p.get("mic_height_m"),
+            ground=GroundSurface(**p["ground"]) if "ground" in p else None,
+            track_attitude=bool(p.get("track_attitude", True))))
     for ps in passes:
         mics = [m for r in ps.recorders for m in r.microphones]
         if ps.recorders and sorted(mics) != list(range(1, len(mics_enu) + 1)):

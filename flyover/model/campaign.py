@@ -13,12 +13,15 @@ from pathlib import Path
 import numpy as np
 
 from flyover.acoustics.atmosphere import Atmosphere
+from flyover.acoustics.ground import GroundSurface
 from flyover.acoustics.hemisphere import HemisphereSettings
 from flyover.acoustics.uncertainty import InputUncertainty
 from flyover.geometry.frames import SiteFrame
 from flyover.model.errors import require
 
-MOUNTING_GAIN = {"ground-plate": 2.0, "free-field": 1.0}
+# G of the source model per mounting; raised microphones see the direct path as in free field
+# and the ground's reflection through its own model (flyover.acoustics.ground).
+MOUNTING_GAIN = {"ground-plate": 2.0, "free-field": 1.0, "raised": 1.0}
 
 
 @dataclass(frozen=True)
@@ -232,11 +235,13 @@ class PassSpec:
     clock_search_s: float = 1.0
     keep_channels: tuple[int, ...] = ()
     track_antenna_offset_m: tuple[float, float, float] | None = None
+    array: ArraySpec | None = None
 
     def input_files(self) -> list[Path]:
-        """Every file of the pass: recordings, calibrations and the track."""
+        """Every file of the pass: recordings, calibrations, the track and its own layout."""
         files = [f for r in self.recorders for f in r.files]
         files += [c for c in [self.calibration] + [r.calibration for r in self.recorders] if c]
+        files += [self.array.layout] if self.array is not None else []
         return list(dict.fromkeys(files + [self.track]))
 
     @property
@@ -301,7 +306,8 @@ class ArraySpec:
     ``plate_correction_db`` maps nominal one-third-octave midbands (Hz) to the measured response
     of the ground plates minus the ideal pressure doubling (+6.02 dB), in dB: negative where a
     plate on soft ground falls short at high frequency. Levels have it subtracted (bands not
-    listed: 0).
+    listed: 0). ``ground`` is the surface under ``raised`` microphones (whose heights above
+    it the layout gives in a ``mic_height_m`` column).
     """
 
     layout: Path
@@ -311,6 +317,7 @@ class ArraySpec:
     keep_channels: tuple[int, ...] = ()
     extra_channels: tuple[int, ...] = ()
     plate_correction_db: dict[float, float] = field(default_factory=dict)
+    ground: GroundSurface | None = None
 
     @property
     def pressure_gain(self) -> float:
@@ -344,3 +351,9 @@ class Campaign:
         for p in self.passes.values():
             files += p.input_files()
         return list(dict.fromkeys(files))
+
+
+def pass_array(campaign: Campaign, pass_name: str) -> ArraySpec:
+    """The array a pass was flown over: its own when it gives one, else the campaign's."""
+    own = campaign.passes[pass_name].array
+    return own if own is not None else campaign.array

@@ -6,10 +6,10 @@ import numpy as np
 
 from flyover.acoustics.bands import third_octave_bands
 from flyover.geometry.windows import Window
-from flyover.imaging.dedoppler import (ChainSettings, dedopplerized_signals, reception_geometry,
+from flyover.imaging.dedoppler import (dedopplerized_signals, reception_geometry,
                                        required_frames)
 from flyover.model.campaign import Campaign
-from flyover.pipeline.context import PassInputs
+from flyover.pipeline.context import PassInputs, chain_settings
 
 
 def dedopplerize_span(campaign: Campaign, inputs: PassInputs, start_s: float, n_samples: int,
@@ -28,8 +28,8 @@ def dedopplerize_span(campaign: Campaign, inputs: PassInputs, start_s: float, n_
     span = Window(-1, start_s, n_samples, fs, track.position(start_s), track.velocity(start_s),
                   track.attitude_deg(start_s), 90.0, 0.0)
     band = campaign.analysis.band_min_hz
-    settings = ChainSettings(third_octave_bands(band, band), np.ones(len(inputs.weights)),
-                             campaign.array.pressure_gain, "cubic", absorption=False)
+    settings = chain_settings(inputs, third_octave_bands(band, band), "cubic",
+                              weights=np.ones(len(inputs.weights)), absorption=False)
     geo = reception_geometry(track, span, [body_m], inputs.layout.enu_m, inputs.atmosphere,
                              settings.pressure_gain, node_step=settings.node_step)
     first, count = required_frames(geo, inputs.clock, "cubic")

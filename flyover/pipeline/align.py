@@ -7,14 +7,13 @@ from pathlib import Path
 
 from flyover.acoustics.bands import third_octave_bands
 from flyover.geometry.windows import plan_windows
-from flyover.imaging.dedoppler import ChainSettings
 from flyover.io.figures import save_figure, track_figure
 from flyover.io.results.alignment import write_alignment
 from flyover.model.campaign import PASS_INPUTS, Campaign
 from flyover.model.errors import FlyoverInputError
 from flyover.model.reads import guarded
 from flyover.pipeline._span import dedopplerize_span
-from flyover.pipeline.context import load_pass, pass_summary
+from flyover.pipeline.context import chain_settings, load_pass, pass_summary
 from flyover.sync.clock_offset import estimate_clock_offset
 from flyover.sync.quality import (ChannelAccumulator, channel_quality, neighbour_coherence,
                                   track_quality)
@@ -53,7 +52,7 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> dict:
     flagged = [q["channel"] for q in quality if q["verdict"] != "ok"]
     summary["channel_quality"] = quality
     summary["quality_flagged_channels"] = flagged
-    kept = set(campaign.array.keep_channels) | set(inputs.spec.keep_channels)
+    kept = set(inputs.array.keep_channels) | set(inputs.spec.keep_channels)
     summary["quality_excluded_channels"] = [c for c in flagged if c not in kept]
     left_out = set(summary["quality_excluded_channels"])
     summary["channels_used"] = sum(1 for c, w in zip(inputs.layout.channel, inputs.weights)
@@ -94,7 +93,7 @@ def _estimate_offset(campaign: Campaign, inputs):
             hint="set clock_search_s smaller, or give clock_offset_s as a number")
     pick = windows[:: max(1, len(windows) // 5)][:5]
     bands = third_octave_bands(max(an.band_min_hz, 250.0), an.band_max_hz)
-    settings = ChainSettings(bands, inputs.weights, campaign.array.pressure_gain, "cubic")
+    settings = chain_settings(inputs, bands, "cubic")
     def read_frames(first, n):
         # Silence outside the recording: candidate offsets may look past its ends.
         return inputs.read_pressure_pa(first, n, pad=True)

@@ -178,6 +178,7 @@ def format_summary(campaign: Campaign, summaries: list[dict]) -> str:
             *_recorder_lines(s),
             f"    recording from {s['epoch_utc']} ({clock}); "
             f"track {s['track_start_utc']} to {s['track_end_utc']}",
+            *_array_lines(s),
             *_track_lines(s),
             f"    track covers {s['covered_s'][1] - s['covered_s'][0]:.2f} s of the recording; "
             f"overhead at {s['overhead_utc']} (t = {s['overhead_s']:.2f} s)",
@@ -188,6 +189,18 @@ def format_summary(campaign: Campaign, summaries: list[dict]) -> str:
         lines += [f"    warning: {w}" for w in s.get("warnings", [])]
     lines.append("all inputs are valid")
     return "\n".join(lines)
+
+
+def _array_lines(s: dict) -> list[str]:
+    """A pass flown over its own array: its layout, mounting and ground."""
+    a = s["array"]
+    if not a["own_array"]:
+        return []
+    text = f"    own array {a['layout']}: {a['mounting']}"
+    if a["mounting"] == "raised":
+        lo, hi = a["mic_height_m"]
+        text += (f" {lo:.2f} m" if lo == hi else f" {lo:.2f}-{hi:.2f} m") + f" over {a['ground']}"
+    return [text]
 
 
 def _track_lines(s: dict) -> list[str]:

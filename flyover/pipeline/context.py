@@ -21,7 +21,8 @@ from flyover.io.recorders import JoinedRecording, join_files
 from flyover.io.readers.layout_csv import ArrayLayout
 from flyover.io.results import pass_output_bytes
 from flyover.io.results.alignment import read_alignment
-from flyover.model.campaign import Campaign, PassSpec, RecorderSpec, RotorSpec
+from flyover.model.campaign import (ArraySpec, Campaign, PassSpec, RecorderSpec, RotorSpec,
+                                   pass_array)
 from flyover.model.flightdata import TrackSamples
 from flyover.model.errors import FlyoverInputError, suggest
 from flyover.sync.timebase import ArrayClock, RecordingClock, iso_utc
@@ -84,6 +85,8 @@ class PassInputs:
     weather : dict or None
         The weather file's summary over the pass (:func:`flyover.acoustics.weather.weather_over`)
         with its ``flags``; None when the atmosphere was typed.
+    array : ArraySpec or None
+        The array the pass was flown over (its own or the campaign's).
     """
 
     spec: PassSpec
@@ -97,6 +100,7 @@ class PassInputs:
     track_samples: TrackSamples
     rotors: tuple[RotorSpeeds, ...] = ()
     weather: dict | None = None
+    array: ArraySpec | None = None
 
     @property
     def sample_rate_hz(self) -> float:
@@ -226,10 +230,18 @@ MAX_HEIGHT_ABOVE_ARRAY_M = 600.0
 MIN_TRACK_MOVEMENT_M = 1.0
 
 
-def load_layout(campaign: Campaign) -> ArrayLayout:
-    return read("layout", campaign.array.layout, site=campaign.site,
-                height_datum=campaign.array.height_datum,
-                geoid_undulation_m=campaign.geoid_undulation_m)
+def load_layout(campaign: Campaign, pass_name: str) -> ArrayLayout:
+    """The layout of the array a pass was flown over; raised microphones must give their
+    heights above the ground."""
+    array = pass_array(campaign, pass_name)
+    layout = read("layout", array.layout, site=campaign.site, height_datum=array.height_datum,
+                  geoid_undulation_m=campaign.geoid_undulation_m)
+    if array.mounting == "raised" and layout.mic_height_m is None:
+        raise FlyoverInputError("raised microphones need their heights above the ground",
+                                f"{array.layout}", "a column mic_height_m (m above the ground "
+                                "under each microphone, e.g. 1.2)", "no such column",
+                                "the ground's reflection is modelled from it")
+    return layout
 
 
 def load_pass(campaign: Campaign, name: str, clock_offset_s: float | None = None,
@@ -253,10 +265,11 @@ def load_pass(campaign: Campaign, name: str, clock_offset_s: float | None = None
         raise FlyoverInputError(f"no pass named '{name}'", str(campaign.config_path),
                                 f"one of {sorted(campaign.passes)}")
     spec = campaign.passes[name]
-    layout = load_layout(campaign)
+    layout = load_layout(campaign, name)
+    array = pass_array(campaign, name)
     where = f"{campaign.config_path}, key passes.{name}.recording"
     streams = [join_files(r.files, where=f"{where}, recorder '{r.name}'") for r in spec.recorders]
-    maps = _channel_maps(campaign, spec, layout, streams, where)
+    maps = _channel_maps(array, spec, layout, streams, where)
     rates = {r.name: s.sample_rate_hz for r, s in zip(spec.recorders, streams)}
     if len(set(rates.values())) > 1:
         raise FlyoverInputError(
@@ -286,17 +299,17 @@ def load_pass(campaign: Campaign, name: str, clock_offset_s: float | None = None
     samples = _track_samples(campaign, spec, clock, span)
     track = _fit_track(spec, samples, clock, np.zeros(3))
     rotors = _rotor_speeds(campaign, spec, samples, clock)
-    kept = set(campaign.array.keep_channels) | set(spec.keep_channels)
-    excluded = (set(campaign.array.exclude_channels) | set(spec.exclude_channels)
+    kept = set(array.keep_channels) | set(spec.keep_channels)
+    excluded = (set(array.exclude_channels) | set(spec.exclude_channels)
                 | (set(int(c) for c in quality_excluded) - kept))
     unknown = sorted(excluded - set(layout.channel.tolist()))
     if unknown:
         raise FlyoverInputError("excluded channels are not in the layout",
                                 f"{campaign.config_path}, passes.{name}.exclude_channels",
-                                f"channels of {campaign.array.layout}", f"{unknown}")
+                                f"channels of {array.layout}", f"{unknown}")
     weights = np.array([0.0 if int(c) in excluded else 1.0 for c in layout.channel])
     inputs = PassInputs(spec, layout, pa_per_unit, tuple(recorders), clock, track, weights,
-                        spec.atmosphere, samples, rotors)
+                        spec.atmosphere, samples, rotors, array=array)
     _check_coverage(inputs)
     if campaign.weather is not None:
         atmosphere, weather = _weather_atmosphere(campaign, inputs)
@@ -400,7 +413,7 @@ def _recorder_channel(value, stream: JoinedRecording, where: str) -> int:
     return int(value) - 1
 
 
-def _channel_maps(campaign: Campaign, spec: PassSpec, layout: ArrayLayout,
+def _channel_maps(array: ArraySpec, spec: PassSpec, layout: ArrayLayout,
                   streams: list[JoinedRecording], where: str):
     """Per recorder: layout rows of its microphones, their 0-based recording channels, and its
     timing channels by name (0-based). Every microphone is on exactly one recorder channel."""
@@ -412,12 +425,12 @@ def _channel_maps(campaign: Campaign, spec: PassSpec, layout: ArrayLayout,
         timing = {str(t): _recorder_channel(t, stream, f"{at}, timing_channel")
                   for t in r.timing_channels}
         if r.channels is None:  # one recorder: recording channel k is layout channel k
-            extra = set(campaign.array.extra_channels) | {t + 1 for t in timing.values()}
+            extra = set(array.extra_channels) | {t + 1 for t in timing.values()}
             expected = set(layout.channel.tolist()) | extra
             if expected != set(range(1, stream.n_channels + 1)) or extra & set(row_of):
                 raise FlyoverInputError(
                     "layout and recording disagree on the channels", str(stream.path),
-                    f"{len(layout.channel)} microphone channels as in {campaign.array.layout}"
+                    f"{len(layout.channel)} microphone channels as in {array.layout}"
                     + (f" plus extra channels {sorted(extra)}" if extra else ""),
                     f"{stream.n_channels} channels in the recording",
                     "give one layout row per microphone channel, and list channels that are "
@@ -429,7 +442,7 @@ def _channel_maps(campaign: Campaign, spec: PassSpec, layout: ArrayLayout,
         for lay, rec in pairs:
             if lay not in row_of:
                 raise FlyoverInputError("a mapped channel is not in the layout",
-                                        f"{at}, channels", f"channels of {campaign.array.layout}",
+                                        f"{at}, channels", f"channels of {array.layout}",
                                         f"layout channel {lay}")
             if lay in owner:
                 raise FlyoverInputError(
@@ -575,6 +588,7 @@ def pass_summary(inputs: PassInputs) -> dict:
         "speed_of_sound_m_s": atm.c_m_s,
         "array_aperture_m": inputs.layout.aperture_m,
         "array_center_enu_m": [float(v) for v in inputs.layout.center_enu_m],
+        "array": mounting_summary(inputs),
         "atmosphere": {"temperature_c": atm.temperature_c,
                        "relative_humidity_pct": atm.relative_humidity_pct,
                        "pressure_kpa": atm.pressure_kpa, "wind_speed_m_s": atm.wind_speed_m_s,
@@ -585,6 +599,19 @@ def pass_summary(inputs: PassInputs) -> dict:
         "track": track_summary(inputs),
         "rotors": [r.summary() for r in inputs.rotors],
     }
+
+
+def mounting_summary(inputs: PassInputs) -> dict:
+    """The array the pass was flown over: its layout file, mounting and the ground."""
+    array, layout = inputs.array, inputs.layout
+    out = {"layout": array.layout.name, "mounting": array.mounting,
+           "own_array": inputs.spec.array is not None}
+    if array.mounting == "raised":
+        out["ground"] = array.ground.describe()
+        out["mic_height_m"] = [float(layout.mic_height_m.min()), float(layout.mic_height_m.max())]
+    if array.plate_correction_db:
+        out["plate_correction_db"] = {f"{k:g}": v for k, v in array.plate_correction_db.items()}
+    return out
 
 
 def track_summary(inputs: PassInputs) -> dict:
@@ -658,11 +685,23 @@ def _ranges(channels) -> str:
     return ", ".join(parts)
 
 
+def chain_settings(inputs: PassInputs, bands, interpolation: str, *, weights=None,
+                   absorption: bool = True) -> ChainSettings:
+    """How the pass's array is imaged: its mounting's G and, for raised microphones, their
+    images in the ground and the ground's surface."""
+    array = inputs.array
+    raised = array.mounting == "raised"
+    return ChainSettings(bands, inputs.weights if weights is None else weights,
+                         array.pressure_gain, interpolation, absorption,
+                         image_mic_enu_m=inputs.layout.image_enu_m if raised else None,
+                         ground=array.ground)
+
+
 def check_memory(campaign: Campaign, inputs: PassInputs, share: float = 0.5) -> None:
     """Refuse a window or grid whose processing would need more than ``share`` of the memory."""
     an = campaign.analysis
-    settings = ChainSettings(third_octave_bands(an.band_min_hz, an.band_max_hz), inputs.weights,
-                             campaign.array.pressure_gain, an.interpolation)
+    settings = chain_settings(inputs, third_octave_bands(an.band_min_hz, an.band_max_hz),
+                              an.interpolation)
     fs = inputs.sample_rate_hz
     n_grid = int(np.prod(campaign.grid.shape))
     need = window_memory_bytes(n_grid, len(inputs.layout.channel), int(an.window_s * fs),

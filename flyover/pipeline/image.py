@@ -12,7 +12,7 @@ import pandas as pd
 
 from flyover.acoustics.bands import third_octave_bands
 from flyover.geometry.windows import plan_windows
-from flyover.imaging.dedoppler import ChainSettings, valid_bands
+from flyover.imaging.dedoppler import valid_bands
 from flyover.imaging.methods import method_named
 from flyover.imaging.resolution import main_lobe_width_m, regions_resolved
 from flyover.imaging.window import TOTAL, image_window, window_context
@@ -22,7 +22,7 @@ from flyover.io.results.region_power import REGION_POWER
 from flyover.io.results.windows import NO_WINDOW, WINDOWS
 from flyover.model.campaign import PASS_INPUTS, Campaign
 from flyover.model.reads import guarded
-from flyover.pipeline.context import check_memory, load_aligned_pass
+from flyover.pipeline.context import chain_settings, check_memory, load_aligned_pass
 from flyover.pipeline.progress import Progress
 from flyover.sync.timebase import iso_utc
 
@@ -47,8 +47,7 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path, *, threads: int = 1,
     clock = inputs.clock
     bands = third_octave_bands(an.band_min_hz, an.band_max_hz)
     fs = inputs.sample_rate_hz
-    settings = ChainSettings(bands, inputs.weights, campaign.array.pressure_gain,
-                             an.interpolation)
+    settings = chain_settings(inputs, bands, an.interpolation)
     points = campaign.grid.points_m()
     method = method_named(an.method)
     mics = inputs.layout.enu_m

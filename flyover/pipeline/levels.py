@@ -21,14 +21,15 @@ from flyover.io.results.levels import LEVELS
 from flyover.io.results.region_power import REGION_POWER
 from flyover.io.results.spectra import SPECTRA
 from flyover.io.results.windows import read_analysed
-from flyover.model.campaign import Campaign
+from flyover.model.campaign import Campaign, pass_array
 from flyover.model.errors import FlyoverInputError
 from flyover.model.reads import guarded
 
 UNRESOLVED = "not separable: region centres closer than one main-lobe width"
 
 # What this stage reads of the campaign (flyover.model.reads): its re-run fingerprint too.
-READS = ("regions", "array.plate_correction_db", "analysis.reference_distance_m",
+READS = ("regions", "array.plate_correction_db", "passes.{pass}.array",
+         "analysis.reference_distance_m",
          "analysis.reference_atmosphere",
          "analysis.spectra_polar_deg", "analysis.uncertainty")
 
@@ -42,7 +43,7 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> None:
     windows = read_analysed(out_dir).set_index("window")
     powers = REGION_POWER.read(out_dir)
     alignment = read_alignment(out_dir)
-    levels = level_table(powers, windows, campaign, alignment)
+    levels = level_table(powers, windows, campaign, alignment, pass_name)
     levels = with_uncertainty(levels, alignment, campaign, pass_name)
     LEVELS.write(out_dir, levels)
     spectra = spectra_table(levels, campaign.analysis.spectra_polar_deg)
@@ -53,7 +54,7 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> None:
 
 
 def level_table(powers: pd.DataFrame, windows: pd.DataFrame, campaign: Campaign,
-                alignment: dict) -> pd.DataFrame:
+                alignment: dict, pass_name: str) -> pd.DataFrame:
     """One row per window, band and region (plus the 'total' of all regions), with each
     region's emission angles towards the array centre, in body axes and in the moving air.
 
@@ -85,7 +86,7 @@ def level_table(powers: pd.DataFrame, windows: pd.DataFrame, campaign: Campaign,
     bands = third_octave_bands(p["band_hz"].min(), p["band_hz"].max())
     band_index = {b: k for k, b in enumerate(bands.nominal_hz)}
     k = p["band_hz"].map(band_index).to_numpy()
-    plate = campaign.array.plate_correction_db
+    plate = pass_array(campaign, pass_name).plate_correction_db
     p["plate_correction_db"] = p["band_hz"].map(lambda b: plate.get(b, 0.0)).astype(float)
     one_minus = 1.0 - p["mach_r"].to_numpy(float)
     source_type = 20.0 * (p["convective_exponent"].to_numpy(float) - 2.0) * np.log10(one_minus)

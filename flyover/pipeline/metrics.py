@@ -82,7 +82,7 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> None:
            "ten_db_down_s": metrics.ten_db_down_duration_s,
            "ten_db_down_complete": metrics.ten_db_down_complete,
            "laeq_db": metrics.laeq_db, "laeq_duration_s": metrics.laeq_duration_s,
-           "as_measured": campaign.array.mounting}
+           "as_measured": inputs.array.mounting}
     EVENT_METRICS.write(out_dir, pd.DataFrame([row]))
     step = max(1, int(round(HISTORY_STEP_S * fs)))
     k = np.arange(0, n, step)
@@ -149,7 +149,7 @@ def reconstruction_table(campaign: Campaign, inputs: PassInputs, summary: dict,
     # The measurement in the analysed bands, A-weighted once for the whole span and its stretch.
     p2_band = a_weighted(pressure, fs, (bands.lower_hz[0], bands.upper_hz[-1])) ** 2
     measured = metrics_of_mean_square(p2_band, fs)[0]
-    mounting, gain = campaign.array.mounting, campaign.array.pressure_gain
+    mounting, gain = inputs.array.mounting, inputs.array.pressure_gain
     rows = [_row("measured", "total", measured, height_t, speed_t, mounting,
                  f"channel {inputs.layout.channel[mic]}, {bands.nominal_hz[0]:g}-"
                  f"{bands.nominal_hz[-1]:g} Hz bands only")]

@@ -17,7 +17,7 @@ from flyover.io.readers.tdms_recording import write_tdms
 from flyover.io.scenario import load_scenario
 from flyover.model.errors import FlyoverInputError
 from flyover.sim.flightlogs import ESC_REPORT, px4_topics, write_ulog
-from flyover.sim.scenario import PassScenario, pass_source, simulate_pass
+from flyover.sim.scenario import pass_microphones, PassScenario, pass_source, simulate_pass
 from flyover.sim.timing import irig_b_signal, pps_signal
 from flyover.sync.timebase import iso_utc
 
@@ -25,10 +25,13 @@ from flyover.sync.timebase import iso_utc
 def pass_files(out_dir: Path, ps: PassScenario, fmt: str = "wav",
                sample_rate_hz: float | None = None) -> dict:
     """Where the simulator writes the files of one pass: ``recording`` (one path) or
-    ``recorders`` (name -> list of paths), ``calibration`` and ``track``."""
+    ``recorders`` (name -> list of paths), ``calibration``, ``track`` and, for raised
+    microphones, ``layout``."""
     base = Path(out_dir) / ps.name
     files = {"calibration": base / "calibration.csv",
              "track": base / f"track{TRACK_SUFFIX[ps.track_format]}"}
+    if ps.mic_height_m is not None:      # raised microphones: the pass's own layout
+        files["layout"] = base / "layout.csv"
     if not ps.recorders:
         return {"recording": base / f"recording.{fmt}", **files}
     n = int(round(ps.duration_s * sample_rate_hz))
@@ -95,10 +98,21 @@ def _write_track(path, ps: PassScenario, sim, site, sources) -> None:
         write_ulog(path, px4_topics(utc, lat, lon, h, att, geoid_m=DEMO_GEOID_M, rpm=rpm),
                    nested=ESC_REPORT)
         return
-    write_csv(path, pd.DataFrame({
-        "time_utc": [iso_utc(int(u)) for u in utc], "lat_deg": lat, "lon_deg": lon,
-        "height_m": h, "roll_deg": att[:, 2], "pitch_deg": att[:, 1], "yaw_deg": att[:, 0]}),
-        float_format="%.9f")
+    columns = {"time_utc": [iso_utc(int(u)) for u in utc], "lat_deg": lat, "lon_deg": lon,
+               "height_m": h}
+    if ps.track_attitude:
+        columns.update(roll_deg=att[:, 2], pitch_deg=att[:, 1], yaw_deg=att[:, 0])
+    write_csv(path, pd.DataFrame(columns), float_format="%.9f")
+
+
+def _write_layout(path, mic_enu_m, site, mic_height_m: float | None = None) -> None:
+    """A surveyed layout (WGS84), with each microphone's height above the ground if raised."""
+    lat, lon, h = site.to_wgs84(mic_enu_m)
+    columns = {"channel": np.arange(1, len(mic_enu_m) + 1), "lat_deg": lat, "lon_deg": lon,
+               "height_m": h}
+    if mic_height_m is not None:
+        columns["mic_height_m"] = np.full(len(mic_enu_m), mic_height_m)
+    write_csv(path, pd.DataFrame(columns), float_format="%.9f")
 
 
 def write_weather(path, scenario) -> None:
@@ -145,11 +159,8 @@ def write_campaign(scenario_path, out_dir, progress=print) -> None:
     out = Path(out_dir)
     fmt = raw["recording"].get("format", "wav")
     subtype = raw["recording"].get("subtype", "FLOAT")
-    lat, lon, h = site.to_wgs84(scenario.mic_enu_m)
     n_mics = len(scenario.mic_enu_m)
-    write_csv(out / "layout.csv", pd.DataFrame({
-        "channel": np.arange(1, n_mics + 1), "lat_deg": lat, "lon_deg": lon, "height_m": h}),
-        float_format="%.9f")
+    _write_layout(out / "layout.csv", scenario.mic_enu_m, site)
     bands = third_octave_bands(20, 10000)
     truth_rows = []
     for ps in scenario.passes:
@@ -169,6 +180,9 @@ def write_campaign(scenario_path, out_dir, progress=print) -> None:
                                                       "pa_per_unit": sim.pa_per_unit}),
                   float_format="%.9g")
         _write_track(files["track"], ps, sim, site, scenario.sources)
+        if "layout" in files:
+            _write_layout(files["layout"], pass_microphones(scenario, ps)[0], site,
+                          ps.mic_height_m)
         for src in scenario.sources:
             power = src.band_power_pa2(bands, ps.gain_db.get(src.name, 0.0))
             for k in np.flatnonzero(power > 0):
@@ -228,4 +242,10 @@ def _pass_mapping(scenario, raw, ps: PassScenario, fmt) -> dict:
     out.update(calibration=str(files["calibration"]), track=str(files["track"]),
                track_position_noise_m=max(scenario.gnss_noise_m, 1e-3),
                atmosphere=raw["passes"][ps.name]["atmosphere"])
+    if "layout" in files:
+        g = ps.ground
+        out["array"] = {"layout": str(files["layout"]), "mounting": "raised",
+                        "ground": {"surface": g.surface,
+                                   "flow_resistivity_pa_s_m2": g.flow_resistivity_pa_s_m2,
+                                   "impedance_model": g.impedance_model}}
     return out

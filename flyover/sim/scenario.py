@@ -10,6 +10,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 
 from flyover.acoustics.atmosphere import Atmosphere
+from flyover.acoustics.ground import GroundSurface
 from flyover.forward.moving_source import (PointSource, Propagator, SourceSignal,
                                            received_pressure_pa)
 from flyover.geometry.track import TrackModel, straight_track
@@ -84,6 +85,9 @@ class PassScenario:
     recorders: tuple[RecorderScenario, ...] = ()
     track_format: str = "csv"
     rotor_rpm: dict = field(default_factory=dict)    # source name -> ShaftSpeed for this pass
+    mic_height_m: float | None = None     # raised microphones this high over the array's ground
+    ground: GroundSurface | None = None   # the ground under them
+    track_attitude: bool = True           # whether the logged track holds the attitude
 
     @property
     def epoch_utc_ns(self) -> int:
@@ -123,15 +127,27 @@ class SimulatedPass:
 
 
 def pass_truth_track(scenario: Scenario, ps: PassScenario) -> TrackModel:
-    """The true path of a pass (straight line through the overhead point)."""
+    """The true path of a pass (straight line through the overhead point), the nose into the
+    wind by the crab angle that keeps the ground track straight."""
     h = np.deg2rad(ps.heading_deg)
     right = np.array([np.cos(h), -np.sin(h)])  # starboard of the heading, horizontal
     over = scenario.mic_enu_m[:, :2].mean(0) + ps.cross_offset_m * right
     margin = scenario.track_margin_s
+    air = ps.speed_m_s * np.array([np.sin(h), np.cos(h)]) - ps.atmosphere.wind_enu_m_s[:2]
     model, *_ = straight_track(ps.speed_m_s, ps.height_m, ps.heading_deg, ps.overhead_s,
                                -margin - 1.0, ps.duration_s + margin, over_enu_m=over,
-                               pitch_deg=ps.pitch_deg)
+                               pitch_deg=ps.pitch_deg,
+                               yaw_deg=float(np.rad2deg(np.arctan2(air[0], air[1]))))
     return model
+
+
+def pass_microphones(scenario: Scenario, ps: PassScenario) -> tuple[np.ndarray, np.ndarray | None]:
+    """The microphones of a pass (raised above the array's ground when the pass says so) and
+    their images in that ground (None on ground plates)."""
+    if ps.mic_height_m is None:
+        return scenario.mic_enu_m, None
+    lift = np.array([0.0, 0.0, ps.mic_height_m])
+    return scenario.mic_enu_m + lift, scenario.mic_enu_m - lift
 
 
 def pass_source(source: PointSource, ps: PassScenario) -> PointSource:
@@ -157,7 +173,9 @@ def simulate_pass(scenario: Scenario, ps: PassScenario) -> SimulatedPass:
                            if ps.recorders else 0.0)
     signals = [SourceSignal(pass_source(src, ps), fs, -margin, end,
                             ps.gain_db.get(src.name, 0.0)) for src in scenario.sources]
-    prop = Propagator(scenario.mic_enu_m, ps.atmosphere, scenario.pressure_gain)
+    mics, images = pass_microphones(scenario, ps)
+    prop = Propagator(mics, ps.atmosphere, scenario.pressure_gain if images is None else 1.0,
+                      image_mic_enu_m=images, ground=ps.ground)
     p = received_pressure_pa(truth, signals, [np.asarray(s.body_m) for s in scenario.sources],
                              prop, rate, start, n)
     p += incoherent_noise_pa(n_mics, n, scenario.noise_spl_db, ps.seed + 1)

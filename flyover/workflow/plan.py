@@ -23,7 +23,7 @@ from flyover.io.config import load_campaign
 from flyover.io.readers import read
 from flyover.io.results import hemisphere
 from flyover.io.scenario import load_scenario
-from flyover.model.campaign import Campaign
+from flyover.model.campaign import Campaign, pass_array
 from flyover.model.errors import FlyoverInputError
 from flyover.model.reads import read_values
 from flyover.sim.demo import WEATHER_FILE, pass_files
@@ -137,10 +137,14 @@ class CampaignPlan:
                           [f for fs in expected["recorders"].values() for f in fs])
             named = {"recording": spec.recording_files if spec else [],
                      "calibration": [spec.calibration] if spec else [],
-                     "track": [spec.track] if spec else []}
-            for key, want in (("recording", recordings),
-                              ("calibration", [expected["calibration"]]),
-                              ("track", [expected["track"]])):
+                     "track": [spec.track] if spec else [],
+                     "array.layout": [spec.array.layout] if spec and spec.array else []}
+            checks = [("recording", recordings), ("calibration", [expected["calibration"]]),
+                      ("track", [expected["track"]])]
+            if "layout" in expected:
+                checks.append(("array.layout", [expected["layout"]]))
+                files.append(expected["layout"])
+            for key, want in checks:
                 if [Path(p) for p in named[key]] != want:
                     raise FlyoverInputError(
                         "a simulated campaign's files are where the simulator writes them",
@@ -155,7 +159,7 @@ class CampaignPlan:
         spec = self.campaign.passes[name]
         weather = [self.campaign.weather.path] if self.campaign.weather else []
         return {"files": [str(p) for p in spec.input_files() + weather],
-                "layout": str(self.campaign.array.layout)}
+                "layout": str(pass_array(self.campaign, name).layout)}
 
     def memory_mb(self, name: str | None, stage: str) -> int:
         """Memory to ask a scheduler for: the stage's measured peak scaled to this campaign's

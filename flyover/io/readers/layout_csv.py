@@ -1,4 +1,5 @@
-"""Array layout CSV: one row per microphone, site ENU or WGS84 columns."""
+"""Array layout CSV: one row per microphone, site ENU or WGS84 columns, and for raised
+microphones their height above the ground under them (``mic_height_m``)."""
 
 from __future__ import annotations
 
@@ -28,10 +29,22 @@ class ArrayLayout:
     channel : ndarray of int, shape (n_mics,)
         1-based recording channel of each microphone, sorted.
     enu_m : ndarray, shape (n_mics, 3)
+    mic_height_m : ndarray, shape (n_mics,), or None
+        Height of each microphone above the ground under it (the optional ``mic_height_m``
+        column; raised microphones need it).
     """
 
     channel: np.ndarray
     enu_m: np.ndarray
+    mic_height_m: np.ndarray | None = None
+
+    @property
+    def image_enu_m(self) -> np.ndarray:
+        """The microphones mirrored in the ground under them (flat, horizontal ground), site
+        frame, shape (n_mics, 3)."""
+        if self.mic_height_m is None:
+            raise ValueError("the layout gives no mic_height_m")
+        return self.enu_m - np.outer(2.0 * self.mic_height_m, [0.0, 0.0, 1.0])
 
     @property
     def center_enu_m(self) -> np.ndarray:
@@ -65,7 +78,17 @@ def read_layout(path, site: SiteFrame, height_datum: str = "ellipsoidal",
             raise FlyoverInputError("a site-frame layout has no height datum", str(path),
                                     "array.height_datum: ellipsoidal with east/north/up columns")
     order = np.argsort(ch)
-    layout = ArrayLayout(ch[order], enu[order])
+    height = None
+    if "mic_height_m" in df.columns:
+        height = numeric_column(df, "mic_height_m", path)
+        bad = np.flatnonzero((height < 0.0) | (height > 20.0))
+        if bad.size:
+            raise FlyoverInputError("microphone height above the ground out of range",
+                                    f"{path}, row {bad[0] + 2}, column mic_height_m",
+                                    "metres from 0 to 20 (1.2 for certification-style stands)",
+                                    f"{height[bad[0]]}")
+        height = height[order]
+    layout = ArrayLayout(ch[order], enu[order], height)
     check_layout_geometry(layout, str(path))
     return layout
 
