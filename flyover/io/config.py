@@ -12,7 +12,7 @@ import numpy as np
 import yaml
 from jsonschema import Draft202012Validator
 
-from flyover.acoustics.atmosphere import Atmosphere
+from flyover.acoustics.atmosphere import Atmosphere, AtmosphereLayer
 from flyover.acoustics.bands import third_octave_bands
 from flyover.acoustics.ground import GroundSurface
 from flyover.geometry.frames import SiteFrame
@@ -431,6 +431,8 @@ def campaign_from_mapping(data: dict, path: Path) -> Campaign:
             track_antenna_offset_m=(tuple(float(v) for v in p["track_antenna_offset_m"])
                                     if "track_antenna_offset_m" in p else None),
             array=_array(p["array"], base, source, f"{where}.array") if "array" in p else None,
+            atmosphere_profile=tuple(AtmosphereLayer(**k) for k in p.get(
+                "atmosphere_profile", data.get("atmosphere_profile", ()))),
         )
     geoid = site_cfg.get("geoid_undulation_m")
     needs_geoid = array.height_datum == "msl" or any(
@@ -473,6 +475,7 @@ def campaign_from_mapping(data: dict, path: Path) -> Campaign:
                                         ref.get("pressure_kpa", 101.325)),
         method=_imaging_method(an.get("method", DEFAULT_METHOD), source),
         interpolation=an.get("interpolation", "cubic"),
+        band_absorption=an.get("band_absorption", "midband"),
         diagonal_removal=bool(an.get("diagonal_removal", True)),
         max_polar_offset_deg=float(an.get("max_polar_offset_deg", 60.0)),
         map_dynamic_range_db=float(an.get("map_dynamic_range_db", 15.0)),

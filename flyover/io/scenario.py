@@ -7,7 +7,7 @@ from pathlib import Path
 import numpy as np
 from jsonschema import Draft202012Validator
 
-from flyover.acoustics.atmosphere import Atmosphere
+from flyover.acoustics.atmosphere import Atmosphere, AtmosphereLayer
 from flyover.forward.moving_source import (Broadband, DipoleLike, PointSource, RotorTones,
                                            ShaftSpeed, Tone)
 from flyover.geometry.frames import SiteFrame
@@ -87,7 +87,9 @@ def load_scenario(path) -> tuple[Scenario, SiteFrame, dict]:
             overhead_s=p.get("overhead_s", p["duration_s"] / 2.0),
             recording_start_utc_ns=parse_utc_ns(p["recording_start_utc"]),
             clock_offset_s=p.get("clock_offset_s", 0.0),
-            atmosphere=Atmosphere(**p["atmosphere"]), cross_offset_m=p.get("cross_offset_m", 0.0),
+            atmosphere=Atmosphere(**p["atmosphere"], profile=tuple(
+                AtmosphereLayer(**k) for k in p.get("atmosphere_profile", ()))),
+            cross_offset_m=p.get("cross_offset_m", 0.0),
             gain_db=dict(p.get("gain_db", {})), pitch_deg=p.get("pitch_deg", 0.0),
             seed=p.get("seed", 10 * (k + 1)),
             recorders=tuple(RecorderScenario(

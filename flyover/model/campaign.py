@@ -12,7 +12,7 @@ from pathlib import Path
 
 import numpy as np
 
-from flyover.acoustics.atmosphere import Atmosphere
+from flyover.acoustics.atmosphere import Atmosphere, AtmosphereLayer
 from flyover.acoustics.ground import GroundSurface
 from flyover.acoustics.hemisphere import HemisphereSettings
 from flyover.acoustics.uncertainty import InputUncertainty
@@ -122,6 +122,10 @@ class AnalysisSettings:
         Imaging method by name (:mod:`flyover.imaging.methods`).
     interpolation : str
         ``"cubic"`` (4-point Lagrange) or ``"sinc"`` (windowed sinc, band-limited).
+    band_absorption : str
+        The reference atmosphere's absorption over the reference distance: ``"midband"``
+        (ISO 9613-1 pure tone at the exact midband) or ``"band"`` (integrated over the band,
+        after SAE ARP 5534).
     diagonal_removal : bool
     max_polar_offset_deg : float
         Windows whose polar angle is further than this from 90 deg are not analysed.
@@ -152,6 +156,7 @@ class AnalysisSettings:
     reference_atmosphere: Atmosphere
     method: str = "time-domain"
     interpolation: str = "cubic"
+    band_absorption: str = "midband"
     diagonal_removal: bool = True
     max_polar_offset_deg: float = 60.0
     map_dynamic_range_db: float = 15.0
@@ -171,6 +176,8 @@ class AnalysisSettings:
                 "reference distance must be a positive finite distance",
                 "analysis.reference_distance_m", "a distance in metres such as 100",
                 f"{self.reference_distance_m}")
+        require(self.band_absorption in ("midband", "band"), "unknown band absorption",
+                "analysis.band_absorption", "'midband' or 'band'", f"'{self.band_absorption}'")
         require(self.interpolation in ("cubic", "sinc"), "unknown interpolation",
                 "analysis.interpolation", "'cubic' or 'sinc'", f"'{self.interpolation}'")
 
@@ -217,7 +224,8 @@ class PassSpec:
     estimate); ``calibration`` is the pass's table for recorders without their own.
     ``atmosphere`` is None when the campaign's weather file gives it (resolved per pass when the
     pass is loaded); ``track_antenna_offset_m`` is the GNSS antenna's position in body axes
-    (None: the track is the body origin's).
+    (None: the track is the body origin's); ``array`` its own array (None: the campaign's);
+    ``atmosphere_profile`` the air by height above the array (empty: uniform).
     """
 
     name: str
@@ -236,6 +244,7 @@ class PassSpec:
     keep_channels: tuple[int, ...] = ()
     track_antenna_offset_m: tuple[float, float, float] | None = None
     array: ArraySpec | None = None
+    atmosphere_profile: tuple[AtmosphereLayer, ...] = ()
 
     def input_files(self) -> list[Path]:
         """Every file of the pass: recordings, calibrations, the track and its own layout."""

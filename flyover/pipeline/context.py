@@ -314,6 +314,12 @@ def load_pass(campaign: Campaign, name: str, clock_offset_s: float | None = None
     if campaign.weather is not None:
         atmosphere, weather = _weather_atmosphere(campaign, inputs)
         inputs = dataclasses.replace(inputs, atmosphere=atmosphere, weather=weather)
+    if spec.atmosphere_profile:
+        # Every straight path from the array to the vehicle crosses the layers between the
+        # ground and the vehicle's height in the same shares: one uniform stand-in per pass.
+        height = pass_geometry(track, layout.center_enu_m, inputs.recording_span_s).height_m
+        inputs = dataclasses.replace(inputs, atmosphere=dataclasses.replace(
+            inputs.atmosphere, profile=spec.atmosphere_profile).along(0.0, height))
     if samples.attitude_deg is None and np.any(inputs.atmosphere.wind_enu_m_s[:2] != 0):
         # Without attitude the yaw follows the air-relative velocity, which needs the wind
         # (from the weather file, itself averaged over a stretch found from the positions).
@@ -594,7 +600,9 @@ def pass_summary(inputs: PassInputs) -> dict:
                        "pressure_kpa": atm.pressure_kpa, "wind_speed_m_s": atm.wind_speed_m_s,
                        "wind_from_deg": atm.wind_from_deg,
                        "speed_of_sound_m_s": atm.speed_of_sound_m_s,
-                       "source": "typed" if inputs.weather is None else "weather file"},
+                       "source": "typed" if inputs.weather is None else "weather file",
+                       "profile_layers": len(atm.profile),
+                       "profile_span_m": list(atm.span_m) if atm.span_m else None},
         "weather": inputs.weather,
         "track": track_summary(inputs),
         "rotors": [r.summary() for r in inputs.rotors],

@@ -7,6 +7,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from flyover.acoustics.atmosphere import band_absorption_db
 from flyover.acoustics.bands import third_octave_bands
 from flyover.acoustics.reference import level_1m_db, reference_level_db
 from flyover.acoustics.uncertainty import Z90, InputUncertainty, band_level_uncertainty_db
@@ -30,7 +31,7 @@ UNRESOLVED = "not separable: region centres closer than one main-lobe width"
 # What this stage reads of the campaign (flyover.model.reads): its re-run fingerprint too.
 READS = ("regions", "array.plate_correction_db", "passes.{pass}.array",
          "analysis.reference_distance_m",
-         "analysis.reference_atmosphere",
+         "analysis.reference_atmosphere", "analysis.band_absorption",
          "analysis.spectra_polar_deg", "analysis.uncertainty")
 
 
@@ -94,6 +95,15 @@ def level_table(powers: pd.DataFrame, windows: pd.DataFrame, campaign: Campaign,
           - p["plate_correction_db"].to_numpy(float))
     lref = reference_level_db(np.zeros(len(bands)), bands, an.reference_distance_m,
                               an.reference_atmosphere)[k] + l1
+    # The reference path's absorption integrated over each band (after SAE ARP 5534) minus the
+    # pure tone's at the exact midband: reported, and used when the campaign asks for it.
+    ref = an.reference_atmosphere
+    band_minus_tone = (band_absorption_db(lambda f: ref.absorption_db_per_m(f)
+                                          * an.reference_distance_m, bands)
+                       - ref.absorption_db_per_m(bands.center_hz) * an.reference_distance_m)
+    p["band_absorption_difference_db"] = band_minus_tone[k]
+    if an.band_absorption == "band":
+        lref = lref - band_minus_tone[k]
     ok = p["resolved"] & p["band_valid"]
     # A level that cannot be separated or measured is not given at any distance.
     p["level_1m_db"] = np.where(ok, l1, np.nan)

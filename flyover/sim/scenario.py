@@ -174,7 +174,9 @@ def simulate_pass(scenario: Scenario, ps: PassScenario) -> SimulatedPass:
     signals = [SourceSignal(pass_source(src, ps), fs, -margin, end,
                             ps.gain_db.get(src.name, 0.0)) for src in scenario.sources]
     mics, images = pass_microphones(scenario, ps)
-    prop = Propagator(mics, ps.atmosphere, scenario.pressure_gain if images is None else 1.0,
+    # A level pass: every path crosses the layers up to its height in the same shares.
+    air = ps.atmosphere.along(0.0, ps.height_m)
+    prop = Propagator(mics, air, scenario.pressure_gain if images is None else 1.0,
                       image_mic_enu_m=images, ground=ps.ground)
     p = received_pressure_pa(truth, signals, [np.asarray(s.body_m) for s in scenario.sources],
                              prop, rate, start, n)

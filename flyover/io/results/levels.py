@@ -36,6 +36,10 @@ LEVELS = TableFile("levels.csv", (
                                     "(removed from the levels)"),
     ("level_as_heard_db", "dB, level_db with the convective amplification kept: as heard on "
                           "the ground from the moving vehicle, at the reference distance"),
+    ("band_absorption_difference_db", "dB, the reference path's absorption integrated over the "
+                                      "band (after SAE ARP 5534) minus the pure tone's at the "
+                                      "exact midband (ISO 9613-1); analysis.band_absorption "
+                                      "says which the levels use"),
     ("plate_correction_db", "dB, the ground plate's measured response minus +6.02 dB in this "
                             "band (array.plate_correction_db), subtracted from the levels"),
 ), float_format="%.3f")
