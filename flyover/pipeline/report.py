@@ -129,6 +129,29 @@ def _level_grids(table: pd.DataFrame, group: list[str], row: str, row_text,
     return "".join(parts)
 
 
+def _array_text(array: dict) -> str:
+    """The array a pass was flown over, in words."""
+    if not array:
+        return "campaign array"
+    text = f"{array['layout']}, {array['mounting']}"
+    if array["mounting"] == "raised":
+        lo, hi = array["mic_height_m"]
+        text += f" {lo:.2f}-{hi:.2f} m over {array['ground']}"
+    if array.get("plate_correction_db"):
+        text += ", plate correction " + ", ".join(f"{b} Hz {v:+.1f} dB" for b, v in
+                                                 array["plate_correction_db"].items())
+    return text
+
+
+def _profile_text(atmosphere: dict) -> str:
+    """A layered atmosphere's stand-in, in words (the table above gives its values)."""
+    if not atmosphere.get("profile_layers"):
+        return "uniform"
+    lo, hi = atmosphere["profile_span_m"]
+    return (f"{atmosphere['profile_layers']} layers, averaged over {lo:.0f}-{hi:.0f} m above "
+            "the array (absorption, travel-time speed of sound, wind)")
+
+
 def _pass_section(campaign: Campaign, name: str, out: Path) -> str:
     d = out / name
     al = read_alignment(d)
@@ -166,7 +189,11 @@ def _pass_section(campaign: Campaign, name: str, out: Path) -> str:
                                           if "clock_offset_uncertainty_s" in al else "given"),
         "overhead (UTC)": al["overhead_utc"], "closest (m)": al["closest_distance_m"],
         "height (m)": al["height_above_array_m"], "speed (m/s)": al["speed_m_s"],
-        "channels used": f"{al['channels_used']}/{al['channels']}"}]).T.reset_index()
+        "channels used": f"{al['channels_used']}/{al['channels']}",
+        "array": _array_text(al.get("array", {})),
+        "yaw from": al.get("track", {}).get("heading_source", "attitude in the track"),
+        "crab angle overhead (deg)": f"{al.get('track', {}).get('crab_angle_deg', 0.0):+.1f}",
+        "atmosphere profile": _profile_text(al["atmosphere"])}]).T.reset_index()
     conditions.columns = ["quantity", "value"]
     conditions["value"] = conditions["value"].astype(str)
     maps = []
