@@ -231,7 +231,8 @@ def _track_lines(s: dict) -> list[str]:
         lo, hi = a["profile_span_m"]
         lines.append(f"    atmosphere profile: {a['profile_layers']} layers over {lo:.0f}-"
                      f"{hi:.0f} m: c {a['speed_of_sound_m_s']:.1f} m/s, wind "
-                     f"{a['wind_speed_m_s']:.1f} m/s from {a['wind_from_deg']:.0f} deg along the paths")
+                     f"{a['wind_speed_m_s']:.1f} m/s from {a['wind_from_deg']:.0f} deg along "
+                     "the paths")
     return lines
 
 
