@@ -3,7 +3,9 @@
 from __future__ import annotations
 
 import numpy as np
+import pandas as pd
 import pytest
+from conftest import edit_campaign
 from scipy.special import erfc
 
 from flyover.acoustics.atmosphere import Atmosphere
@@ -19,7 +21,10 @@ from flyover.imaging.dedoppler import (ChainSettings, reception_geometry, requir
                                        signal_band_power, window_band_powers)
 from flyover.imaging.methods import method_named
 from flyover.imaging.window import image_window, window_context
+from flyover.io.config import load_campaign
+from flyover.io.results.alignment import read_alignment
 from flyover.model.campaign import Region, VehicleGrid
+from flyover.pipeline import align, image, levels
 from flyover.sim.scenario import incoherent_noise_pa, spiral_layout
 from flyover.sync.timebase import ArrayClock, RecordingClock
 
@@ -233,3 +238,26 @@ def test_raised_microphones_give_free_field_region_levels(ground):
     assert np.max(np.abs(errors)) <= 1.2
     assert np.sqrt(np.mean(errors ** 2)) <= 0.5
     assert np.mean(uncorrected) > (2.0 if ground.surface == "hard" else 1.0)
+
+
+def test_stages_run_a_pass_flown_over_raised_microphones(tiny_copy):
+    # The per-pass stages on a pass whose own array stands 1.2 m over grass (the campaign's
+    # other pass keeps its ground plates): the chain, the unit sources and the tables go through
+    # the guarded campaign view and write levels.
+    layout = pd.read_csv(tiny_copy / "layout.csv")
+    layout["mic_height_m"] = 1.2
+    layout.to_csv(tiny_copy / "layout-raised.csv", index=False)
+
+    def raised(d):
+        d["passes"]["p1"]["array"] = {"layout": "layout-raised.csv", "mounting": "raised",
+                                      "ground": {"surface": "soft"}}
+    edit_campaign(tiny_copy, raised)
+    campaign = load_campaign(tiny_copy / "campaign.yaml")
+    out = tiny_copy / "results" / "p1"
+    align.run(campaign, "p1", out)
+    image.run(campaign, "p1", out, threads=2, quiet=True)
+    levels.run(campaign, "p1", out)
+    table = pd.read_csv(out / "levels.csv")
+    assert table["level_db"].notna().any()
+    alignment = read_alignment(out)
+    assert alignment["array"]["mounting"] == "raised" and alignment["array"]["own_array"]

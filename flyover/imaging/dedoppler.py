@@ -78,6 +78,14 @@ class ChainSettings:
         removes per frequency line (:func:`ground_inverse`); None otherwise.
     ground : GroundSurface or None
         The ground under raised microphones (None: hard).
+    csm_block_samples : int or None
+        Samples per Welch block of the frequency-domain methods (None: a quarter window).
+    functional_exponent : float
+        nu of functional beamforming.
+    clean_loop_gain : float
+        Share of each found source CLEAN-SC removes per iteration.
+    clean_max_sources : int
+        Iterations of CLEAN-SC per frequency line at most.
     """
 
     bands: ThirdOctaveBands
@@ -89,6 +97,10 @@ class ChainSettings:
     chunk_points: int = 32
     image_mic_enu_m: np.ndarray | None = None
     ground: GroundSurface | None = None
+    csm_block_samples: int | None = None
+    functional_exponent: float = 8.0
+    clean_loop_gain: float = 0.6
+    clean_max_sources: int = 40
 
 
 @dataclass(frozen=True)
@@ -366,7 +378,7 @@ def ground_q(image: ImagePaths, frequency_hz, c_m_s: float,
     """Q of each microphone's image path (FFT convention) at source frequencies,
     (n_mics, n_freqs): taken at the grid's mean incidence and path length (Q changes little
     across a vehicle grid) and at the received frequency f / (dt/dtau)."""
-    surface = ground or GroundSurface("hard")
+    surface = ground if ground is not None else GroundSurface("hard")
     f = np.asarray(frequency_hz, float)
     if surface.surface == "hard":
         return np.ones((image.delay_s.shape[1], len(f)), complex)
