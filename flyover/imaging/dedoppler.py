@@ -83,7 +83,9 @@ class ChainSettings:
     functional_exponent : float
         nu of functional beamforming.
     clean_loop_gain : float
-        Share of each found source CLEAN-SC removes per iteration.
+        Share of each found source CLEAN-SC removes per iteration (small, so that sources a
+        main-lobe width apart are told apart: at 0.6 one of two took 1.4 dB of the other's
+        power, at 0.3 0.7 dB, at 0.1 0.4 dB for three times the iterations).
     clean_max_sources : int
         Iterations of CLEAN-SC per frequency line at most.
     """
@@ -99,8 +101,8 @@ class ChainSettings:
     ground: GroundSurface | None = None
     csm_block_samples: int | None = None
     functional_exponent: float = 8.0
-    clean_loop_gain: float = 0.6
-    clean_max_sources: int = 40
+    clean_loop_gain: float = 0.3
+    clean_max_sources: int = 200
 
 
 @dataclass(frozen=True)
@@ -339,10 +341,15 @@ class BandPowers:
         Delay-and-sum with the whole cross-power (autopowers included).
     diagonal_removed : ndarray, shape (n_points, n_bands)
         With the autopowers removed and the normalisation (sum w)^2 - sum w^2; may be negative.
+    residual : ndarray, shape (n_points, n_bands), or None
+        A deconvolving method's diagonal-removed residual map (what it left unexplained), in
+        the units of conventional beamforming; for a unit source, its conventional map. Source
+        power integration adds the residual's integral to the region levels.
     """
 
     full: np.ndarray
     diagonal_removed: np.ndarray
+    residual: np.ndarray | None = None
 
 
 def spectral_weights(n: int) -> tuple[np.ndarray, float]:

@@ -12,7 +12,7 @@ the ratio.
 from __future__ import annotations
 
 from collections.abc import Callable
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -122,6 +122,9 @@ class WindowMaps:
     region_map_sum, region_psf_sum : dict of str -> ndarray (n_bands,)
         The two sums behind the ratio (for checks and reports).
     unit_power : dict of str -> ndarray (n_bands,)
+    region_residual : dict of str -> ndarray (n_bands,)
+        A deconvolving method's integrated residual per region (included in
+        ``region_power``); empty for the other methods.
     """
 
     window: Window
@@ -131,6 +134,7 @@ class WindowMaps:
     region_map_sum: dict
     region_psf_sum: dict
     unit_power: dict
+    region_residual: dict = field(default_factory=dict)
 
 
 def window_context(window: Window, *, track: TrackModel, clock: ArrayClock,
@@ -170,7 +174,7 @@ def image_window(signals_pa, context: WindowContext, *, method: ImagingMethod, g
     # power (see flyover.imaging.integration.region_powers).
     n_r, n_b = len(names), len(context.settings.bands)
     coupling = np.empty((n_b, n_r, n_r))
-    units, map_sums, psf_sums = {}, {}, {}
+    units, map_sums, psf_sums, residuals = {}, {}, {}, {}
     for j, name in enumerate(names):
         psf = method.point_spread(regions[name].center_m, union, context,
                                   7919 * (context.window.index + 1) + j)
@@ -180,9 +184,16 @@ def image_window(signals_pa, context: WindowContext, *, method: ImagingMethod, g
             coupling[:, i, j] = psf_maps[where[other]].sum(axis=0) / units[name]
         psf_sums[name] = psf_maps[where[name]].sum(axis=0)
         map_sums[name] = maps[masks[j]].sum(axis=0)
+        if bp.residual is not None:
+            # A deconvolving method's residual, integrated over the region against the unit
+            # source's conventional map (source power integration, without leakage solving).
+            with np.errstate(divide="ignore", invalid="ignore"):
+                part = (bp.residual[masks[j]].sum(axis=0)
+                        / psf.maps.residual[where[name]].sum(axis=0) * units[name])
+            residuals[name] = np.where(np.isfinite(part), part, 0.0)
     measured = np.stack([map_sums[n] for n in names], axis=-1)          # (n_b, n_r)
     solved, total = region_powers(coupling, measured)
-    powers = {n: solved[:, j] for j, n in enumerate(names)}
-    powers[TOTAL] = total
+    powers = {n: solved[:, j] + residuals.get(n, 0.0) for j, n in enumerate(names)}
+    powers[TOTAL] = total + sum(residuals.values()) if residuals else total
     return WindowMaps(context.window, bp.full, bp.diagonal_removed, powers, map_sums, psf_sums,
-                      units)
+                      units, residuals)

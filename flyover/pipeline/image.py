@@ -87,6 +87,8 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path, *, threads: int = 1,
                     "map_sum_pa2": res.region_map_sum[name][b] if single else np.nan,
                     "psf_sum_pa2": res.region_psf_sum[name][b] if single else np.nan,
                     "unit_power_pa2": res.unit_power[name][b] if single else np.nan,
+                    "residual_power_pa2": (res.region_residual[name][b]
+                                           if name in res.region_residual else np.nan),
                     "resolved": bool(resolved[b]) if single else True,
                     "main_lobe_width_m": width[b],
                     "band_valid": bool(valid[b]), "band_note": why[b]})

@@ -10,6 +10,8 @@ REGION_POWER = TableFile("region_power.csv", (
     ("map_sum_pa2", "Pa^2, the region's summed map"),
     ("psf_sum_pa2", "Pa^2, the region's summed map of its unit source"),
     ("unit_power_pa2", "Pa^2, the unit source's band power at 1 m"),
+    ("residual_power_pa2", "Pa^2, a deconvolving method's residual integrated over the region "
+                           "(included in power_1m_pa2; empty for the others)"),
     ("resolved", "region centres at least one main-lobe width apart"),
     ("main_lobe_width_m", "m, 1.22 lambda z / D"),
     ("band_valid", "the window can measure the band"),

@@ -1,0 +1,50 @@
+"""Shared steps of the frequency-domain methods (no method is registered here): the window's
+focus, CSM and steering from a window context, and a unit source's steering."""
+
+from __future__ import annotations
+
+import numpy as np
+
+from flyover.imaging.csm import Focus, Steering, window_csm, window_focus
+from flyover.imaging.dedoppler import reception_geometry, subset
+from flyover.imaging.window import WindowContext
+from flyover.model.errors import FlyoverInputError
+
+# Every channel is de-Dopplerized toward the body origin.
+FOCUS_BODY_M = np.zeros(3)
+
+
+def focus_of(context: WindowContext) -> Focus:
+    if context.settings.image_mic_enu_m is not None:
+        raise FlyoverInputError("the frequency-domain methods do not model raised microphones",
+                                "analysis.method", "method: time-domain for raised microphones",
+                                "a frequency-domain method")
+    return window_focus(track=context.track, window=context.window,
+                        mic_enu_m=context.mic_enu_m, atmosphere=context.atmosphere,
+                        settings=context.settings, focus_body_m=FOCUS_BODY_M)
+
+
+def csm_and_steering(signals_pa, context: WindowContext) -> tuple[np.ndarray, Steering]:
+    """The window's CSMs and the steering of every grid point of the context."""
+    focus = focus_of(context)
+    csm, _ = window_csm(signals_pa, context.first_frame, focus, window=context.window,
+                        clock=context.clock, atmosphere=context.atmosphere,
+                        settings=context.settings)
+    return csm, focus.steering(context.geometry, context.window.center_s)
+
+
+def unit_steering(body_m, points, context: WindowContext) -> tuple[Steering, Steering]:
+    """The steering of the context's grid points ``points`` and of a source at ``body_m``."""
+    focus = focus_of(context)
+    s = context.settings
+    source = reception_geometry(context.track, context.window, [body_m], context.mic_enu_m,
+                                context.atmosphere, s.pressure_gain, node_step=s.node_step)
+    center = context.window.center_s
+    return (focus.steering(subset(context.geometry, points), center),
+            focus.steering(source, center))
+
+
+def unit_csm(source: Steering) -> np.ndarray:
+    """The CSM of a unit point source (1 Pa^2 per line) with this steering: u u^H per line."""
+    u = np.stack([source.vectors(k)[0] for k in range(len(source.frequency_hz))])
+    return u[:, :, None] * u[:, None, :].conj()

@@ -1,0 +1,146 @@
+"""The frequency-domain engine: CSMs of de-Dopplerized signals, conventional and functional
+beamforming, CLEAN-SC, against the time-domain chain and exact (ensemble) cross-spectral
+matrices."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from test_dedoppler import (CLOCK, FS, MICS, one_source_pass, rows, windows_near_overhead)
+
+from flyover.acoustics.bands import third_octave_bands
+from flyover.forward.moving_source import Broadband, PointSource, Tone
+from flyover.imaging.csm import Steering, clean_sc, conventional_maps, functional_maps
+from flyover.imaging.dedoppler import ChainSettings, signal_band_power
+from flyover.imaging.methods import method_named
+from flyover.imaging.window import image_window, window_context
+from flyover.model.campaign import Region, VehicleGrid
+
+GRID = VehicleGrid((-2.6, 2.6), (-1.2, 1.2), 0.2)
+REGIONS = {"front": Region("front", (0.5, 1.9), (-0.7, 0.7)),
+           "rear": Region("rear", (-2.1, -0.7), (-0.7, 0.7))}
+
+
+def test_frequency_domain_and_time_domain_maps_agree():
+    # Cross-check of the two engines on one simulated pass (the two sources of
+    # test_two_sources_region_levels): in the bands the cubic interpolation measures (up to
+    # 0.135 fs) and where the regions are resolved (from 800 Hz), the frequency-domain
+    # conventional maps peak within one grid step of the time-domain ones and their region
+    # levels agree within 0.5 dB on average over the windows (each window within 1 dB: the
+    # Welch CSM of 7 blocks and the windowed spectrum estimate the same power differently).
+    front = PointSource("front", (1.2, 0.0, 0.0), tones=(Tone(630.0, 88.0),),
+                        broadband=Broadband(86.0, -2.0, 100.0, 4000.0), seed=11)
+    rear = PointSource("rear", (-1.4, 0.0, 0.0), broadband=Broadband(84.0, 0.0, 100.0, 4000.0),
+                       seed=12)
+    track, atm, sigs, p = one_source_pass([front, rear], noise_spl_db=55.0)
+    bands = third_octave_bands(800, 1600)
+    st = ChainSettings(bands, np.ones(len(MICS)), 2.0)
+    points = GRID.points_m()
+    diffs, checked = [], 0
+    for w in windows_near_overhead(track, 30, window_s=0.5, hop_s=0.5):
+        ctx = window_context(w, track=track, clock=CLOCK, atmosphere=atm, mic_enu_m=MICS,
+                             grid_points_m=points, settings=st, workers=2)
+        span = rows(p, ctx.first_frame, ctx.n_frames)
+        td, fd = (image_window(span, ctx, method=method_named(m), grid_points_m=points,
+                               regions=REGIONS) for m in ("time-domain", "frequency-domain"))
+        for name in REGIONS:
+            inside = np.flatnonzero(REGIONS[name].contains(points))
+            peak_td = points[inside[np.argmax(td.diagonal_removed[inside], axis=0)]]
+            peak_fd = points[inside[np.argmax(fd.diagonal_removed[inside], axis=0)]]
+            assert np.all(np.abs(peak_td - peak_fd)[:, :2] <= GRID.spacing_m + 1e-9)
+            diffs.append(10 * np.log10(fd.region_power[name] / td.region_power[name]))
+            checked += len(bands)
+    diffs = np.array(diffs)
+    assert checked >= 24
+    assert np.max(np.abs(diffs)) < 1.0
+    assert np.max(np.abs(diffs.mean(axis=0))) < 0.5
+
+
+def exact_csm(steering: Steering, powers, noise_pa2: float = 0.0) -> np.ndarray:
+    """The ensemble CSM of incoherent point sources at grid points (index -> Pa^2 per line) plus
+    incoherent microphone noise: sum_s P_s u_s u_s^H + noise I, per line."""
+    n_lines = len(steering.frequency_hz)
+    n_m = steering.amplitude_ratio.shape[1]
+    out = np.zeros((n_lines, n_m, n_m), complex)
+    for k in range(n_lines):
+        for g, power in powers.items():
+            u = steering.vectors(k, [g])[0]
+            out[k] += power * np.outer(u, u.conj())
+        out[k] += noise_pa2 * np.eye(n_m)
+    return out
+
+
+def line_steering(points_m, mics_m, z_m, frequency_hz, c_m_s=343.0) -> Steering:
+    """Static steering of points in a plane z_m above microphones (free field, no motion),
+    relative to the point over the array centre: the frequency-domain engine's model with the
+    motion frozen."""
+    pts = np.column_stack([points_m, np.full(len(points_m), z_m)])
+    r = np.linalg.norm(pts[:, None, :] - mics_m[None], axis=-1)
+    r0 = np.linalg.norm(np.array([0.0, 0.0, z_m]) - mics_m, axis=-1)
+    f = np.atleast_1d(np.asarray(frequency_hz, float))
+    return Steering(f, np.zeros(len(f), int), r / r0, (r0 - r) / c_m_s)
+
+
+def spiral_steering(z_m=30.0, spacing_m=0.1, f_hz=2000.0):
+    from flyover.sim.scenario import spiral_layout
+    mics = spiral_layout(6, 8, 0.6, 6.0)
+    x = np.arange(-4.0, 4.0 + 1e-9, spacing_m)
+    gx, gy = np.meshgrid(x, x, indexing="ij")
+    points = np.column_stack([gx.ravel(), gy.ravel()])
+    return points, line_steering(points, mics, z_m, f_hz)
+
+
+def test_clean_sc_finds_two_sources_one_main_lobe_apart():
+    # Two equally strong incoherent sources one main-lobe width apart (1.22 lambda z / D) on an
+    # exact CSM with incoherent noise 10 dB below them at each microphone (48-microphone spiral,
+    # 12 m, 30 m below the grid, 2 kHz): CLEAN-SC (Sijtsma 2007) finds both within one grid
+    # step with their powers within 1 dB, and the strongest spurious clean source at least
+    # 20 dB down (the dynamic range the issue asks for).
+    points, steering = spiral_steering()
+    width = 1.22 * 343.0 / 2000.0 * 30.0 / 12.0
+    a = int(np.argmin(np.hypot(points[:, 0] + width / 2, points[:, 1])))
+    b = int(np.argmin(np.hypot(points[:, 0] - width / 2, points[:, 1])))
+    csm = exact_csm(steering, {a: 1.0, b: 1.0}, noise_pa2=0.1)
+    res = clean_sc(csm, steering, 1)
+    clean = res.clean[:, 0]
+    for src in (a, b):
+        near = np.hypot(*(points - points[src]).T) <= 0.1 + 1e-9
+        assert 10 * np.log10(clean[near].sum()) == pytest.approx(0.0, abs=1.0)
+    far = np.min([np.hypot(*(points - points[s]).T) for s in (a, b)], axis=0) > 0.1 + 1e-9
+    assert clean[far].max() < 0.01 * clean.max()
+
+
+def test_clean_sc_finds_a_source_15_db_below_its_neighbour():
+    # A source 15 dB weaker than its neighbour two main-lobe widths away: found, its power
+    # within 1.5 dB (issue's accuracy check), on the same exact CSM set-up.
+    points, steering = spiral_steering()
+    width = 1.22 * 343.0 / 2000.0 * 30.0 / 12.0
+    strong = int(np.argmin(np.hypot(points[:, 0] + width, points[:, 1])))
+    weak = int(np.argmin(np.hypot(points[:, 0] - width, points[:, 1])))
+    csm = exact_csm(steering, {strong: 1.0, weak: 10 ** -1.5}, noise_pa2=0.01)
+    clean = clean_sc(csm, steering, 1).clean[:, 0]
+    near = np.hypot(*(points - points[weak]).T) <= 0.1 + 1e-9
+    assert 10 * np.log10(clean[near].sum() / 10 ** -1.5) == pytest.approx(0.0, abs=1.5)
+
+
+def test_conventional_and_functional_maps_of_a_lone_source():
+    # One source on an exact CSM: the conventional map (formulation III weights) peaks at it
+    # with its own power (full map: plus the noise / N; diagonal removed: exactly), and the
+    # functional map keeps the peak while its side lobes fall as the nu-th power of the
+    # normalised beam pattern |e_g^H e_s|^2 (Dougherty 2014), e the unit steering vectors.
+    points, steering = spiral_steering()
+    src = int(np.argmin(np.hypot(points[:, 0] - 0.5, points[:, 1] + 0.3)))
+    csm = exact_csm(steering, {src: 2.0})
+    maps = conventional_maps(csm, steering, 1)
+    assert int(np.argmax(maps.diagonal_removed[:, 0])) == src
+    assert maps.diagonal_removed[src, 0] == pytest.approx(2.0, rel=1e-9)
+    assert maps.full[src, 0] == pytest.approx(2.0, rel=1e-9)
+    func = functional_maps(csm, steering, 1, 8.0)[:, 0]
+    assert func[src] == pytest.approx(2.0, rel=1e-6)
+    v = steering.vectors(0)
+    u = v[src]
+    norm2 = (np.abs(v) ** 2).sum(axis=1)
+    pattern = np.abs(v.conj() @ u) ** 2 / (norm2 * norm2[src])
+    expected = 2.0 * norm2[src] / norm2 * pattern ** 8
+    np.testing.assert_allclose(func, expected, rtol=1e-6, atol=1e-12)
+    assert np.sort(pattern)[-2] < 1.0 and func[pattern < 0.5].max() < 2.0 * 0.5 ** 8 * 1.1
