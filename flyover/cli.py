@@ -23,6 +23,8 @@ EXAMPLES = {
     "run": "flyover run my-campaign.yaml --cores 2\n  flyover run my-campaign.yaml --profile "
            "config/profiles/slurm",
     "plan": "flyover plan my-campaign.yaml",
+    "array-plan": "flyover array-plan demo/data/layout.csv --height-m 35 --bands 200 3150 "
+                  "--points 1.1 0 -1.5 0 --figure psf.png",
     "report": "flyover report my-campaign.yaml --open",
     "stage": "flyover stage align --campaign demo/campaign.yaml --pass pass-1 --out results/pass-1",
     "stage-campaign": "flyover stage-campaign summary --campaign demo/campaign.yaml",
@@ -65,6 +67,23 @@ def _parser() -> argparse.ArgumentParser:
                                                "(default: every channel has a calibrator)")
     k.add_argument("--update", type=Path,
                    help="calibration CSV to update or create (default: print only)")
+
+    a = add("array-plan", "what an array layout resolves at a flyover height, per band "
+                          "(no recording needed)")
+    a.add_argument("layout", type=Path, help="the layout CSV")
+    a.add_argument("--height-m", type=float, required=True,
+                   help="height of the vehicle above the array (m)")
+    a.add_argument("--bands", type=float, nargs=2, metavar=("MIN_HZ", "MAX_HZ"),
+                   default=(200.0, 5000.0), help="one-third-octave band range (default 200 5000)")
+    a.add_argument("--points", type=float, nargs=4, metavar=("X1", "Y1", "X2", "Y2"),
+                   help="two body points (x forward, y starboard, m): from which band they "
+                        "separate (default: none)")
+    a.add_argument("--heading-deg", type=float, default=90.0,
+                   help="flight direction over the array, clockwise from north (default 90)")
+    a.add_argument("--speed-of-sound", type=float, default=343.0,
+                   help="m/s (default 343)")
+    a.add_argument("--figure", type=Path, help="PNG of the point-spread per band (default: "
+                                               "none)")
 
     r = add("run", "run a whole campaign through the Snakemake workflow")
     r.add_argument("campaign", type=Path, help="the campaign file (YAML)")
@@ -143,6 +162,14 @@ def _dispatch(args) -> int:
         from flyover.sim.demo import write_campaign
         write_campaign(args.scenario, args.out)
         print(f"wrote the simulated campaign to {args.out}")
+        return 0
+    if args.command == "array-plan":
+        from flyover.pipeline.array_plan import plan_array
+        points = None if args.points is None else [args.points[:2], args.points[2:]]
+        print(plan_array(args.layout, height_m=args.height_m, band_min_hz=args.bands[0],
+                         band_max_hz=args.bands[1], points_body_m=points,
+                         heading_deg=args.heading_deg, c_m_s=args.speed_of_sound,
+                         figure=args.figure))
         return 0
     if args.command == "calibrate":
         from flyover.pipeline.calibrate import run as calibrate

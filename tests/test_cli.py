@@ -56,3 +56,20 @@ def test_calibrate_one_channel_then_all(tmp_path, capsys):
     # All channels at once fails on the silent channels, naming the first.
     assert main(["calibrate", str(tmp_path / "cal.wav")]) == 2
     assert "no calibrator tone at 1000 Hz on channel 1" in capsys.readouterr().err
+
+
+def test_array_plan_prints_widths_and_where_two_points_separate(tmp_path, capsys):
+    # `flyover array-plan` on a site-frame layout, no recording: a row per band and the band
+    # from which two body points separate; the figure is written.
+    from flyover.sim.scenario import spiral_layout
+    mics = spiral_layout(6, 8, 0.6, 6.0)
+    layout = tmp_path / "my layout.csv"
+    layout.write_text("channel,east_m,north_m,up_m\n" + "".join(
+        f"{k + 1},{e},{n},{u}\n" for k, (e, n, u) in enumerate(mics)))
+    figure = tmp_path / "psf.png"
+    assert main(["array-plan", str(layout), "--height-m", "35", "--bands", "400", "1600",
+                 "--points", "1.1", "0", "-1.5", "0", "--figure", str(figure)]) == 0
+    out = capsys.readouterr().out
+    assert out.count("\n") >= 8 and "the two points separate from" in out
+    assert figure.stat().st_size > 10_000
+    assert main(["array-plan", str(layout), "--height-m", "0.1"]) == 2

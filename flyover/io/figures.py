@@ -478,3 +478,45 @@ def rotor_tones_figure(tones, pass_name: str, note: str = ""):
                  "speed (empty: not separable)", fontsize=10)
     fig.tight_layout()
     return fig
+
+
+@_styled
+def planning_figure(patterns, half_widths_m, rows, title: str, points_xy=None,
+                    dynamic_range_db: float = 20.0):
+    """The point-spread of a source over the array centre, one panel per band: ``patterns``
+    (n_bands, n, n) beam patterns, each on a square of +-``half_widths_m[k]`` (east across,
+    north up), ``rows`` the bands' BandResolution, ``points_xy`` two points to mark."""
+    n_b = len(rows)
+    cols = min(4, n_b)
+    nrows = int(np.ceil(n_b / cols))
+    fig, axes = plt.subplots(nrows, cols, figsize=(3.0 * cols, 3.1 * nrows + 0.5),
+                             squeeze=False)
+    fig.subplots_adjust(hspace=0.45)
+    image = None
+    for b in range(nrows * cols):
+        ax = axes[b // cols][b % cols]
+        ax.grid(False)
+        if b >= n_b:
+            ax.axis("off")
+            continue
+        r = rows[b]
+        h = half_widths_m[b]
+        extent = [-h, h, -h, h]
+        with np.errstate(divide="ignore"):
+            db = 10 * np.log10(np.maximum(patterns[b], 1e-12))
+        image = ax.imshow(db.T, extent=extent, origin="lower", cmap=MAP_CMAP,
+                          vmin=-dynamic_range_db, vmax=0, interpolation="bilinear")
+        if points_xy is not None:
+            p = np.asarray(points_xy)
+            ax.plot(p[:, 0], p[:, 1], "o", mfc="none", mec=ARRAY, ms=6)
+        mark = "" if r.separable is None else (", points apart" if r.separable else "")
+        ax.set_title(f"{r.band_hz:g} Hz{mark}\n-3 dB {r.width_m:.2f} m, side lobe "
+                     f"{r.max_side_lobe_db:.0f} dB", fontsize=8)
+        if b % cols == 0:
+            ax.set_ylabel("north (m)")
+        ax.set_xlabel("east (m)", fontsize=8)
+    fig.suptitle(title, fontsize=11)
+    if image is not None:
+        bar = fig.colorbar(image, ax=axes, shrink=0.8, extend="min", pad=0.02)
+        bar.set_label("dB re the source")
+    return fig

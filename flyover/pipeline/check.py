@@ -10,6 +10,7 @@ import numpy as np
 
 from flyover.acoustics.bands import third_octave_bands
 from flyover.imaging.dedoppler import ACCURATE_FRACTION
+from flyover.imaging.planning import band_resolution, separable_from_hz
 from flyover.model.campaign import Campaign
 from flyover.model.errors import FlyoverInputError
 from flyover.pipeline.context import (PassInputs, check_memory, load_pass, output_bytes,
@@ -38,6 +39,7 @@ def check_campaign(campaign: Campaign) -> list[dict]:
         _check_against_recording(campaign, p)
         _check_samples(p, summary["covered_s"])
         summary["warnings"] = _band_warnings(campaign, summary)
+        summary["separation"] = _separation(campaign, p, summary)
         summaries.append(summary)
     _label_warnings(campaign, summaries)
     _check_free_space(campaign, sum(output_bytes(campaign, p) for p in loaded))
@@ -179,6 +181,7 @@ def format_summary(campaign: Campaign, summaries: list[dict]) -> str:
             f"    recording from {s['epoch_utc']} ({clock}); "
             f"track {s['track_start_utc']} to {s['track_end_utc']}",
             *_array_lines(s),
+            *_separation_lines(s),
             *_track_lines(s),
             f"    track covers {s['covered_s'][1] - s['covered_s'][0]:.2f} s of the recording; "
             f"overhead at {s['overhead_utc']} (t = {s['overhead_s']:.2f} s)",
@@ -191,6 +194,27 @@ def format_summary(campaign: Campaign, summaries: list[dict]) -> str:
     return "\n".join(lines)
 
 
+def _separation(campaign: Campaign, inputs: PassInputs, summary: dict) -> dict | None:
+    """From which analysed band the two closest region centres separate at the pass's closest
+    approach (:mod:`flyover.imaging.planning`, the array frozen under the vehicle)."""
+    centres = [r.center_m for r in campaign.regions.values()]
+    names = list(campaign.regions)
+    if len(centres) < 2:
+        return None
+    pairs = [(i, j) for i in range(len(centres)) for j in range(i + 1, len(centres))]
+    i, j = min(pairs, key=lambda ij: np.linalg.norm(centres[ij[0]][:2] - centres[ij[1]][:2]))
+    an = campaign.analysis
+    v = inputs.track.velocity(np.array([summary["overhead_s"]]))[0]
+    rows = band_resolution(inputs.layout.enu_m[inputs.weights > 0],
+                           summary["closest_distance_m"],
+                           third_octave_bands(an.band_min_hz, an.band_max_hz),
+                           c_m_s=inputs.atmosphere.c_m_s,
+                           points_body_m=[centres[i], centres[j]],
+                           heading_deg=float(np.rad2deg(np.arctan2(v[0], v[1]))),
+                           side_lobes=False)
+    return {"regions": [names[i], names[j]], "from_hz": separable_from_hz(rows)}
+
+
 def _array_lines(s: dict) -> list[str]:
     """A pass flown over its own array: its layout, mounting and ground."""
     a = s["array"]
@@ -201,6 +225,16 @@ def _array_lines(s: dict) -> list[str]:
         lo, hi = a["mic_height_m"]
         text += (f" {lo:.2f} m" if lo == hi else f" {lo:.2f}-{hi:.2f} m") + f" over {a['ground']}"
     return [text]
+
+
+def _separation_lines(s: dict) -> list[str]:
+    sep = s.get("separation")
+    if not sep:
+        return []
+    a, b = sep["regions"]
+    return [f"    {a} and {b} separable from {sep['from_hz']:g} Hz at the closest approach"
+            if sep["from_hz"] else
+            f"    {a} and {b} not separable in the analysed bands at the closest approach"]
 
 
 def _track_lines(s: dict) -> list[str]:
