@@ -278,12 +278,13 @@ def clean_sc(csm, steering: Steering, n_bands: int, *, loop_gain: float = 0.3,
         lines = np.arange(lo, min(lo + lines_per_batch, n_lines))
         c = len(lines)
         v = np.stack([steering.vectors(k) for k in lines])                 # (c, n_g, n_m)
+        vc = v.conj()
         p2 = np.abs(v) ** 2
         s2 = p2.sum(axis=2)
         n_removed = s2 ** 2 - (p2 ** 2).sum(axis=2)
         d = csm[lines].copy()
         d[:, np.arange(d.shape[1]), np.arange(d.shape[1])] = 0.0
-        pmap = np.einsum("cgm,cgm->cg", v.conj() @ d, v).real / n_removed
+        pmap = np.einsum("cgm,cgm->cg", vc @ d, v).real / n_removed
         size = np.abs(d).sum(axis=(1, 2))
         first = pmap.max(axis=1)
         active = first > 0
@@ -310,10 +311,13 @@ def clean_sc(csm, steering: Steering, n_bands: int, *, loop_gain: float = 0.3,
             d[a] -= step[a]
             size[a] = new[a]
             found[a, j[a]] += loop_gain * p_max[a]
-            vh = np.einsum("cgm,cm->cg", v[a].conj(), h[a])
-            pmap[a] -= (loop_gain * p_max[a])[:, None] * (
-                np.abs(vh) ** 2 - np.einsum("cgm,cm->cg", p2[a], np.abs(h[a]) ** 2)
-            ) / n_removed[a]
+            # Products over every line of the batch (no copies of the steering), kept where
+            # active: each line's map loses the removed component's own map.
+            h = np.where(active[:, None], h, 0.0)
+            vh = (vc @ h[:, :, None])[..., 0]
+            ph = (p2 @ (np.abs(h) ** 2)[:, :, None])[..., 0]
+            pmap -= (loop_gain * np.where(active, p_max, 0.0))[:, None] * (
+                np.abs(vh) ** 2 - ph) / n_removed
             iterations[lines[a]] = it + 1
         bands = steering.band_of_line[lines]
         for b in np.unique(bands):
