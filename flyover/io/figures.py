@@ -38,6 +38,21 @@ def _styled(make):
     return wrapper
 
 
+def _panels(n: int, panel_w: float, panel_h: float, **subplots):
+    """Small multiples: a figure of up to four columns, the ``n`` panels in reading order (the
+    spare ones hidden), and the grid of axes (for a shared colour bar)."""
+    cols = min(4, n)
+    rows = int(np.ceil(n / cols))
+    fig, axes = plt.subplots(rows, cols, figsize=(panel_w * cols, panel_h * rows + 0.6),
+                             squeeze=False, **subplots)
+    flat = [axes[k // cols][k % cols] for k in range(rows * cols)]
+    for ax in flat:
+        ax.grid(False)
+    for ax in flat[n:]:
+        ax.axis("off")
+    return fig, axes, flat[:n], cols, rows
+
+
 def save_figure(fig, path, dpi: int = 110) -> None:
     """Save a figure atomically as PNG and close it."""
     with atomic_path(path) as tmp:
@@ -150,21 +165,12 @@ def map_figure(maps, campaign, bands, pass_name: str, window_row: dict,
     from matplotlib.patches import Rectangle
     nx, ny = campaign.grid.shape
     x, y = campaign.grid.x_axis_m, campaign.grid.y_axis_m
-    n_b = len(bands)
-    cols = min(4, n_b)
-    rows = int(np.ceil(n_b / cols))
-    fig, axes = plt.subplots(rows, cols, figsize=(3.1 * cols, 2.2 * rows + 0.6),
-                             squeeze=False, sharex=True, sharey=True)
+    fig, axes, panels, cols, rows = _panels(len(bands), 3.1, 2.2, sharex=True, sharey=True)
     extent = [x[0] - campaign.grid.spacing_m / 2, x[-1] + campaign.grid.spacing_m / 2,
               y[-1] + campaign.grid.spacing_m / 2, y[0] - campaign.grid.spacing_m / 2]
     cmap = plt.get_cmap(MAP_CMAP).with_extremes(under="#ece6da", bad="#ece6da")
     image = None
-    for b in range(rows * cols):
-        ax = axes[b // cols][b % cols]
-        ax.grid(False)
-        if b >= n_b:
-            ax.axis("off")
-            continue
+    for b, ax in enumerate(panels):
         m = maps[:, b].reshape(nx, ny).T
         peak = np.max(m)
         with np.errstate(divide="ignore", invalid="ignore"):
@@ -486,19 +492,10 @@ def planning_figure(patterns, half_widths_m, rows, title: str, points_xy=None,
     """The point-spread of a source over the array centre, one panel per band: ``patterns``
     (n_bands, n, n) beam patterns, each on a square of +-``half_widths_m[k]`` (east across,
     north up), ``rows`` the bands' BandResolution, ``points_xy`` two points to mark."""
-    n_b = len(rows)
-    cols = min(4, n_b)
-    nrows = int(np.ceil(n_b / cols))
-    fig, axes = plt.subplots(nrows, cols, figsize=(3.0 * cols, 3.1 * nrows + 0.5),
-                             squeeze=False)
+    fig, axes, panels, cols, _ = _panels(len(rows), 3.0, 3.1)
     fig.subplots_adjust(hspace=0.45)
     image = None
-    for b in range(nrows * cols):
-        ax = axes[b // cols][b % cols]
-        ax.grid(False)
-        if b >= n_b:
-            ax.axis("off")
-            continue
+    for b, ax in enumerate(panels):
         r = rows[b]
         h = half_widths_m[b]
         extent = [-h, h, -h, h]
