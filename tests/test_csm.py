@@ -144,3 +144,22 @@ def test_conventional_and_functional_maps_of_a_lone_source():
     expected = 2.0 * norm2[src] / norm2 * pattern ** 8
     np.testing.assert_allclose(func, expected, rtol=1e-6, atol=1e-12)
     assert np.sort(pattern)[-2] < 1.0 and func[pattern < 0.5].max() < 2.0 * 0.5 ** 8 * 1.1
+
+
+def test_bands_with_too_few_lines_in_the_welch_blocks_are_flagged():
+    # A frequency-domain method forms its bands from Welch blocks a quarter of the window long:
+    # a band with fewer than three lines there is flagged (with the reason), not left empty
+    # silently. 0.25 s at 12.8 kHz: 16 Hz lines in the blocks, 4 Hz in the window; the 125 Hz
+    # band (29 Hz wide) holds 1-2 lines in the blocks, 7 in the window.
+    from flyover.imaging.dedoppler import reception_geometry, valid_bands
+    track, atm, _, _ = one_source_pass(PointSource("s", (0, 0, 0), tones=(Tone(500.0, 80.0),)))
+    w = windows_near_overhead(track, 10)[0]
+    st = ChainSettings(third_octave_bands(125, 1000), np.ones(len(MICS)), 2.0)
+    geo = reception_geometry(track, w, [[0.0, 0.0, 0.0]], MICS, atm, 2.0)
+    method = method_named("frequency-domain")
+    ok_window, _ = valid_bands(geo, w, st)
+    ok_blocks, why = valid_bands(geo, w, st, spectrum_samples=method.spectrum_samples(
+        w.n_samples, st))
+    assert ok_window[0] and not ok_blocks[0] and "spectral lines" in why[0]
+    assert ok_blocks[-1]
+    assert method_named("time-domain").spectrum_samples is None

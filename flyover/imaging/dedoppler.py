@@ -238,26 +238,28 @@ def required_frames(geometry: ReceptionGeometry, clock: ArrayClock,
     return first, int(np.max(last - first)) + 1
 
 
-def valid_bands(geometry: ReceptionGeometry, window: Window,
-                settings: ChainSettings) -> tuple[np.ndarray, list[str]]:
+def valid_bands(geometry: ReceptionGeometry, window: Window, settings: ChainSettings, *,
+                spectrum_samples: int | None = None) -> tuple[np.ndarray, list[str]]:
     """Which bands a window can measure, and why not where it cannot.
 
     A band is invalid when its upper edge, Doppler-shifted as received, passes the
-    interpolation's accurate range (``ACCURATE_FRACTION``), or when the window's spectrum has
+    interpolation's accurate range (``ACCURATE_FRACTION``), or when the method's spectra
+    (``spectrum_samples`` long: the window, or a frequency-domain method's Welch block) have
     fewer than ``MIN_LINES_PER_BAND`` lines in it.
     """
     b = settings.bands
     f_max = b.upper_hz / float(np.min(geometry.doppler_center))
     limit = ACCURATE_FRACTION[settings.interpolation] * window.sample_rate_hz
-    lines = np.array([s.stop - s.start for s in band_bins(b, window.n_samples,
-                                                          window.sample_rate_hz)])
+    lines = np.array([s.stop - s.start for s in band_bins(
+        b, spectrum_samples or window.n_samples, window.sample_rate_hz)])
     reasons = []
     for k in range(len(b)):
         if f_max[k] > limit:
             reasons.append(f"received up to {f_max[k]:.0f} Hz, beyond the {settings.interpolation} "
                            f"interpolation's accurate range ({limit:.0f} Hz)")
         elif lines[k] < MIN_LINES_PER_BAND:
-            reasons.append(f"{lines[k]} spectral lines in the window: use a longer window_s")
+            reasons.append(f"{lines[k]} spectral lines in the window's spectra: use a longer "
+                           "window_s")
         else:
             reasons.append("")
     return np.array([r == "" for r in reasons]), reasons

@@ -99,12 +99,16 @@ class ImagingMethod:
         ``point_spread(body_m, points, context, seed) -> PointSpread``: a unit point source at
         body point ``body_m`` (3,) mapped on the grid points ``points`` (indices into the
         context's geometry) through the identical chain; ``seed`` makes its signal repeatable.
+    spectrum_samples : callable or None
+        ``spectrum_samples(n_samples, settings) -> int``: the length of the spectra its bands
+        are formed from (None: the whole window), for the bands' line count.
     """
 
     name: str
     summary: str
     band_maps: Callable[[np.ndarray, WindowContext], BandPowers]
     point_spread: Callable[[np.ndarray, np.ndarray, WindowContext, int], PointSpread]
+    spectrum_samples: Callable[[int, ChainSettings], int] | None = None
 
 
 @dataclass(frozen=True)

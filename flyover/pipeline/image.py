@@ -77,7 +77,9 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path, *, threads: int = 1,
                                     inputs.layout.aperture_m, atm.c_m_s)
         width = main_lobe_width_m(bands.center_hz, w.distance_m, inputs.layout.aperture_m,
                                   atm.c_m_s)
-        valid, why = valid_bands(geo, w, settings)
+        valid, why = valid_bands(geo, w, settings, spectrum_samples=(
+            method.spectrum_samples(w.n_samples, settings) if method.spectrum_samples
+            else None))
         for name in list(campaign.regions) + [TOTAL]:
             single = name != TOTAL
             for b in range(len(bands)):

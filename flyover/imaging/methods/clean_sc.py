@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from flyover.imaging.csm import clean_sc, conventional_point_spread
+from flyover.imaging.csm import block_samples, clean_sc, conventional_point_spread
 from flyover.imaging.dedoppler import BandPowers
 from flyover.imaging.methods import register
 from flyover.imaging.methods._frequency import csm_and_steering, unit_steering
@@ -37,4 +37,4 @@ def point_spread(body_m, points, context: WindowContext, seed: int) -> PointSpre
 
 register(ImagingMethod("clean-sc", "CLEAN-SC (Sijtsma 2007) on cross-spectral matrices of "
                        "de-Dopplerized signals; region levels are sums of clean sources",
-                       band_maps, point_spread))
+                       band_maps, point_spread, block_samples))

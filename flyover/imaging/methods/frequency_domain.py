@@ -4,7 +4,7 @@ from the steering vectors, without simulating it."""
 
 from __future__ import annotations
 
-from flyover.imaging.csm import conventional_maps, conventional_point_spread
+from flyover.imaging.csm import block_samples, conventional_maps, conventional_point_spread
 from flyover.imaging.dedoppler import BandPowers
 from flyover.imaging.methods import register
 from flyover.imaging.methods._frequency import csm_and_steering, unit_steering
@@ -23,4 +23,5 @@ def point_spread(body_m, points, context: WindowContext, seed: int) -> PointSpre
 
 
 register(ImagingMethod("frequency-domain", "conventional beamforming on cross-spectral matrices "
-                       "of signals de-Dopplerized to the body origin", band_maps, point_spread))
+                       "of signals de-Dopplerized to the body origin",
+                       band_maps, point_spread, block_samples))

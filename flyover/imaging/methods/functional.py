@@ -6,7 +6,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from flyover.imaging.csm import functional_maps
+from flyover.imaging.csm import block_samples, functional_maps
 from flyover.imaging.dedoppler import BandPowers
 from flyover.imaging.methods import register
 from flyover.imaging.methods._frequency import csm_and_steering, unit_csm, unit_steering
@@ -29,4 +29,5 @@ def point_spread(body_m, points, context: WindowContext, seed: int) -> PointSpre
 
 
 register(ImagingMethod("functional", "functional beamforming (Dougherty 2014) on cross-spectral "
-                       "matrices of de-Dopplerized signals", band_maps, point_spread))
+                       "matrices of de-Dopplerized signals",
+                       band_maps, point_spread, block_samples))
