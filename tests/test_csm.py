@@ -163,3 +163,32 @@ def test_bands_with_too_few_lines_in_the_welch_blocks_are_flagged():
     assert ok_window[0] and not ok_blocks[0] and "spectral lines" in why[0]
     assert ok_blocks[-1]
     assert method_named("time-domain").spectrum_samples is None
+
+
+def test_several_methods_in_one_run(tiny_copy):
+    # The campaign runs the headline method and others beside it: region_power.csv and
+    # levels_by_method.csv carry every method, levels.csv (read by every later step) the
+    # headline's alone, and the window nearest overhead gets each other method's maps.
+    import pandas as pd
+    from conftest import edit_campaign
+
+    from flyover.io.config import load_campaign
+    from flyover.pipeline import align, image, levels
+    edit_campaign(tiny_copy, lambda d: d["analysis"].update(
+        other_methods=["frequency-domain", "clean-sc", "time-domain"]))
+    campaign = load_campaign(tiny_copy / "campaign.yaml")
+    assert campaign.analysis.other_methods == ("frequency-domain", "clean-sc")
+    out = tiny_copy / "results" / "p1"
+    align.run(campaign, "p1", out)
+    image.run(campaign, "p1", out, threads=2, quiet=True)
+    levels.run(campaign, "p1", out)
+    powers = pd.read_csv(out / "region_power.csv")
+    assert set(powers["method"]) == {"time-domain", "frequency-domain", "clean-sc"}
+    by_method = pd.read_csv(out / "levels_by_method.csv")
+    headline = pd.read_csv(out / "levels.csv")
+    assert set(by_method["method"]) == set(powers["method"])
+    td = by_method[by_method["method"] == "time-domain"].drop(columns="method")
+    pd.testing.assert_frame_equal(td.reset_index(drop=True), headline)
+    others = sorted(p.name for p in (out / "maps").glob("window-*-*.png"))
+    assert len(others) == 2 and others[0].endswith("-clean-sc.png")
+    assert others[0][:10] == others[1][:10] and others[1].endswith("-frequency-domain.png")

@@ -205,11 +205,11 @@ def _hemisphere(h: dict) -> HemisphereSettings:
         band_ranges_hz=tuple(_range(r) for r in h.get("band_ranges_hz", ())))
 
 
-def _imaging_method(name: str, source: str) -> str:
+def _imaging_method(name: str, source: str, key: str = "analysis.method") -> str:
     known = sorted(methods())
     if name not in known:
         raise FlyoverInputError(f"unknown imaging method '{name}'",
-                                f"{source}, key analysis.method",
+                                f"{source}, key {key}",
                                 f"one of {', '.join(known)}", hint=suggest(name, known))
     return name
 
@@ -474,6 +474,9 @@ def campaign_from_mapping(data: dict, path: Path) -> Campaign:
         reference_atmosphere=Atmosphere(ref["temperature_c"], ref["relative_humidity_pct"],
                                         ref.get("pressure_kpa", 101.325)),
         method=_imaging_method(an.get("method", DEFAULT_METHOD), source),
+        other_methods=tuple(dict.fromkeys(
+            _imaging_method(m, source, "analysis.other_methods")
+            for m in an.get("other_methods", ()) if m != an.get("method", DEFAULT_METHOD))),
         interpolation=an.get("interpolation", "cubic"),
         band_absorption=an.get("band_absorption", "midband"),
         diagonal_removal=bool(an.get("diagonal_removal", True)),

@@ -119,7 +119,10 @@ class AnalysisSettings:
     reference_distance_m : float
     reference_atmosphere : Atmosphere
     method : str
-        Imaging method by name (:mod:`flyover.imaging.methods`).
+        Imaging method by name (:mod:`flyover.imaging.methods`): the headline, whose levels
+        every later step uses.
+    other_methods : tuple of str
+        Methods run beside it, for comparison (their levels in levels_by_method.csv).
     interpolation : str
         ``"cubic"`` (4-point Lagrange) or ``"sinc"`` (windowed sinc, band-limited).
     band_absorption : str
@@ -155,6 +158,7 @@ class AnalysisSettings:
     reference_distance_m: float
     reference_atmosphere: Atmosphere
     method: str = "time-domain"
+    other_methods: tuple[str, ...] = ()
     interpolation: str = "cubic"
     band_absorption: str = "midband"
     diagonal_removal: bool = True

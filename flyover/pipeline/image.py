@@ -29,6 +29,7 @@ from flyover.sync.timebase import iso_utc
 # What this stage reads of the campaign (flyover.model.reads): its re-run fingerprint too.
 READS = PASS_INPUTS + ("grid", "regions", "outline_m", "analysis.window_s", "analysis.hop_s",
                        "analysis.band_min_hz", "analysis.band_max_hz", "analysis.method",
+                       "analysis.other_methods",
                        "analysis.interpolation", "analysis.diagonal_removal",
                        "analysis.max_polar_offset_deg", "analysis.map_dynamic_range_db")
 
@@ -49,7 +50,9 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path, *, threads: int = 1,
     fs = inputs.sample_rate_hz
     settings = chain_settings(inputs, bands, an.interpolation)
     points = campaign.grid.points_m()
-    method = method_named(an.method)
+    # The headline method first: its maps are the pass's; the others' go to the tables and a
+    # side-by-side figure of the window nearest overhead.
+    methods = [method_named(m) for m in (an.method, *an.other_methods)]
     mics = inputs.layout.enu_m
     windows = plan_windows(inputs.track, inputs.layout.center_enu_m, inputs.recording_span_s,
                            an.window_s, an.hop_s, fs,
@@ -71,29 +74,21 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path, *, threads: int = 1,
             progress.step(f"window {w.index} skipped")
             continue
         signals = inputs.read_pressure_pa(first, n)
-        res = image_window(signals, ctx, method=method, grid_points_m=points,
-                           regions=campaign.regions)
         resolved = regions_resolved(centers, bands.center_hz, w.distance_m,
                                     inputs.layout.aperture_m, atm.c_m_s)
         width = main_lobe_width_m(bands.center_hz, w.distance_m, inputs.layout.aperture_m,
                                   atm.c_m_s)
-        valid, why = valid_bands(geo, w, settings, spectrum_samples=(
-            method.spectrum_samples(w.n_samples, settings) if method.spectrum_samples
-            else None))
-        for name in list(campaign.regions) + [TOTAL]:
-            single = name != TOTAL
-            for b in range(len(bands)):
-                region_rows.append({
-                    "window": w.index, "region": name, "band_hz": bands.nominal_hz[b],
-                    "power_1m_pa2": res.region_power[name][b],
-                    "map_sum_pa2": res.region_map_sum[name][b] if single else np.nan,
-                    "psf_sum_pa2": res.region_psf_sum[name][b] if single else np.nan,
-                    "unit_power_pa2": res.unit_power[name][b] if single else np.nan,
-                    "residual_power_pa2": (res.region_residual[name][b]
-                                           if name in res.region_residual else np.nan),
-                    "resolved": bool(resolved[b]) if single else True,
-                    "main_lobe_width_m": width[b],
-                    "band_valid": bool(valid[b]), "band_note": why[b]})
+        results = []
+        for method in methods:
+            res = image_window(signals, ctx, method=method, grid_points_m=points,
+                               regions=campaign.regions)
+            results.append(res)
+            valid, why = valid_bands(geo, w, settings, spectrum_samples=(
+                method.spectrum_samples(w.n_samples, settings) if method.spectrum_samples
+                else None))
+            region_rows += _region_rows(res, w, method.name, campaign, bands, resolved, width,
+                                        valid, why)
+        res = results[0]
         row.update(status="analysed", reason="")
         rows.append(row)
         maps_dr.append(res.diagonal_removed.T.reshape(len(bands), nx, ny))
@@ -102,6 +97,12 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path, *, threads: int = 1,
         fig = map_figure(res.diagonal_removed if an.diagonal_removal else res.full, campaign,
                          bands, pass_name, row, an.map_dynamic_range_db)
         save_figure(fig, out_dir / "maps" / f"window-{w.index:03d}.png")
+        if len(methods) > 1 and w.index == _nearest_overhead(windows):
+            for method, other in zip(methods[1:], results[1:]):
+                fig = map_figure(other.diagonal_removed if an.diagonal_removal else other.full,
+                                 campaign, bands, f"{pass_name} ({method.name})", row,
+                                 an.map_dynamic_range_db)
+                save_figure(fig, out_dir / "maps" / f"window-{w.index:03d}-{method.name}.png")
         progress.step(f"window {w.index} at {w.polar_angle_deg:.0f} deg")
     progress.close()
     if not windows:
@@ -109,7 +110,7 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path, *, threads: int = 1,
     # The figures' folder exists even when no window could be analysed: the step still succeeded.
     (out_dir / "maps").mkdir(parents=True, exist_ok=True)
     WINDOWS.write(out_dir, pd.DataFrame(rows))
-    REGION_POWER.write(out_dir, pd.DataFrame(region_rows))
+    REGION_POWER.write(out_dir, pd.DataFrame(region_rows, columns=REGION_POWER.column_names))
     shape = (len(done), len(bands)) + campaign.grid.shape
     write_maps(out_dir, x_m=campaign.grid.x_axis_m, y_m=campaign.grid.y_axis_m,
                band_hz=bands.nominal_hz, band_center_hz=bands.center_hz,
@@ -118,6 +119,32 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path, *, threads: int = 1,
                polar_angle_deg=[w.polar_angle_deg for w in done],
                diagonal_removed=np.array(maps_dr, np.float32).reshape(shape),
                full=np.array(maps_full, np.float32).reshape(shape))
+
+
+def _nearest_overhead(windows) -> int:
+    """The index of the planned window nearest to 90 deg (-1 without windows)."""
+    return min(windows, key=lambda w: abs(w.polar_angle_deg - 90.0)).index if windows else -1
+
+
+def _region_rows(res, w, method: str, campaign, bands, resolved, width, valid, why) -> list:
+    """region_power.csv's rows of one window and method."""
+    rows = []
+    for name in list(campaign.regions) + [TOTAL]:
+        single = name != TOTAL
+        for b in range(len(bands)):
+            rows.append({
+                "window": w.index, "method": method, "region": name,
+                "band_hz": bands.nominal_hz[b],
+                "power_1m_pa2": res.region_power[name][b],
+                "map_sum_pa2": res.region_map_sum[name][b] if single else np.nan,
+                "psf_sum_pa2": res.region_psf_sum[name][b] if single else np.nan,
+                "unit_power_pa2": res.unit_power[name][b] if single else np.nan,
+                "residual_power_pa2": (res.region_residual[name][b]
+                                       if name in res.region_residual else np.nan),
+                "resolved": bool(resolved[b]) if single else True,
+                "main_lobe_width_m": width[b],
+                "band_valid": bool(valid[b]), "band_note": why[b]})
+    return rows
 
 
 def _window_row(w, clock, array_center) -> dict:

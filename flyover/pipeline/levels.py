@@ -18,7 +18,7 @@ from flyover.imaging.window import TOTAL
 from flyover.io.figures import directivity_figure, save_figure, spectra_figure
 from flyover.io.results.directivity import DIRECTIVITY
 from flyover.io.results.alignment import pass_atmosphere, read_alignment
-from flyover.io.results.levels import LEVELS
+from flyover.io.results.levels import LEVELS, LEVELS_BY_METHOD
 from flyover.io.results.region_power import REGION_POWER
 from flyover.io.results.spectra import SPECTRA
 from flyover.io.results.windows import read_analysed
@@ -31,7 +31,8 @@ UNRESOLVED = "not separable: region centres closer than one main-lobe width"
 # What this stage reads of the campaign (flyover.model.reads): its re-run fingerprint too.
 READS = ("regions", "array.plate_correction_db", "passes.{pass}.array",
          "analysis.reference_distance_m",
-         "analysis.reference_atmosphere", "analysis.band_absorption",
+         "analysis.reference_atmosphere", "analysis.band_absorption", "analysis.method",
+         "analysis.other_methods",
          "analysis.spectra_polar_deg", "analysis.uncertainty")
 
 
@@ -44,9 +45,17 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> None:
     windows = read_analysed(out_dir).set_index("window")
     powers = REGION_POWER.read(out_dir)
     alignment = read_alignment(out_dir)
-    levels = level_table(powers, windows, campaign, alignment, pass_name)
-    levels = with_uncertainty(levels, alignment, campaign, pass_name)
+    per_method = {}
+    for method in (campaign.analysis.method, *campaign.analysis.other_methods):
+        mine = powers[powers["method"].astype(str) == method].drop(columns="method")
+        per_method[method] = with_uncertainty(level_table(mine, windows, campaign, alignment,
+                                                          pass_name),
+                                              alignment, campaign, pass_name)
+    levels = per_method[campaign.analysis.method]
     LEVELS.write(out_dir, levels)
+    LEVELS_BY_METHOD.write(out_dir, pd.concat(
+        [t.assign(method=m) for m, t in per_method.items()], ignore_index=True)[
+        LEVELS_BY_METHOD.column_names])
     spectra = spectra_table(levels, campaign.analysis.spectra_polar_deg)
     SPECTRA.write(out_dir, spectra)
     DIRECTIVITY.write(out_dir, directivity_table(levels))

@@ -203,6 +203,13 @@ def _pass_section(campaign: Campaign, name: str, out: Path) -> str:
             w = int(done.loc[k, "window"])
             maps.append(_img(d / "maps" / f"window-{w:03d}.png", f"maps of window {w}"))
     maps = list(dict.fromkeys(maps))
+    compared = sorted((d / "maps").glob("window-*-*.png"))
+    if compared:
+        # The window nearest overhead by every method: the headline's maps, then the others'.
+        first = compared[0].name[:10]
+        maps.append("<h4>Methods side by side</h4>" + _img(
+            d / "maps" / f"{first}.png", f"{first} by {campaign.analysis.method}") + "".join(
+            _img(p, f"{first} by {p.stem[11:]}") for p in compared))
     warn_html = ("<ul>" + "".join(f'<li class="warn">{html.escape(w)}</li>' for w in warnings)
                  + "</ul>") if warnings else "<p>No data-quality warnings.</p>"
     return f"""

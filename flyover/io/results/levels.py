@@ -43,3 +43,8 @@ LEVELS = TableFile("levels.csv", (
     ("plate_correction_db", "dB, the ground plate's measured response minus +6.02 dB in this "
                             "band (array.plate_correction_db), subtracted from the levels"),
 ), float_format="%.3f")
+
+# Every method the campaign runs (analysis.method and other_methods), for comparison: the same
+# columns after the method's name. levels.csv holds the headline method's alone.
+LEVELS_BY_METHOD = TableFile("levels_by_method.csv", (
+    ("method", "the imaging method"), *LEVELS.columns), float_format="%.3f")

@@ -4,6 +4,7 @@ from flyover.io.results import TableFile
 
 REGION_POWER = TableFile("region_power.csv", (
     ("window", "index"),
+    ("method", "the imaging method (analysis.method, the headline, or one of other_methods)"),
     ("region", "region name, or 'total' for all regions together"),
     ("band_hz", "nominal one-third-octave midband (IEC 61260-1)"),
     ("power_1m_pa2", "Pa^2, band power of the region's sources at 1 m"),

@@ -60,6 +60,7 @@ rule levels:
         regions=f"{OUTP}/{{pass_name}}/region_power.csv",
     output:
         levels=update(f"{OUTP}/{{pass_name}}/levels.csv"),
+        by_method=update(f"{OUTP}/{{pass_name}}/levels_by_method.csv"),
         spectra=update(f"{OUTP}/{{pass_name}}/spectra.csv"),
         directivity=update(f"{OUTP}/{{pass_name}}/directivity.csv"),
         spectra_png=update(f"{OUTP}/{{pass_name}}/spectra.png"),
