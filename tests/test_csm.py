@@ -6,12 +6,12 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from test_dedoppler import (CLOCK, FS, MICS, one_source_pass, rows, windows_near_overhead)
+from test_dedoppler import (CLOCK, MICS, one_source_pass, rows, windows_near_overhead)
 
 from flyover.acoustics.bands import third_octave_bands
 from flyover.forward.moving_source import Broadband, PointSource, Tone
 from flyover.imaging.csm import Steering, clean_sc, conventional_maps, functional_maps
-from flyover.imaging.dedoppler import ChainSettings, signal_band_power
+from flyover.imaging.dedoppler import ChainSettings
 from flyover.imaging.methods import method_named
 from flyover.imaging.window import image_window, window_context
 from flyover.model.campaign import Region, VehicleGrid
