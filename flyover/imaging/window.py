@@ -102,6 +102,9 @@ class ImagingMethod:
     spectrum_samples : callable or None
         ``spectrum_samples(n_samples, settings) -> int``: the length of the spectra its bands
         are formed from (None: the whole window), for the bands' line count.
+    raised_microphones : bool
+        Whether it models the ground reflection of raised microphones (the campaign file is
+        refused otherwise).
     """
 
     name: str
@@ -109,6 +112,7 @@ class ImagingMethod:
     band_maps: Callable[[np.ndarray, WindowContext], BandPowers]
     point_spread: Callable[[np.ndarray, np.ndarray, WindowContext, int], PointSpread]
     spectrum_samples: Callable[[int, ChainSettings], int] | None = None
+    raised_microphones: bool = False
 
 
 @dataclass(frozen=True)

@@ -214,6 +214,21 @@ def _imaging_method(name: str, source: str, key: str = "analysis.method") -> str
     return name
 
 
+def _check_methods_for_raised(analysis: AnalysisSettings, arrays, source: str) -> None:
+    """Raised microphones need methods that model the ground's reflection."""
+    if not any(a.mounting == "raised" for a in arrays):
+        return
+    known = methods()
+    unable = [m for m in (analysis.method, *analysis.other_methods)
+              if not known[m].raised_microphones]
+    if unable:
+        able = sorted(n for n, m in known.items() if m.raised_microphones)
+        raise FlyoverInputError("an imaging method does not model raised microphones",
+                                f"{source}, keys analysis.method/other_methods",
+                                f"with mounting: raised, one of {', '.join(able)}",
+                                ", ".join(unable))
+
+
 def _check_regions_apart(regions: dict[str, Region], grid: VehicleGrid, source: str) -> None:
     """Refuse regions that share grid points: source power integration gives each grid point to
     one region, and a shared point would count the same sound in both."""
@@ -504,6 +519,8 @@ def campaign_from_mapping(data: dict, path: Path) -> Campaign:
                                 f"{analysis.band_min_hz} to {analysis.band_max_hz} Hz",
                                 "widen the range, e.g. to the next nominal bands")
     _check_regions_apart(regions, grid, source)
+    _check_methods_for_raised(analysis, [array] + [p.array for p in passes.values() if p.array],
+                              source)
     outline = tuple(_range(v) for v in veh.get("outline_m", ()))
     scenario = _resolve_path(base, data["scenario"]) if "scenario" in data else None
     rotors = {n: RotorSpec(n, tuple(float(v) for v in r["body_m"]), int(r["blades"]),

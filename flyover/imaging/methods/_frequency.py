@@ -8,17 +8,12 @@ import numpy as np
 from flyover.imaging.csm import Focus, Steering, window_csm, window_focus
 from flyover.imaging.dedoppler import reception_geometry, subset
 from flyover.imaging.window import WindowContext
-from flyover.model.errors import FlyoverInputError
 
 # Every channel is de-Dopplerized toward the body origin.
 FOCUS_BODY_M = np.zeros(3)
 
 
 def focus_of(context: WindowContext) -> Focus:
-    if context.settings.image_mic_enu_m is not None:
-        raise FlyoverInputError("the frequency-domain methods do not model raised microphones",
-                                "analysis.method", "method: time-domain for raised microphones",
-                                "a frequency-domain method")
     return window_focus(track=context.track, window=context.window,
                         mic_enu_m=context.mic_enu_m, atmosphere=context.atmosphere,
                         settings=context.settings, focus_body_m=FOCUS_BODY_M)

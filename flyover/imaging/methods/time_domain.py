@@ -52,4 +52,5 @@ def point_spread(body_m, points, context: WindowContext, seed: int) -> PointSpre
 
 
 register(ImagingMethod("time-domain", "delay-and-sum of de-Dopplerized signals per grid point, "
-                       "band powers in source time", band_maps, point_spread))
+                       "band powers in source time", band_maps, point_spread,
+                       raised_microphones=True))
