@@ -251,6 +251,7 @@ def test_stages_run_a_pass_flown_over_raised_microphones(tiny_copy):
     def raised(d):
         d["passes"]["p1"]["array"] = {"layout": "layout-raised.csv", "mounting": "raised",
                                       "ground": {"surface": "soft"}}
+        d["analysis"]["other_methods"] = ["frequency-domain"]   # skipped for this pass
     edit_campaign(tiny_copy, raised)
     campaign = load_campaign(tiny_copy / "campaign.yaml")
     out = tiny_copy / "results" / "p1"
@@ -259,5 +260,6 @@ def test_stages_run_a_pass_flown_over_raised_microphones(tiny_copy):
     levels.run(campaign, "p1", out)
     table = pd.read_csv(out / "levels.csv")
     assert table["level_db"].notna().any()
+    assert set(pd.read_csv(out / "levels_by_method.csv")["method"]) == {"time-domain"}
     alignment = read_alignment(out)
     assert alignment["array"]["mounting"] == "raised" and alignment["array"]["own_array"]

@@ -215,18 +215,17 @@ def _imaging_method(name: str, source: str, key: str = "analysis.method") -> str
 
 
 def _check_methods_for_raised(analysis: AnalysisSettings, arrays, source: str) -> None:
-    """Raised microphones need methods that model the ground's reflection."""
+    """Raised microphones need a headline method that models the ground's reflection (the
+    comparison methods that do not are skipped for their passes, said in the image log)."""
     if not any(a.mounting == "raised" for a in arrays):
         return
     known = methods()
-    unable = [m for m in (analysis.method, *analysis.other_methods)
-              if not known[m].raised_microphones]
-    if unable:
+    if not known[analysis.method].raised_microphones:
         able = sorted(n for n, m in known.items() if m.raised_microphones)
-        raise FlyoverInputError("an imaging method does not model raised microphones",
-                                f"{source}, keys analysis.method/other_methods",
+        raise FlyoverInputError("the imaging method does not model raised microphones",
+                                f"{source}, key analysis.method",
                                 f"with mounting: raised, one of {', '.join(able)}",
-                                ", ".join(unable))
+                                analysis.method)
 
 
 def _check_regions_apart(regions: dict[str, Region], grid: VehicleGrid, source: str) -> None:

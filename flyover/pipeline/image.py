@@ -53,6 +53,12 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path, *, threads: int = 1,
     # The headline method first: its maps are the pass's; the others' go to the tables and a
     # side-by-side figure of the window nearest overhead.
     methods = [method_named(m) for m in (an.method, *an.other_methods)]
+    if settings.image_mic_enu_m is not None:
+        skipped = [m.name for m in methods if not m.raised_microphones]
+        methods = [m for m in methods if m.raised_microphones]
+        if skipped and not quiet:
+            print(f"{pass_name}: {', '.join(skipped)} skipped: they do not model the ground "
+                  "reflection of raised microphones", file=sys.stderr)
     mics = inputs.layout.enu_m
     windows = plan_windows(inputs.track, inputs.layout.center_enu_m, inputs.recording_span_s,
                            an.window_s, an.hop_s, fs,
