@@ -227,6 +227,17 @@ def subset(geometry: ReceptionGeometry, points) -> ReceptionGeometry:
                              None if geometry.image is None else geometry.image.take(points))
 
 
+def centre_values(geometry: ReceptionGeometry, center_s: float):
+    """Reception time and amplitude factor (n_points, n_mics) at the window centre, from the
+    nodes (linear, as the kernel reads them)."""
+    nodes = geometry.node_times_s
+    k = int(np.clip(np.searchsorted(nodes, center_s) - 1, 0, len(nodes) - 2))
+    u = (center_s - nodes[k]) / (nodes[k + 1] - nodes[k])
+    rx = geometry.reception_s[..., k] * (1 - u) + geometry.reception_s[..., k + 1] * u
+    amp = geometry.amplitude[..., k] * (1 - u) + geometry.amplitude[..., k + 1] * u
+    return rx, amp
+
+
 def required_frames(geometry: ReceptionGeometry, clock: ArrayClock,
                     interpolation: str) -> tuple[np.ndarray, int]:
     """The frames a window reads: per microphone the first frame of its recorder (int array
@@ -265,7 +276,7 @@ def valid_bands(geometry: ReceptionGeometry, window: Window, settings: ChainSett
     return np.array([r == "" for r in reasons]), reasons
 
 
-def _absorption_gain(settings: ChainSettings, atmosphere: Atmosphere,
+def absorption_gains(settings: ChainSettings, atmosphere: Atmosphere,
                      geometry: ReceptionGeometry) -> np.ndarray:
     """Amplitude factors (n_grid, n_mics, n_bands) that undo the measured path's absorption.
 
@@ -281,6 +292,37 @@ def _absorption_gain(settings: ChainSettings, atmosphere: Atmosphere,
     power_gain = np.mean(10.0 ** (alpha * geometry.distance_center_m[..., None, None] / 10.0),
                          axis=-1)
     return np.sqrt(power_gain).astype(np.float32)
+
+
+def interpolation_response(frequency_hz, sample_rate_hz: float, interpolation: str):
+    """The chain's interpolation as a gain on a received line, averaged over the fractional
+    read position (which sweeps through [0, 1) many times in a window as the delay changes).
+
+    4-point Lagrange read at ``i + d`` turns ``exp(i 2 pi nu k)`` into ``H(nu, d) exp(i 2 pi nu
+    (i + d))`` with ``H = sum_k L_k(d) exp(i 2 pi nu (k - d))``; this is the mean of H over d
+    (64 midpoints), nu the received frequency over the rate it is read at (a quarter of it
+    after the 'sinc' option's oversampling, whose filter is flat there). The steering model of
+    the point-spread applies it to the beam (coherent part) and its square to the autopowers.
+
+    Parameters
+    ----------
+    frequency_hz : array_like
+        Received frequencies.
+    interpolation : {'cubic', 'sinc'}
+
+    Returns
+    -------
+    complex ndarray, shape of ``frequency_hz``
+    """
+    nu = np.asarray(frequency_hz, float) / sample_rate_hz
+    if interpolation == "sinc":
+        nu = nu / OVERSAMPLING
+    d = (np.arange(64) + 0.5) / 64
+    lagrange = np.stack([-d * (d - 1) * (d - 2) / 6, (d + 1) * (d - 1) * (d - 2) / 2,
+                         -(d + 1) * d * (d - 2) / 2, (d + 1) * d * (d - 1) / 6])   # (4, n_d)
+    k = np.arange(-1, 3)
+    phase = np.exp(2j * np.pi * nu[..., None, None] * (k[:, None] - d[None, :]))
+    return (lagrange * phase).sum(axis=-2).mean(axis=-1)
 
 
 def oversampled(signals) -> np.ndarray:
@@ -347,11 +389,16 @@ class BandPowers:
         A deconvolving method's diagonal-removed residual map (what it left unexplained), in
         the units of conventional beamforming; for a unit source, its conventional map. Source
         power integration adds the residual's integral to the region levels.
+    variant : BandPowers or None
+        The same maps by a variant of the method that is as defensible (CLEAN-SC's maps before
+        its power re-fit): a region level that differs between the two by more than the
+        tolerance of :mod:`flyover.imaging.integration` is not given.
     """
 
     full: np.ndarray
     diagonal_removed: np.ndarray
     residual: np.ndarray | None = None
+    variant: "BandPowers | None" = None
 
 
 def spectral_weights(n: int) -> tuple[np.ndarray, float]:
@@ -448,7 +495,7 @@ def window_band_powers(signals_pa, first_frame, geometry: ReceptionGeometry,
     used = np.flatnonzero(w > 0)
     w_used = w[used].astype(np.float32)
     s1, s2 = float(w_used.sum()), float((w_used.astype(float) ** 2).sum())
-    gain = _absorption_gain(settings, atmosphere, geometry)[:, used]   # (n_g, n_used, n_b)
+    gain = absorption_gains(settings, atmosphere, geometry)[:, used]   # (n_g, n_used, n_b)
     sub = subset(geometry, (slice(None), used))
     sig = np.asarray(signals_pa)[used]
     first_used, clock_used = np.asarray(first_frame)[used], clock.take(used)

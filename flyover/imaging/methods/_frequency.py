@@ -29,11 +29,13 @@ def csm_and_steering(signals_pa, context: WindowContext) -> tuple[np.ndarray, St
 
 
 def unit_steering(body_m, points, context: WindowContext) -> tuple[Steering, Steering]:
-    """The steering of the context's grid points ``points`` and of a source at ``body_m``."""
+    """The steering of the context's grid points ``points`` and of a source at ``body_m``
+    ((3,), or (n_bands, 3): a position per band)."""
     focus = focus_of(context)
     s = context.settings
-    source = reception_geometry(context.track, context.window, [body_m], context.mic_enu_m,
-                                context.atmosphere, s.pressure_gain, node_step=s.node_step)
+    source = reception_geometry(context.track, context.window, np.atleast_2d(body_m),
+                                context.mic_enu_m, context.atmosphere, s.pressure_gain,
+                                node_step=s.node_step)
     center = context.window.center_s
     return (focus.steering(subset(context.geometry, points), center),
             focus.steering(source, center))
@@ -41,5 +43,5 @@ def unit_steering(body_m, points, context: WindowContext) -> tuple[Steering, Ste
 
 def unit_csm(source: Steering) -> np.ndarray:
     """The CSM of a unit point source (1 Pa^2 per line) with this steering: u u^H per line."""
-    u = np.stack([source.vectors(k)[0] for k in range(len(source.frequency_hz))])
+    u = np.stack([source.line_vector(k) for k in range(len(source.frequency_hz))])
     return u[:, :, None] * u[:, None, :].conj()

@@ -1,6 +1,7 @@
 """CLEAN-SC (Sijtsma 2007) on the frequency-domain engine's CSMs: each window's sources found
-and removed one by one, their powers put on their grid points (a clean beam one grid cell
-wide). Its BandPowers carry the clean map (``diagonal_removed``), the clean map plus the
+and removed one by one, their powers re-fitted as incoherent sources and put on their grid
+points (a clean beam one grid cell wide); the maps before the re-fit are its variant, and a
+region level that differs between the two by more than 1 dB is not given. Its BandPowers carry the clean map (``diagonal_removed``), the clean map plus the
 diagonal-removed residual (``full``) and the residual itself. A unit source's clean map is its
 power at the grid point where its conventional point-spread peaks, so source power integration
 over a region is the sum of the clean powers found in it, plus the residual integrated over it
@@ -22,7 +23,9 @@ def band_maps(signals_pa, context: WindowContext) -> BandPowers:
     s = context.settings
     res = clean_sc(csm, steering, len(s.bands), loop_gain=s.clean_loop_gain,
                    max_sources=s.clean_max_sources)
-    return BandPowers(res.clean + res.residual, res.clean, res.residual)
+    as_removed = BandPowers(res.removed_clean + res.removed_residual, res.removed_clean,
+                            res.removed_residual)
+    return BandPowers(res.clean + res.residual, res.clean, res.residual, as_removed)
 
 
 def point_spread(body_m, points, context: WindowContext, seed: int) -> PointSpread:

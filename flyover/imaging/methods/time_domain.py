@@ -2,9 +2,12 @@
 
 Every microphone is de-Dopplerized to every grid point (:mod:`flyover.imaging.dedoppler`) and
 band powers are formed from the windowed spectra of the sums, with and without diagonal removal.
-The point-spread of a unit point source is measured, not modelled: the source is simulated with
-the forward model (:mod:`flyover.forward.moving_source`) through the window's geometry,
-atmosphere and weights, and mapped by the identical chain.
+The point-spread of a unit point source comes from the steering model of the chain
+(:func:`modelled_point_spread`: the geometry frozen at the window centre, the absorption of
+the source's path against the chain's compensation, the interpolation's mean loss). Over
+raised microphones, whose reflected path sweeps in delay across the window, the unit source at
+a region centre is simulated with the forward model (:mod:`flyover.forward.moving_source`) and
+mapped by the identical chain instead.
 """
 
 from __future__ import annotations
@@ -13,11 +16,17 @@ import numpy as np
 
 from flyover.forward.moving_source import (Broadband, PointSource, Propagator, SourceSignal,
                                            received_pressure_pa)
-from flyover.imaging.dedoppler import BandPowers, signal_band_power, subset, window_band_powers
+from flyover.imaging.dedoppler import (BandPowers, absorption_gains, band_bins, centre_values,
+                                       interpolation_response, reception_geometry,
+                                       signal_band_power, subset, window_band_powers)
 from flyover.imaging.methods import register
 from flyover.imaging.window import ImagingMethod, PointSpread, WindowContext
 
 UNIT_SOURCE_LEVEL_DB = 94.0  # band level at 1 m of the unit source (any value cancels)
+# Lines per band the steering model evaluates (evenly spread; each stands for its share of the
+# band's lines): a point-spread changes smoothly across a third-octave band.
+MODEL_LINES_PER_BAND = 16
+MODEL_INSTANTS = 3  # instants across the window the steering model is evaluated at
 
 
 def band_maps(signals_pa, context: WindowContext) -> BandPowers:
@@ -28,6 +37,93 @@ def band_maps(signals_pa, context: WindowContext) -> BandPowers:
 
 
 def point_spread(body_m, points, context: WindowContext, seed: int) -> PointSpread:
+    """A unit point source at ``body_m`` mapped on ``points``: modelled, or simulated over
+    raised microphones when one position serves every band."""
+    body = np.asarray(body_m, float)
+    if context.settings.image_mic_enu_m is None or body.ndim == 2:
+        return modelled_point_spread(body, points, context)
+    return simulated_point_spread(body, points, context, seed)
+
+
+def modelled_point_spread(body_m, points, context: WindowContext) -> PointSpread:
+    """The chain's maps of a unit point source from its steering, without simulating it.
+
+    A source at s appears in grid point g's de-Dopplerized signal of microphone m as its own
+    signal advanced by ``(t_gm - t_sm) / (dt/dtau)_sm`` (the difference of the reception times
+    of sound emitted at one instant, in the source's time) and scaled by ``A_gm / A_sm`` (the amplitude factors),
+    times the chain's absorption compensation of (g, m) against the source path's own
+    absorption, and the interpolation's mean response at the received frequency. Per line
+    (1 Pa^2 each) the beam is the weighted sum of these over microphones, the autopowers the
+    weighted sum of their squares, exactly as :func:`window_band_powers` forms the maps. The
+    geometry is taken at ``MODEL_INSTANTS`` instants across the window, their beam powers
+    weighted by the window's squared taper (free field: raised microphones' reflection is not
+    modelled here).
+
+    Parameters
+    ----------
+    body_m : array_like, shape (3,) or (n_bands, 3)
+        The source position, or one per band.
+    points : index array
+        Grid points of the context's geometry to map.
+
+    Returns
+    -------
+    PointSpread
+        Maps (len(points), n_bands); the source power per band is its number of lines.
+    """
+    w, s = context.window, context.settings
+    bands = s.bands
+    bodies = np.broadcast_to(np.asarray(body_m, float), (len(bands), 3))
+    weights = np.asarray(s.weights, float)
+    used = np.flatnonzero(weights > 0)
+    wt = weights[used]
+    s1, s2 = wt.sum(), (wt ** 2).sum()
+    grid = subset(subset(context.geometry, points), (slice(None), used))
+    source = reception_geometry(context.track, w, bodies, context.mic_enu_m[used],
+                                context.atmosphere, s.pressure_gain, node_step=s.node_step)
+    # The geometry turns over the window: the beam is modelled at a few instants, each weighted
+    # as the window's squared Hann taper weights the band power there.
+    instants = w.start_s + (np.arange(MODEL_INSTANTS) + 0.5) / MODEL_INSTANTS * (
+        w.n_samples / w.sample_rate_hz)
+    taper = np.sin(np.pi * (np.arange(MODEL_INSTANTS) + 0.5) / MODEL_INSTANTS) ** 4
+    taper /= taper.sum()
+    at_g = [centre_values(grid, t) for t in instants]                 # (n_p, n_m) each
+    at_s = [centre_values(source, t) for t in instants]               # (n_b, n_m) each
+    gain = absorption_gains(s, context.atmosphere, grid)              # (n_p, n_m, n_b)
+    freqs = np.fft.rfftfreq(w.n_samples, 1.0 / w.sample_rate_hz)
+    n_p = len(at_g[0][0])
+    full = np.zeros((n_p, len(bands)))
+    removed = np.zeros((n_p, len(bands)))
+    lines = np.zeros(len(bands))
+    for b, sl in enumerate(band_bins(bands, w.n_samples, w.sample_rate_hz)):
+        n_lines = sl.stop - sl.start
+        if n_lines <= 0:
+            continue
+        f = freqs[np.unique(np.linspace(sl.start, sl.stop - 1,
+                                        min(n_lines, MODEL_LINES_PER_BAND)).round().astype(int))]
+        u = interpolation_response(f[None, :] / source.doppler_center[b][:, None],
+                                   w.sample_rate_hz, s.interpolation)          # (n_m, n_f)
+        if s.absorption:
+            alpha = context.atmosphere.absorption_db_per_m(
+                f[None, :] / (1.0 - source.mach_r_center[b][:, None]))
+            u = u * 10.0 ** (-alpha * source.distance_center_m[b][:, None] / 20.0)
+        beam = np.zeros((n_p, len(f)))
+        auto = np.zeros((n_p, len(f)))
+        for weight, (rx_g, amp_g), (rx_s, amp_s) in zip(taper, at_g, at_s):
+            ratio = amp_g / amp_s[b] * gain[:, :, b] * wt                     # (n_p, n_m)
+            # A reception-time difference is an emission-time difference over dt/dtau.
+            advance = (rx_g - rx_s[b]) / source.doppler_center[b]
+            phase = np.exp(2j * np.pi * f[None, None, :] * advance[:, :, None])
+            beam += weight * np.abs(np.einsum("pm,pmf,mf->pf", ratio, phase, u)) ** 2
+            auto += weight * (ratio ** 2) @ (np.abs(u) ** 2)
+        share = n_lines / len(f)
+        full[:, b] = share * beam.sum(axis=1) / s1 ** 2
+        removed[:, b] = share * (beam - auto).sum(axis=1) / (s1 ** 2 - s2)
+        lines[b] = n_lines
+    return PointSpread(BandPowers(full, removed), lines)
+
+
+def simulated_point_spread(body_m, points, context: WindowContext, seed: int) -> PointSpread:
     """A broadband unit point source at ``body_m``, simulated and mapped on ``points``."""
     w, settings = context.window, context.settings
     bands = settings.bands
