@@ -8,6 +8,8 @@ sums is solved for as well.
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 
 # The leakage solve amplifies relative errors of the unit sources' couplings (a few per cent:
@@ -50,3 +52,108 @@ def region_powers(coupling, measured) -> tuple[np.ndarray, np.ndarray]:
     with np.errstate(divide="ignore", invalid="ignore"):
         total = np.where(union > 0, m.sum(axis=1) / union, np.nan)
     return np.where(out > 0, out, np.nan), np.where(total > 0, total, np.nan)
+
+
+# A region's level is given only if moving any region's unit source by a quarter wavelength
+# changes it by at most this: the coupling of a real source, somewhere in its region, is then
+# close enough to the unit source's.
+SHIFT_TOLERANCE_DB = 1.0
+# A region not resolved from its neighbours still gets its level when it holds at least this
+# many times their power together (10 dB): their leakage into it is then small.
+DOMINANCE = 10.0
+
+
+def shift_changes_db(shifted, measured, powers, fixed=0.0) -> np.ndarray:
+    """The largest change of each region's level over re-solves with moved unit sources.
+
+    Parameters
+    ----------
+    shifted : ndarray, shape (n_shifts, n_bands, n_regions, n_regions)
+        Couplings as in :func:`region_powers`, each with one region's unit source moved.
+    measured : ndarray, shape (n_bands, n_regions)
+    powers : ndarray, shape (n_bands, n_regions)
+        The solve with the unit sources at the region centres.
+    fixed : ndarray, shape (n_bands, n_regions), or float
+        A part of each region's level that the shifts do not move (a deconvolving method's
+        integrated residual), added to both solves before comparing.
+
+    Returns
+    -------
+    ndarray, shape (n_bands, n_regions)
+        dB; inf where a moved solve fails (ill-conditioned or non-positive) and the centred one
+        does not.
+    """
+    worst = np.zeros(np.shape(powers))
+    for c in shifted:
+        moved = region_powers(c, measured)[0]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            change = np.abs(10.0 * np.log10((moved + fixed) / (powers + fixed)))
+        worst = np.maximum(worst, np.where(np.isfinite(change), change, np.inf))
+    return worst
+
+
+@dataclass(frozen=True)
+class RegionVerdict:
+    """Whether a region's level can be given, per band (arrays of shape (n_bands,)).
+
+    Attributes
+    ----------
+    resolved : bool array
+        The region is resolved from every other: each pair's midpoint lies outside both unit
+        sources' half-power main lobes (the array planning's criterion, in this window).
+    dominant : bool array
+        Not resolved, but holding at least ``DOMINANCE`` times the power of the regions it is
+        not resolved from.
+    stability_db : float array
+        How far its level moves when a unit source moves a quarter wavelength (or with the
+        method's variant, :class:`flyover.imaging.dedoppler.BandPowers`).
+    valid : bool array
+        The level is given: finite, within ``SHIFT_TOLERANCE_DB`` of its moved solves, and
+        resolved or dominant.
+    note : list of str
+        Why not, or 'dominant, not resolved'; '' for a resolved, valid level.
+    """
+
+    resolved: np.ndarray
+    dominant: np.ndarray
+    stability_db: np.ndarray
+    valid: np.ndarray
+    note: list
+
+
+DOMINANT_NOTE = "dominant, not resolved"
+
+
+def region_verdicts(powers, changes_db, resolved_pairs) -> list[RegionVerdict]:
+    """Per region: resolved, dominant and valid, from the solved powers (n_bands, n_regions),
+    their shift changes (same shape) and the pairwise resolution (n_bands, n_regions,
+    n_regions, bool, symmetric; the diagonal is ignored)."""
+    p = np.asarray(powers, float)
+    n_b, n_r = p.shape
+    pairs = np.asarray(resolved_pairs, bool) | np.eye(n_r, dtype=bool)[None]
+    out = []
+    for i in range(n_r):
+        resolved = pairs[:, i].all(axis=1)
+        # Regions that solved to nothing (NaN) beside a finite one count as holding nothing.
+        others = np.where(~pairs[:, i], np.nan_to_num(p, nan=0.0), 0.0).sum(axis=1)
+        finite = np.isfinite(p[:, i]) & (p[:, i] > 0)
+        dominant = ~resolved & finite & (np.nan_to_num(p[:, i]) >= DOMINANCE * others)
+        steady = changes_db[:, i] <= SHIFT_TOLERANCE_DB
+        valid = finite & steady & (resolved | dominant)
+        notes = []
+        for b in range(n_b):
+            if not finite[b]:
+                notes.append("regions cannot be told apart in this band (leakage solve "
+                             "ill-conditioned or not positive)")
+            elif not steady[b]:
+                notes.append(f"unstable: the level moves {changes_db[b, i]:.1f} dB when a unit "
+                             "source shifts a quarter wavelength (or with the method's variant)")
+            elif dominant[b]:
+                notes.append(DOMINANT_NOTE)
+            elif not resolved[b]:
+                notes.append("not resolved: inside another region's half-power main lobe, "
+                             "neither dominating by 10 dB")
+            else:
+                notes.append("")
+        out.append(RegionVerdict(resolved, dominant, changes_db[:, i], valid, notes))
+    return out

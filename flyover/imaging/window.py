@@ -21,7 +21,9 @@ from flyover.geometry.track import TrackModel
 from flyover.geometry.windows import Window
 from flyover.imaging.dedoppler import (BandPowers, ChainSettings, ReceptionGeometry,
                                        reception_geometry, required_frames)
-from flyover.imaging.integration import region_powers
+from flyover.imaging.integration import (region_powers, region_verdicts,
+                                         shift_changes_db)
+from flyover.imaging.planning import HALF_POWER
 from flyover.model.campaign import Region
 from flyover.sync.timebase import ArrayClock
 
@@ -97,8 +99,9 @@ class ImagingMethod:
         ``context.first_frame[m]``.
     point_spread : callable
         ``point_spread(body_m, points, context, seed) -> PointSpread``: a unit point source at
-        body point ``body_m`` (3,) mapped on the grid points ``points`` (indices into the
-        context's geometry) through the identical chain; ``seed`` makes its signal repeatable.
+        body point ``body_m`` ((3,), or (n_bands, 3): a position per band) mapped on the grid
+        points ``points`` (indices into the context's geometry) through the identical chain;
+        ``seed`` makes a simulated signal repeatable.
     spectrum_samples : callable or None
         ``spectrum_samples(n_samples, settings) -> int``: the length of the spectra its bands
         are formed from (None: the whole window), for the bands' line count.
@@ -133,6 +136,8 @@ class WindowMaps:
     region_residual : dict of str -> ndarray (n_bands,)
         A deconvolving method's integrated residual per region (included in
         ``region_power``); empty for the other methods.
+    verdicts : dict of str -> RegionVerdict
+        Per region (not ``TOTAL``): whether its level can be given, and why not.
     """
 
     window: Window
@@ -143,6 +148,7 @@ class WindowMaps:
     region_psf_sum: dict
     unit_power: dict
     region_residual: dict = field(default_factory=dict)
+    verdicts: dict = field(default_factory=dict)
 
 
 def window_context(window: Window, *, track: TrackModel, clock: ArrayClock,
@@ -159,7 +165,8 @@ def window_context(window: Window, *, track: TrackModel, clock: ArrayClock,
 
 def image_window(signals_pa, context: WindowContext, *, method: ImagingMethod, grid_points_m,
                  regions: dict[str, Region]) -> WindowMaps:
-    """Maps of one window and the power of each region (source power integration).
+    """Maps of one window, the power of each region (source power integration) and whether
+    each region's level can be given.
 
     Parameters
     ----------
@@ -170,38 +177,95 @@ def image_window(signals_pa, context: WindowContext, *, method: ImagingMethod, g
     grid_points_m : ndarray, shape (n_grid, 3)
         The body points of the context's geometry.
     regions : dict of str -> Region
+
+    Notes
+    -----
+    Besides the unit sources at the region centres, each region's unit source is moved a
+    quarter wavelength (at each band's centre) forward, back, to port and to starboard and the
+    leakage solve repeated: a real source sits somewhere in its region, and where that moves a
+    level by more than ``SHIFT_TOLERANCE_DB`` (a weak region beside a strong one, whose
+    leakage into it the unit source cannot pin down), the level is not given. Pairs of regions
+    are resolved where their midpoint lies outside both unit sources' half-power main lobes
+    (the planning criterion, with this window's geometry: foreshortening included); see
+    :func:`flyover.imaging.integration.region_verdicts` for the rest.
     """
     bp = method.band_maps(signals_pa, context)
-    maps = bp.diagonal_removed if context.diagonal_removal else bp.full
+    use_removed = context.diagonal_removal
+    maps = bp.diagonal_removed if use_removed else bp.full
     pts = np.asarray(grid_points_m, float)
     names = list(regions)
+    n_r, n_b = len(names), len(context.settings.bands)
     masks = [np.flatnonzero(regions[n].contains(pts)) for n in names]
-    union = np.unique(np.concatenate(masks))
-    where = {n: np.searchsorted(union, m) for n, m in zip(names, masks)}
+    centres = np.array([regions[n].center_m for n in names], float)
+    pairs = [(i, j) for i in range(n_r) for j in range(i + 1, n_r)]
+    middles = [int(np.argmin(np.linalg.norm(pts - 0.5 * (centres[i] + centres[j]), axis=1)))
+               for i, j in pairs]
+    evaluate = np.unique(np.concatenate(masks + [np.array(middles, int)]))
+    where = [np.searchsorted(evaluate, m) for m in masks]
+
+    def column(j, body):
+        """Region sums of a unit source at ``body`` per unit power (n_b, n_r), and its spread."""
+        psf = method.point_spread(body, evaluate, context, 7919 * (context.window.index + 1) + j)
+        m = psf.maps.diagonal_removed if use_removed else psf.maps.full
+        return np.stack([m[k].sum(axis=0) for k in where], axis=-1) / psf.source_power_pa2[
+            :, None], psf
+
     # coupling[b, i, j]: region i's summed map of the unit source at region j's centre, per unit
     # power (see flyover.imaging.integration.region_powers).
-    n_r, n_b = len(names), len(context.settings.bands)
     coupling = np.empty((n_b, n_r, n_r))
-    units, map_sums, psf_sums, residuals = {}, {}, {}, {}
+    units, psf_sums, residual_psf, lobes = {}, {}, {}, []
     for j, name in enumerate(names):
-        psf = method.point_spread(regions[name].center_m, union, context,
-                                  7919 * (context.window.index + 1) + j)
-        psf_maps = psf.maps.diagonal_removed if context.diagonal_removal else psf.maps.full
+        coupling[:, :, j], psf = column(j, regions[name].center_m)
+        psf_maps = psf.maps.diagonal_removed if use_removed else psf.maps.full
         units[name] = psf.source_power_pa2
-        for i, other in enumerate(names):
-            coupling[:, i, j] = psf_maps[where[other]].sum(axis=0) / units[name]
-        psf_sums[name] = psf_maps[where[name]].sum(axis=0)
-        map_sums[name] = maps[masks[j]].sum(axis=0)
-        if bp.residual is not None:
+        psf_sums[name] = psf_maps[where[j]].sum(axis=0)
+        if psf.maps.residual is not None:
+            residual_psf[name] = psf.maps.residual[where[j]].sum(axis=0)
+        # The conventional map of the unit source (a deconvolving method's residual map is
+        # one) relative to its peak: the half-power test of the pairs.
+        lobe = psf.maps.residual if psf.maps.residual is not None else psf_maps
+        lobes.append(lobe / lobe.max(axis=0))
+
+    def integrate(found: BandPowers):
+        """Summed maps, residual parts, solved powers and their total, of some maps."""
+        sums = {n: (found.diagonal_removed if use_removed else found.full)[masks[j]].sum(
+            axis=0) for j, n in enumerate(names)}
+        parts = {}
+        if found.residual is not None:
             # A deconvolving method's residual, integrated over the region against the unit
             # source's conventional map (source power integration, without leakage solving).
-            with np.errstate(divide="ignore", invalid="ignore"):
-                part = (bp.residual[masks[j]].sum(axis=0)
-                        / psf.maps.residual[where[name]].sum(axis=0) * units[name])
-            residuals[name] = np.where(np.isfinite(part), part, 0.0)
-    measured = np.stack([map_sums[n] for n in names], axis=-1)          # (n_b, n_r)
-    solved, total = region_powers(coupling, measured)
-    powers = {n: solved[:, j] + residuals.get(n, 0.0) for j, n in enumerate(names)}
-    powers[TOTAL] = total + sum(residuals.values()) if residuals else total
+            for j, n in enumerate(names):
+                with np.errstate(divide="ignore", invalid="ignore"):
+                    part = found.residual[masks[j]].sum(axis=0) / residual_psf[n] * units[n]
+                parts[n] = np.where(np.isfinite(part), part, 0.0)
+        measured = np.stack([sums[n] for n in names], axis=-1)          # (n_b, n_r)
+        solved, total = region_powers(coupling, measured)
+        for j, n in enumerate(names):
+            solved[:, j] += parts.get(n, 0.0)
+        return sums, parts, measured, solved, total + sum(parts.values())
+
+    map_sums, residuals, measured, solved, total = integrate(bp)
+    wavelength = context.atmosphere.c_m_s / context.settings.bands.center_hz
+    shifted = []
+    for j in range(n_r):
+        for direction in ((1, 0, 0), (-1, 0, 0), (0, 1, 0), (0, -1, 0)):
+            moved = coupling.copy()
+            moved[:, :, j] = column(j, centres[j] + np.outer(wavelength / 4, direction))[0]
+            shifted.append(moved)
+    # The shifts move the solve alone; a deconvolving method's residual part stays.
+    parts = np.stack([residuals.get(n, np.zeros(n_b)) for n in names], axis=-1)
+    changes = shift_changes_db(shifted, measured, solved - parts, parts)
+    if bp.variant is not None:
+        with np.errstate(divide="ignore", invalid="ignore"):
+            change = np.abs(10.0 * np.log10(integrate(bp.variant)[3] / solved))
+        changes = np.maximum(changes, np.where(np.isfinite(change), change, np.inf))
+    resolved_pairs = np.zeros((n_b, n_r, n_r), bool)
+    for (i, j), k in zip(pairs, middles):
+        at = np.searchsorted(evaluate, k)
+        resolved_pairs[:, i, j] = resolved_pairs[:, j, i] = (
+            (lobes[i][at] < HALF_POWER) & (lobes[j][at] < HALF_POWER))
+    verdicts = dict(zip(names, region_verdicts(solved, changes, resolved_pairs)))
+    powers = {n: solved[:, j] for j, n in enumerate(names)}
+    powers[TOTAL] = total
     return WindowMaps(context.window, bp.full, bp.diagonal_removed, powers, map_sums, psf_sums,
-                      units, residuals)
+                      units, residuals, verdicts)

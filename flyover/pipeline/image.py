@@ -14,7 +14,7 @@ from flyover.acoustics.bands import third_octave_bands
 from flyover.geometry.windows import plan_windows
 from flyover.imaging.dedoppler import valid_bands
 from flyover.imaging.methods import method_named
-from flyover.imaging.resolution import main_lobe_width_m, regions_resolved
+from flyover.imaging.resolution import main_lobe_width_m
 from flyover.imaging.window import TOTAL, image_window, window_context
 from flyover.io.figures import map_figure, save_figure
 from flyover.io.results.maps import write_maps
@@ -63,7 +63,6 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path, *, threads: int = 1,
     windows = plan_windows(inputs.track, inputs.layout.center_enu_m, inputs.recording_span_s,
                            an.window_s, an.hop_s, fs,
                            max_polar_offset_deg=an.max_polar_offset_deg)
-    centers = [r.center_m for r in campaign.regions.values()]
     progress = Progress(len(windows), f"{pass_name} imaging",
                         stream=io.StringIO() if quiet else None)
     rows, region_rows, maps_dr, maps_full, done = [], [], [], [], []
@@ -80,8 +79,6 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path, *, threads: int = 1,
             progress.step(f"window {w.index} skipped")
             continue
         signals = inputs.read_pressure_pa(first, n)
-        resolved = regions_resolved(centers, bands.center_hz, w.distance_m,
-                                    inputs.layout.aperture_m, atm.c_m_s)
         width = main_lobe_width_m(bands.center_hz, w.distance_m, inputs.layout.aperture_m,
                                   atm.c_m_s)
         results = []
@@ -92,8 +89,8 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path, *, threads: int = 1,
             valid, why = valid_bands(geo, w, settings, spectrum_samples=(
                 method.spectrum_samples(w.n_samples, settings) if method.spectrum_samples
                 else None))
-            region_rows += _region_rows(res, w, method.name, campaign, bands, resolved, width,
-                                        valid, why)
+            region_rows += _region_rows(res, w, method.name, campaign, bands, width, valid,
+                                        why)
         res = results[0]
         row.update(status="analysed", reason="")
         rows.append(row)
@@ -132,22 +129,27 @@ def _nearest_overhead(windows) -> int:
     return min(windows, key=lambda w: abs(w.polar_angle_deg - 90.0)).index if windows else -1
 
 
-def _region_rows(res, w, method: str, campaign, bands, resolved, width, valid, why) -> list:
+def _region_rows(res, w, method: str, campaign, bands, width, valid, why) -> list:
     """region_power.csv's rows of one window and method."""
     rows = []
     for name in list(campaign.regions) + [TOTAL]:
-        single = name != TOTAL
+        v = res.verdicts.get(name)
         for b in range(len(bands)):
             rows.append({
                 "window": w.index, "method": method, "region": name,
                 "band_hz": bands.nominal_hz[b],
                 "power_1m_pa2": res.region_power[name][b],
-                "map_sum_pa2": res.region_map_sum[name][b] if single else np.nan,
-                "psf_sum_pa2": res.region_psf_sum[name][b] if single else np.nan,
-                "unit_power_pa2": res.unit_power[name][b] if single else np.nan,
+                "map_sum_pa2": res.region_map_sum[name][b] if v else np.nan,
+                "psf_sum_pa2": res.region_psf_sum[name][b] if v else np.nan,
+                "unit_power_pa2": res.unit_power[name][b] if v else np.nan,
                 "residual_power_pa2": (res.region_residual[name][b]
                                        if name in res.region_residual else np.nan),
-                "resolved": bool(resolved[b]) if single else True,
+                "resolved": bool(v.resolved[b]) if v else True,
+                "dominant": bool(v.dominant[b]) if v else False,
+                "stability_db": v.stability_db[b] if v else np.nan,
+                "region_valid": (bool(v.valid[b]) if v
+                                 else bool(np.isfinite(res.region_power[name][b]))),
+                "region_note": v.note[b] if v else "",
                 "main_lobe_width_m": width[b],
                 "band_valid": bool(valid[b]), "band_note": why[b]})
     return rows

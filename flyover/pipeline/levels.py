@@ -26,8 +26,6 @@ from flyover.model.campaign import Campaign, pass_array
 from flyover.model.errors import FlyoverInputError
 from flyover.model.reads import guarded
 
-UNRESOLVED = "not separable: region centres closer than one main-lobe width"
-
 # What this stage reads of the campaign (flyover.model.reads): its re-run fingerprint too.
 READS = ("regions", "array.plate_correction_db", "passes.{pass}.array",
          "analysis.reference_distance_m",
@@ -81,7 +79,9 @@ def level_table(powers: pd.DataFrame, windows: pd.DataFrame, campaign: Campaign,
     p["window"] = p["window"].astype(int)
     p["band_hz"] = p["band_hz"].astype(float)
     p["power_1m_pa2"] = pd.to_numeric(p["power_1m_pa2"], errors="coerce")
-    p["resolved"] = p["resolved"].astype(str).str.lower() == "true"
+    for flag in ("resolved", "dominant", "region_valid"):
+        p[flag] = p[flag].astype(str).str.lower() == "true"
+    p["region_note"] = p["region_note"].astype(object).fillna("")
     p["band_valid"] = p["band_valid"].astype(str).str.lower() == "true"
     p["band_note"] = p["band_note"].astype(object).fillna("")
     unknown = sorted(set(p["region"]) - set(campaign.regions) - {TOTAL})
@@ -113,15 +113,14 @@ def level_table(powers: pd.DataFrame, windows: pd.DataFrame, campaign: Campaign,
     p["band_absorption_difference_db"] = band_minus_tone[k]
     if an.band_absorption == "band":
         lref = lref - band_minus_tone[k]
-    ok = p["resolved"] & p["band_valid"]
+    ok = p["region_valid"] & p["band_valid"]
     # A level that cannot be separated or measured is not given at any distance.
     p["level_1m_db"] = np.where(ok, l1, np.nan)
     p["level_db"] = np.where(ok, lref, np.nan)
     p["convective_amplification_db"] = (-20.0 * p["convective_exponent"].to_numpy(float)
                                         * np.log10(one_minus))
     p["level_as_heard_db"] = p["level_db"] + p["convective_amplification_db"]
-    p["note"] = np.where(~p["band_valid"], p["band_note"],
-                         np.where(p["resolved"], "", UNRESOLVED))
+    p["note"] = np.where(~p["band_valid"], p["band_note"], p["region_note"])
     order = {name: i for i, name in enumerate(list(campaign.regions) + [TOTAL])}
     p = p.assign(_o=p["region"].map(order)).sort_values(["window", "_o", "band_hz"])
     p["uncertainty_db"] = p["ci90_low_db"] = p["ci90_high_db"] = np.nan

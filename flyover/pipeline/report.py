@@ -477,8 +477,11 @@ campaign_overall.csv): a window missing a band of it has no overall.</p>
 {_level_grids(_with_band_range(overall), ["label", "quantity"], "region", str, "region")}
 <h3>Band levels</h3>
 <p class="muted">Mean level (dB) per band and polar bin; shaded: interval wider than
-&plusmn;1.5&nbsp;dB; italics: one pass only; empty: not resolved or not measurable. All columns,
-with standard deviations and intervals, are in campaign_levels.csv.</p>
+&plusmn;1.5&nbsp;dB; italics: one pass only; empty: not separable (a level that moves with the
+unit sources' placement, or a component neither resolved nor dominant) or not measurable; a
+component dominating an unresolved neighbour by 10&nbsp;dB keeps its level (levels.csv notes it
+'dominant, not resolved'). All columns, with standard deviations and intervals, are in
+campaign_levels.csv.</p>
 {_level_grids(shown, ["label", "region"], "band_hz", lambda b: f"{b:g} Hz", "band")}
 <h3 id="hemispheres">Directivity hemispheres</h3>
 <p class="muted">Levels at 1 m (free field, no absorption) of each component over the emission

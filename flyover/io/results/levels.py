@@ -15,9 +15,10 @@ LEVELS = TableFile("levels.csv", (
     ("uncertainty_db", "dB, standard uncertainty of both levels (inputs and window scatter)"),
     ("ci90_low_db", "dB, level_db - 1.645 uncertainty_db: the 90 % interval"),
     ("ci90_high_db", "dB, level_db + 1.645 uncertainty_db"),
-    ("resolved", "region centres at least one main-lobe width apart"),
+    ("resolved", "the region is resolved from every other in the window (region_power.csv); a "
+                 "level that is not is given only when dominant (see note)"),
     ("band_valid", "the window can measure the band"),
-    ("note", "why a level is empty"),
+    ("note", "why a level is empty, or 'dominant, not resolved'"),
     ("height_m", "m above the array centre"),
     ("speed_m_s", "m/s"),
     ("distance_m", "m"),

@@ -13,8 +13,17 @@ REGION_POWER = TableFile("region_power.csv", (
     ("unit_power_pa2", "Pa^2, the unit source's band power at 1 m"),
     ("residual_power_pa2", "Pa^2, a deconvolving method's residual integrated over the region "
                            "(included in power_1m_pa2; empty for the others)"),
-    ("resolved", "region centres at least one main-lobe width apart"),
-    ("main_lobe_width_m", "m, 1.22 lambda z / D"),
+    ("resolved", "the region is resolved from every other in this window: each pair's midpoint "
+                 "lies outside both unit sources' half-power main lobes"),
+    ("dominant", "not resolved, but holding at least 10 times the power of the regions it is "
+                 "not resolved from"),
+    ("stability_db", "dB, how far the level moves when any region's unit source shifts a "
+                     "quarter wavelength, or (CLEAN-SC) without its power re-fit; over 1 dB it "
+                     "is not given"),
+    ("region_valid", "the level can be given: finite, steady under the shifts, resolved or "
+                     "dominant"),
+    ("region_note", "why not, or 'dominant, not resolved'"),
+    ("main_lobe_width_m", "m, the Rayleigh width 1.22 lambda z / D (for reference)"),
     ("band_valid", "the window can measure the band"),
     ("band_note", "why not"),
 ), float_format="%.6e")
