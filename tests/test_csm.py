@@ -192,3 +192,37 @@ def test_several_methods_in_one_run(tiny_copy):
     others = sorted(p.name for p in (out / "maps").glob("window-*-*.png"))
     assert len(others) == 2 and others[0].endswith("-clean-sc.png")
     assert others[0][:10] == others[1][:10] and others[1].endswith("-frequency-domain.png")
+
+
+def test_lines_stepped_by_products_equal_the_exact_steering_vectors():
+    # Steering.each_line steps neighbouring lines by a complex product; every line must equal
+    # the exact exponential of Steering.vectors (naive reference), across a gap in the lines
+    # (two bands apart) and past the lines where it starts afresh.
+    rng = np.random.default_rng(5)
+    f = np.concatenate([1000.0 + 4.0 * np.arange(70), 2000.0 + 4.0 * np.arange(10)])
+    steering = Steering(f, np.zeros(len(f), int), rng.uniform(0.5, 2.0, (20, 8)),
+                        rng.uniform(-2e-3, 2e-3, (20, 8)))
+    for k, v in enumerate(steering.each_line()):
+        np.testing.assert_allclose(v, steering.vectors(k), rtol=1e-11, atol=0)
+
+
+@pytest.mark.parametrize("per_band", [False, True])
+def test_point_spread_from_steering_equals_maps_of_the_unit_csm(per_band):
+    # The compiled point-spread against its definition: conventional beamforming of the unit
+    # source's own CSM u u^H per line (naive reference), for one source position and for one
+    # position per band.
+    from flyover.imaging.csm import conventional_point_spread
+    rng = np.random.default_rng(8)
+    f = 1000.0 + 16.0 * np.arange(12)
+    bands = np.repeat([0, 1], 6)
+    grid = Steering(f, bands, rng.uniform(0.5, 2.0, (15, 10)), rng.uniform(-2e-3, 2e-3, (15, 10)))
+    rows = 2 if per_band else 1
+    source = Steering(f, bands, rng.uniform(0.5, 2.0, (rows, 10)),
+                      rng.uniform(-2e-3, 2e-3, (rows, 10)))
+    maps, power = conventional_point_spread(grid, source, 2)
+    u = np.stack([source.line_vector(k) for k in range(len(f))])
+    expected = conventional_maps(u[:, :, None] * u[:, None, :].conj(), grid, 2)
+    np.testing.assert_allclose(maps.full, expected.full, rtol=1e-10)
+    np.testing.assert_allclose(maps.diagonal_removed, expected.diagonal_removed, rtol=1e-9,
+                               atol=1e-12 * np.abs(expected.full).max())
+    np.testing.assert_array_equal(power, [6, 6])

@@ -70,3 +70,94 @@ def dedoppler_cubic(signals, rx_pos, amp, step, out):
                     while frac >= 1.0:
                         frac -= 1.0
                         i += 1
+
+
+@numba.njit(parallel=True, cache=True)
+def paths_on_grid(pos, vel, mics, wind, c, travel, distance, mach_r, doppler):
+    """Travel time, path length in the moving air, M_r and dt/dtau from every source point at
+    every time to every microphone: the compiled form of
+    :func:`flyover.geometry.propagation.paths_between`, written straight into the chain's
+    (point, microphone, time) layout.
+
+    Parameters
+    ----------
+    pos, vel : float64 arrays (n_times, n_points, 3)
+        Source positions (m) and velocities over the ground (m/s), site frame.
+    mics : float64 array (n_mics, 3)
+    wind : float64 array (3,)
+    c : float
+        Speed of sound in the medium at rest.
+    travel, distance, mach_r, doppler : float64 arrays (n_points, n_mics, n_times)
+        Filled in place.
+    """
+    n_t, n_p = pos.shape[0], pos.shape[1]
+    n_m = mics.shape[0]
+    uu = wind[0] * wind[0] + wind[1] * wind[1] + wind[2] * wind[2]
+    a = c * c - uu
+    for p in numba.prange(n_p):
+        for m in range(n_m):
+            for t in range(n_t):
+                d0 = mics[m, 0] - pos[t, p, 0]
+                d1 = mics[m, 1] - pos[t, p, 1]
+                d2 = mics[m, 2] - pos[t, p, 2]
+                du = d0 * wind[0] + d1 * wind[1] + d2 * wind[2]
+                dd = d0 * d0 + d1 * d1 + d2 * d2
+                tt = (-du + np.sqrt(du * du + a * dd)) / a
+                ct = c * tt
+                # Unit propagation direction in the medium frame.
+                n0 = (d0 - tt * wind[0]) / ct
+                n1 = (d1 - tt * wind[1]) / ct
+                n2 = (d2 - tt * wind[2]) / ct
+                mr = (n0 * (vel[t, p, 0] - wind[0]) + n1 * (vel[t, p, 1] - wind[1])
+                      + n2 * (vel[t, p, 2] - wind[2])) / c
+                travel[p, m, t] = tt
+                distance[p, m, t] = ct
+                mach_r[p, m, t] = mr
+                doppler[p, m, t] = (1.0 - mr) / (1.0 + (n0 * wind[0] + n1 * wind[1]
+                                                        + n2 * wind[2]) / c)
+
+
+@numba.njit(parallel=True, fastmath=True, cache=True)
+def line_beam_powers(ratio, advance_s, frequency_hz, line_gain, out):
+    """Beam power of a unit line source per grid point and line, from its steering::
+
+        out[p, k] = | sum_m ratio[p, m] exp(i 2 pi f_k advance[p, m]) line_gain[m, k] |^2
+
+    A line one spacing (``f_1 - f_0``) above the previous one has its phase factor stepped
+    from it by one complex product (rounding grows by ~1e-16 a line); any other line is
+    computed afresh.
+
+    Parameters
+    ----------
+    ratio, advance_s : float64 arrays (n_points, n_mics)
+        The source as seen by each point's steering: amplitude and time advance.
+    frequency_hz : float64 array (n_lines,)
+    line_gain : complex128 array (n_mics, n_lines)
+        What else the chain does to the line at each microphone (1 for nothing).
+    out : float64 array (n_points, n_lines)
+        Filled in place.
+    """
+    n_p, n_m = ratio.shape
+    n_f = frequency_hz.shape[0]
+    spacing = frequency_hz[1] - frequency_hz[0] if n_f > 1 else 0.0
+    for p in numba.prange(n_p):
+        re = np.zeros(n_f)
+        im = np.zeros(n_f)
+        for m in range(n_m):
+            a = 2.0 * np.pi * advance_s[p, m]
+            r = ratio[p, m]
+            sr = np.cos(a * spacing)
+            si = np.sin(a * spacing)
+            zr = zi = 0.0
+            for k in range(n_f):
+                if k > 0 and abs(frequency_hz[k] - frequency_hz[k - 1] - spacing) <= (
+                        1e-9 * abs(spacing)):
+                    zr, zi = zr * sr - zi * si, zr * si + zi * sr
+                else:
+                    zr = r * np.cos(a * frequency_hz[k])
+                    zi = r * np.sin(a * frequency_hz[k])
+                g = line_gain[m, k]
+                re[k] += zr * g.real - zi * g.imag
+                im[k] += zi * g.real + zr * g.imag
+        for k in range(n_f):
+            out[p, k] = re[k] * re[k] + im[k] * im[k]

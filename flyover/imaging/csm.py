@@ -35,12 +35,15 @@ from scipy.linalg import solve_triangular
 from scipy.optimize import nnls
 
 from flyover.acoustics.atmosphere import Atmosphere
+from flyover.imaging import _kernels
 from flyover.imaging.dedoppler import (BandPowers, ChainSettings, ReceptionGeometry, band_bins,
                                        centre_values, dedopplerized_signals,
                                        reception_geometry, subset)
 
 # Welch blocks of the CSM: Hann-windowed, 50 % overlap.
 BLOCK_OVERLAP = 0.5
+# Lines stepped by products between exact steering vectors (rounding grows by ~1e-16 a step).
+RESTEP_LINES = 32
 
 
 @dataclass(frozen=True)
@@ -68,6 +71,25 @@ class Steering:
         return (self.amplitude_ratio[points]
                 * np.exp(2j * np.pi * self.frequency_hz[line] * self.advance_s[points]))
 
+    def each_line(self, points=slice(None)):
+        """Yield the steering vectors (n_points, n_mics) of every line in order, as
+        :meth:`vectors` gives them: a line one line spacing above the previous one is stepped
+        from it by one complex product instead of an exponential (the cost of the maps'
+        steering otherwise), and computed afresh every ``RESTEP_LINES`` lines."""
+        f = self.frequency_hz
+        ratio, advance = self.amplitude_ratio[points], self.advance_s[points]
+        spacing = float(np.min(np.diff(f))) if len(f) > 1 else 0.0
+        step = v = None
+        for k in range(len(f)):
+            if (v is not None and k % RESTEP_LINES
+                    and abs(f[k] - f[k - 1] - spacing) <= 1e-9 * spacing):
+                if step is None:
+                    step = np.exp(2j * np.pi * spacing * advance)
+                v = v * step
+            else:
+                v = ratio * np.exp(2j * np.pi * f[k] * advance)
+            yield v
+
     def line_vector(self, line: int) -> np.ndarray:
         """The vector (n_mics,) of one line of a single source: the steering's one point, or,
         with a point per band (a source placed per band), that of the line's band."""
@@ -90,11 +112,11 @@ class Focus:
     def steering(self, points_geometry: ReceptionGeometry, center_s: float) -> Steering:
         """The steering of points (their geometry over all microphones) toward this focus."""
         rx_f, amp_f = centre_values(self.geometry, center_s)
-        points = subset(points_geometry, (slice(None), self.used))
-        rx_g, amp_g = centre_values(points, center_s)
+        # Centre values first, then the used microphones: no copy of the node arrays.
+        rx_g, amp_g = (x[:, self.used] for x in centre_values(points_geometry, center_s))
         # A reception-time difference is an emission-time difference over dt/dtau.
         return Steering(self.frequency_hz, self.band_of_line, amp_f / amp_g,
-                        (rx_f - rx_g) / points.doppler_center)
+                        (rx_f - rx_g) / points_geometry.doppler_center[:, self.used])
 
 
 def block_samples(n_samples: int, settings: ChainSettings) -> int:
@@ -157,11 +179,19 @@ def _absorption_gain(atmosphere: Atmosphere, focus: Focus, freqs):
     return 10.0 ** (alpha * distance[:, None] / 20.0)
 
 
-def _normalisers(v) -> tuple[np.ndarray, np.ndarray]:
-    """(v^H v)^2 and (v^H v)^2 - sum |v|^4 per point: the full and diagonal-removed scales."""
-    p2 = np.abs(v) ** 2
+def _normalisers(p2) -> tuple[np.ndarray, np.ndarray]:
+    """(v^H v)^2 and (v^H v)^2 - sum |v|^4 per point from |v|^2 (n_points, n_mics), the
+    same on every line: the full and diagonal-removed scales."""
     s = p2.sum(axis=1)
     return s ** 2, s ** 2 - (p2 ** 2).sum(axis=1)
+
+
+def _quadratic_forms(v, matrix) -> np.ndarray:
+    """v^H C v per point (n_points,) of a Hermitian C: one matrix product, then a real dot
+    product per row (the imaginary part is zero)."""
+    v = np.ascontiguousarray(v)
+    cv = np.ascontiguousarray(v @ matrix.T)
+    return np.einsum("gi,gi->g", v.view(float), cv.view(float))
 
 
 def conventional_maps(csm, steering: Steering, n_bands: int) -> BandPowers:
@@ -169,11 +199,11 @@ def conventional_maps(csm, steering: Steering, n_bands: int) -> BandPowers:
     n_points = steering.amplitude_ratio.shape[0]
     full = np.zeros((n_points, n_bands))
     removed = np.zeros((n_points, n_bands))
-    for k, band in enumerate(steering.band_of_line):
-        v = steering.vectors(k)
-        quad = np.einsum("gm,gm->g", v.conj() @ csm[k], v).real
-        auto = (np.abs(v) ** 2) @ csm[k].diagonal().real
-        n_full, n_removed = _normalisers(v)
+    p2 = steering.amplitude_ratio ** 2
+    n_full, n_removed = _normalisers(p2)
+    for k, (band, v) in enumerate(zip(steering.band_of_line, steering.each_line())):
+        quad = _quadratic_forms(v, csm[k])
+        auto = p2 @ csm[k].diagonal().real
         full[:, band] += quad / n_full
         removed[:, band] += (quad - auto) / n_removed
     return BandPowers(full, removed)
@@ -182,21 +212,33 @@ def conventional_maps(csm, steering: Steering, n_bands: int) -> BandPowers:
 def conventional_point_spread(steering: Steering, source: Steering,
                               n_bands: int) -> tuple[BandPowers, np.ndarray]:
     """The maps of a unit point source (1 Pa^2 per line; its CSM is u u^H with u its own
-    steering vector, ``source`` of one point or one per band) on the points of ``steering``, from the steering
-    vectors alone, and its band powers (the number of lines per band)."""
-    n_points = steering.amplitude_ratio.shape[0]
-    full = np.zeros((n_points, n_bands))
-    removed = np.zeros((n_points, n_bands))
-    for k, band in enumerate(steering.band_of_line):
-        v = steering.vectors(k)
-        u = source.line_vector(k)
-        quad = np.abs(v.conj() @ u) ** 2
-        auto = (np.abs(v) ** 2) @ (np.abs(u) ** 2)
-        n_full, n_removed = _normalisers(v)
-        full[:, band] += quad / n_full
-        removed[:, band] += (quad - auto) / n_removed
-    return BandPowers(full, removed), np.bincount(steering.band_of_line,
-                                                  minlength=n_bands).astype(float)
+    steering vector, ``source`` of one point or one per band) on the points of ``steering``,
+    from the steering vectors alone, and its band powers (the number of lines per band).
+
+    ``v^H u = sum_m |v_m| |u_m| exp(i 2 pi f (d_um - d_vm))`` per line, compiled
+    (:func:`flyover.imaging._kernels.line_beam_powers`); the autopowers ``sum |v_m|^2 |u_m|^2``
+    are the same on every line of a source position."""
+    n_points, n_mics = steering.amplitude_ratio.shape
+    p2 = steering.amplitude_ratio ** 2
+    n_full, n_removed = _normalisers(p2)
+    lines = np.arange(len(steering.frequency_hz))
+    rows = len(source.amplitude_ratio)
+    quad = np.empty((n_points, len(lines)))
+    for row in range(rows):
+        mine = lines if rows == 1 else lines[steering.band_of_line == row]
+        f = np.ascontiguousarray(steering.frequency_hz[mine])
+        out = np.empty((n_points, len(f)))
+        _kernels.line_beam_powers(steering.amplitude_ratio * source.amplitude_ratio[row],
+                                  source.advance_s[row] - steering.advance_s, f,
+                                  np.ones((n_mics, len(f)), complex), out)
+        quad[:, mine] = out
+    per_band = np.zeros((len(lines), n_bands))
+    per_band[lines, steering.band_of_line] = 1.0
+    autos = p2 @ (source.amplitude_ratio ** 2).T                      # (n_points, rows)
+    auto_lines = autos[:, 0:1] if rows == 1 else autos[:, steering.band_of_line]
+    full = (quad @ per_band) / n_full[:, None]
+    removed = ((quad - auto_lines) @ per_band) / n_removed[:, None]
+    return BandPowers(full, removed), per_band.sum(axis=0)
 
 
 # Eigenvalues below this share of the largest count as zero in functional beamforming.
@@ -211,15 +253,14 @@ def functional_maps(csm, steering: Steering, n_bands: int, exponent: float) -> n
     the nu-th power of the normalised beam pattern."""
     n_points = steering.amplitude_ratio.shape[0]
     out = np.zeros((n_points, n_bands))
-    for k, band in enumerate(steering.band_of_line):
+    norm2 = (steering.amplitude_ratio ** 2).sum(axis=1)
+    for k, (band, v) in enumerate(zip(steering.band_of_line, steering.each_line())):
         lam, vec = np.linalg.eigh(csm[k])
         # Eigenvalues at round-off level (or negative) are zero: their 1/nu-th roots would not.
         lam = np.where(lam > EIGEN_FLOOR * lam.max(), lam, 0.0)
         root = (vec * lam ** (1.0 / exponent)) @ vec.conj().T
-        v = steering.vectors(k)
-        norm2 = (np.abs(v) ** 2).sum(axis=1)
-        unit = v / np.sqrt(norm2)[:, None]
-        quad = np.einsum("gm,gm->g", unit.conj() @ root, unit).real
+        # (e^H R e) with e = v / |v|: the quadratic form of v over |v|^2.
+        quad = _quadratic_forms(v, root) / norm2
         out[:, band] += np.clip(quad, 0.0, None) ** exponent / norm2
     return out
 
@@ -282,14 +323,19 @@ def clean_sc(csm, steering: Steering, n_bands: int, *, loop_gain: float = 0.3,
     removed_clean = np.zeros((n_points, n_bands))
     removed_residual = np.zeros((n_points, n_bands))
     iterations = np.zeros(n_lines, int)
+    every_line = steering.each_line()
+    # |v| is the same on every line.
+    p2_line = steering.amplitude_ratio ** 2
+    s2_line = p2_line.sum(axis=1)
+    n_removed_line = _normalisers(p2_line)[1]
     for lo in range(0, n_lines, lines_per_batch):
         lines = np.arange(lo, min(lo + lines_per_batch, n_lines))
         c = len(lines)
-        v = np.stack([steering.vectors(k) for k in lines])                 # (c, n_g, n_m)
+        v = np.stack([next(every_line) for _ in lines])                    # (c, n_g, n_m)
         vc = v.conj()
-        p2 = np.abs(v) ** 2
-        s2 = p2.sum(axis=2)
-        n_removed = s2 ** 2 - (p2 ** 2).sum(axis=2)
+        p2 = np.broadcast_to(p2_line, v.shape)
+        s2 = np.broadcast_to(s2_line, v.shape[:2])
+        n_removed = np.broadcast_to(n_removed_line, v.shape[:2])
         d = csm[lines].copy()
         d[:, np.arange(d.shape[1]), np.arange(d.shape[1])] = 0.0
         pmap = np.einsum("cgm,cgm->cg", vc @ d, v).real / n_removed
@@ -324,7 +370,7 @@ def clean_sc(csm, steering: Steering, n_bands: int, *, loop_gain: float = 0.3,
             # active: each line's map loses the removed component's own map.
             h = np.where(active[:, None], h, 0.0)
             vh = (vc @ h[:, :, None])[..., 0]
-            ph = (p2 @ (np.abs(h) ** 2)[:, :, None])[..., 0]
+            ph = (np.abs(h) ** 2) @ p2_line.T
             pmap -= (loop_gain * np.where(active, p_max, 0.0))[:, None] * (
                 np.abs(vh) ** 2 - ph) / n_removed
             iterations[lines[a]] = it + 1

@@ -16,6 +16,7 @@ import numpy as np
 
 from flyover.forward.moving_source import (Broadband, PointSource, Propagator, SourceSignal,
                                            received_pressure_pa)
+from flyover.imaging import _kernels
 from flyover.imaging.dedoppler import (BandPowers, absorption_gains, band_bins, centre_values,
                                        interpolation_response, reception_geometry,
                                        signal_band_power, subset, window_band_powers)
@@ -99,8 +100,11 @@ def modelled_point_spread(body_m, points, context: WindowContext) -> PointSpread
         n_lines = sl.stop - sl.start
         if n_lines <= 0:
             continue
-        f = freqs[np.unique(np.linspace(sl.start, sl.stop - 1,
-                                        min(n_lines, MODEL_LINES_PER_BAND)).round().astype(int))]
+        # Evenly spaced lines across the band (the kernel steps their phases by products).
+        n_model = min(n_lines, MODEL_LINES_PER_BAND)
+        stride = n_lines // n_model
+        f = freqs[sl.start + (n_lines - 1 - stride * (n_model - 1)) // 2
+                  + stride * np.arange(n_model)]
         u = interpolation_response(f[None, :] / source.doppler_center[b][:, None],
                                    w.sample_rate_hz, s.interpolation)          # (n_m, n_f)
         if s.absorption:
@@ -109,12 +113,15 @@ def modelled_point_spread(body_m, points, context: WindowContext) -> PointSpread
             u = u * 10.0 ** (-alpha * source.distance_center_m[b][:, None] / 20.0)
         beam = np.zeros((n_p, len(f)))
         auto = np.zeros((n_p, len(f)))
+        out = np.empty((n_p, len(f)))
         for weight, (rx_g, amp_g), (rx_s, amp_s) in zip(taper, at_g, at_s):
             ratio = amp_g / amp_s[b] * gain[:, :, b] * wt                     # (n_p, n_m)
             # A reception-time difference is an emission-time difference over dt/dtau.
             advance = (rx_g - rx_s[b]) / source.doppler_center[b]
-            phase = np.exp(2j * np.pi * f[None, None, :] * advance[:, :, None])
-            beam += weight * np.abs(np.einsum("pm,pmf,mf->pf", ratio, phase, u)) ** 2
+            _kernels.line_beam_powers(np.ascontiguousarray(ratio, float),
+                                      np.ascontiguousarray(advance), f,
+                                      np.ascontiguousarray(u, complex), out)
+            beam += weight * out
             auto += weight * (ratio ** 2) @ (np.abs(u) ** 2)
         share = n_lines / len(f)
         full[:, b] = share * beam.sum(axis=1) / s1 ** 2
