@@ -1,16 +1,19 @@
-"""Speed and memory of each imaging method on an outside-like geometry. Prints figures; asserts
-nothing.
+"""Speed and memory of each imaging method over one whole pass of an outside-like geometry.
+Prints figures; asserts nothing.
 
-Run:  python benchmarks/bench_methods.py [--windows 3] [--threads 2]
+Run:  python benchmarks/bench_methods.py [--threads 2] [--windows N] [--baseline-windows 2]
 
 Geometry (the one the issues quote): a 48-microphone spiral 12 m across, a vehicle grid of
 61 x 51 points at 0.1 m, 0.25 s windows at a 0.125 s hop over a 4 s pass at 51.2 kHz, two
-regions, 35 m overhead at 25 m/s. For each method, over ``--windows`` windows near overhead:
-the wall time per window with a profile by step (geometry, the method's maps, the unit
-sources' point-spreads and the leakage solve), the peak memory of the step (tracemalloc, numpy
-allocations), and the effective rate mic * point * sample / s against a plain numpy
-delay-and-sum (linear node interpolation, 4-point Lagrange: the kernel's naive reference)
-measured in the same run on a subset of points.
+regions, 35 m overhead at 25 m/s. For each method, over every window of the pass (or the
+``--windows`` nearest overhead): the wall time of the pass and per window with a profile by
+step (geometry, the method's maps, the unit sources' point-spreads and the leakage solve),
+the peak memory of a window (tracemalloc: numpy allocations), and the effective rate
+mic * point * sample / s against a plain numpy delay-and-sum (linear node interpolation,
+4-point Lagrange: the kernel's naive reference) measured in the same run on a subset of
+points. The time-domain method is also run, on ``--baseline-windows`` windows, as the
+previous engine formed it (every microphone's spectrum per point, unit sources simulated and
+mapped), the baseline of the speed-ups printed at the end.
 """
 
 from __future__ import annotations
@@ -72,9 +75,63 @@ def numpy_rate(context, signals, n_points: int = 3) -> float:
     return rx.shape[1] * n_points * context.window.n_samples / (time.perf_counter() - t0)
 
 
+def per_microphone_method():
+    """The time-domain method as the previous engine formed it: every microphone's spectrum
+    per point, unit sources simulated and mapped through the same chain."""
+    from dataclasses import replace
+
+    from flyover.imaging.dedoppler import (_per_microphone_band_powers, _UsedChain,
+                                           absorption_gains)
+    from flyover.imaging.methods.time_domain import simulated_point_spread
+
+    def band_maps(signals, ctx):
+        chain = _UsedChain(signals, ctx.first_frame, ctx.geometry, ctx.clock,
+                           np.asarray(ctx.settings.weights, float),
+                           absorption_gains(ctx.settings, ctx.atmosphere, ctx.geometry))
+        return _per_microphone_band_powers(chain, ctx.window, ctx.settings, ctx.atmosphere,
+                                           workers=ctx.workers)
+
+    def point_spread(body_m, points, ctx, seed):
+        body = np.asarray(body_m, float)
+        if body.ndim == 2:      # one position per band: simulated one band position at a time
+            body = body[len(body) // 2]
+        return simulated_point_spread(body, points, ctx, seed)
+
+    return replace(method_named("time-domain"), name="time-domain, previous engine",
+                   band_maps=band_maps, point_spread=point_spread)
+
+
+def time_method(method, chosen, *, track, clock, atm, mics, points, settings, regions, p,
+                threads):
+    """Seconds per step summed over the windows, and the largest peak memory of a window."""
+    from dataclasses import replace
+    times = {"geometry": 0.0, "maps": 0.0, "unit sources and solve": 0.0}
+    peak = 0
+    for w in chosen:
+        tracemalloc.start()
+        t0 = time.perf_counter()
+        ctx = window_context(w, track=track, clock=clock, atmosphere=atm, mic_enu_m=mics,
+                             grid_points_m=points, settings=settings, workers=threads)
+        span = np.stack([p[m, f:f + ctx.n_frames] for m, f in enumerate(ctx.first_frame)])
+        t1 = time.perf_counter()
+        maps = method.band_maps(span, ctx)
+        t2 = time.perf_counter()
+        # The unit sources and the solve alone: the window's maps given back as computed.
+        given = replace(method, band_maps=lambda *_: maps)
+        image_window(span, ctx, method=given, grid_points_m=points, regions=regions)
+        t3 = time.perf_counter()
+        peak = max(peak, tracemalloc.get_traced_memory()[1])
+        tracemalloc.stop()
+        times["geometry"] += t1 - t0
+        times["maps"] += t2 - t1
+        times["unit sources and solve"] += t3 - t2
+    return times, peak, ctx, span
+
+
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--windows", type=int, default=3)
+    ap.add_argument("--windows", type=int, default=0, help="windows to time (0: the pass)")
+    ap.add_argument("--baseline-windows", type=int, default=2)
     ap.add_argument("--threads", type=int, default=2)
     args = ap.parse_args()
     numba.set_num_threads(args.threads)
@@ -90,50 +147,50 @@ def main() -> None:
     settings = ChainSettings(bands, np.ones(len(mics)), 2.0)
     windows = plan_windows(track, mics.mean(0), (0.4, 3.6), 0.25, 0.125, FS,
                            max_polar_offset_deg=60)
-    mid = len(windows) // 2
-    chosen = windows[mid - args.windows // 2: mid - args.windows // 2 + args.windows]
+
+    def nearest_overhead(n):
+        mid = len(windows) // 2
+        return windows[max(0, mid - n // 2): max(0, mid - n // 2) + n]
+
+    chosen = nearest_overhead(args.windows) if args.windows else windows
     print(f"grid {grid.shape[0]} x {grid.shape[1]} = {len(points)} points, {len(windows)} "
           f"windows of {chosen[0].n_samples} samples in the pass; timing {len(chosen)} of them")
-    # Warm the compiled kernel once.
+    # Warm the compiled kernels once (a small grid through every method).
     ctx = window_context(chosen[0], track=track, clock=clock, atmosphere=atm, mic_enu_m=mics,
-                         grid_points_m=points[:2], settings=settings)
+                         grid_points_m=points[::97], settings=settings)
     span = np.stack([p[m, f:f + ctx.n_frames] for m, f in enumerate(ctx.first_frame)])
-    dedopplerized_signals(span, ctx.first_frame, ctx.geometry, clock, chosen[0], settings)
-    reference = None
     for name in METHODS:
-        method = method_named(name)
-        times = {"geometry": 0.0, "maps": 0.0, "unit sources and solve": 0.0}
-        peak = 0
-        for w in chosen:
-            tracemalloc.start()
-            t0 = time.perf_counter()
-            ctx = window_context(w, track=track, clock=clock, atmosphere=atm, mic_enu_m=mics,
-                                 grid_points_m=points, settings=settings,
-                                 workers=args.threads)
-            span = np.stack([p[m, f:f + ctx.n_frames] for m, f in enumerate(ctx.first_frame)])
-            t1 = time.perf_counter()
-            maps = method.band_maps(span, ctx)
-            t2 = time.perf_counter()
-            # The unit sources and the solve alone: the window's maps given back as computed.
-            given = type(method)(name, method.summary, lambda *_: maps, method.point_spread)
-            image_window(span, ctx, method=given, grid_points_m=points, regions=regions)
-            t3 = time.perf_counter()
-            peak = max(peak, tracemalloc.get_traced_memory()[1])
-            tracemalloc.stop()
-            times["geometry"] += t1 - t0
-            times["maps"] += t2 - t1
-            times["unit sources and solve"] += t3 - t2
-            if reference is None:
-                reference = numpy_rate(ctx, span)
-        per = {k: v / len(chosen) for k, v in times.items()}
+        image_window(span, ctx, method=method_named(name), grid_points_m=points[::97],
+                     regions=regions)
+    common = dict(track=track, clock=clock, atm=atm, mics=mics, points=points,
+                  settings=settings, regions=regions, p=p, threads=args.threads)
+    work = len(mics) * len(points) * chosen[0].n_samples
+    reference = None
+    per_window = {}
+    runs = [(per_microphone_method(), nearest_overhead(args.baseline_windows))]
+    runs += [(method_named(name), chosen) for name in METHODS]
+    for method, these in runs:
+        if not these:
+            continue
+        times, peak, ctx, span = time_method(method, these, **common)
+        if reference is None:
+            reference = numpy_rate(ctx, span)
+        per = {k: v / len(these) for k, v in times.items()}
         total = sum(per.values())
-        work = len(mics) * len(points) * chosen[0].n_samples
-        print(f"{name:>17}: {total:7.2f} s per window ("
+        per_window[method.name] = total
+        rate = work / total
+        print(f"{method.name:>29}: {total:6.2f} s per window over {len(these)} ("
               + ", ".join(f"{k} {v:.2f} s" for k, v in per.items())
-              + f"); peak memory {peak / 2**20:.0f} MiB; "
-              f"{work / total:.2e} mic*point*sample/s = {work / total / reference:.0f}x numpy"
-              f"; a 4 s pass ({len(windows)} windows) ~{total * len(windows):.0f} s")
-    print(f"numpy reference: {reference:.2e} mic*point*sample/s")
+              + f"); peak memory {peak / 2**20:.0f} MiB; {rate:.2e} mic*point*sample/s = "
+              f"{rate / reference:.1f}x numpy on {args.threads} cores "
+              f"({rate / reference / args.threads:.1f}x per CPU-second); "
+              f"the pass ({len(windows)} windows) {total * len(windows):.0f} s")
+    print(f"numpy reference: {reference:.2e} mic*point*sample/s (one core)")
+    base = per_window.get("time-domain, previous engine")
+    if base:
+        print("speed-up per window against the previous time-domain engine: "
+              + ", ".join(f"{name} {base / t:.1f}x" for name, t in per_window.items()
+                          if name != "time-domain, previous engine"))
 
 
 if __name__ == "__main__":

@@ -72,6 +72,69 @@ def dedoppler_cubic(signals, rx_pos, amp, step, out):
                         i += 1
 
 
+@numba.njit(parallel=True, fastmath=True, cache=True)
+def dedoppler_summed(signals, rx_pos, amp, coef, step, out):
+    """Weighted sums over microphones of the de-Dopplerized signals, per grid point::
+
+        out[g, q, k] = sum_m coef[g, q, m] amp(g, m, k) signals[m](rx_pos(g, m, k))
+
+    read as :func:`dedoppler_cubic` reads them, without keeping each microphone's signal.
+
+    Parameters
+    ----------
+    signals, rx_pos, amp, step
+        As for :func:`dedoppler_cubic`.
+    coef : float32 array (n_grid, n_sums, n_mics)
+        Weights of each sum.
+    out : float32 array (n_grid, n_sums, n_out)
+        Filled in place.
+    """
+    n_grid, n_mics, n_nodes = rx_pos.shape
+    n_sums = coef.shape[1]
+    n_out = out.shape[2]
+    inv = 1.0 / step
+    for g in numba.prange(n_grid):
+        out[g] = 0.0
+        # One microphone's signal at a time, then added to the sums (vectorised): writing
+        # the sums sample by sample is slower than the interpolation itself.
+        buf = np.empty(n_out, np.float32)
+        for m in range(n_mics):
+            sig = signals[m]
+            for j in range(n_nodes - 1):
+                k0 = j * step
+                if k0 >= n_out:
+                    break
+                k1 = min(k0 + step, n_out)
+                p0 = rx_pos[g, m, j]
+                dp = (rx_pos[g, m, j + 1] - p0) * inv
+                a0 = amp[g, m, j]
+                da = np.float32((amp[g, m, j + 1] - a0) * inv)
+                i = int(p0)
+                frac = p0 - i
+                a = a0
+                for k in range(k0, k1):
+                    d = np.float32(frac)
+                    ym1 = sig[i - 1]
+                    y0 = sig[i]
+                    y1 = sig[i + 1]
+                    y2 = sig[i + 2]
+                    c1 = y1 - np.float32(1.0 / 3.0) * ym1 - np.float32(0.5) * y0 \
+                        - np.float32(1.0 / 6.0) * y2
+                    c2 = np.float32(0.5) * (ym1 + y1) - y0
+                    c3 = np.float32(1.0 / 6.0) * (y2 - ym1) + np.float32(0.5) * (y0 - y1)
+                    buf[k] = a * (((c3 * d + c2) * d + c1) * d + y0)
+                    a += da
+                    frac += dp
+                    while frac >= 1.0:
+                        frac -= 1.0
+                        i += 1
+            for q in range(n_sums):
+                c = coef[g, q, m]
+                row = out[g, q]
+                for k in range(n_out):
+                    row[k] += c * buf[k]
+
+
 @numba.njit(parallel=True, cache=True)
 def paths_on_grid(pos, vel, mics, wind, c, travel, distance, mach_r, doppler):
     """Travel time, path length in the moving air, M_r and dt/dtau from every source point at

@@ -390,6 +390,16 @@ def dedopplerized_signals(signals_pa, first_frame, geometry: ReceptionGeometry,
     -------
     float32 array (n_points, n_mics, window.n_samples)
     """
+    rx, amp, sig = _kernel_inputs(signals_pa, first_frame, geometry, clock, settings, points)
+    out = np.empty((rx.shape[0], rx.shape[1], window.n_samples), dtype=np.float32)
+    _kernels.dedoppler_cubic(sig, rx, amp, settings.node_step, out)
+    return out
+
+
+def _kernel_inputs(signals_pa, first_frame, geometry: ReceptionGeometry, clock: ArrayClock,
+                   settings: ChainSettings, points):
+    """Reception positions (in samples of the signals as read), amplitude factors and the
+    signals (oversampled for 'sinc') of some grid points, as the kernels take them."""
     rx = clock.sample_index(geometry.reception_s[points]) - np.asarray(first_frame)[:, None]
     amp = geometry.amplitude[points].astype(np.float32)
     sig = np.asarray(signals_pa, dtype=np.float32)
@@ -398,10 +408,7 @@ def dedopplerized_signals(signals_pa, first_frame, geometry: ReceptionGeometry,
         rx = rx * OVERSAMPLING
     if rx.min() < 1 or rx.max() > sig.shape[1] - 3:
         raise ValueError("reception positions outside the span read for the window")
-    out = np.empty((rx.shape[0], rx.shape[1], window.n_samples), dtype=np.float32)
-    _kernels.dedoppler_cubic(sig, np.ascontiguousarray(rx), np.ascontiguousarray(amp),
-                             settings.node_step, out)
-    return out
+    return np.ascontiguousarray(rx), np.ascontiguousarray(amp), sig
 
 
 def window_memory_bytes(n_grid: int, n_mics: int, n_samples: int, n_bands: int,
@@ -528,17 +535,189 @@ def window_band_powers(signals_pa, first_frame, geometry: ReceptionGeometry,
     """Band powers on every grid point of the geometry, with and without diagonal removal.
 
     ``signals_pa`` (n_mics, n_span) and ``first_frame`` (n_mics,) as in
-    :func:`dedopplerized_signals`.
+    :func:`dedopplerized_signals`. In free field and over ground plates the microphones are
+    summed before any spectrum is taken (:func:`_summed_band_powers`); under raised
+    microphones, whose reflection is undone per line and microphone, every microphone's
+    spectrum is formed (:func:`_per_microphone_band_powers`).
     """
-    n_grid = geometry.reception_s.shape[0]
     w = np.asarray(settings.weights, dtype=np.float64)
     used = np.flatnonzero(w > 0)
-    w_used = w[used].astype(np.float32)
+    chain = _UsedChain(
+        np.asarray(signals_pa)[used], np.asarray(first_frame)[used],
+        subset(geometry, (slice(None), used)) if len(used) < len(w) else geometry,
+        clock.take(used), w[used],
+        absorption_gains(settings, atmosphere, geometry)[:, used])
+    form = _per_microphone_band_powers if chain.geometry.image is not None else \
+        _summed_band_powers
+    return form(chain, window, settings, atmosphere, workers=workers)
+
+
+@dataclass(frozen=True)
+class _UsedChain:
+    """The used microphones' part of a window: signals, first frames, geometry, clock,
+    weights (n_used,) and absorption gains (n_grid, n_used, n_bands)."""
+
+    signals: np.ndarray
+    first_frame: np.ndarray
+    geometry: ReceptionGeometry
+    clock: ArrayClock
+    weights: np.ndarray
+    gain: np.ndarray
+
+
+# Terms of the low-rank form of the weighted absorption gains (n_mics x n_bands per point) that
+# the summed chain applies: with 2, the largest error of a single gain is 6e-4 (0.005 dB) and
+# of a focused beam 1e-8, at 60 degrees from overhead over 35 m to 10 kHz.
+GAIN_TERMS = 2
+
+
+def _summed_band_powers(chain: _UsedChain, window: Window, settings: ChainSettings,
+                        atmosphere: Atmosphere, *, workers: int = 1) -> BandPowers:
+    """The maps with the microphones summed in the time domain, in source time at a reduced
+    rate where the bands allow it.
+
+    The beam of band b at point g, ``sum_m w_m G_gm(b) A_gm(f)``, needs the weighted gains
+    ``w_m G_gm(b)`` (n_mics x n_bands) per point; their singular value decomposition keeps
+    ``GAIN_TERMS`` terms ``U_k(m) s_k V_k(b)``, so the beam is ``sum_k s_k V_k(b) F_k(f)`` with
+    F_k the spectrum of ``sum_m U_k(m) a_gm`` (:func:`_kernels.dedoppler_summed`): a few spectra
+    per point instead of one per microphone.
+
+    The de-Dopplerized sums are formed at 1/q of the recording rate (:func:`decimation`):
+    the channels are first low-passed, flat to the highest band's top as received, so that
+    nothing folds into the bands; the interpolation still reads them at the full rate.
+
+    The autopowers ``sum_m w_m^2 G_gm(b)^2 P_gm(b)`` need each channel's band power P_gm(b)
+    for every point. Point g's de-Dopplerized signal of microphone m is a reference point r's
+    one, rescaled and time-warped: ``a_gm(tau) = rho a_rm(s tau + c)`` with ``rho = A_gm /
+    A_rm`` and ``s = (dt/dtau)_gm / (dt/dtau)_rm`` at the window centre, so its band [f1, f2)
+    holds the power of r's band [f1 / s, f2 / s), times rho^2. The reference (the middle row
+    of the geometry) is de-Dopplerized once, its spectra's cumulative power read at the
+    warped band edges.
+    """
+    geo = chain.geometry
+    n_grid, n_mics = geo.doppler_center.shape
+    w = chain.weights
+    s1, s2 = float(w.sum()), float((w ** 2).sum())
+    q, pass_hz, stop_hz = decimation(settings, geo, window.sample_rate_hz)
+    signals = chain.signals if q == 1 else lowpassed(chain.signals, pass_hz, stop_hz,
+                                                     window.sample_rate_hz)
+    chain = _UsedChain(signals, chain.first_frame, geo, chain.clock, w, chain.gain)
+    n_out, rate_hz = -(-window.n_samples // q), window.sample_rate_hz / q
+    win, norm = spectral_weights(n_out)
+    bins = band_bins(settings.bands, n_out, rate_hz)
+    n_b = len(bins)
+    weighted = w[None, :, None] * chain.gain.astype(float)              # (n_g, n_m, n_b)
+    u, sv, vt = np.linalg.svd(weighted, full_matrices=False)
+    k = min(GAIN_TERMS, sv.shape[1])
+    coef = np.ascontiguousarray(u[:, :, :k].transpose(0, 2, 1), np.float32)  # (n_g, k, n_m)
+    band_coef = sv[:, :k, None] * vt[:, :k]                               # (n_g, k, n_b)
+    # The reference's per-microphone band powers, cumulative over the lines.
+    ref = n_grid // 2
+    each = np.eye(n_mics, dtype=np.float32)[None]
+    a_ref = _dedopplerized_sums(chain, settings, [ref], each, q, n_out)[0] * win
+    power = np.abs(scipy.fft.rfft(a_ref, axis=-1, workers=workers)) ** 2 * norm
+    cumulative = np.concatenate([np.zeros((n_mics, 1)), np.cumsum(power, axis=-1)], axis=-1)
+    _, amp = centre_values(geo, window.center_s)
+    rho2 = (amp / amp[ref]) ** 2
+    warp = geo.doppler_center / geo.doppler_center[ref]                  # s, (n_g, n_m)
+    edges = np.column_stack([settings.bands.lower_hz, settings.bands.upper_hz])  # (n_b, 2)
+    # Lines below a warped edge x: ceil(x / spacing), as band_bins counts them.
+    count = np.clip(np.ceil(edges[None, None] / warp[..., None, None] / (rate_hz / n_out)), 0,
+                    power.shape[-1]).astype(int)                          # (n_g, n_m, n_b, 2)
+    rows = np.arange(n_mics)[None, :, None]
+    band_power = cumulative[rows, count[..., 1]] - cumulative[rows, count[..., 0]]
+    autos = np.einsum("gmb,gmb->gb", weighted ** 2 * rho2[..., None], band_power)
+    full = np.empty((n_grid, n_b))
+    diag = np.empty((n_grid, n_b))
+    chunk = max(1, settings.chunk_points * n_mics * q // (2 * k))
+    for c0 in range(0, n_grid, chunk):
+        pts = slice(c0, min(c0 + chunk, n_grid))
+        sums = _dedopplerized_sums(chain, settings, pts, coef[pts], q, n_out)
+        spec = scipy.fft.rfft(sums * win, axis=-1, workers=workers)      # (n_c, k, n_f)
+        beam_power = np.empty((spec.shape[0], n_b))
+        for b, sl in enumerate(bins):
+            beam = np.einsum("gk,gkf->gf", band_coef[pts, :, b].astype(np.complex64),
+                             spec[:, :, sl])
+            beam_power[:, b] = (beam.real ** 2 + beam.imag ** 2).sum(-1, dtype=float) * norm
+        full[pts] = beam_power / s1 ** 2
+        diag[pts] = (beam_power - autos[pts]) / (s1 ** 2 - s2)
+    return BandPowers(full, diag)
+
+
+def _dedopplerized_sums(chain: _UsedChain, settings: ChainSettings, points, coef, q: int,
+                        n_out: int) -> np.ndarray:
+    """Weighted sums over microphones (n_points, n_sums, n_out) of the de-Dopplerized
+    signals of some grid points, every q-th emission sample."""
+    rx, amp, sig = _kernel_inputs(chain.signals, chain.first_frame, chain.geometry, chain.clock,
+                                  settings, points)
+    out = np.empty((rx.shape[0], coef.shape[1], n_out), dtype=np.float32)
+    _kernels.dedoppler_summed(sig, rx, amp, coef, settings.node_step // q, out)
+    return out
+
+
+# Rate reductions of the summed chain, largest first (each must divide the node step).
+DECIMATIONS = (4, 2)
+# Margins: dt/dtau over the window beyond its centre values, and the low-pass's transition.
+_DOPPLER_MARGIN = 0.03
+_MIN_TRANSITION = 1.1
+
+
+def decimation(settings: ChainSettings, geometry: ReceptionGeometry,
+               sample_rate_hz: float) -> tuple[int, float, float]:
+    """The rate reduction q of the summed chain for a window, and its low-pass edges (Hz).
+
+    Source-time content to the highest band's top f_t must stay, and what lies above must
+    fold, at the reduced rate fs / q, above f_t: so the channels, as received (frequency over
+    dt/dtau), keep everything to ``f_t / min(dt/dtau)`` and stop from ``(fs / q - f_t) /
+    max(dt/dtau)``. The largest q of ``DECIMATIONS`` with room for the transition is taken;
+    1 (no low-pass) for the 'sinc' option, whose reach the low-pass would cut.
+
+    Returns
+    -------
+    q : int
+    pass_hz, stop_hz : float
+        The low-pass edges (nan for q = 1).
+    """
+    if settings.interpolation != "cubic":
+        return 1, np.nan, np.nan
+    top = float(settings.bands.upper_hz[-1])
+    d = geometry.doppler_center
+    pass_hz = top / (float(d.min()) * (1 - _DOPPLER_MARGIN))
+    for q in DECIMATIONS:
+        stop_hz = (sample_rate_hz / q - top) / (float(d.max()) * (1 + _DOPPLER_MARGIN))
+        if settings.node_step % q == 0 and _MIN_TRANSITION * pass_hz <= stop_hz:
+            return q, pass_hz, min(stop_hz, 0.5 * sample_rate_hz)
+    return 1, np.nan, np.nan
+
+
+def lowpassed(signals, pass_hz: float, stop_hz: float, sample_rate_hz: float) -> np.ndarray:
+    """Channels (n_mics, n) low-passed without phase: gain 1 to ``pass_hz``, a raised-cosine
+    roll-off to 0 at ``stop_hz`` (float32, same shape). Applied by FFT over the channel
+    extended by its mirror image at both ends, which keeps the ends free of wrap-around;
+    the first and last few periods of the transition width stay approximate (the chain reads
+    them only at the window's tapered ends)."""
+    x = np.asarray(signals, np.float32)
+    n = x.shape[-1]
+    ext = min(n - 1, max(1, int(8 * sample_rate_hz / (stop_hz - pass_hz))))
+    padded = np.concatenate([x[:, ext:0:-1], x, x[:, -2:-ext - 2:-1]], axis=-1)
+    size = scipy.fft.next_fast_len(padded.shape[-1], real=True)
+    f = np.fft.rfftfreq(size, 1.0 / sample_rate_hz)
+    t = np.clip((f - pass_hz) / (stop_hz - pass_hz), 0.0, 1.0)
+    gain = 0.5 * (1.0 + np.cos(np.pi * t))
+    y = scipy.fft.irfft(scipy.fft.rfft(padded, size, axis=-1) * gain, size, axis=-1)
+    return y[:, ext:ext + n].astype(np.float32)
+
+
+def _per_microphone_band_powers(chain: _UsedChain, window: Window, settings: ChainSettings,
+                                atmosphere: Atmosphere, *, workers: int = 1) -> BandPowers:
+    """The maps from every microphone's spectrum per point: the beam and the autopowers per
+    line, with the ground reflection of raised microphones undone per line (the reference
+    the summed chain is tested against in free field)."""
+    sub = chain.geometry
+    n_grid = sub.reception_s.shape[0]
+    w_used = chain.weights.astype(np.float32)
     s1, s2 = float(w_used.sum()), float((w_used.astype(float) ** 2).sum())
-    gain = absorption_gains(settings, atmosphere, geometry)[:, used]   # (n_g, n_used, n_b)
-    sub = subset(geometry, (slice(None), used))
-    sig = np.asarray(signals_pa)[used]
-    first_used, clock_used = np.asarray(first_frame)[used], clock.take(used)
+    gain = chain.gain
     win, norm = spectral_weights(window.n_samples)
     bins = band_bins(settings.bands, window.n_samples, window.sample_rate_hz)
     freqs = np.fft.rfftfreq(window.n_samples, 1.0 / window.sample_rate_hz)
@@ -549,7 +728,8 @@ def window_band_powers(signals_pa, first_frame, geometry: ReceptionGeometry,
     diag = np.empty((n_grid, n_b))
     for c0 in range(0, n_grid, settings.chunk_points):
         pts = slice(c0, min(c0 + settings.chunk_points, n_grid))
-        a = dedopplerized_signals(sig, first_used, sub, clock_used, window, settings, pts)
+        a = dedopplerized_signals(chain.signals, chain.first_frame, sub, chain.clock, window,
+                                  settings, pts)
         a *= win
         spec = scipy.fft.rfft(a, axis=-1, workers=workers)          # (n_c, n_used, n_f)
         for b, s in enumerate(bins):
