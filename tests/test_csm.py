@@ -208,10 +208,10 @@ def test_lines_stepped_by_products_equal_the_exact_steering_vectors():
 
 @pytest.mark.parametrize("per_band", [False, True])
 def test_point_spread_from_steering_equals_maps_of_the_unit_csm(per_band):
-    # The compiled point-spread against its definition: conventional beamforming of the unit
-    # source's own CSM u u^H per line (naive reference), for one source position and for one
-    # position per band.
-    from flyover.imaging.csm import conventional_point_spread
+    # The compiled point-spreads against their definitions: conventional and functional
+    # beamforming of the unit source's own CSM u u^H per line (naive reference), for one source
+    # position and for one position per band.
+    from flyover.imaging.csm import conventional_point_spread, functional_point_spread
     rng = np.random.default_rng(8)
     f = 1000.0 + 16.0 * np.arange(12)
     bands = np.repeat([0, 1], 6)
@@ -221,8 +221,13 @@ def test_point_spread_from_steering_equals_maps_of_the_unit_csm(per_band):
                       rng.uniform(-2e-3, 2e-3, (rows, 10)))
     maps, power = conventional_point_spread(grid, source, 2)
     u = np.stack([source.line_vector(k) for k in range(len(f))])
-    expected = conventional_maps(u[:, :, None] * u[:, None, :].conj(), grid, 2)
+    csm = u[:, :, None] * u[:, None, :].conj()
+    expected = conventional_maps(csm, grid, 2)
     np.testing.assert_allclose(maps.full, expected.full, rtol=1e-10)
     np.testing.assert_allclose(maps.diagonal_removed, expected.diagonal_removed, rtol=1e-9,
                                atol=1e-12 * np.abs(expected.full).max())
     np.testing.assert_array_equal(power, [6, 6])
+    # The functional map in closed form, against functional beamforming of the same CSM.
+    functional = functional_maps(csm, grid, 2, 8.0)
+    np.testing.assert_allclose(functional_point_spread(grid, source, 2, 8.0), functional,
+                               rtol=1e-6, atol=1e-9 * functional.max())

@@ -37,7 +37,7 @@ from scipy.optimize import nnls
 from flyover.acoustics.atmosphere import Atmosphere
 from flyover.imaging import _kernels
 from flyover.imaging.dedoppler import (BandPowers, ChainSettings, ReceptionGeometry, band_bins,
-                                       centre_values, dedopplerized_signals,
+                                       dedopplerized_signals,
                                        reception_geometry, subset)
 
 # Welch blocks of the CSM: Hann-windowed, 50 % overlap.
@@ -109,11 +109,11 @@ class Focus:
     frequency_hz: np.ndarray
     band_of_line: np.ndarray
 
-    def steering(self, points_geometry: ReceptionGeometry, center_s: float) -> Steering:
+    def steering(self, points_geometry: ReceptionGeometry) -> Steering:
         """The steering of points (their geometry over all microphones) toward this focus."""
-        rx_f, amp_f = centre_values(self.geometry, center_s)
-        # Centre values first, then the used microphones: no copy of the node arrays.
-        rx_g, amp_g = (x[:, self.used] for x in centre_values(points_geometry, center_s))
+        rx_f, amp_f = self.geometry.reception_center_s, self.geometry.amplitude_center
+        rx_g = points_geometry.reception_center_s[:, self.used]
+        amp_g = points_geometry.amplitude_center[:, self.used]
         # A reception-time difference is an emission-time difference over dt/dtau.
         return Steering(self.frequency_hz, self.band_of_line, amp_f / amp_g,
                         (rx_f - rx_g) / points_geometry.doppler_center[:, self.used])
@@ -188,10 +188,11 @@ def _normalisers(p2) -> tuple[np.ndarray, np.ndarray]:
 
 def _quadratic_forms(v, matrix) -> np.ndarray:
     """v^H C v per point (n_points,) of a Hermitian C: one matrix product, then a real dot
-    product per row (the imaginary part is zero)."""
+    product per row (the imaginary part is zero); in the precision of v."""
     v = np.ascontiguousarray(v)
-    cv = np.ascontiguousarray(v @ matrix.T)
-    return np.einsum("gi,gi->g", v.view(float), cv.view(float))
+    cv = np.ascontiguousarray(v @ np.asarray(matrix, v.dtype).T)
+    real = v.real.dtype
+    return np.einsum("gi,gi->g", v.view(real), cv.view(real), dtype=float)
 
 
 def conventional_maps(csm, steering: Steering, n_bands: int) -> BandPowers:
@@ -209,18 +210,14 @@ def conventional_maps(csm, steering: Steering, n_bands: int) -> BandPowers:
     return BandPowers(full, removed)
 
 
-def conventional_point_spread(steering: Steering, source: Steering,
-                              n_bands: int) -> tuple[BandPowers, np.ndarray]:
-    """The maps of a unit point source (1 Pa^2 per line; its CSM is u u^H with u its own
-    steering vector, ``source`` of one point or one per band) on the points of ``steering``,
-    from the steering vectors alone, and its band powers (the number of lines per band).
+def _unit_source_lines(steering: Steering, source: Steering) -> tuple[np.ndarray, np.ndarray]:
+    """|v^H u|^2 per point and line (n_points, n_lines) of a unit source with steering u
+    (``source``: one point, or one per band) on the points of ``steering``, and |u|^2 per line
+    and microphone (n_lines, n_mics).
 
     ``v^H u = sum_m |v_m| |u_m| exp(i 2 pi f (d_um - d_vm))`` per line, compiled
-    (:func:`flyover.imaging._kernels.line_beam_powers`); the autopowers ``sum |v_m|^2 |u_m|^2``
-    are the same on every line of a source position."""
+    (:func:`flyover.imaging._kernels.line_beam_powers`)."""
     n_points, n_mics = steering.amplitude_ratio.shape
-    p2 = steering.amplitude_ratio ** 2
-    n_full, n_removed = _normalisers(p2)
     lines = np.arange(len(steering.frequency_hz))
     rows = len(source.amplitude_ratio)
     quad = np.empty((n_points, len(lines)))
@@ -232,13 +229,44 @@ def conventional_point_spread(steering: Steering, source: Steering,
                                   source.advance_s[row] - steering.advance_s, f,
                                   np.ones((n_mics, len(f)), complex), out)
         quad[:, mine] = out
-    per_band = np.zeros((len(lines), n_bands))
-    per_band[lines, steering.band_of_line] = 1.0
-    autos = p2 @ (source.amplitude_ratio ** 2).T                      # (n_points, rows)
-    auto_lines = autos[:, 0:1] if rows == 1 else autos[:, steering.band_of_line]
-    full = (quad @ per_band) / n_full[:, None]
-    removed = ((quad - auto_lines) @ per_band) / n_removed[:, None]
-    return BandPowers(full, removed), per_band.sum(axis=0)
+    u2 = source.amplitude_ratio ** 2
+    return quad, (u2[[0] * len(lines)] if rows == 1 else u2[steering.band_of_line])
+
+
+def _band_sums(per_line, band_of_line, n_bands) -> np.ndarray:
+    """Values per point and line (n_points, n_lines) summed into bands (n_points, n_bands)."""
+    per_band = np.zeros((len(band_of_line), n_bands))
+    per_band[np.arange(len(band_of_line)), band_of_line] = 1.0
+    return per_line @ per_band
+
+
+def conventional_point_spread(steering: Steering, source: Steering,
+                              n_bands: int) -> tuple[BandPowers, np.ndarray]:
+    """The maps of a unit point source (1 Pa^2 per line; its CSM is u u^H with u its own
+    steering vector, ``source`` of one point or one per band) on the points of ``steering``,
+    from the steering vectors alone, and its band powers (the number of lines per band). The
+    autopowers ``sum |v_m|^2 |u_m|^2`` are the same on every line of a source position."""
+    p2 = steering.amplitude_ratio ** 2
+    n_full, n_removed = _normalisers(p2)
+    quad, u2 = _unit_source_lines(steering, source)
+    auto = p2 @ u2.T                                                   # (n_points, n_lines)
+    bands = steering.band_of_line
+    full = _band_sums(quad, bands, n_bands) / n_full[:, None]
+    removed = _band_sums(quad - auto, bands, n_bands) / n_removed[:, None]
+    return BandPowers(full, removed), np.bincount(bands, minlength=n_bands).astype(float)
+
+
+def functional_point_spread(steering: Steering, source: Steering, n_bands: int,
+                            exponent: float) -> np.ndarray:
+    """The functional map (n_points, n_bands) of a unit point source, as
+    :func:`functional_maps` forms it from its CSM u u^H, in closed form: the CSM has the one
+    eigenvalue |u|^2, so ``(e^H C^(1/nu) e)^nu / (v^H v) = |u|^2 (|v^H u|^2 / (|v|^2
+    |u|^2))^nu / |v|^2``."""
+    norm2 = (steering.amplitude_ratio ** 2).sum(axis=1)[:, None]
+    quad, u2 = _unit_source_lines(steering, source)
+    size = u2.sum(axis=1)[None, :]                                     # |u|^2 per line
+    pattern = np.clip(quad / (norm2 * size), 0.0, 1.0)
+    return _band_sums(size * pattern ** exponent / norm2, steering.band_of_line, n_bands)
 
 
 # Eigenvalues below this share of the largest count as zero in functional beamforming.
@@ -301,7 +329,7 @@ def _source_components(dw, w, iterations: int = 50):
 
 
 def clean_sc(csm, steering: Steering, n_bands: int, *, loop_gain: float = 0.3,
-             max_sources: int = 200, lines_per_batch: int = 32) -> CleanResult:
+             max_sources: int = 200, lines_per_batch: int = 16) -> CleanResult:
     """CLEAN-SC (Sijtsma 2007) with diagonal removal, per frequency line.
 
     Each iteration finds the peak of the diagonal-removed map, takes the source component
@@ -331,14 +359,18 @@ def clean_sc(csm, steering: Steering, n_bands: int, *, loop_gain: float = 0.3,
     for lo in range(0, n_lines, lines_per_batch):
         lines = np.arange(lo, min(lo + lines_per_batch, n_lines))
         c = len(lines)
-        v = np.stack([next(every_line) for _ in lines])                    # (c, n_g, n_m)
-        vc = v.conj()
-        p2 = np.broadcast_to(p2_line, v.shape)
-        s2 = np.broadcast_to(s2_line, v.shape[:2])
-        n_removed = np.broadcast_to(n_removed_line, v.shape[:2])
+        # The map updates read every steering vector of the batch each iteration: in single
+        # precision they move half the memory (their rounding, 1e-7, is far below the floor).
+        vc = np.empty((c,) + steering.amplitude_ratio.shape, np.complex64)   # (c, n_g, n_m)
+        for k in range(c):
+            vc[k] = next(every_line).conj()
+        p2 = np.broadcast_to(p2_line, vc.shape)
+        s2 = np.broadcast_to(s2_line, vc.shape[:2])
+        n_removed = np.broadcast_to(n_removed_line, vc.shape[:2])
         d = csm[lines].copy()
         d[:, np.arange(d.shape[1]), np.arange(d.shape[1])] = 0.0
-        pmap = np.einsum("cgm,cgm->cg", vc @ d, v).real / n_removed
+        # v^H D v = (conj v)^H conj(D) (conj v) for Hermitian D.
+        pmap = np.stack([_quadratic_forms(vc[k], d[k].conj()) for k in range(c)]) / n_removed
         start = pmap.copy()
         size = np.abs(d).sum(axis=(1, 2))
         first = pmap.max(axis=1)
@@ -352,7 +384,7 @@ def clean_sc(csm, steering: Steering, n_bands: int, *, loop_gain: float = 0.3,
             if not active.any():
                 break
             safe = np.where(active, p_max, 1.0)
-            w = v[rows, j] / s2[rows, j][:, None]
+            w = vc[rows, j].conj().astype(complex) / s2[rows, j][:, None]
             h, ok = _source_components(np.einsum("cmn,cn->cm", d, w) / safe[:, None], w)
             active &= ok
             step = (loop_gain * safe)[:, None, None] * h[:, :, None] * h.conj()[:, None, :]
@@ -369,7 +401,7 @@ def clean_sc(csm, steering: Steering, n_bands: int, *, loop_gain: float = 0.3,
             # Products over every line of the batch (no copies of the steering), kept where
             # active: each line's map loses the removed component's own map.
             h = np.where(active[:, None], h, 0.0)
-            vh = (vc @ h[:, :, None])[..., 0]
+            vh = (vc @ h[:, :, None].astype(np.complex64))[..., 0]
             ph = (np.abs(h) ** 2) @ p2_line.T
             pmap -= (loop_gain * np.where(active, p_max, 0.0))[:, None] * (
                 np.abs(vh) ** 2 - ph) / n_removed
@@ -379,7 +411,7 @@ def clean_sc(csm, steering: Steering, n_bands: int, *, loop_gain: float = 0.3,
             removed_clean[:, b] += found[bands == b].sum(axis=0)
             removed_residual[:, b] += pmap[bands == b].sum(axis=0)
         for k in range(c):
-            found[k], pmap[k] = _refit(found[k], start[k], v[k], vc[k], p2[k], n_removed[k])
+            found[k], pmap[k] = _refit(found[k], start[k], vc[k].conj(), p2[k], n_removed[k])
         for b in np.unique(bands):
             clean[:, b] += found[bands == b].sum(axis=0)
             residual[:, b] += pmap[bands == b].sum(axis=0)
@@ -391,7 +423,7 @@ def clean_sc(csm, steering: Steering, n_bands: int, *, loop_gain: float = 0.3,
 REFIT_RIDGE = 1e-9
 
 
-def _refit(found, start_map, v, vc, p2, n_removed) -> tuple[np.ndarray, np.ndarray]:
+def _refit(found, start_map, v, p2, n_removed) -> tuple[np.ndarray, np.ndarray]:
     """One line's clean powers re-fitted, and its residual map after them.
 
     CLEAN-SC removes with each source the part of the CSM coherent with it; with a finite
@@ -418,5 +450,5 @@ def _refit(found, start_map, v, vc, p2, n_removed) -> tuple[np.ndarray, np.ndarr
     powers, _ = nnls(lower.T, solve_triangular(lower, rhs, lower=True), maxiter=50 * len(j))
     out = np.zeros_like(found)
     out[j] = powers
-    maps = (np.abs(vc @ vj.T) ** 2 - p2 @ p2[j].T) / n_removed[:, None]
+    maps = (np.abs(v.conj() @ vj.T) ** 2 - p2 @ p2[j].T) / n_removed[:, None]
     return out, start_map - maps @ powers

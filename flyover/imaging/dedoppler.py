@@ -122,6 +122,8 @@ class ReceptionGeometry:
         M_r at the window centre (frequency in the air = emitted frequency / (1 - M_r)).
     distance_center_m : ndarray, shape (n_grid, n_mics)
         Emission distance r at the window centre.
+    reception_center_s, amplitude_center : ndarray, shape (n_grid, n_mics)
+        Reception time and amplitude factor of sound emitted at the window centre.
     image : ImagePaths or None
         The ground reflection's paths at the window centre (raised microphones).
     """
@@ -132,6 +134,8 @@ class ReceptionGeometry:
     doppler_center: np.ndarray
     distance_center_m: np.ndarray
     mach_r_center: np.ndarray
+    reception_center_s: np.ndarray
+    amplitude_center: np.ndarray
     image: ImagePaths | None = None
 
 
@@ -170,23 +174,28 @@ class ImagePaths:
 
 def reception_geometry(track: TrackModel, window: Window, points_body_m, mic_enu_m,
                        atmosphere: Atmosphere, pressure_gain: float, *, node_step: int = 128,
-                       chunk_points: int = 128, image_mic_enu_m=None) -> ReceptionGeometry:
+                       chunk_points: int = 128, image_mic_enu_m=None,
+                       ends_only: bool = False) -> ReceptionGeometry:
     """Forward travel times from every grid point to every microphone at the window's nodes
-    (and, for raised microphones, the reflected paths to their images at the centre).
+    and centre (and, for raised microphones, the reflected paths to their images at the
+    centre).
 
-    Grid points are processed in chunks so that temporaries stay small.
+    ``ends_only`` keeps the first and the last node alone (where the full geometry has them):
+    the frames a window reads and the values at its centre, which is all the
+    frequency-domain methods need. Grid points are processed in chunks so that temporaries
+    stay small.
     """
     n_nodes = int(np.ceil((window.n_samples - 1) / node_step)) + 1
     nodes = window.start_s + np.arange(n_nodes) * node_step / window.sample_rate_hz
+    if ends_only:
+        nodes, n_nodes = nodes[[0, -1]], 2
     times = np.append(nodes, window.center_s)
     pts = np.asarray(points_body_m, float)
     mics = np.asarray(mic_enu_m, float)
     n_g, n_m = len(pts), len(mics)
     reception = np.empty((n_g, n_m, n_nodes))
     amp = np.empty((n_g, n_m, n_nodes))
-    doppler = np.empty((n_g, n_m))
-    distance = np.empty((n_g, n_m))
-    mach = np.empty((n_g, n_m))
+    doppler, distance, mach, rx_center, amp_center = (np.empty((n_g, n_m)) for _ in range(5))
     image = None if image_mic_enu_m is None else [np.empty((n_g, n_m)) for _ in range(6)]
     n_t = len(times)
     travel, path, mach_r, dtdtau = (np.empty((min(chunk_points, n_g), n_m, n_t))
@@ -204,6 +213,8 @@ def reception_geometry(track: TrackModel, window: Window, points_body_m, mic_enu
         doppler[sl] = dtdtau[:n_c, :, -1]
         distance[sl] = path[:n_c, :, -1]
         mach[sl] = mach_r[:n_c, :, -1]
+        rx_center[sl] = times[-1] + travel[:n_c, :, -1]
+        amp_center[sl] = distance[sl] * (1.0 - mach[sl]) ** 2 / pressure_gain
         if image is not None:
             # At the first node, the last node and the centre (times[0], [-2], [-1]).
             images = np.asarray(image_mic_enu_m, float)
@@ -219,24 +230,24 @@ def reception_geometry(track: TrackModel, window: Window, points_body_m, mic_enu
                     img.doppler_factor[2], -line[..., 2] / length, length,
                     (delay[1] - delay[0]) / (nodes[-1] - nodes[0]))):
                 target[sl] = value
-    return ReceptionGeometry(nodes, reception, amp, doppler, distance, mach,
-                             None if image is None else ImagePaths(*image))
+    return ReceptionGeometry(nodes, reception, amp, doppler, distance, mach, rx_center,
+                             amp_center, None if image is None else ImagePaths(*image))
 
 
 def subset(geometry: ReceptionGeometry, points) -> ReceptionGeometry:
-    """The geometry of some grid points only (rows), e.g. a region's."""
-    return ReceptionGeometry(geometry.node_times_s, geometry.reception_s[points],
-                             geometry.amplitude[points], geometry.doppler_center[points],
-                             geometry.distance_center_m[points], geometry.mach_r_center[points],
-                             None if geometry.image is None else geometry.image.take(points))
+    """The geometry of some grid points only (rows), e.g. a region's, or of some microphones
+    (``(slice(None), mics)``)."""
+    return ReceptionGeometry(geometry.node_times_s, *(
+        getattr(geometry, f.name)[points] for f in fields(ReceptionGeometry)[1:-1]),
+        None if geometry.image is None else geometry.image.take(points))
 
 
-def centre_values(geometry: ReceptionGeometry, center_s: float):
-    """Reception time and amplitude factor (n_points, n_mics) at the window centre, from the
-    nodes (linear, as the kernel reads them)."""
+def values_at(geometry: ReceptionGeometry, time_s: float):
+    """Reception time and amplitude factor (n_points, n_mics) of sound emitted at an instant
+    of the window, from the nodes (linear, as the kernel reads them)."""
     nodes = geometry.node_times_s
-    k = int(np.clip(np.searchsorted(nodes, center_s) - 1, 0, len(nodes) - 2))
-    u = (center_s - nodes[k]) / (nodes[k + 1] - nodes[k])
+    k = int(np.clip(np.searchsorted(nodes, time_s) - 1, 0, len(nodes) - 2))
+    u = (time_s - nodes[k]) / (nodes[k + 1] - nodes[k])
     rx = geometry.reception_s[..., k] * (1 - u) + geometry.reception_s[..., k + 1] * u
     amp = geometry.amplitude[..., k] * (1 - u) + geometry.amplitude[..., k + 1] * u
     return rx, amp
@@ -617,7 +628,7 @@ def _summed_band_powers(chain: _UsedChain, window: Window, settings: ChainSettin
     a_ref = _dedopplerized_sums(chain, settings, [ref], each, q, n_out)[0] * win
     power = np.abs(scipy.fft.rfft(a_ref, axis=-1, workers=workers)) ** 2 * norm
     cumulative = np.concatenate([np.zeros((n_mics, 1)), np.cumsum(power, axis=-1)], axis=-1)
-    _, amp = centre_values(geo, window.center_s)
+    amp = geo.amplitude_center
     rho2 = (amp / amp[ref]) ** 2
     warp = geo.doppler_center / geo.doppler_center[ref]                  # s, (n_g, n_m)
     edges = np.column_stack([settings.bands.lower_hz, settings.bands.upper_hz])  # (n_b, 2)

@@ -13,6 +13,7 @@ from __future__ import annotations
 
 from collections.abc import Callable
 from dataclasses import dataclass, field
+from functools import cached_property
 
 import numpy as np
 
@@ -42,8 +43,11 @@ class WindowContext:
     atmosphere : Atmosphere
     mic_enu_m : ndarray, shape (n_mics, 3)
     settings : ChainSettings
-    geometry : ReceptionGeometry
-        Of every grid point (from :func:`window_context`).
+    centre_geometry : ReceptionGeometry
+        Of every grid point at the first and last nodes and the centre (``ends_only``): what
+        the frequency-domain methods need.
+    points_body_m : ndarray, shape (n_grid, 3)
+        The grid points.
     first_frame : int array, shape (n_mics,)
         First frame each microphone's recorder reads for the window.
     n_frames : int
@@ -60,11 +64,21 @@ class WindowContext:
     atmosphere: Atmosphere
     mic_enu_m: np.ndarray
     settings: ChainSettings
-    geometry: ReceptionGeometry
+    centre_geometry: ReceptionGeometry
+    points_body_m: np.ndarray
     first_frame: np.ndarray
     n_frames: int
     diagonal_removal: bool = True
     workers: int = 1
+
+    @cached_property
+    def geometry(self) -> ReceptionGeometry:
+        """Of every grid point at every node (the time-domain chain's), computed when first
+        asked for."""
+        s = self.settings
+        return reception_geometry(self.track, self.window, self.points_body_m, self.mic_enu_m,
+                                  self.atmosphere, s.pressure_gain, node_step=s.node_step,
+                                  image_mic_enu_m=s.image_mic_enu_m)
 
 
 @dataclass(frozen=True)
@@ -154,13 +168,15 @@ class WindowMaps:
 def window_context(window: Window, *, track: TrackModel, clock: ArrayClock,
                    atmosphere: Atmosphere, mic_enu_m, grid_points_m, settings: ChainSettings,
                    diagonal_removal: bool = True, workers: int = 1) -> WindowContext:
-    """The reception geometry of a window's grid points and the recording frames it needs."""
+    """The centre geometry of a window's grid points and the recording frames it needs (the
+    full geometry follows when a method asks for it)."""
     geo = reception_geometry(track, window, grid_points_m, mic_enu_m, atmosphere,
                              settings.pressure_gain, node_step=settings.node_step,
-                             image_mic_enu_m=settings.image_mic_enu_m)
+                             image_mic_enu_m=settings.image_mic_enu_m, ends_only=True)
     first, n = required_frames(geo, clock, settings.interpolation)
     return WindowContext(window, track, clock, atmosphere, np.asarray(mic_enu_m, float),
-                         settings, geo, first, n, diagonal_removal, workers)
+                         settings, geo, np.asarray(grid_points_m, float), first, n,
+                         diagonal_removal, workers)
 
 
 def image_window(signals_pa, context: WindowContext, *, method: ImagingMethod, grid_points_m,

@@ -72,7 +72,7 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path, *, threads: int = 1,
         ctx = window_context(w, track=inputs.track, clock=clock, atmosphere=atm, mic_enu_m=mics,
                              grid_points_m=points, settings=settings,
                              diagonal_removal=an.diagonal_removal, workers=threads)
-        geo, first, n = ctx.geometry, ctx.first_frame, ctx.n_frames
+        geo, first, n = ctx.centre_geometry, ctx.first_frame, ctx.n_frames
         if not inputs.holds(first, n):
             row.update(status="skipped", reason="sound reaches the array outside the recording")
             rows.append(row)

@@ -25,7 +25,7 @@ def csm_and_steering(signals_pa, context: WindowContext) -> tuple[np.ndarray, St
     csm, _ = window_csm(signals_pa, context.first_frame, focus, window=context.window,
                         clock=context.clock, atmosphere=context.atmosphere,
                         settings=context.settings)
-    return csm, focus.steering(context.geometry, context.window.center_s)
+    return csm, focus.steering(context.centre_geometry)
 
 
 def unit_steering(body_m, points, context: WindowContext) -> tuple[Steering, Steering]:
@@ -35,13 +35,6 @@ def unit_steering(body_m, points, context: WindowContext) -> tuple[Steering, Ste
     s = context.settings
     source = reception_geometry(context.track, context.window, np.atleast_2d(body_m),
                                 context.mic_enu_m, context.atmosphere, s.pressure_gain,
-                                node_step=s.node_step)
-    center = context.window.center_s
-    return (focus.steering(subset(context.geometry, points), center),
-            focus.steering(source, center))
+                                node_step=s.node_step, ends_only=True)
+    return (focus.steering(subset(context.centre_geometry, points)), focus.steering(source))
 
-
-def unit_csm(source: Steering) -> np.ndarray:
-    """The CSM of a unit point source (1 Pa^2 per line) with this steering: u u^H per line."""
-    u = np.stack([source.line_vector(k) for k in range(len(source.frequency_hz))])
-    return u[:, :, None] * u[:, None, :].conj()

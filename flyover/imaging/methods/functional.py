@@ -6,10 +6,10 @@ from __future__ import annotations
 
 import numpy as np
 
-from flyover.imaging.csm import block_samples, functional_maps
+from flyover.imaging.csm import block_samples, functional_maps, functional_point_spread
 from flyover.imaging.dedoppler import BandPowers
 from flyover.imaging.methods import register
-from flyover.imaging.methods._frequency import csm_and_steering, unit_csm, unit_steering
+from flyover.imaging.methods._frequency import csm_and_steering, unit_steering
 from flyover.imaging.window import ImagingMethod, PointSpread, WindowContext
 
 
@@ -23,7 +23,7 @@ def band_maps(signals_pa, context: WindowContext) -> BandPowers:
 def point_spread(body_m, points, context: WindowContext, seed: int) -> PointSpread:
     grid, source = unit_steering(body_m, points, context)
     n_bands = len(context.settings.bands)
-    m = functional_maps(unit_csm(source), grid, n_bands, context.settings.functional_exponent)
+    m = functional_point_spread(grid, source, n_bands, context.settings.functional_exponent)
     return PointSpread(BandPowers(m, m),
                        np.bincount(source.band_of_line, minlength=n_bands).astype(float))
 

@@ -17,7 +17,7 @@ import numpy as np
 from flyover.forward.moving_source import (Broadband, PointSource, Propagator, SourceSignal,
                                            received_pressure_pa)
 from flyover.imaging import _kernels
-from flyover.imaging.dedoppler import (BandPowers, absorption_gains, band_bins, centre_values,
+from flyover.imaging.dedoppler import (BandPowers, absorption_gains, band_bins, values_at,
                                        interpolation_response, reception_geometry,
                                        signal_band_power, subset, window_band_powers)
 from flyover.imaging.methods import register
@@ -88,8 +88,8 @@ def modelled_point_spread(body_m, points, context: WindowContext) -> PointSpread
         w.n_samples / w.sample_rate_hz)
     taper = np.sin(np.pi * (np.arange(MODEL_INSTANTS) + 0.5) / MODEL_INSTANTS) ** 4
     taper /= taper.sum()
-    at_g = [centre_values(grid, t) for t in instants]                 # (n_p, n_m) each
-    at_s = [centre_values(source, t) for t in instants]               # (n_b, n_m) each
+    at_g = [values_at(grid, t) for t in instants]                 # (n_p, n_m) each
+    at_s = [values_at(source, t) for t in instants]               # (n_b, n_m) each
     gain = absorption_gains(s, context.atmosphere, grid)              # (n_p, n_m, n_b)
     freqs = np.fft.rfftfreq(w.n_samples, 1.0 / w.sample_rate_hz)
     n_p = len(at_g[0][0])
