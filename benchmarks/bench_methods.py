@@ -8,7 +8,8 @@ Geometry (the one the issues quote): a 48-microphone spiral 12 m across, a vehic
 regions, 35 m overhead at 25 m/s. For each method, over every window of the pass (or the
 ``--windows`` nearest overhead): the wall time of the pass and per window with a profile by
 step (geometry, the method's maps, the unit sources' point-spreads and the leakage solve),
-the peak memory of a window (tracemalloc: numpy allocations), and the effective rate
+the peak memory of a window (tracemalloc, numpy allocations, on the middle window apart from
+the timing), and the effective rate
 mic * point * sample / s against a plain numpy delay-and-sum (linear node interpolation,
 4-point Lagrange: the kernel's naive reference) measured in the same run on a subset of
 points. The time-domain method is also run, on ``--baseline-windows`` windows, as the
@@ -103,28 +104,34 @@ def per_microphone_method():
 
 def time_method(method, chosen, *, track, clock, atm, mics, points, settings, regions, p,
                 threads):
-    """Seconds per step summed over the windows, and the largest peak memory of a window."""
+    """Seconds per step summed over the windows, and the peak memory of the middle window
+    (traced apart: tracing slows allocation down)."""
     from dataclasses import replace
     times = {"geometry": 0.0, "maps": 0.0, "unit sources and solve": 0.0}
-    peak = 0
-    for w in chosen:
-        tracemalloc.start()
+
+    def one(w):
         t0 = time.perf_counter()
         ctx = window_context(w, track=track, clock=clock, atmosphere=atm, mic_enu_m=mics,
                              grid_points_m=points, settings=settings, workers=threads)
         span = np.stack([p[m, f:f + ctx.n_frames] for m, f in enumerate(ctx.first_frame)])
+        if method.name.startswith("time-domain"):
+            ctx.geometry          # the full node geometry is the time-domain chain's
         t1 = time.perf_counter()
         maps = method.band_maps(span, ctx)
         t2 = time.perf_counter()
         # The unit sources and the solve alone: the window's maps given back as computed.
         given = replace(method, band_maps=lambda *_: maps)
         image_window(span, ctx, method=given, grid_points_m=points, regions=regions)
-        t3 = time.perf_counter()
-        peak = max(peak, tracemalloc.get_traced_memory()[1])
-        tracemalloc.stop()
-        times["geometry"] += t1 - t0
-        times["maps"] += t2 - t1
-        times["unit sources and solve"] += t3 - t2
+        return (t1 - t0, t2 - t1, time.perf_counter() - t2), ctx, span
+
+    for w in chosen:
+        steps, ctx, span = one(w)
+        for k, v in zip(times, steps):
+            times[k] += v
+    tracemalloc.start()
+    one(chosen[len(chosen) // 2])
+    peak = tracemalloc.get_traced_memory()[1]
+    tracemalloc.stop()
     return times, peak, ctx, span
 
 

@@ -67,6 +67,15 @@ def test_kernel_matches_numpy_reference(seed):
     ref = naive_dedoppler(sig, rx, amp, step, n_out)
     scale = np.max(np.abs(ref))
     assert np.max(np.abs(out - ref)) <= 1e-4 * scale
+    # The summed kernel: weighted sums over microphones of the same signals, its positions
+    # given as reception times of a clock (sample 0 at origin_s, rate samples per second).
+    coef = rng.uniform(-1, 1, (n_g, 2, n_m)).astype(np.float32)
+    origin, rate = rng.uniform(0, 1, n_m), rng.uniform(7900, 8100, n_m)
+    sums = np.empty((n_g, 2, n_out), np.float32)
+    _kernels.dedoppler_summed(sig, rx / rate[:, None] + origin[:, None], origin, rate,
+                              amp.astype(float), coef, step, sums)
+    np.testing.assert_allclose(sums, np.einsum("gqm,gmk->gqk", coef, ref),
+                               atol=1e-4 * scale * n_m)
 
 
 @pytest.mark.parametrize("wind_m_s", [(0.0, 0.0, 0.0), (6.0, -4.0, 0.5)])
@@ -78,13 +87,18 @@ def test_compiled_paths_match_numpy_reference(wind_m_s):
     pos = rng.uniform(-40, 40, (5, 7, 3)) + [0, 0, 35]
     vel = rng.uniform(-30, 30, (5, 7, 3))
     mics = rng.uniform(-6, 6, (9, 3)) * [1, 1, 0]
+    times = np.linspace(1.0, 1.2, 5)
     wind = np.array(wind_m_s)
-    out = [np.empty((7, 9, 5)) for _ in range(4)]
-    _kernels.paths_on_grid(pos, vel, mics, wind, 340.0, *out)
+    reception, amplitude = np.empty((7, 9, 5)), np.empty((7, 9, 5))
+    end = [np.empty((7, 9)) for _ in range(3)]
+    _kernels.paths_on_grid(pos, vel, mics, wind, 340.0, times, 2.0, reception, amplitude, *end)
     ref = paths_between(pos[:, :, None, :], vel[:, :, None, :], mics[None, None], wind, 340.0)
-    for got, want in zip(out, (ref.travel_time_s, ref.distance_m, ref.mach_r,
-                               ref.doppler_factor)):
-        np.testing.assert_allclose(got, want.transpose(1, 2, 0), rtol=1e-12, atol=1e-14)
+    np.testing.assert_allclose(reception, (times[:, None, None] + ref.travel_time_s)
+                               .transpose(1, 2, 0), rtol=1e-13)
+    np.testing.assert_allclose(amplitude, (ref.distance_m * (1 - ref.mach_r) ** 2 / 2.0)
+                               .transpose(1, 2, 0), rtol=1e-12)
+    for got, want in zip(end, (ref.distance_m, ref.mach_r, ref.doppler_factor)):
+        np.testing.assert_allclose(got, want[-1], rtol=1e-12, atol=1e-14)
 
 
 def test_line_beam_powers_match_numpy_reference():
@@ -95,12 +109,12 @@ def test_line_beam_powers_match_numpy_reference():
     advance = rng.uniform(-2e-3, 2e-3, (30, 12))
     f = 500.0 + 4.0 * np.arange(90)
     f[40:] += 1.5
-    gain = rng.uniform(0.8, 1.2, (12, 90)) * np.exp(1j * rng.uniform(0, 6, (12, 90)))
+    gain = rng.uniform(0.8, 1.2, (90, 12)) * np.exp(1j * rng.uniform(0, 6, (90, 12)))
     out = np.empty((30, 90))
     _kernels.line_beam_powers(ratio, advance, f, gain, out)
     ref = np.abs(np.einsum("pm,pmf,mf->pf", ratio,
                            np.exp(2j * np.pi * f[None, None, :] * advance[:, :, None]),
-                           gain)) ** 2
+                           gain.T)) ** 2
     np.testing.assert_allclose(out, ref, rtol=1e-10)
 
 

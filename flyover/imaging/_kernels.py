@@ -73,23 +73,29 @@ def dedoppler_cubic(signals, rx_pos, amp, step, out):
 
 
 @numba.njit(parallel=True, fastmath=True, cache=True)
-def dedoppler_summed(signals, rx_pos, amp, coef, step, out):
+def dedoppler_summed(signals, reception_s, origin_s, scale, amp, coef, step, out):
     """Weighted sums over microphones of the de-Dopplerized signals, per grid point::
 
         out[g, q, k] = sum_m coef[g, q, m] amp(g, m, k) signals[m](rx_pos(g, m, k))
 
-    read as :func:`dedoppler_cubic` reads them, without keeping each microphone's signal.
+    read as :func:`dedoppler_cubic` reads them, without keeping each microphone's signal; the
+    reception positions are taken from the reception times at the nodes, ``rx_pos =
+    (reception_s - origin_s[m]) * scale[m]`` (no array of them is formed).
 
     Parameters
     ----------
-    signals, rx_pos, amp, step
+    signals, step
         As for :func:`dedoppler_cubic`.
+    reception_s, amp : float64 arrays (n_grid, n_mics, n_nodes)
+        Reception times (s) and amplitude factors at the nodes, any strides.
+    origin_s, scale : float64 arrays (n_mics,)
+        The time of sample 0 of each row of ``signals`` and its samples per second.
     coef : float32 array (n_grid, n_sums, n_mics)
         Weights of each sum.
     out : float32 array (n_grid, n_sums, n_out)
         Filled in place.
     """
-    n_grid, n_mics, n_nodes = rx_pos.shape
+    n_grid, n_mics, n_nodes = reception_s.shape
     n_sums = coef.shape[1]
     n_out = out.shape[2]
     inv = 1.0 / step
@@ -105,10 +111,10 @@ def dedoppler_summed(signals, rx_pos, amp, coef, step, out):
                 if k0 >= n_out:
                     break
                 k1 = min(k0 + step, n_out)
-                p0 = rx_pos[g, m, j]
-                dp = (rx_pos[g, m, j + 1] - p0) * inv
-                a0 = amp[g, m, j]
-                da = np.float32((amp[g, m, j + 1] - a0) * inv)
+                p0 = (reception_s[g, m, j] - origin_s[m]) * scale[m]
+                dp = ((reception_s[g, m, j + 1] - origin_s[m]) * scale[m] - p0) * inv
+                a0 = np.float32(amp[g, m, j])
+                da = np.float32((amp[g, m, j + 1] - amp[g, m, j]) * inv)
                 i = int(p0)
                 frac = p0 - i
                 a = a0
@@ -125,9 +131,10 @@ def dedoppler_summed(signals, rx_pos, amp, coef, step, out):
                     buf[k] = a * (((c3 * d + c2) * d + c1) * d + y0)
                     a += da
                     frac += dp
-                    while frac >= 1.0:
-                        frac -= 1.0
-                        i += 1
+                    # At a reduced rate the position moves several samples per output.
+                    jump = int(frac)
+                    i += jump
+                    frac -= jump
             for q in range(n_sums):
                 c = coef[g, q, m]
                 row = out[g, q]
@@ -136,9 +143,10 @@ def dedoppler_summed(signals, rx_pos, amp, coef, step, out):
 
 
 @numba.njit(parallel=True, cache=True)
-def paths_on_grid(pos, vel, mics, wind, c, travel, distance, mach_r, doppler):
-    """Travel time, path length in the moving air, M_r and dt/dtau from every source point at
-    every time to every microphone: the compiled form of
+def paths_on_grid(pos, vel, mics, wind, c, times, pressure_gain, reception, amplitude,
+                  distance_end, mach_end, doppler_end):
+    """Reception times and amplitude factors from every source point at every emission time to
+    every microphone, and path length, M_r and dt/dtau at the last time: the compiled form of
     :func:`flyover.geometry.propagation.paths_between`, written straight into the chain's
     (point, microphone, time) layout.
 
@@ -150,8 +158,13 @@ def paths_on_grid(pos, vel, mics, wind, c, travel, distance, mach_r, doppler):
     wind : float64 array (3,)
     c : float
         Speed of sound in the medium at rest.
-    travel, distance, mach_r, doppler : float64 arrays (n_points, n_mics, n_times)
-        Filled in place.
+    times : float64 array (n_times,)
+        Emission times.
+    pressure_gain : float
+    reception, amplitude : float64 arrays (n_points, n_mics, n_times)
+        Filled in place: ``t + T`` and ``r (1 - M_r)^2 / G``.
+    distance_end, mach_end, doppler_end : float64 arrays (n_points, n_mics)
+        Filled in place: r, M_r and dt/dtau at the last time.
     """
     n_t, n_p = pos.shape[0], pos.shape[1]
     n_m = mics.shape[0]
@@ -173,29 +186,30 @@ def paths_on_grid(pos, vel, mics, wind, c, travel, distance, mach_r, doppler):
                 n2 = (d2 - tt * wind[2]) / ct
                 mr = (n0 * (vel[t, p, 0] - wind[0]) + n1 * (vel[t, p, 1] - wind[1])
                       + n2 * (vel[t, p, 2] - wind[2])) / c
-                travel[p, m, t] = tt
-                distance[p, m, t] = ct
-                mach_r[p, m, t] = mr
-                doppler[p, m, t] = (1.0 - mr) / (1.0 + (n0 * wind[0] + n1 * wind[1]
-                                                        + n2 * wind[2]) / c)
+                reception[p, m, t] = times[t] + tt
+                amplitude[p, m, t] = ct * (1.0 - mr) ** 2 / pressure_gain
+            distance_end[p, m] = ct
+            mach_end[p, m] = mr
+            doppler_end[p, m] = (1.0 - mr) / (1.0 + (n0 * wind[0] + n1 * wind[1]
+                                                     + n2 * wind[2]) / c)
 
 
 @numba.njit(parallel=True, fastmath=True, cache=True)
 def line_beam_powers(ratio, advance_s, frequency_hz, line_gain, out):
     """Beam power of a unit line source per grid point and line, from its steering::
 
-        out[p, k] = | sum_m ratio[p, m] exp(i 2 pi f_k advance[p, m]) line_gain[m, k] |^2
+        out[p, k] = | sum_m ratio[p, m] exp(i 2 pi f_k advance[p, m]) line_gain[k, m] |^2
 
-    A line one spacing (``f_1 - f_0``) above the previous one has its phase factor stepped
-    from it by one complex product (rounding grows by ~1e-16 a line); any other line is
-    computed afresh.
+    A line one spacing (``f_1 - f_0``) above the previous one has its phase factors stepped
+    from it by one complex product each (rounding grows by ~1e-16 a line); any other line is
+    computed afresh. The microphones are the inner loop (independent, so it vectorises).
 
     Parameters
     ----------
     ratio, advance_s : float64 arrays (n_points, n_mics)
         The source as seen by each point's steering: amplitude and time advance.
     frequency_hz : float64 array (n_lines,)
-    line_gain : complex128 array (n_mics, n_lines)
+    line_gain : complex128 array (n_lines, n_mics)
         What else the chain does to the line at each microphone (1 for nothing).
     out : float64 array (n_points, n_lines)
         Filled in place.
@@ -204,23 +218,29 @@ def line_beam_powers(ratio, advance_s, frequency_hz, line_gain, out):
     n_f = frequency_hz.shape[0]
     spacing = frequency_hz[1] - frequency_hz[0] if n_f > 1 else 0.0
     for p in numba.prange(n_p):
-        re = np.zeros(n_f)
-        im = np.zeros(n_f)
+        a = np.empty(n_m)
+        zr = np.empty(n_m)
+        zi = np.empty(n_m)
+        sr = np.empty(n_m)
+        si = np.empty(n_m)
         for m in range(n_m):
-            a = 2.0 * np.pi * advance_s[p, m]
-            r = ratio[p, m]
-            sr = np.cos(a * spacing)
-            si = np.sin(a * spacing)
-            zr = zi = 0.0
-            for k in range(n_f):
-                if k > 0 and abs(frequency_hz[k] - frequency_hz[k - 1] - spacing) <= (
-                        1e-9 * abs(spacing)):
-                    zr, zi = zr * sr - zi * si, zr * si + zi * sr
-                else:
-                    zr = r * np.cos(a * frequency_hz[k])
-                    zi = r * np.sin(a * frequency_hz[k])
-                g = line_gain[m, k]
-                re[k] += zr * g.real - zi * g.imag
-                im[k] += zi * g.real + zr * g.imag
+            a[m] = 2.0 * np.pi * advance_s[p, m]
+            sr[m] = np.cos(a[m] * spacing)
+            si[m] = np.sin(a[m] * spacing)
         for k in range(n_f):
-            out[p, k] = re[k] * re[k] + im[k] * im[k]
+            if k == 0 or abs(frequency_hz[k] - frequency_hz[k - 1] - spacing) > (
+                    1e-9 * abs(spacing)):
+                for m in range(n_m):
+                    zr[m] = ratio[p, m] * np.cos(a[m] * frequency_hz[k])
+                    zi[m] = ratio[p, m] * np.sin(a[m] * frequency_hz[k])
+            re = 0.0
+            im = 0.0
+            for m in range(n_m):
+                gr = line_gain[k, m].real
+                gi = line_gain[k, m].imag
+                re += zr[m] * gr - zi[m] * gi
+                im += zi[m] * gr + zr[m] * gi
+                r0 = zr[m]
+                zr[m] = r0 * sr[m] - zi[m] * si[m]
+                zi[m] = r0 * si[m] + zi[m] * sr[m]
+            out[p, k] = re * re + im * im

@@ -227,7 +227,7 @@ def _unit_source_lines(steering: Steering, source: Steering) -> tuple[np.ndarray
         out = np.empty((n_points, len(f)))
         _kernels.line_beam_powers(steering.amplitude_ratio * source.amplitude_ratio[row],
                                   source.advance_s[row] - steering.advance_s, f,
-                                  np.ones((n_mics, len(f)), complex), out)
+                                  np.ones((len(f), n_mics), complex), out)
         quad[:, mine] = out
     u2 = source.amplitude_ratio ** 2
     return quad, (u2[[0] * len(lines)] if rows == 1 else u2[steering.band_of_line])
@@ -329,7 +329,7 @@ def _source_components(dw, w, iterations: int = 50):
 
 
 def clean_sc(csm, steering: Steering, n_bands: int, *, loop_gain: float = 0.3,
-             max_sources: int = 200, lines_per_batch: int = 16) -> CleanResult:
+             max_sources: int = 200, lines_per_batch: int = 8) -> CleanResult:
     """CLEAN-SC (Sijtsma 2007) with diagonal removal, per frequency line.
 
     Each iteration finds the peak of the diagonal-removed map, takes the source component
@@ -387,6 +387,7 @@ def clean_sc(csm, steering: Steering, n_bands: int, *, loop_gain: float = 0.3,
             w = vc[rows, j].conj().astype(complex) / s2[rows, j][:, None]
             h, ok = _source_components(np.einsum("cmn,cn->cm", d, w) / safe[:, None], w)
             active &= ok
+            h = np.where(ok[:, None], h, 0.0)          # a diverged component removes nothing
             step = (loop_gain * safe)[:, None, None] * h[:, :, None] * h.conj()[:, None, :]
             step[:, np.arange(d.shape[1]), np.arange(d.shape[1])] = 0.0
             with np.errstate(invalid="ignore"):

@@ -174,16 +174,14 @@ class ImagePaths:
 
 def reception_geometry(track: TrackModel, window: Window, points_body_m, mic_enu_m,
                        atmosphere: Atmosphere, pressure_gain: float, *, node_step: int = 128,
-                       chunk_points: int = 128, image_mic_enu_m=None,
-                       ends_only: bool = False) -> ReceptionGeometry:
+                       image_mic_enu_m=None, ends_only: bool = False) -> ReceptionGeometry:
     """Forward travel times from every grid point to every microphone at the window's nodes
     and centre (and, for raised microphones, the reflected paths to their images at the
     centre).
 
     ``ends_only`` keeps the first and the last node alone (where the full geometry has them):
     the frames a window reads and the values at its centre, which is all the
-    frequency-domain methods need. Grid points are processed in chunks so that temporaries
-    stay small.
+    frequency-domain methods need.
     """
     n_nodes = int(np.ceil((window.n_samples - 1) / node_step)) + 1
     nodes = window.start_s + np.arange(n_nodes) * node_step / window.sample_rate_hz
@@ -193,45 +191,31 @@ def reception_geometry(track: TrackModel, window: Window, points_body_m, mic_enu
     pts = np.asarray(points_body_m, float)
     mics = np.asarray(mic_enu_m, float)
     n_g, n_m = len(pts), len(mics)
-    reception = np.empty((n_g, n_m, n_nodes))
-    amp = np.empty((n_g, n_m, n_nodes))
-    doppler, distance, mach, rx_center, amp_center = (np.empty((n_g, n_m)) for _ in range(5))
-    image = None if image_mic_enu_m is None else [np.empty((n_g, n_m)) for _ in range(6)]
-    n_t = len(times)
-    travel, path, mach_r, dtdtau = (np.empty((min(chunk_points, n_g), n_m, n_t))
-                                    for _ in range(4))
-    wind = np.asarray(atmosphere.wind_enu_m_s, float)
-    for c0 in range(0, n_g, chunk_points):
-        sl = slice(c0, min(c0 + chunk_points, n_g))
-        n_c = sl.stop - sl.start
-        pos = track.body_points_enu(pts[sl], times)          # (n_t, n_c, 3)
-        vel = track.body_points_velocity(pts[sl], times)
-        _kernels.paths_on_grid(pos, vel, mics, wind, float(atmosphere.c_m_s), travel[:n_c],
-                               path[:n_c], mach_r[:n_c], dtdtau[:n_c])
-        reception[sl] = times[:-1] + travel[:n_c, :, :-1]
-        amp[sl] = path[:n_c, :, :-1] * (1.0 - mach_r[:n_c, :, :-1]) ** 2 / pressure_gain
-        doppler[sl] = dtdtau[:n_c, :, -1]
-        distance[sl] = path[:n_c, :, -1]
-        mach[sl] = mach_r[:n_c, :, -1]
-        rx_center[sl] = times[-1] + travel[:n_c, :, -1]
-        amp_center[sl] = distance[sl] * (1.0 - mach[sl]) ** 2 / pressure_gain
-        if image is not None:
-            # At the first node, the last node and the centre (times[0], [-2], [-1]).
-            images = np.asarray(image_mic_enu_m, float)
-            img = paths_between(pos[[0, -2, -1]][:, :, None, :], vel[[0, -2, -1]][:, :, None, :],
-                                images[None, None], atmosphere.wind_enu_m_s, atmosphere.c_m_s)
-            direct = travel[:n_c][:, :, [0, -2, -1]].transpose(2, 0, 1)
-            delay = (img.travel_time_s - direct) / img.doppler_factor
-            line = images[None] - pos[-1][:, None, :]
-            length = np.linalg.norm(line, axis=-1)
-            for target, value in zip(image, (
-                    delay[2], distance[sl] * (1 - mach[sl]) ** 2
-                    / (img.distance_m[2] * (1 - img.mach_r[2]) ** 2),
-                    img.doppler_factor[2], -line[..., 2] / length, length,
-                    (delay[1] - delay[0]) / (nodes[-1] - nodes[0]))):
-                target[sl] = value
-    return ReceptionGeometry(nodes, reception, amp, doppler, distance, mach, rx_center,
-                             amp_center, None if image is None else ImagePaths(*image))
+    # The nodes, then the centre, along the last axis; the geometry holds views of them.
+    reception, amp = (np.empty((n_g, n_m, len(times))) for _ in range(2))
+    distance, mach, doppler = (np.empty((n_g, n_m)) for _ in range(3))
+    pos = track.body_points_enu(pts, times)          # (n_t, n_g, 3)
+    vel = track.body_points_velocity(pts, times)
+    _kernels.paths_on_grid(pos, vel, mics, np.asarray(atmosphere.wind_enu_m_s, float),
+                           float(atmosphere.c_m_s), times, float(pressure_gain), reception, amp,
+                           distance, mach, doppler)
+    image = None
+    if image_mic_enu_m is not None:
+        # At the first node, the last node and the centre (times[0], [-2], [-1]).
+        at = [0, -2, -1]
+        images = np.asarray(image_mic_enu_m, float)
+        img = paths_between(pos[at][:, :, None, :], vel[at][:, :, None, :], images[None, None],
+                            atmosphere.wind_enu_m_s, atmosphere.c_m_s)
+        direct = (reception[..., at] - times[at]).transpose(2, 0, 1)
+        delay = (img.travel_time_s - direct) / img.doppler_factor
+        line = images[None] - pos[-1][:, None, :]
+        length = np.linalg.norm(line, axis=-1)
+        image = ImagePaths(delay[2], distance * (1 - mach) ** 2
+                           / (img.distance_m[2] * (1 - img.mach_r[2]) ** 2),
+                           img.doppler_factor[2], -line[..., 2] / length, length,
+                           (delay[1] - delay[0]) / (nodes[-1] - nodes[0]))
+    return ReceptionGeometry(nodes, reception[..., :-1], amp[..., :-1], doppler, distance, mach,
+                             reception[..., -1], amp[..., -1], image)
 
 
 def subset(geometry: ReceptionGeometry, points) -> ReceptionGeometry:
@@ -401,25 +385,31 @@ def dedopplerized_signals(signals_pa, first_frame, geometry: ReceptionGeometry,
     -------
     float32 array (n_points, n_mics, window.n_samples)
     """
-    rx, amp, sig = _kernel_inputs(signals_pa, first_frame, geometry, clock, settings, points)
+    sig, origin, scale = _reading(signals_pa, first_frame, clock, settings)
+    rx = (geometry.reception_s[points] - origin[:, None]) * scale[:, None]
+    _check_reads(rx, sig)
+    amp = geometry.amplitude[points].astype(np.float32)
     out = np.empty((rx.shape[0], rx.shape[1], window.n_samples), dtype=np.float32)
-    _kernels.dedoppler_cubic(sig, rx, amp, settings.node_step, out)
+    _kernels.dedoppler_cubic(sig, np.ascontiguousarray(rx), amp, settings.node_step, out)
     return out
 
 
-def _kernel_inputs(signals_pa, first_frame, geometry: ReceptionGeometry, clock: ArrayClock,
-                   settings: ChainSettings, points):
-    """Reception positions (in samples of the signals as read), amplitude factors and the
-    signals (oversampled for 'sinc') of some grid points, as the kernels take them."""
-    rx = clock.sample_index(geometry.reception_s[points]) - np.asarray(first_frame)[:, None]
-    amp = geometry.amplitude[points].astype(np.float32)
+def _reading(signals_pa, first_frame, clock: ArrayClock, settings: ChainSettings):
+    """The signals as the kernels read them (float32, oversampled for 'sinc'), and per
+    microphone the time of their sample 0 and their samples per second: reception time t is
+    read at ``(t - origin) * scale``."""
     sig = np.asarray(signals_pa, dtype=np.float32)
+    rate = np.asarray(clock.rate_hz, float)
+    origin = clock.sample_time_s(np.asarray(first_frame, float)[:, None])[:, 0]
     if settings.interpolation == "sinc":
-        sig = oversampled(sig)
-        rx = rx * OVERSAMPLING
-    if rx.min() < 1 or rx.max() > sig.shape[1] - 3:
+        return oversampled(sig), origin, rate * OVERSAMPLING
+    return sig, origin, rate
+
+
+def _check_reads(rx_ends, sig) -> None:
+    """Reading positions (any shape, first and last nodes suffice) inside the signals."""
+    if rx_ends.min() < 1 or rx_ends.max() > sig.shape[1] - 3:
         raise ValueError("reception positions outside the span read for the window")
-    return np.ascontiguousarray(rx), np.ascontiguousarray(amp), sig
 
 
 def window_memory_bytes(n_grid: int, n_mics: int, n_samples: int, n_bands: int,
@@ -659,10 +649,13 @@ def _dedopplerized_sums(chain: _UsedChain, settings: ChainSettings, points, coef
                         n_out: int) -> np.ndarray:
     """Weighted sums over microphones (n_points, n_sums, n_out) of the de-Dopplerized
     signals of some grid points, every q-th emission sample."""
-    rx, amp, sig = _kernel_inputs(chain.signals, chain.first_frame, chain.geometry, chain.clock,
-                                  settings, points)
-    out = np.empty((rx.shape[0], coef.shape[1], n_out), dtype=np.float32)
-    _kernels.dedoppler_summed(sig, rx, amp, coef, settings.node_step // q, out)
+    geo = chain.geometry
+    sig, origin, scale = _reading(chain.signals, chain.first_frame, chain.clock, settings)
+    # Reception grows with emission time: the first and last nodes bound every read.
+    _check_reads((geo.reception_s[points][..., [0, -1]] - origin[:, None]) * scale[:, None], sig)
+    out = np.empty((len(coef), coef.shape[1], n_out), dtype=np.float32)
+    _kernels.dedoppler_summed(sig, geo.reception_s[points], origin, scale,
+                              geo.amplitude[points], coef, settings.node_step // q, out)
     return out
 
 

@@ -120,7 +120,7 @@ def modelled_point_spread(body_m, points, context: WindowContext) -> PointSpread
             advance = (rx_g - rx_s[b]) / source.doppler_center[b]
             _kernels.line_beam_powers(np.ascontiguousarray(ratio, float),
                                       np.ascontiguousarray(advance), f,
-                                      np.ascontiguousarray(u, complex), out)
+                                      np.ascontiguousarray(u.T, complex), out)
             beam += weight * out
             auto += weight * (ratio ** 2) @ (np.abs(u) ** 2)
         share = n_lines / len(f)
