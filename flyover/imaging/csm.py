@@ -140,7 +140,7 @@ def window_focus(*, track, window, mic_enu_m, atmosphere: Atmosphere, settings: 
 
 
 def window_csm(signals_pa, first_frame, focus: Focus, *, window, clock,
-               atmosphere: Atmosphere, settings: ChainSettings) -> tuple[np.ndarray, int]:
+               atmosphere: Atmosphere, settings: ChainSettings) -> tuple[np.ndarray, np.ndarray]:
     """Every used channel de-Dopplerized to the focus point, Welch cross-spectral matrices.
 
     Parameters
@@ -152,7 +152,8 @@ def window_csm(signals_pa, first_frame, focus: Focus, *, window, clock,
     -------
     csm : ndarray, shape (n_lines, n_used, n_used), complex128
         One-sided cross-power per line (Pa^2 of source strength at 1 m).
-    n_blocks : int
+    factor : ndarray, shape (n_lines, n_used, n_blocks), complex128
+        The scaled block spectra: ``csm = factor @ factor^H`` per line (rank n_blocks).
     """
     used = focus.used
     a = dedopplerized_signals(np.asarray(signals_pa)[used], np.asarray(first_frame)[used],
@@ -166,8 +167,8 @@ def window_csm(signals_pa, first_frame, focus: Focus, *, window, clock,
     spec = np.fft.rfft(blocks, axis=-1)[:, :, focus.lines]                 # (n_m, n_blk, L)
     if settings.absorption:
         spec = spec * _absorption_gain(atmosphere, focus, focus.frequency_hz)[:, None, :]
-    csm = np.einsum("mbl,nbl->lmn", spec, spec.conj()) * (norm / len(starts))
-    return csm, len(starts)
+    factor = spec.transpose(2, 0, 1) * np.sqrt(norm / len(starts))
+    return factor @ factor.conj().transpose(0, 2, 1), factor
 
 
 def _absorption_gain(atmosphere: Atmosphere, focus: Focus, freqs):
@@ -195,15 +196,23 @@ def _quadratic_forms(v, matrix) -> np.ndarray:
     return np.einsum("gi,gi->g", v.view(real), cv.view(real), dtype=float)
 
 
-def conventional_maps(csm, steering: Steering, n_bands: int) -> BandPowers:
-    """Conventional beamforming per line, summed into bands: (n_points, n_bands) each."""
+def conventional_maps(csm, steering: Steering, n_bands: int, *, factor=None) -> BandPowers:
+    """Conventional beamforming per line, summed into bands: (n_points, n_bands) each.
+
+    ``factor`` (n_lines, n_mics, r), where given, is the CSM as ``factor @ factor^H`` (a Welch
+    CSM: its r block spectra); the beam power ``v^H C v`` is then ``|factor^H v|^2``, r / n_mics
+    of the work of the full product, and equal to it."""
     n_points = steering.amplitude_ratio.shape[0]
     full = np.zeros((n_points, n_bands))
     removed = np.zeros((n_points, n_bands))
     p2 = steering.amplitude_ratio ** 2
     n_full, n_removed = _normalisers(p2)
     for k, (band, v) in enumerate(zip(steering.band_of_line, steering.each_line())):
-        quad = _quadratic_forms(v, csm[k])
+        if factor is None:
+            quad = _quadratic_forms(v, csm[k])
+        else:
+            projected = np.ascontiguousarray(v.conj() @ factor[k])
+            quad = np.einsum("gi,gi->g", projected.view(float), projected.view(float))
         auto = p2 @ csm[k].diagonal().real
         full[:, band] += quad / n_full
         removed[:, band] += (quad - auto) / n_removed
@@ -388,7 +397,10 @@ def clean_sc(csm, steering: Steering, n_bands: int, *, loop_gain: float = 0.3,
             h, ok = _source_components(np.einsum("cmn,cn->cm", d, w) / safe[:, None], w)
             active &= ok
             h = np.where(ok[:, None], h, 0.0)          # a diverged component removes nothing
-            step = (loop_gain * safe)[:, None, None] * h[:, :, None] * h.conj()[:, None, :]
+            # A huge (nearly diverged) component overflows here; the residual test below
+            # then refuses it.
+            with np.errstate(over="ignore", invalid="ignore"):
+                step = (loop_gain * safe)[:, None, None] * h[:, :, None] * h.conj()[:, None, :]
             step[:, np.arange(d.shape[1]), np.arange(d.shape[1])] = 0.0
             with np.errstate(invalid="ignore"):
                 new = np.abs(d - step).sum(axis=(1, 2))

@@ -19,13 +19,15 @@ def focus_of(context: WindowContext) -> Focus:
                         settings=context.settings, focus_body_m=FOCUS_BODY_M)
 
 
-def csm_and_steering(signals_pa, context: WindowContext) -> tuple[np.ndarray, Steering]:
-    """The window's CSMs and the steering of every grid point of the context."""
+def csm_and_steering(signals_pa, context: WindowContext) -> tuple[np.ndarray, Steering,
+                                                                  np.ndarray]:
+    """The window's CSMs, the steering of every grid point of the context, and the CSMs'
+    factor (:func:`flyover.imaging.csm.window_csm`)."""
     focus = focus_of(context)
-    csm, _ = window_csm(signals_pa, context.first_frame, focus, window=context.window,
+    csm, factor = window_csm(signals_pa, context.first_frame, focus, window=context.window,
                         clock=context.clock, atmosphere=context.atmosphere,
                         settings=context.settings)
-    return csm, focus.steering(context.centre_geometry)
+    return csm, focus.steering(context.centre_geometry), factor
 
 
 def unit_steering(body_m, points, context: WindowContext) -> tuple[Steering, Steering]:

@@ -19,7 +19,7 @@ from flyover.imaging.window import ImagingMethod, PointSpread, WindowContext
 
 
 def band_maps(signals_pa, context: WindowContext) -> BandPowers:
-    csm, steering = csm_and_steering(signals_pa, context)
+    csm, steering, _ = csm_and_steering(signals_pa, context)
     s = context.settings
     res = clean_sc(csm, steering, len(s.bands), loop_gain=s.clean_loop_gain,
                    max_sources=s.clean_max_sources)

@@ -12,8 +12,8 @@ from flyover.imaging.window import ImagingMethod, PointSpread, WindowContext
 
 
 def band_maps(signals_pa, context: WindowContext) -> BandPowers:
-    csm, steering = csm_and_steering(signals_pa, context)
-    return conventional_maps(csm, steering, len(context.settings.bands))
+    csm, steering, factor = csm_and_steering(signals_pa, context)
+    return conventional_maps(csm, steering, len(context.settings.bands), factor=factor)
 
 
 def point_spread(body_m, points, context: WindowContext, seed: int) -> PointSpread:

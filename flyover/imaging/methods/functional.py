@@ -14,7 +14,7 @@ from flyover.imaging.window import ImagingMethod, PointSpread, WindowContext
 
 
 def band_maps(signals_pa, context: WindowContext) -> BandPowers:
-    csm, steering = csm_and_steering(signals_pa, context)
+    csm, steering, _ = csm_and_steering(signals_pa, context)
     m = functional_maps(csm, steering, len(context.settings.bands),
                         context.settings.functional_exponent)
     return BandPowers(m, m)
