@@ -251,3 +251,45 @@ def test_maps_from_the_block_spectra_equal_maps_from_the_csm():
     for a, b in ((from_factor.full, direct.full),
                  (from_factor.diagonal_removed, direct.diagonal_removed)):
         np.testing.assert_allclose(a, b, rtol=1e-9, atol=1e-12 * np.abs(direct.full).max())
+
+
+def test_clean_sc_from_the_block_spectra_equals_clean_sc_from_the_csm():
+    # CLEAN-SC's starting maps from the block spectra against those from the CSM itself: the
+    # same clean sources and residual maps on a simulated window with two sources (both in
+    # single precision, whose rounding the power re-fit carries to 2e-4 of a source's power).
+    from flyover.imaging.methods._frequency import csm_and_steering
+    a = PointSource("a", (1.0, 0.0, 0.0), broadband=Broadband(90.0, 0.0, 100.0, 3000.0), seed=22)
+    b = PointSource("b", (-1.2, 0.4, 0.0), broadband=Broadband(84.0, 0.0, 100.0, 3000.0),
+                    seed=23)
+    track, atm, _, p = one_source_pass([a, b], noise_spl_db=50.0)
+    st = ChainSettings(third_octave_bands(800, 1600), np.ones(len(MICS)), 2.0)
+    w = windows_near_overhead(track, 20)[0]
+    ctx = window_context(w, track=track, clock=CLOCK, atmosphere=atm, mic_enu_m=MICS,
+                         grid_points_m=GRID.points_m(), settings=st)
+    csm, steering, factor = csm_and_steering(rows(p, ctx.first_frame, ctx.n_frames), ctx)
+    direct = clean_sc(csm, steering, len(st.bands))
+    from_factor = clean_sc(csm, steering, len(st.bands), factor=factor)
+    scale = direct.clean.max()
+    np.testing.assert_array_equal(from_factor.clean > 0, direct.clean > 0)
+    np.testing.assert_allclose(from_factor.clean, direct.clean, rtol=1e-3, atol=1e-6 * scale)
+    np.testing.assert_allclose(from_factor.residual, direct.residual, atol=1e-5 * scale)
+
+
+def test_compiled_source_components_match_numpy_iteration():
+    # CLEAN-SC's source component h = D w / P + |h|^2 w by the compiled fixed point, against
+    # the same iteration in numpy (naive reference) on rows that converge; a row whose
+    # iteration grows without bound (past 1e100 in numpy) is refused.
+    from flyover.imaging.csm import _source_components
+    rng = np.random.default_rng(9)
+    u = rng.standard_normal((4, 16)) + 1j * rng.standard_normal((4, 16))
+    w = u / (np.abs(u) ** 2).sum(axis=1, keepdims=True)
+    dw = 0.9 * u - np.abs(u) ** 2 * w * 0.9          # a lone source's D w / P, a little short
+    w[3], dw[3] = u[3], u[3]                            # no fixed point near: diverges
+    h_ref = dw.copy()
+    with np.errstate(over="ignore", invalid="ignore"):
+        for _ in range(50):
+            h_ref = dw + np.abs(h_ref) ** 2 * w
+    h, ok = _source_components(dw, w)
+    np.testing.assert_array_equal(ok, [True, True, True, False])
+    assert not np.all(np.abs(h_ref[3]) < 1e100)
+    np.testing.assert_allclose(h[:3], h_ref[:3], rtol=1e-8)

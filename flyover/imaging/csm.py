@@ -323,22 +323,17 @@ CLEAN_FLOOR = 1e-3
 
 def _source_components(dw, w, iterations: int = 50):
     """Per row, the fixed point of ``h = dw + |h|^2 w`` (the coherent source component with
-    the CSM's diagonal restored), and whether it converged (no coherent source left if not)."""
-    h = dw.copy()
-    done = np.zeros(len(dw), bool)
-    with np.errstate(over="ignore", invalid="ignore"):
-        for _ in range(iterations):
-            new = dw + np.abs(h) ** 2 * w
-            change = np.linalg.norm(new - h, axis=1) <= 1e-9 * np.linalg.norm(new, axis=1)
-            h = np.where(done[:, None], h, new)
-            done |= change
-            if done.all():
-                break
-    return h, done & np.all(np.isfinite(h), axis=1)
+    the CSM's diagonal restored), and whether it converged (no coherent source left if not):
+    :func:`flyover.imaging._kernels.coherent_components`."""
+    dw = np.ascontiguousarray(dw, complex)
+    h = np.empty_like(dw)
+    ok = np.empty(len(dw), bool)
+    _kernels.coherent_components(dw, np.ascontiguousarray(w, complex), iterations, h, ok)
+    return h, ok
 
 
 def clean_sc(csm, steering: Steering, n_bands: int, *, loop_gain: float = 0.3,
-             max_sources: int = 200, lines_per_batch: int = 8) -> CleanResult:
+             max_sources: int = 200, lines_per_batch: int = 8, factor=None) -> CleanResult:
     """CLEAN-SC (Sijtsma 2007) with diagonal removal, per frequency line.
 
     Each iteration finds the peak of the diagonal-removed map, takes the source component
@@ -349,7 +344,8 @@ def clean_sc(csm, steering: Steering, n_bands: int, *, loop_gain: float = 0.3,
     when the residual CSM's off-diagonal magnitude no longer decreases, when no coherent
     component is found, or after ``max_sources`` iterations. The powers of the points found
     are then fitted again as incoherent sources (:func:`_refit`), and the residual is what they
-    leave; the maps as removed are kept too. The map is updated from h alone
+    leave; the maps as removed are kept too. The starting maps come from ``factor`` where
+    given (as in :func:`conventional_maps`). The map is updated from h alone
     (no new product with the CSM), and lines are cleaned in batches, so an iteration costs
     O(n_points n_mics) per line in a few array operations.
     """
@@ -378,8 +374,16 @@ def clean_sc(csm, steering: Steering, n_bands: int, *, loop_gain: float = 0.3,
         n_removed = np.broadcast_to(n_removed_line, vc.shape[:2])
         d = csm[lines].copy()
         d[:, np.arange(d.shape[1]), np.arange(d.shape[1])] = 0.0
-        # v^H D v = (conj v)^H conj(D) (conj v) for Hermitian D.
-        pmap = np.stack([_quadratic_forms(vc[k], d[k].conj()) for k in range(c)]) / n_removed
+        if factor is None:
+            # v^H D v = (conj v)^H conj(D) (conj v) for Hermitian D.
+            quad = np.stack([_quadratic_forms(vc[k], d[k].conj()) for k in range(c)])
+        else:
+            # v^H D v = |F^H v|^2 - sum |v|^2 diag(C), F^H v = (conj v) F.
+            projected = vc @ factor[lines].astype(np.complex64)
+            quad = (np.einsum("cgi,cgi->cg", projected.view(np.float32),
+                              projected.view(np.float32), dtype=float)
+                    - (csm[lines].diagonal(axis1=1, axis2=2).real @ p2_line.T))
+        pmap = quad / n_removed
         start = pmap.copy()
         size = np.abs(d).sum(axis=(1, 2))
         first = pmap.max(axis=1)
