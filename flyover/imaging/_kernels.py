@@ -33,21 +33,24 @@ def dedoppler_cubic(signals, rx_pos, amp, step, out):
     out : float32 array (n_grid, n_mics, n_out)
         Filled in place; n_out <= (n_nodes - 1) * step.
     """
-    n_grid, n_mics, n_nodes = rx_pos.shape
-    n_out = out.shape[2]
-    inv = 1.0 / step
+    n_grid, n_mics, _ = rx_pos.shape
     for g in numba.prange(n_grid):
         for m in range(n_mics):
-            sig = signals[m]
-            for j in range(n_nodes - 1):
-                k0 = j * step
-                if k0 >= n_out:
-                    break
-                k1 = min(k0 + step, n_out)
-                p0 = rx_pos[g, m, j]
-                _read_segment(sig, p0, (rx_pos[g, m, j + 1] - p0) * inv, amp[g, m, j],
-                              np.float32((amp[g, m, j + 1] - amp[g, m, j]) * inv), out[g, m],
-                              k0, k1)
+            _read_channel(signals[m], rx_pos[g, m], amp[g, m], step, out[g, m])
+
+
+@numba.njit(fastmath=True, cache=True, inline="always")
+def _read_channel(sig, rx_pos, amp, step, dst):
+    """``dst`` = the channel ``sig`` read at the positions ``rx_pos`` and scaled by ``amp``,
+    both given at nodes every ``step`` output samples and linear between them."""
+    inv = 1.0 / step
+    n_out = dst.shape[0]
+    for j in range(rx_pos.shape[0] - 1):
+        k0 = j * step
+        if k0 >= n_out:
+            break
+        _read_segment(sig, rx_pos[j], (rx_pos[j + 1] - rx_pos[j]) * inv, amp[j],
+                      np.float32((amp[j + 1] - amp[j]) * inv), dst, k0, min(k0 + step, n_out))
 
 
 @numba.njit(fastmath=True, cache=True, inline="always")
@@ -105,24 +108,16 @@ def dedoppler_summed(signals, reception_s, origin_s, scale, amp, coef, step, out
     n_grid, n_mics, n_nodes = reception_s.shape
     n_sums = coef.shape[1]
     n_out = out.shape[2]
-    inv = 1.0 / step
     for g in numba.prange(n_grid):
         out[g] = 0.0
         # One microphone's signal at a time, then added to the sums (vectorised): writing
         # the sums sample by sample is slower than the interpolation itself.
         buf = np.empty(n_out, np.float32)
+        positions = np.empty(n_nodes)
         for m in range(n_mics):
-            sig = signals[m]
-            for j in range(n_nodes - 1):
-                k0 = j * step
-                if k0 >= n_out:
-                    break
-                k1 = min(k0 + step, n_out)
-                p0 = (reception_s[g, m, j] - origin_s[m]) * scale[m]
-                _read_segment(sig, p0,
-                              ((reception_s[g, m, j + 1] - origin_s[m]) * scale[m] - p0) * inv,
-                              amp[g, m, j],
-                              np.float32((amp[g, m, j + 1] - amp[g, m, j]) * inv), buf, k0, k1)
+            for j in range(n_nodes):
+                positions[j] = (reception_s[g, m, j] - origin_s[m]) * scale[m]
+            _read_channel(signals[m], positions, amp[g, m], step, buf)
             for q in range(n_sums):
                 c = coef[g, q, m]
                 row = out[g, q]
