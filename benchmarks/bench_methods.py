@@ -38,7 +38,7 @@ from flyover.forward.moving_source import (Broadband, PointSource, Propagator,  
                                            SourceSignal, Tone, received_pressure_pa)
 from flyover.geometry.track import straight_track  # noqa: E402
 from flyover.geometry.windows import plan_windows  # noqa: E402
-from flyover.imaging.dedoppler import ChainSettings, dedopplerized_signals  # noqa: E402
+from flyover.imaging.dedoppler import ChainSettings  # noqa: E402
 from flyover.imaging.methods import method_named  # noqa: E402
 from flyover.imaging.window import image_window, window_context  # noqa: E402
 from flyover.model.campaign import Region, VehicleGrid  # noqa: E402

@@ -335,8 +335,9 @@ def interpolation_response(frequency_hz, sample_rate_hz: float, interpolation: s
 
     4-point Lagrange read at ``i + d`` turns ``exp(i 2 pi nu k)`` into ``H(nu, d) exp(i 2 pi nu
     (i + d))`` with ``H = sum_k L_k(d) exp(i 2 pi nu (k - d))``; this is the mean of H over d
-    (8-point Gauss-Legendre: H is smooth in d), nu the received frequency over the rate it is read at (a quarter of it
-    after the 'sinc' option's oversampling, whose filter is flat there). The steering model of
+    (8-point Gauss-Legendre: H is smooth in d), nu the received frequency over the rate it is
+    read at (a quarter of it after the 'sinc' option's oversampling, whose filter is flat
+    there). The steering model of
     the point-spread applies it to the beam (coherent part) and its square to the autopowers.
 
     Parameters

@@ -1,5 +1,6 @@
 """The Rayleigh resolution of an array on the vehicle grid (a reference figure; which regions a
-window resolves is decided with its own point-spread, :func:`flyover.imaging.window.image_window`)."""
+window resolves is decided with its own point-spread: :func:`flyover.imaging.window.image_window`).
+"""
 
 from __future__ import annotations
 

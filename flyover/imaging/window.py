@@ -207,7 +207,6 @@ def image_window(signals_pa, context: WindowContext, *, method: ImagingMethod, g
     """
     bp = method.band_maps(signals_pa, context)
     use_removed = context.diagonal_removal
-    maps = bp.diagonal_removed if use_removed else bp.full
     pts = np.asarray(grid_points_m, float)
     names = list(regions)
     n_r, n_b = len(names), len(context.settings.bands)

@@ -1,8 +1,9 @@
 """CLEAN-SC (Sijtsma 2007) on the frequency-domain engine's CSMs: each window's sources found
 and removed one by one, their powers re-fitted as incoherent sources and put on their grid
 points (a clean beam one grid cell wide); the maps before the re-fit are its variant, and a
-region level that differs between the two by more than 1 dB is not given. Its BandPowers carry the clean map (``diagonal_removed``), the clean map plus the
-diagonal-removed residual (``full``) and the residual itself. A unit source's clean map is its
+region level that differs between the two by more than 1 dB is not given. Its BandPowers
+carry the clean map (``diagonal_removed``), the clean map plus the diagonal-removed residual
+(``full``) and the residual itself. A unit source's clean map is its
 power at the grid point where its conventional point-spread peaks, so source power integration
 over a region is the sum of the clean powers found in it, plus the residual integrated over it
 against the unit source's conventional map."""

@@ -51,11 +51,11 @@ def modelled_point_spread(body_m, points, context: WindowContext) -> PointSpread
 
     A source at s appears in grid point g's de-Dopplerized signal of microphone m as its own
     signal advanced by ``(t_gm - t_sm) / (dt/dtau)_sm`` (the difference of the reception times
-    of sound emitted at one instant, in the source's time) and scaled by ``A_gm / A_sm`` (the amplitude factors),
-    times the chain's absorption compensation of (g, m) against the source path's own
-    absorption, and the interpolation's mean response at the received frequency. Per line
-    (1 Pa^2 each) the beam is the weighted sum of these over microphones, the autopowers the
-    weighted sum of their squares, exactly as :func:`window_band_powers` forms the maps. The
+    of sound emitted at one instant, in the source's time) and scaled by ``A_gm / A_sm`` (the
+    amplitude factors), times the chain's absorption compensation of (g, m) against the source
+    path's own absorption, and the interpolation's mean response at the received frequency. Per
+    line (1 Pa^2 each) the beam is the weighted sum of these over microphones, the autopowers
+    the weighted sum of their squares, exactly as :func:`window_band_powers` forms the maps. The
     geometry is taken at ``MODEL_INSTANTS`` instants across the window, their beam powers
     weighted by the window's squared taper (free field: raised microphones' reflection is not
     modelled here).
