@@ -40,7 +40,8 @@ from flyover.geometry.track import straight_track  # noqa: E402
 from flyover.geometry.windows import plan_windows  # noqa: E402
 from flyover.imaging.dedoppler import ChainSettings  # noqa: E402
 from flyover.imaging.methods import method_named  # noqa: E402
-from flyover.imaging.window import image_window, window_context  # noqa: E402
+from flyover.imaging.window import (blas_on_one_thread, image_window,  # noqa: E402
+                                    window_context)
 from flyover.model.campaign import Region, VehicleGrid  # noqa: E402
 from flyover.sim.scenario import incoherent_noise_pa, spiral_layout  # noqa: E402
 from flyover.sync.timebase import ArrayClock, RecordingClock  # noqa: E402
@@ -121,7 +122,8 @@ def time_method(method, chosen, *, track, clock, atm, mics, points, settings, re
         if method.name.startswith("time-domain"):
             ctx.geometry          # the full node geometry is the time-domain chain's
         t1 = time.perf_counter()
-        maps = method.band_maps(span, ctx)
+        with blas_on_one_thread():        # as image_window runs it
+            maps = method.band_maps(span, ctx)
         t2 = time.perf_counter()
         # The unit sources and the solve alone: the window's maps given back as computed.
         given = replace(method, band_maps=lambda *_: maps)

@@ -321,17 +321,6 @@ class CleanResult:
 CLEAN_FLOOR = 1e-3
 
 
-def _source_components(dw, w, iterations: int = 50):
-    """Per row, the fixed point of ``h = dw + |h|^2 w`` (the coherent source component with
-    the CSM's diagonal restored), and whether it converged (no coherent source left if not):
-    :func:`flyover.imaging._kernels.coherent_components`."""
-    dw = np.ascontiguousarray(dw, complex)
-    h = np.empty_like(dw)
-    ok = np.empty(len(dw), bool)
-    _kernels.coherent_components(dw, np.ascontiguousarray(w, complex), iterations, h, ok)
-    return h, ok
-
-
 def clean_sc(csm, steering: Steering, n_bands: int, *, loop_gain: float = 0.3,
              max_sources: int = 200, lines_per_batch: int = 8, factor=None) -> CleanResult:
     """CLEAN-SC (Sijtsma 2007) with diagonal removal, per frequency line.
@@ -346,8 +335,9 @@ def clean_sc(csm, steering: Steering, n_bands: int, *, loop_gain: float = 0.3,
     are then fitted again as incoherent sources (:func:`_refit`), and the residual is what they
     leave; the maps as removed are kept too. The starting maps come from ``factor`` where
     given (as in :func:`conventional_maps`). The map is updated from h alone
-    (no new product with the CSM), and lines are cleaned in batches, so an iteration costs
-    O(n_points n_mics) per line in a few array operations.
+    (no new product with the CSM), so an iteration costs O(n_points n_mics) per line; the
+    iterations are compiled (:func:`flyover.imaging._kernels.clean_lines`), the lines of a
+    batch in parallel, each one's steering vectors held in the core's cache.
     """
     n_points = steering.amplitude_ratio.shape[0]
     n_lines = len(steering.band_of_line)
@@ -364,14 +354,11 @@ def clean_sc(csm, steering: Steering, n_bands: int, *, loop_gain: float = 0.3,
     for lo in range(0, n_lines, lines_per_batch):
         lines = np.arange(lo, min(lo + lines_per_batch, n_lines))
         c = len(lines)
-        # The map updates read every steering vector of the batch each iteration: in single
-        # precision they move half the memory (their rounding, 1e-7, is far below the floor).
+        # The map updates read a line's steering vectors each iteration: in single precision
+        # they move half the memory (their rounding, 1e-7, is far below the floor).
         vc = np.empty((c,) + steering.amplitude_ratio.shape, np.complex64)   # (c, n_g, n_m)
         for k in range(c):
             vc[k] = next(every_line).conj()
-        p2 = np.broadcast_to(p2_line, vc.shape)
-        s2 = np.broadcast_to(s2_line, vc.shape[:2])
-        n_removed = np.broadcast_to(n_removed_line, vc.shape[:2])
         d = csm[lines].copy()
         d[:, np.arange(d.shape[1]), np.arange(d.shape[1])] = 0.0
         if factor is None:
@@ -383,52 +370,20 @@ def clean_sc(csm, steering: Steering, n_bands: int, *, loop_gain: float = 0.3,
             quad = (np.einsum("cgi,cgi->cg", projected.view(np.float32),
                               projected.view(np.float32), dtype=float)
                     - (csm[lines].diagonal(axis1=1, axis2=2).real @ p2_line.T))
-        pmap = quad / n_removed
+        pmap = quad / n_removed_line
         start = pmap.copy()
-        size = np.abs(d).sum(axis=(1, 2))
-        first = pmap.max(axis=1)
-        active = first > 0
         found = np.zeros((c, n_points))
-        rows = np.arange(c)
-        for it in range(max_sources):
-            j = np.argmax(pmap, axis=1)
-            p_max = pmap[rows, j]
-            active &= p_max > CLEAN_FLOOR * first
-            if not active.any():
-                break
-            safe = np.where(active, p_max, 1.0)
-            w = vc[rows, j].conj().astype(complex) / s2[rows, j][:, None]
-            h, ok = _source_components(np.einsum("cmn,cn->cm", d, w) / safe[:, None], w)
-            active &= ok
-            h = np.where(ok[:, None], h, 0.0)          # a diverged component removes nothing
-            # A huge (nearly diverged) component overflows here; the residual test below
-            # then refuses it.
-            with np.errstate(over="ignore", invalid="ignore"):
-                step = (loop_gain * safe)[:, None, None] * h[:, :, None] * h.conj()[:, None, :]
-            step[:, np.arange(d.shape[1]), np.arange(d.shape[1])] = 0.0
-            with np.errstate(invalid="ignore"):
-                new = np.abs(d - step).sum(axis=(1, 2))
-            active &= new < size
-            if not active.any():
-                break
-            a = np.flatnonzero(active)
-            d[a] -= step[a]
-            size[a] = new[a]
-            found[a, j[a]] += loop_gain * p_max[a]
-            # Products over every line of the batch (no copies of the steering), kept where
-            # active: each line's map loses the removed component's own map.
-            h = np.where(active[:, None], h, 0.0)
-            vh = (vc @ h[:, :, None].astype(np.complex64))[..., 0]
-            ph = (np.abs(h) ** 2) @ p2_line.T
-            pmap -= (loop_gain * np.where(active, p_max, 0.0))[:, None] * (
-                np.abs(vh) ** 2 - ph) / n_removed
-            iterations[lines[a]] = it + 1
+        planes = np.empty((c, n_points, 3, vc.shape[2]), np.float32)
+        planes[:, :, 0], planes[:, :, 1], planes[:, :, 2] = vc.real, vc.imag, p2_line
+        _kernels.clean_lines(planes, s2_line, n_removed_line, d, pmap, loop_gain, max_sources,
+                             CLEAN_FLOOR, found, iterations[lo:lo + c])
         bands = steering.band_of_line[lines]
         for b in np.unique(bands):
             removed_clean[:, b] += found[bands == b].sum(axis=0)
             removed_residual[:, b] += pmap[bands == b].sum(axis=0)
         for k in range(c):
-            found[k], pmap[k] = _refit(found[k], start[k], vc[k].conj(), p2[k], n_removed[k])
+            found[k], pmap[k] = _refit(found[k], start[k], vc[k].conj(), p2_line,
+                                           n_removed_line)
         for b in np.unique(bands):
             clean[:, b] += found[bands == b].sum(axis=0)
             residual[:, b] += pmap[bands == b].sum(axis=0)

@@ -13,9 +13,10 @@ from __future__ import annotations
 
 from collections.abc import Callable
 from dataclasses import dataclass, field
-from functools import cached_property
+from functools import cache, cached_property
 
 import numpy as np
+from threadpoolctl import ThreadpoolController
 
 from flyover.acoustics.atmosphere import Atmosphere
 from flyover.geometry.track import TrackModel
@@ -179,6 +180,23 @@ def window_context(window: Window, *, track: TrackModel, clock: ArrayClock,
                          diagonal_removal, workers)
 
 
+@cache
+def _thread_pools() -> ThreadpoolController:
+    # Scanned once (a scan takes milliseconds), when numpy's and scipy's BLAS are loaded: the
+    # imaging modules import both.
+    return ThreadpoolController()
+
+
+def blas_on_one_thread():
+    """A context in which BLAS (numpy's and scipy's) runs on one thread.
+
+    Imaging is parallel in its compiled kernels (numba, ``context.workers`` threads), and its
+    BLAS products are small. Idle OpenBLAS threads spin-wait after each product and take the
+    cores the kernels need: with both pools on 2 cores, a window of CLEAN-SC took 2.2x as long
+    and the frequency-domain unit sources 3x (benchmarks/bench_methods.py)."""
+    return _thread_pools().limit(limits=1, user_api="blas")
+
+
 def image_window(signals_pa, context: WindowContext, *, method: ImagingMethod, grid_points_m,
                  regions: dict[str, Region]) -> WindowMaps:
     """Maps of one window, the power of each region (source power integration) and whether
@@ -203,8 +221,16 @@ def image_window(signals_pa, context: WindowContext, *, method: ImagingMethod, g
     leakage into it the unit source cannot pin down), the level is not given. Pairs of regions
     are resolved where their midpoint lies outside both unit sources' half-power main lobes
     (the planning criterion, with this window's geometry: foreshortening included); see
-    :func:`flyover.imaging.integration.region_verdicts` for the rest.
+    :func:`flyover.imaging.integration.region_verdicts` for the rest. BLAS runs on one thread
+    meanwhile (:func:`blas_on_one_thread`).
     """
+    with blas_on_one_thread():
+        return _image_window(signals_pa, context, method=method, grid_points_m=grid_points_m,
+                             regions=regions)
+
+
+def _image_window(signals_pa, context: WindowContext, *, method: ImagingMethod, grid_points_m,
+                  regions: dict[str, Region]) -> WindowMaps:
     bp = method.band_maps(signals_pa, context)
     use_removed = context.diagonal_removal
     pts = np.asarray(grid_points_m, float)
