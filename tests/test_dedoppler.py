@@ -403,6 +403,34 @@ def test_summed_chain_matches_every_microphones_spectra(top_hz, wind):
     assert reductions == ({4} if top_hz == 1000 else {1})
 
 
+def test_gain_terms_are_the_fewest_within_tolerance():
+    # The summed chain's low-rank absorption gains on a real window's geometry (ISO 9613-1
+    # gains to 5 kHz, 60 degrees from overhead): every gain within GAIN_TOLERANCE of the
+    # largest, one term fewer is not; and no rank-k form of the stacked band profiles does
+    # better than the truncated SVD (Eckart-Young), which numpy's SVD gives as the reference.
+    from flyover.imaging.dedoppler import GAIN_TOLERANCE, absorption_gains, gain_terms
+    track, atm, _, _ = one_source_pass([PointSource("a", (0.0, 0.0, 0.0), tones=(
+        Tone(500.0, 80.0),))], noise_spl_db=40.0)
+    st = ChainSettings(third_octave_bands(200, 5000), np.ones(len(MICS)), 2.0)
+    w = windows_near_overhead(track, 60)[0]
+    ctx = window_context(w, track=track, clock=CLOCK, atmosphere=atm, mic_enu_m=MICS,
+                         grid_points_m=VehicleGrid((-2.6, 2.6), (-1.2, 1.2), 0.2).points_m(),
+                         settings=st)
+    weighted = absorption_gains(st, atm, ctx.geometry).astype(float)
+    coef, basis = gain_terms(weighted)
+    k = len(basis)
+    top = np.abs(weighted).max()
+    error = np.abs(np.einsum("gkm,kb->gmb", coef, basis) - weighted).max() / top
+    assert error <= GAIN_TOLERANCE
+    np.testing.assert_allclose(basis @ basis.T, np.eye(k), atol=1e-12)
+    flat = weighted.reshape(-1, weighted.shape[-1])
+    u, sv, vt = np.linalg.svd(flat, full_matrices=False)
+    fewer = (u[:, :k - 1] * sv[:k - 1]) @ vt[:k - 1]
+    assert k == 1 or np.abs(fewer - flat).max() / top > GAIN_TOLERANCE
+    # The same subspace as the SVD's leading k (the Gram route loses nothing that matters).
+    np.testing.assert_allclose(np.abs(basis @ vt[:k].T), np.eye(k), atol=1e-6)
+
+
 def test_lowpass_keeps_its_passband_and_stops_above():
     # The summed chain's low-pass: a tone in the passband passes unchanged (to 1e-4 of its
     # amplitude, away from the ends), one beyond the stop edge is gone (below -80 dB).

@@ -54,32 +54,45 @@ def _read_channel(sig, rx_pos, amp, step, dst):
 
 
 @numba.njit(fastmath=True, cache=True, inline="always")
+def _lagrange4(sig, i, d):
+    """The channel ``sig`` at position ``i + d`` (0 <= d < 1), 4-point Lagrange interpolation
+    in Horner form (the same polynomial, fewer operations)."""
+    ym1 = sig[i - 1]
+    y0 = sig[i]
+    y1 = sig[i + 1]
+    y2 = sig[i + 2]
+    c1 = y1 - np.float32(1.0 / 3.0) * ym1 - np.float32(0.5) * y0 - np.float32(1.0 / 6.0) * y2
+    c2 = np.float32(0.5) * (ym1 + y1) - y0
+    c3 = np.float32(1.0 / 6.0) * (y2 - ym1) + np.float32(0.5) * (y0 - y1)
+    return ((c3 * d + c2) * d + c1) * d + y0
+
+
+@numba.njit(fastmath=True, cache=True, inline="always")
 def _read_segment(sig, p0, dp, a0, da, dst, k0, k1):
     """``dst[k0:k1]`` = the channel ``sig`` read with 4-point Lagrange interpolation from
     position p0 on, dp samples further each output sample, times an amplitude a0 growing by
     da: one stretch between two nodes of the de-Dopplerization kernels."""
-    # Walk the reception position incrementally: integer part and fraction apart (no
-    # float-to-int conversion per sample: measured faster at one and at four samples a step).
-    i = int(p0)
-    frac = p0 - i
     a = np.float32(a0)
-    for k in range(k0, k1):
-        d = np.float32(frac)
-        ym1 = sig[i - 1]
-        y0 = sig[i]
-        y1 = sig[i + 1]
-        y2 = sig[i + 2]
-        # 4-point Lagrange in Horner form (same polynomial, fewer operations).
-        c1 = y1 - np.float32(1.0 / 3.0) * ym1 - np.float32(0.5) * y0 \
-            - np.float32(1.0 / 6.0) * y2
-        c2 = np.float32(0.5) * (ym1 + y1) - y0
-        c3 = np.float32(1.0 / 6.0) * (y2 - ym1) + np.float32(0.5) * (y0 - y1)
-        dst[k] = a * (((c3 * d + c2) * d + c1) * d + y0)
-        a += da
-        frac += dp
-        while frac >= 1.0:
-            frac -= 1.0
-            i += 1
+    if dp < 1.5:
+        # About a sample a step: the position walked incrementally, integer part and fraction
+        # apart (no float-to-int conversion per sample; 1.3x faster here).
+        i = int(p0)
+        frac = p0 - i
+        for k in range(k0, k1):
+            dst[k] = a * _lagrange4(sig, i, np.float32(frac))
+            a += da
+            frac += dp
+            while frac >= 1.0:
+                frac -= 1.0
+                i += 1
+    else:
+        # Several samples a step (a decimated read): the walk's chain of subtractions would
+        # bound the loop, so each position is computed afresh (1.35x faster at 4 a step).
+        for k in range(k0, k1):
+            pos = p0 + (k - k0) * dp
+            i = int(pos)
+            dst[k] = a * _lagrange4(sig, i, np.float32(pos - i))
+            a += da
 
 
 @numba.njit(parallel=True, fastmath=True, cache=True)

@@ -57,6 +57,9 @@ class WindowContext:
         Whether levels come from the diagonal-removed maps.
     workers : int
         Threads for FFTs.
+
+    Values derived from the window once and shared by its unit sources are kept by
+    :meth:`derived`.
     """
 
     window: Window
@@ -71,6 +74,15 @@ class WindowContext:
     n_frames: int
     diagonal_removal: bool = True
     workers: int = 1
+    _derived: dict = field(default_factory=dict, init=False, repr=False, compare=False)
+
+    def derived(self, key, make: Callable[[], object]):
+        """``make()``, computed on the first call with ``key`` (hashable) and kept with the
+        context: what every unit source of a window would otherwise compute again (the focus
+        of the frequency-domain methods, the grid side of the time-domain steering model)."""
+        if key not in self._derived:
+            self._derived[key] = make()
+        return self._derived[key]
 
     @cached_property
     def geometry(self) -> ReceptionGeometry:

@@ -14,9 +14,10 @@ FOCUS_BODY_M = np.zeros(3)
 
 
 def focus_of(context: WindowContext) -> Focus:
-    return window_focus(track=context.track, window=context.window,
-                        mic_enu_m=context.mic_enu_m, atmosphere=context.atmosphere,
-                        settings=context.settings, focus_body_m=FOCUS_BODY_M)
+    """The window's focus (computed once per window)."""
+    return context.derived("focus", lambda: window_focus(
+        track=context.track, window=context.window, mic_enu_m=context.mic_enu_m,
+        atmosphere=context.atmosphere, settings=context.settings, focus_body_m=FOCUS_BODY_M))
 
 
 def csm_and_steering(signals_pa, context: WindowContext) -> tuple[np.ndarray, Steering,
@@ -38,5 +39,7 @@ def unit_steering(body_m, points, context: WindowContext) -> tuple[Steering, Ste
     source = reception_geometry(context.track, context.window, np.atleast_2d(body_m),
                                 context.mic_enu_m, context.atmosphere, s.pressure_gain,
                                 node_step=s.node_step, ends_only=True)
-    return (focus.steering(subset(context.centre_geometry, points)), focus.steering(source))
+    grid = context.derived(("grid steering", np.asarray(points).tobytes()),
+                           lambda: focus.steering(subset(context.centre_geometry, points)))
+    return grid, focus.steering(source)
 

@@ -79,7 +79,6 @@ def modelled_point_spread(body_m, points, context: WindowContext) -> PointSpread
     used = np.flatnonzero(weights > 0)
     wt = weights[used]
     s1, s2 = wt.sum(), (wt ** 2).sum()
-    grid = subset(subset(context.geometry, points), (slice(None), used))
     source = reception_geometry(context.track, w, bodies, context.mic_enu_m[used],
                                 context.atmosphere, s.pressure_gain, node_step=s.node_step)
     # The geometry turns over the window: the beam is modelled at a few instants, each weighted
@@ -88,9 +87,10 @@ def modelled_point_spread(body_m, points, context: WindowContext) -> PointSpread
         w.n_samples / w.sample_rate_hz)
     taper = np.sin(np.pi * (np.arange(MODEL_INSTANTS) + 0.5) / MODEL_INSTANTS) ** 4
     taper /= taper.sum()
-    at_g = [values_at(grid, t) for t in instants]                 # (n_p, n_m) each
+    # The grid side is the same for every unit source of the window.
+    at_g, gain = context.derived(("modelled grid", np.asarray(points).tobytes()),
+                                 lambda: _grid_model(context, points, used, instants))
     at_s = [values_at(source, t) for t in instants]               # (n_b, n_m) each
-    gain = absorption_gains(s, context.atmosphere, grid)              # (n_p, n_m, n_b)
     freqs = np.fft.rfftfreq(w.n_samples, 1.0 / w.sample_rate_hz)
     n_p = len(at_g[0][0])
     full = np.zeros((n_p, len(bands)))
@@ -128,6 +128,15 @@ def modelled_point_spread(body_m, points, context: WindowContext) -> PointSpread
         removed[:, b] = share * (beam - auto).sum(axis=1) / (s1 ** 2 - s2)
         lines[b] = n_lines
     return PointSpread(BandPowers(full, removed), lines)
+
+
+def _grid_model(context: WindowContext, points, used, instants):
+    """The grid points' side of the steering model: their reception times and amplitude
+    factors at ``instants`` ((n_p, n_m) pairs) and the chain's absorption gains
+    (n_p, n_m, n_bands), on the used microphones."""
+    grid = subset(subset(context.geometry, points), (slice(None), used))
+    return ([values_at(grid, t) for t in instants],
+            absorption_gains(context.settings, context.atmosphere, grid))
 
 
 def simulated_point_spread(body_m, points, context: WindowContext, seed: int) -> PointSpread:
