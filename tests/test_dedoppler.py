@@ -103,18 +103,19 @@ def test_compiled_paths_match_numpy_reference(wind_m_s):
 
 def test_line_beam_powers_match_numpy_reference():
     # The compiled beam power of a unit line source (phase stepped between evenly spaced
-    # lines, computed afresh across a gap) against its definition evaluated with numpy.
+    # lines, computed afresh across a gap) against its definition evaluated with numpy, for
+    # two sets (source positions) with lines of their own.
     rng = np.random.default_rng(4)
-    ratio = rng.uniform(0.5, 2.0, (30, 12))
-    advance = rng.uniform(-2e-3, 2e-3, (30, 12))
-    f = 500.0 + 4.0 * np.arange(90)
-    f[40:] += 1.5
-    gain = rng.uniform(0.8, 1.2, (90, 12)) * np.exp(1j * rng.uniform(0, 6, (90, 12)))
-    out = np.empty((30, 90))
+    ratio = rng.uniform(0.5, 2.0, (2, 30, 12))
+    advance = rng.uniform(-2e-3, 2e-3, (2, 30, 12))
+    f = np.stack([500.0 + 4.0 * np.arange(90), 2000.0 + 12.0 * np.arange(90)])
+    f[0, 40:] += 1.5
+    gain = rng.uniform(0.8, 1.2, (2, 90, 12)) * np.exp(1j * rng.uniform(0, 6, (2, 90, 12)))
+    out = np.empty((2, 30, 90))
     _kernels.line_beam_powers(ratio, advance, f, gain, out)
-    ref = np.abs(np.einsum("pm,pmf,mf->pf", ratio,
-                           np.exp(2j * np.pi * f[None, None, :] * advance[:, :, None]),
-                           gain.T)) ** 2
+    ref = np.abs(np.einsum("spm,spmf,sfm->spf", ratio,
+                           np.exp(2j * np.pi * f[:, None, None, :] * advance[..., None]),
+                           gain)) ** 2
     np.testing.assert_allclose(out, ref, rtol=1e-10)
 
 

@@ -56,11 +56,13 @@ def _read_channel(sig, rx_pos, amp, step, dst):
 @numba.njit(fastmath=True, cache=True, inline="always")
 def _lagrange4(sig, i, d):
     """The channel ``sig`` at position ``i + d`` (0 <= d < 1), 4-point Lagrange interpolation
-    in Horner form (the same polynomial, fewer operations)."""
-    ym1 = sig[i - 1]
+    in Horner form (the same polynomial, fewer operations). ``i`` is unsigned: the reads are
+    checked before the kernels run, and numba then leaves out its negative-index handling of
+    each of the four reads (8-15 % faster)."""
+    ym1 = sig[i - np.uint64(1)]
     y0 = sig[i]
-    y1 = sig[i + 1]
-    y2 = sig[i + 2]
+    y1 = sig[i + np.uint64(1)]
+    y2 = sig[i + np.uint64(2)]
     c1 = y1 - np.float32(1.0 / 3.0) * ym1 - np.float32(0.5) * y0 - np.float32(1.0 / 6.0) * y2
     c2 = np.float32(0.5) * (ym1 + y1) - y0
     c3 = np.float32(1.0 / 6.0) * (y2 - ym1) + np.float32(0.5) * (y0 - y1)
@@ -76,22 +78,22 @@ def _read_segment(sig, p0, dp, a0, da, dst, k0, k1):
     if dp < 1.5:
         # About a sample a step: the position walked incrementally, integer part and fraction
         # apart (no float-to-int conversion per sample; 1.3x faster here).
-        i = int(p0)
-        frac = p0 - i
+        i = np.uint64(p0)
+        frac = p0 - np.float64(i)
         for k in range(k0, k1):
             dst[k] = a * _lagrange4(sig, i, np.float32(frac))
             a += da
             frac += dp
             while frac >= 1.0:
                 frac -= 1.0
-                i += 1
+                i += np.uint64(1)
     else:
         # Several samples a step (a decimated read): the walk's chain of subtractions would
         # bound the loop, so each position is computed afresh (1.35x faster at 4 a step).
         for k in range(k0, k1):
             pos = p0 + (k - k0) * dp
-            i = int(pos)
-            dst[k] = a * _lagrange4(sig, i, np.float32(pos - i))
+            i = np.uint64(pos)
+            dst[k] = a * _lagrange4(sig, i, np.float32(pos - np.float64(i)))
             a += da
 
 
@@ -192,54 +194,58 @@ def paths_on_grid(pos, vel, mics, wind, c, times, pressure_gain, reception, ampl
 
 @numba.njit(parallel=True, fastmath=True, cache=True)
 def line_beam_powers(ratio, advance_s, frequency_hz, line_gain, out):
-    """Beam power of a unit line source per grid point and line, from its steering::
+    """Beam power of a unit line source per grid point and line, from its steering, for
+    several sets (e.g. one source position per band) at once::
 
-        out[p, k] = | sum_m ratio[p, m] exp(i 2 pi f_k advance[p, m]) line_gain[k, m] |^2
+        out[s, p, k] = | sum_m ratio[s, p, m] exp(i 2 pi f_sk advance[s, p, m])
+                         line_gain[s, k, m] |^2
 
-    A line one spacing (``f_1 - f_0``) above the previous one has its phase factors stepped
+    A line one spacing (``f_s1 - f_s0``) above the previous one has its phase factors stepped
     from it by one complex product each (rounding grows by ~1e-16 a line); any other line is
     computed afresh. The microphones are the inner loop (independent, so it vectorises).
 
     Parameters
     ----------
-    ratio, advance_s : float64 arrays (n_points, n_mics)
+    ratio, advance_s : float64 arrays (n_sets, n_points, n_mics)
         The source as seen by each point's steering: amplitude and time advance.
-    frequency_hz : float64 array (n_lines,)
-    line_gain : complex128 array (n_lines, n_mics)
+    frequency_hz : float64 array (n_sets, n_lines)
+    line_gain : complex128 array (n_sets, n_lines, n_mics)
         What else the chain does to the line at each microphone (1 for nothing).
-    out : float64 array (n_points, n_lines)
+    out : float64 array (n_sets, n_points, n_lines)
         Filled in place.
     """
-    n_p, n_m = ratio.shape
-    n_f = frequency_hz.shape[0]
-    spacing = frequency_hz[1] - frequency_hz[0] if n_f > 1 else 0.0
-    for p in numba.prange(n_p):
+    n_s, n_p, n_m = ratio.shape
+    n_f = frequency_hz.shape[1]
+    for sp in numba.prange(n_s * n_p):
+        s = sp // n_p
+        p = sp % n_p
+        f = frequency_hz[s]
+        spacing = f[1] - f[0] if n_f > 1 else 0.0
         a = np.empty(n_m)
         zr = np.empty(n_m)
         zi = np.empty(n_m)
         sr = np.empty(n_m)
         si = np.empty(n_m)
         for m in range(n_m):
-            a[m] = 2.0 * np.pi * advance_s[p, m]
+            a[m] = 2.0 * np.pi * advance_s[s, p, m]
             sr[m] = np.cos(a[m] * spacing)
             si[m] = np.sin(a[m] * spacing)
         for k in range(n_f):
-            if k == 0 or abs(frequency_hz[k] - frequency_hz[k - 1] - spacing) > (
-                    1e-9 * abs(spacing)):
+            if k == 0 or abs(f[k] - f[k - 1] - spacing) > 1e-9 * abs(spacing):
                 for m in range(n_m):
-                    zr[m] = ratio[p, m] * np.cos(a[m] * frequency_hz[k])
-                    zi[m] = ratio[p, m] * np.sin(a[m] * frequency_hz[k])
+                    zr[m] = ratio[s, p, m] * np.cos(a[m] * f[k])
+                    zi[m] = ratio[s, p, m] * np.sin(a[m] * f[k])
             re = 0.0
             im = 0.0
             for m in range(n_m):
-                gr = line_gain[k, m].real
-                gi = line_gain[k, m].imag
+                gr = line_gain[s, k, m].real
+                gi = line_gain[s, k, m].imag
                 re += zr[m] * gr - zi[m] * gi
                 im += zi[m] * gr + zr[m] * gi
                 r0 = zr[m]
                 zr[m] = r0 * sr[m] - zi[m] * si[m]
                 zi[m] = r0 * si[m] + zi[m] * sr[m]
-            out[p, k] = re * re + im * im
+            out[s, p, k] = re * re + im * im
 
 
 @numba.njit(cache=True)

@@ -233,11 +233,12 @@ def _unit_source_lines(steering: Steering, source: Steering) -> tuple[np.ndarray
     for row in range(rows):
         mine = lines if rows == 1 else lines[steering.band_of_line == row]
         f = np.ascontiguousarray(steering.frequency_hz[mine])
-        out = np.empty((n_points, len(f)))
-        _kernels.line_beam_powers(steering.amplitude_ratio * source.amplitude_ratio[row],
-                                  source.advance_s[row] - steering.advance_s, f,
-                                  np.ones((len(f), n_mics), complex), out)
-        quad[:, mine] = out
+        out = np.empty((1, n_points, len(f)))
+        _kernels.line_beam_powers(
+            (steering.amplitude_ratio * source.amplitude_ratio[row])[None],
+            (source.advance_s[row] - steering.advance_s)[None], f[None],
+            np.ones((1, len(f), n_mics), complex), out)
+        quad[:, mine] = out[0]
     u2 = source.amplitude_ratio ** 2
     return quad, (u2[[0] * len(lines)] if rows == 1 else u2[steering.band_of_line])
 

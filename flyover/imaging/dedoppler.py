@@ -418,7 +418,12 @@ def _check_reads(rx_ends, sig) -> None:
 def window_memory_bytes(n_grid: int, n_mics: int, n_samples: int, n_bands: int,
                         settings: ChainSettings) -> int:
     """Peak memory (bytes) the chain needs for one window: geometry of every grid point and
-    microphone at the nodes, one chunk of de-Dopplerized signals and spectra, and the maps."""
+    microphone at the nodes, one chunk of de-Dopplerized signals and spectra, and the maps.
+
+    This prices the per-microphone chain (:func:`_per_microphone_band_powers`, used over
+    raised microphones): an upper bound for the summed chain, whose chunks hold a few sums per
+    point instead of every microphone's signal (0.5 GB at most on the benchmark geometry).
+    The workflow's memory requests are calibrated against it (:mod:`flyover.workflow.plan`)."""
     n_nodes = int(np.ceil((n_samples - 1) / settings.node_step)) + 1
     geometry = n_grid * n_mics * (n_nodes * 2 + 2) * 8
     chunk = min(settings.chunk_points, n_grid) * n_mics * n_samples * (4 + 8)

@@ -91,42 +91,47 @@ def modelled_point_spread(body_m, points, context: WindowContext) -> PointSpread
     at_g, gain = context.derived(("modelled grid", np.asarray(points).tobytes()),
                                  lambda: _grid_model(context, points, used, instants))
     at_s = [values_at(source, t) for t in instants]               # (n_b, n_m) each
-    freqs = np.fft.rfftfreq(w.n_samples, 1.0 / w.sample_rate_hz)
-    n_p = len(at_g[0][0])
-    full = np.zeros((n_p, len(bands)))
-    removed = np.zeros((n_p, len(bands)))
+    # Evenly spaced lines across each band (the kernel steps their phases by products), each
+    # standing for its share of the band's lines; bands with fewer lines are padded by
+    # continuing their progression with no gain, so that all bands go through at once.
+    spacing_hz = w.sample_rate_hz / w.n_samples
     lines = np.zeros(len(bands))
+    f = np.empty((len(bands), MODEL_LINES_PER_BAND))
+    modelled = np.zeros((len(bands), MODEL_LINES_PER_BAND), bool)
     for b, sl in enumerate(band_bins(bands, w.n_samples, w.sample_rate_hz)):
-        n_lines = sl.stop - sl.start
-        if n_lines <= 0:
-            continue
-        # Evenly spaced lines across the band (the kernel steps their phases by products).
+        n_lines = max(sl.stop - sl.start, 0)
         n_model = min(n_lines, MODEL_LINES_PER_BAND)
-        stride = n_lines // n_model
-        f = freqs[sl.start + (n_lines - 1 - stride * (n_model - 1)) // 2
-                  + stride * np.arange(n_model)]
-        u = interpolation_response(f[None, :] / source.doppler_center[b][:, None],
-                                   w.sample_rate_hz, s.interpolation)          # (n_m, n_f)
-        if s.absorption:
-            alpha = context.atmosphere.absorption_db_per_m(
-                f[None, :] / (1.0 - source.mach_r_center[b][:, None]))
-            u = u * 10.0 ** (-alpha * source.distance_center_m[b][:, None] / 20.0)
-        beam = np.zeros((n_p, len(f)))
-        auto = np.zeros((n_p, len(f)))
-        out = np.empty((n_p, len(f)))
-        for weight, (rx_g, amp_g), (rx_s, amp_s) in zip(taper, at_g, at_s):
-            ratio = amp_g / amp_s[b] * gain[:, :, b] * wt                     # (n_p, n_m)
-            # A reception-time difference is an emission-time difference over dt/dtau.
-            advance = (rx_g - rx_s[b]) / source.doppler_center[b]
-            _kernels.line_beam_powers(np.ascontiguousarray(ratio, float),
-                                      np.ascontiguousarray(advance), f,
-                                      np.ascontiguousarray(u.T, complex), out)
-            beam += weight * out
-            auto += weight * (ratio ** 2) @ (np.abs(u) ** 2)
-        share = n_lines / len(f)
-        full[:, b] = share * beam.sum(axis=1) / s1 ** 2
-        removed[:, b] = share * (beam - auto).sum(axis=1) / (s1 ** 2 - s2)
+        stride = n_lines // n_model if n_model else 1
+        start = sl.start + (n_lines - 1 - stride * (n_model - 1)) // 2 if n_model else sl.start
+        f[b] = spacing_hz * (start + stride * np.arange(MODEL_LINES_PER_BAND))
+        modelled[b, :n_model] = True
         lines[b] = n_lines
+    u = interpolation_response(f[:, None, :] / source.doppler_center[:, :, None],
+                               w.sample_rate_hz, s.interpolation)         # (n_b, n_m, n_f)
+    if s.absorption:
+        alpha = context.atmosphere.absorption_db_per_m(
+            f[:, None, :] / (1.0 - source.mach_r_center[:, :, None]))
+        u = u * 10.0 ** (-alpha * source.distance_center_m[:, :, None] / 20.0)
+    u = u * modelled[:, None, :]
+    line_gain = np.ascontiguousarray(u.transpose(0, 2, 1), complex)       # (n_b, n_f, n_m)
+    n_p = len(at_g[0][0])
+    beam = np.zeros((len(bands), n_p, MODEL_LINES_PER_BAND))
+    auto = np.zeros_like(beam)
+    out = np.empty_like(beam)
+    band_gain = gain.transpose(2, 0, 1) * wt                              # (n_b, n_p, n_m)
+    u2 = np.abs(u) ** 2
+    for weight, (rx_g, amp_g), (rx_s, amp_s) in zip(taper, at_g, at_s):
+        ratio = np.ascontiguousarray(amp_g[None] / amp_s[:, None, :] * band_gain)
+        # A reception-time difference is an emission-time difference over dt/dtau.
+        advance = np.ascontiguousarray(
+            (rx_g[None] - rx_s[:, None, :]) / source.doppler_center[:, None, :])
+        _kernels.line_beam_powers(ratio, advance, f, line_gain, out)
+        beam += weight * out
+        auto += weight * (ratio ** 2 @ u2)
+    share = np.divide(lines, modelled.sum(axis=1), out=np.zeros(len(bands)),
+                      where=modelled.any(axis=1))
+    full = (share[:, None] * beam.sum(axis=2) / s1 ** 2).T
+    removed = (share[:, None] * (beam - auto).sum(axis=2) / (s1 ** 2 - s2)).T
     return PointSpread(BandPowers(full, removed), lines)
 
 
