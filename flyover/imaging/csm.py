@@ -383,8 +383,7 @@ def clean_sc(csm, steering: Steering, n_bands: int, *, loop_gain: float = 0.3,
             removed_clean[:, b] += found[bands == b].sum(axis=0)
             removed_residual[:, b] += pmap[bands == b].sum(axis=0)
         for k in range(c):
-            found[k], pmap[k] = _refit(found[k], start[k], vc[k].conj(), p2_line,
-                                           n_removed_line)
+            found[k], pmap[k] = _refit(found[k], start[k], vc[k], p2_line, n_removed_line)
         for b in np.unique(bands):
             clean[:, b] += found[bands == b].sum(axis=0)
             residual[:, b] += pmap[bands == b].sum(axis=0)
@@ -407,7 +406,8 @@ def _refit(found, start_map, v, p2, n_removed) -> tuple[np.ndarray, np.ndarray]:
     ``min || D - sum_k p_k (v_k v_k^H - diag) ||_F``, whose normal equations need only the
     found points' steering vectors (Gram matrix ``|v_k^H v_l|^2 - sum_m |v_km|^2 |v_lm|^2``)
     and the starting map (``v_k^H D v_k``). The random cross-spectrum then averages out instead
-    of being removed.
+    of being removed. Only magnitudes of products of the steering vectors ``v`` (n_points,
+    n_mics) enter: their conjugates serve as well.
     """
     j = np.flatnonzero(found > 0)
     if not j.size:
@@ -423,5 +423,6 @@ def _refit(found, start_map, v, p2, n_removed) -> tuple[np.ndarray, np.ndarray]:
     powers, _ = nnls(lower.T, solve_triangular(lower, rhs, lower=True), maxiter=50 * len(j))
     out = np.zeros_like(found)
     out[j] = powers
-    maps = (np.abs(v.conj() @ vj.T) ** 2 - p2 @ p2[j].T) / n_removed[:, None]
+    # |v^H v_j| = |v^T conj(v_j)|: the small factor is conjugated, not the steering.
+    maps = (np.abs(v @ vj.conj().T) ** 2 - p2 @ p2[j].T) / n_removed[:, None]
     return out, start_map - maps @ powers
