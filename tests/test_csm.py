@@ -379,3 +379,22 @@ def test_compiled_clean_iterations_match_numpy():
     assert np.all(found[ref_found > 10 * near_floor] > 0)
     assert np.all(np.abs(found - ref_found) <= 1e-4 * ref_found + near_floor)
     assert np.all(np.abs(map_ - ref_map) <= near_floor)
+
+
+def test_compiled_steering_lines_match_their_definition():
+    # The conjugated steering vectors of a batch of lines, compiled (stepped between evenly
+    # spaced lines, afresh across a gap), against Steering.vectors evaluated with numpy.
+    from flyover.imaging import _kernels
+    rng = np.random.default_rng(5)
+    steering = Steering(np.r_[400.0 + 16.0 * np.arange(40), 1200.0, 1216.0],
+                        np.zeros(42, int), rng.uniform(0.8, 1.2, (50, 12)),
+                        rng.uniform(-2e-3, 2e-3, (50, 12)))
+    for f in (steering.frequency_hz[:40], steering.frequency_hz[38:]):
+        planes = np.empty((len(f), 50, 3, 12), np.float32)
+        vc = np.empty((len(f), 50, 12), np.complex64)
+        _kernels.steering_lines(steering.amplitude_ratio, steering.advance_s, f, planes, vc)
+        lines = np.flatnonzero(np.isin(steering.frequency_hz, f))
+        ref = np.stack([steering.vectors(k).conj() for k in lines])
+        np.testing.assert_allclose(vc, ref, rtol=0, atol=1e-6)
+        np.testing.assert_allclose(planes[:, :, 0] + 1j * planes[:, :, 1], ref, atol=1e-6)
+        np.testing.assert_allclose(planes[:, :, 2], np.abs(ref) ** 2, rtol=1e-6)

@@ -286,6 +286,61 @@ def coherent_component(dw, w, iterations, h):
     return converged
 
 
+@numba.njit(parallel=True, fastmath=True, cache=True)
+def steering_lines(ratio, advance_s, frequency_hz, planes, conjugate):
+    """The conjugated steering vectors ``conj(v_gm(f)) = ratio[g, m] exp(-i 2 pi f
+    advance[g, m])`` of a few lines, in the two forms CLEAN-SC reads them: as planes (real,
+    imaginary, squared magnitude per point, single precision) and as complex64.
+
+    Lines evenly spaced (``f_k = f_0 + k (f_1 - f_0)``) are stepped by one complex product
+    each from an exact first line; the products are formed in double precision.
+
+    Parameters
+    ----------
+    ratio, advance_s : float64 arrays (n_points, n_mics)
+    frequency_hz : float64 array (n_lines,)
+    planes : float32 array (n_lines, n_points, 3, n_mics)
+    conjugate : complex64 array (n_lines, n_points, n_mics)
+        Both filled in place.
+    """
+    n_g, n_m = ratio.shape
+    n_f = frequency_hz.shape[0]
+    spacing = frequency_hz[1] - frequency_hz[0] if n_f > 1 else 0.0
+    even = True
+    for k in range(1, n_f):
+        if abs(frequency_hz[k] - frequency_hz[k - 1] - spacing) > 1e-9 * abs(spacing):
+            even = False
+    for g in numba.prange(n_g):
+        # Microphones inner: each line's values are written where they lie, in a row.
+        a = np.empty(n_m)
+        zr = np.empty(n_m)
+        zi = np.empty(n_m)
+        sr = np.empty(n_m)
+        si = np.empty(n_m)
+        for m in range(n_m):
+            a[m] = -2.0 * np.pi * advance_s[g, m]
+            sr[m] = np.cos(a[m] * spacing)
+            si[m] = np.sin(a[m] * spacing)
+        for k in range(n_f):
+            if k == 0 or not even:
+                for m in range(n_m):
+                    zr[m] = ratio[g, m] * np.cos(a[m] * frequency_hz[k])
+                    zi[m] = ratio[g, m] * np.sin(a[m] * frequency_hz[k])
+            else:
+                for m in range(n_m):
+                    z0 = zr[m]
+                    zr[m] = z0 * sr[m] - zi[m] * si[m]
+                    zi[m] = z0 * si[m] + zi[m] * sr[m]
+            for m in range(n_m):
+                planes[k, g, 0, m] = zr[m]
+                planes[k, g, 1, m] = zi[m]
+                planes[k, g, 2, m] = ratio[g, m] * ratio[g, m]
+            out = conjugate[k, g].view(np.float32)
+            for m in range(n_m):
+                out[2 * m] = zr[m]
+                out[2 * m + 1] = zi[m]
+
+
 # CLEAN-SC components held back before every point's map is brought up to date with them: at
 # most this many, and only while the bound on how much they raise a map stays under
 # CATCH_UP_SHARE of the last peak (above it, most points would need their exact value anyway).

@@ -323,7 +323,7 @@ CLEAN_FLOOR = 1e-3
 
 
 def clean_sc(csm, steering: Steering, n_bands: int, *, loop_gain: float = 0.3,
-             max_sources: int = 200, lines_per_batch: int = 8, factor=None) -> CleanResult:
+             max_sources: int = 200, lines_per_batch: int = 32, factor=None) -> CleanResult:
     """CLEAN-SC (Sijtsma 2007) with diagonal removal, per frequency line.
 
     Each iteration finds the peak of the diagonal-removed map, takes the source component
@@ -347,19 +347,23 @@ def clean_sc(csm, steering: Steering, n_bands: int, *, loop_gain: float = 0.3,
     removed_clean = np.zeros((n_points, n_bands))
     removed_residual = np.zeros((n_points, n_bands))
     iterations = np.zeros(n_lines, int)
-    every_line = steering.each_line()
+    ratio = np.ascontiguousarray(steering.amplitude_ratio, float)
+    advance = np.ascontiguousarray(steering.advance_s, float)
     # |v| is the same on every line.
     p2_line = steering.amplitude_ratio ** 2
     s2_line = p2_line.sum(axis=1)
     n_removed_line = _normalisers(p2_line)[1]
+    # The map updates read a line's steering vectors each iteration: in single precision they
+    # move half the memory (their rounding, 1e-7, is far below the floor). The batch's arrays
+    # are allocated once: fresh pages for every batch cost as much as filling them.
+    batch = min(lines_per_batch, n_lines)
+    vc_all = np.empty((batch,) + ratio.shape, np.complex64)                 # (c, n_g, n_m)
+    planes_all = np.empty((batch, n_points, 3, ratio.shape[1]), np.float32)
     for lo in range(0, n_lines, lines_per_batch):
         lines = np.arange(lo, min(lo + lines_per_batch, n_lines))
         c = len(lines)
-        # The map updates read a line's steering vectors each iteration: in single precision
-        # they move half the memory (their rounding, 1e-7, is far below the floor).
-        vc = np.empty((c,) + steering.amplitude_ratio.shape, np.complex64)   # (c, n_g, n_m)
-        for k in range(c):
-            vc[k] = next(every_line).conj()
+        vc, planes = vc_all[:c], planes_all[:c]
+        _kernels.steering_lines(ratio, advance, steering.frequency_hz[lines], planes, vc)
         d = csm[lines].copy()
         d[:, np.arange(d.shape[1]), np.arange(d.shape[1])] = 0.0
         if factor is None:
@@ -374,8 +378,6 @@ def clean_sc(csm, steering: Steering, n_bands: int, *, loop_gain: float = 0.3,
         pmap = quad / n_removed_line
         start = pmap.copy()
         found = np.zeros((c, n_points))
-        planes = np.empty((c, n_points, 3, vc.shape[2]), np.float32)
-        planes[:, :, 0], planes[:, :, 1], planes[:, :, 2] = vc.real, vc.imag, p2_line
         _kernels.clean_lines(planes, s2_line, n_removed_line, d, pmap, loop_gain, max_sources,
                              CLEAN_FLOOR, found, iterations[lo:lo + c])
         bands = steering.band_of_line[lines]
