@@ -253,20 +253,26 @@ def test_maps_from_the_block_spectra_equal_maps_from_the_csm():
         np.testing.assert_allclose(a, b, rtol=1e-9, atol=1e-12 * np.abs(direct.full).max())
 
 
-def test_clean_sc_from_the_block_spectra_equals_clean_sc_from_the_csm():
-    # CLEAN-SC's starting maps from the block spectra against those from the CSM itself: the
-    # same clean sources and residual maps on a simulated window with two sources (both in
-    # single precision, whose rounding the power re-fit carries to 2e-4 of a source's power).
+def two_source_window(settings: ChainSettings):
+    """CSMs, steering and block spectra of a simulated window near overhead: two incoherent
+    broadband sources 6 dB apart on the grid, incoherent noise at 50 dB."""
     from flyover.imaging.methods._frequency import csm_and_steering
     a = PointSource("a", (1.0, 0.0, 0.0), broadband=Broadband(90.0, 0.0, 100.0, 3000.0), seed=22)
     b = PointSource("b", (-1.2, 0.4, 0.0), broadband=Broadband(84.0, 0.0, 100.0, 3000.0),
                     seed=23)
     track, atm, _, p = one_source_pass([a, b], noise_spl_db=50.0)
-    st = ChainSettings(third_octave_bands(800, 1600), np.ones(len(MICS)), 2.0)
     w = windows_near_overhead(track, 20)[0]
     ctx = window_context(w, track=track, clock=CLOCK, atmosphere=atm, mic_enu_m=MICS,
-                         grid_points_m=GRID.points_m(), settings=st)
-    csm, steering, factor = csm_and_steering(rows(p, ctx.first_frame, ctx.n_frames), ctx)
+                         grid_points_m=GRID.points_m(), settings=settings)
+    return csm_and_steering(rows(p, ctx.first_frame, ctx.n_frames), ctx)
+
+
+def test_clean_sc_from_the_block_spectra_equals_clean_sc_from_the_csm():
+    # CLEAN-SC's starting maps from the block spectra against those from the CSM itself: the
+    # same clean sources and residual maps on a simulated window with two sources (both in
+    # single precision, whose rounding the power re-fit carries to 2e-4 of a source's power).
+    st = ChainSettings(third_octave_bands(800, 1600), np.ones(len(MICS)), 2.0)
+    csm, steering, factor = two_source_window(st)
     direct = clean_sc(csm, steering, len(st.bands))
     from_factor = clean_sc(csm, steering, len(st.bands), factor=factor)
     scale = direct.clean.max()
@@ -350,16 +356,8 @@ def test_compiled_clean_iterations_match_numpy():
     # clean powers and residual maps agree within twice the floor's power of each line.
     from flyover.imaging import _kernels
     from flyover.imaging.csm import CLEAN_FLOOR, _normalisers
-    from flyover.imaging.methods._frequency import csm_and_steering
-    a = PointSource("a", (1.0, 0.0, 0.0), broadband=Broadband(90.0, 0.0, 100.0, 3000.0), seed=22)
-    b = PointSource("b", (-1.2, 0.4, 0.0), broadband=Broadband(84.0, 0.0, 100.0, 3000.0),
-                    seed=23)
-    track, atm, _, p = one_source_pass([a, b], noise_spl_db=50.0)
-    st = ChainSettings(third_octave_bands(500, 2000), np.ones(len(MICS)), 2.0)
-    w = windows_near_overhead(track, 20)[0]
-    ctx = window_context(w, track=track, clock=CLOCK, atmosphere=atm, mic_enu_m=MICS,
-                         grid_points_m=GRID.points_m(), settings=st)
-    csm, steering, _ = csm_and_steering(rows(p, ctx.first_frame, ctx.n_frames), ctx)
+    csm, steering, _ = two_source_window(
+        ChainSettings(third_octave_bands(500, 2000), np.ones(len(MICS)), 2.0))
     lines = np.arange(0, len(steering.frequency_hz), 3)
     v = np.stack([steering.vectors(k) for k in lines])
     p2 = steering.amplitude_ratio ** 2

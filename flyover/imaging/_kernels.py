@@ -192,6 +192,14 @@ def paths_on_grid(pos, vel, mics, wind, c, times, pressure_gain, reception, ampl
                                                      + n2 * wind[2]) / c)
 
 
+@numba.njit(fastmath=True, cache=True, inline="always")
+def _phase_steps(advance_s, spacing_hz, sign):
+    """Per microphone, ``a = sign 2 pi advance`` and the phase factor of one line spacing
+    ``exp(i a spacing)`` (real and imaginary parts): what stepping lines starts from."""
+    a = sign * 2.0 * np.pi * advance_s
+    return a, np.cos(a * spacing_hz), np.sin(a * spacing_hz)
+
+
 @numba.njit(parallel=True, fastmath=True, cache=True)
 def line_beam_powers(ratio, advance_s, frequency_hz, line_gain, out):
     """Beam power of a unit line source per grid point and line, from its steering, for
@@ -221,15 +229,9 @@ def line_beam_powers(ratio, advance_s, frequency_hz, line_gain, out):
         p = sp % n_p
         f = frequency_hz[s]
         spacing = f[1] - f[0] if n_f > 1 else 0.0
-        a = np.empty(n_m)
+        a, sr, si = _phase_steps(advance_s[s, p], spacing, 1.0)
         zr = np.empty(n_m)
         zi = np.empty(n_m)
-        sr = np.empty(n_m)
-        si = np.empty(n_m)
-        for m in range(n_m):
-            a[m] = 2.0 * np.pi * advance_s[s, p, m]
-            sr[m] = np.cos(a[m] * spacing)
-            si[m] = np.sin(a[m] * spacing)
         for k in range(n_f):
             if k == 0 or abs(f[k] - f[k - 1] - spacing) > 1e-9 * abs(spacing):
                 for m in range(n_m):
@@ -312,15 +314,9 @@ def steering_lines(ratio, advance_s, frequency_hz, planes, conjugate):
             even = False
     for g in numba.prange(n_g):
         # Microphones inner: each line's values are written where they lie, in a row.
-        a = np.empty(n_m)
+        a, sr, si = _phase_steps(advance_s[g], spacing, -1.0)
         zr = np.empty(n_m)
         zi = np.empty(n_m)
-        sr = np.empty(n_m)
-        si = np.empty(n_m)
-        for m in range(n_m):
-            a[m] = -2.0 * np.pi * advance_s[g, m]
-            sr[m] = np.cos(a[m] * spacing)
-            si[m] = np.sin(a[m] * spacing)
         for k in range(n_f):
             if k == 0 or not even:
                 for m in range(n_m):
