@@ -338,7 +338,8 @@ def clean_sc(csm, steering: Steering, n_bands: int, *, loop_gain: float = 0.3,
     given (as in :func:`conventional_maps`). The map is updated from h alone
     (no new product with the CSM), so an iteration costs O(n_points n_mics) per line; the
     iterations are compiled (:func:`flyover.imaging._kernels.clean_lines`), the lines of a
-    batch in parallel, each one's steering vectors held in the core's cache.
+    batch in parallel, and so are the batch's steering vectors
+    (:func:`flyover.imaging._kernels.steering_lines`).
     """
     n_points = steering.amplitude_ratio.shape[0]
     n_lines = len(steering.band_of_line)
