@@ -112,6 +112,10 @@ def test_verdicts_by_hand():
     assert first.note[1] == DOMINANT_NOTE and first.note[0] == ""
     assert list(second.valid) == [True, False, False]
     assert "3.0 dB" in second.note[1] and "not resolved" in second.note[2]
+    # A shifted solve that fails (an infinite change) is said so, not as "inf dB".
+    changes[0, 1] = np.inf
+    second = region_verdicts(powers, changes, pairs)[1]
+    assert not second.valid[0] and "cannot be solved" in second.note[0]
 
 
 def test_shift_changes_against_a_naive_solve():

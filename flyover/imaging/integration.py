@@ -146,8 +146,11 @@ def region_verdicts(powers, changes_db, resolved_pairs) -> list[RegionVerdict]:
                 notes.append("regions cannot be told apart in this band (leakage solve "
                              "ill-conditioned or not positive)")
             elif not steady[b]:
-                notes.append(f"unstable: the level moves {changes_db[b, i]:.1f} dB when a unit "
-                             "source shifts a quarter wavelength (or with the method's variant)")
+                # An infinite change: a shifted solve (or the variant) failed or found no power.
+                moves = (f"moves {changes_db[b, i]:.1f} dB" if np.isfinite(changes_db[b, i])
+                         else "cannot be solved")
+                notes.append(f"unstable: the level {moves} when a unit source shifts a quarter "
+                             "wavelength (or with the method's variant)")
             elif dominant[b]:
                 notes.append(DOMINANT_NOTE)
             elif not resolved[b]:
