@@ -410,8 +410,8 @@ def clean_lines(lines, s2, n_removed, d, pmap, loop_gain, max_sources, floor, fo
     ----------
     lines : float32 array (n_lines, n_points, 3, n_mics)
         Per line and point, the real and imaginary parts of the conjugated steering vector
-        and its squared magnitude: the three read together, from one stream (three separate
-        arrays, each read at the same offsets, ran up to 4x slower on this machine).
+        and its squared magnitude, interleaved so that a point's map update reads one
+        contiguous row.
     s2, n_removed : float64 arrays (n_points,)
         v^H v and the diagonal-removed normaliser.
     d : complex128 array (n_lines, n_mics, n_mics)
