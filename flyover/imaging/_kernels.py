@@ -69,32 +69,27 @@ def _lagrange4(sig, i, d):
     return ((c3 * d + c2) * d + c1) * d + y0
 
 
+# Read positions are walked in fixed point, 32 bits of fraction: integer adds and shifts
+# instead of float-to-int conversions per sample (1.4-1.8x faster than double positions). A
+# stretch accumulates at most node_step * 2^-33 samples of rounding, 1.5e-8 at 128.
+_FRACTION_BITS = np.uint64(32)
+_ONE = 2.0 ** 32
+
+
 @numba.njit(fastmath=True, cache=True, inline="always")
 def _read_segment(sig, p0, dp, a0, da, dst, k0, k1):
     """``dst[k0:k1]`` = the channel ``sig`` read with 4-point Lagrange interpolation from
     position p0 on, dp samples further each output sample, times an amplitude a0 growing by
     da: one stretch between two nodes of the de-Dopplerization kernels."""
     a = np.float32(a0)
-    if dp < 1.5:
-        # About a sample a step: the position walked incrementally, integer part and fraction
-        # apart (no float-to-int conversion per sample; 1.3x faster here).
-        i = np.uint64(p0)
-        frac = p0 - np.float64(i)
-        for k in range(k0, k1):
-            dst[k] = a * _lagrange4(sig, i, np.float32(frac))
-            a += da
-            frac += dp
-            while frac >= 1.0:
-                frac -= 1.0
-                i += np.uint64(1)
-    else:
-        # Several samples a step (a decimated read): the walk's chain of subtractions would
-        # bound the loop, so each position is computed afresh (1.35x faster at 4 a step).
-        for k in range(k0, k1):
-            pos = p0 + (k - k0) * dp
-            i = np.uint64(pos)
-            dst[k] = a * _lagrange4(sig, i, np.float32(pos - np.float64(i)))
-            a += da
+    pos = np.uint64(p0 * _ONE)
+    step = np.uint64(dp * _ONE + 0.5)
+    low = np.uint64(0xFFFFFFFF)
+    for k in range(k0, k1):
+        d = np.float32(pos & low) * np.float32(1.0 / _ONE)
+        dst[k] = a * _lagrange4(sig, pos >> _FRACTION_BITS, d)
+        a += da
+        pos += step
 
 
 @numba.njit(parallel=True, fastmath=True, cache=True)
