@@ -269,16 +269,27 @@ def two_source_window(settings: ChainSettings):
 
 def test_clean_sc_from_the_block_spectra_equals_clean_sc_from_the_csm():
     # CLEAN-SC's starting maps from the block spectra against those from the CSM itself: the
-    # same clean sources and residual maps on a simulated window with two sources (both in
-    # single precision, whose rounding the power re-fit carries to 2e-4 of a source's power).
+    # same number of sources per line, the same clean power per band (1e-4), the strong
+    # sources at the same points. Both routes round in single precision, differently; a late
+    # pick near the floor can then go to the other of two points whose maps tie within that
+    # rounding, and the re-fit splits power between found neighbours a grid step apart as the
+    # rounding falls (seen: 3e-4 of the strongest source moved between two neighbours 28 dB
+    # below it, with a fresh compile of the kernels and not with numba's cached one). So point
+    # by point the clean and residual maps agree within twice the floor's power of each band,
+    # as in test_compiled_clean_iterations_match_numpy.
+    from flyover.imaging.csm import CLEAN_FLOOR
     st = ChainSettings(third_octave_bands(800, 1600), np.ones(len(MICS)), 2.0)
     csm, steering, factor = two_source_window(st)
     direct = clean_sc(csm, steering, len(st.bands))
     from_factor = clean_sc(csm, steering, len(st.bands), factor=factor)
-    scale = direct.clean.max()
-    np.testing.assert_array_equal(from_factor.clean > 0, direct.clean > 0)
-    np.testing.assert_allclose(from_factor.clean, direct.clean, rtol=1e-3, atol=1e-6 * scale)
-    np.testing.assert_allclose(from_factor.residual, direct.residual, atol=1e-5 * scale)
+    np.testing.assert_array_equal(from_factor.iterations, direct.iterations)
+    np.testing.assert_allclose(from_factor.clean.sum(axis=0), direct.clean.sum(axis=0),
+                               rtol=1e-4)
+    near_floor = 2 * CLEAN_FLOOR * direct.clean.max(axis=0)
+    assert np.all(from_factor.clean[direct.clean > 10 * near_floor] > 0)
+    assert np.all(np.abs(from_factor.clean - direct.clean)
+                  <= 1e-3 * direct.clean + near_floor)
+    assert np.all(np.abs(from_factor.residual - direct.residual) <= near_floor)
 
 
 def test_compiled_source_components_match_numpy_iteration():
