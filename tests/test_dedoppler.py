@@ -32,8 +32,10 @@ def rows(p, first, n):
     return np.stack([p[m, f:f + n] for m, f in enumerate(first)])
 
 
-def naive_dedoppler(signals, rx_pos, amp, step, n_out):
-    """Plain numpy reference of the kernel: linear node interpolation, 4-point Lagrange."""
+def naive_dedoppler(signals, rx_pos, amp, step, n_out, phase_bits=None):
+    """Plain numpy reference of the kernel: linear node interpolation, 4-point Lagrange (the
+    fraction rounded to 1 / 2^phase_bits of a sample where given, as the kernel's table
+    does)."""
     n_g, n_m, n_nodes = rx_pos.shape
     k = np.arange(n_out)
     nodes = np.arange(n_nodes) * step
@@ -44,6 +46,8 @@ def naive_dedoppler(signals, rx_pos, amp, step, n_out):
             a = np.interp(k, nodes, amp[g, m].astype(float))
             i = np.floor(x).astype(int)
             d = x - i
+            if phase_bits is not None:
+                d = np.round(d * 2 ** phase_bits) / 2 ** phase_bits
             y = [signals[m, i + o].astype(float) for o in (-1, 0, 1, 2)]
             val = (-d * (d - 1) * (d - 2) / 6 * y[0] + (d + 1) * (d - 1) * (d - 2) / 2 * y[1]
                    - (d + 1) * d * (d - 2) / 2 * y[2] + (d + 1) * d * (d - 1) / 6 * y[3])
@@ -64,7 +68,7 @@ def test_kernel_matches_numpy_reference(seed):
     amp = rng.uniform(0.5, 80.0, (n_g, n_m, n_nodes)).astype(np.float32)
     out = np.empty((n_g, n_m, n_out), np.float32)
     _kernels.dedoppler_cubic(sig, rx, amp, step, out)
-    ref = naive_dedoppler(sig, rx, amp, step, n_out)
+    ref = naive_dedoppler(sig, rx, amp, step, n_out, _kernels.PHASE_BITS)
     scale = np.max(np.abs(ref))
     assert np.max(np.abs(out - ref)) <= 1e-4 * scale
     # The summed kernel: weighted sums over microphones of the same signals, its positions
@@ -117,6 +121,34 @@ def test_line_beam_powers_match_numpy_reference():
                            np.exp(2j * np.pi * f[:, None, None, :] * advance[..., None]),
                            gain)) ** 2
     np.testing.assert_allclose(out, ref, rtol=1e-10)
+
+
+def test_tabulated_lagrange_reads_stay_within_their_bound():
+    # The kernels round the read's fraction to 1 / 2^PHASE_BITS sample: against exact 4-point
+    # Lagrange reads of a band-limited signal (content to 0.135 fs, the cubic read's accurate
+    # range), the difference stays within the timing error's bound. By Bernstein's inequality
+    # a signal band-limited to nu has |x'| <= 2 pi nu max|x| per sample; the rounding moves a
+    # read by at most 2^-(PHASE_BITS + 1) sample.
+    rng = np.random.default_rng(3)
+    n = 4096
+    spectrum = np.fft.rfft(rng.standard_normal((3, n)))
+    spectrum[:, int(0.135 * n):] = 0.0
+    sig = np.fft.irfft(spectrum, n).astype(np.float32)
+    rx = rng.uniform(100.0, 200.0, (2, 3, 1)) + np.arange(9) * 128 * rng.uniform(
+        0.9, 1.1, (2, 3, 1))
+    amp = np.ones((2, 3, 9), np.float32)
+    exact = naive_dedoppler(sig, rx, amp, 128, 1024)
+    out = np.empty((2, 3, 1024), np.float32)
+    _kernels.dedoppler_cubic(sig, rx, amp, 128, out)
+    bound = 2 * np.pi * 0.135 * np.abs(sig).max(axis=1) * 2.0 ** -(_kernels.PHASE_BITS + 1)
+    assert np.all(np.abs(out - exact).max(axis=2) <= bound)
+    # The table holds 4-point Lagrange's weights at its phases (at d = 1/2 the familiar
+    # (-1, 9, 9, -1) / 16 of midpoint cubic interpolation: common practice).
+    d = np.array([0.0, 0.25, 0.5, 1.0])
+    j = (d * 2 ** _kernels.PHASE_BITS).astype(int)
+    np.testing.assert_allclose(_kernels.lagrange_table()[j], [
+        [0, 1, 0, 0], [-7 / 128, 105 / 128, 35 / 128, -5 / 128],
+        [-1 / 16, 9 / 16, 9 / 16, -1 / 16], [0, 0, 1, 0]], atol=1e-7)
 
 
 def test_compiled_sincos_matches_numpy():

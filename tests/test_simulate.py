@@ -163,13 +163,15 @@ def lagrange_read(signal, offset: float, n: int) -> np.ndarray:
 
 def test_cubic_lagrange_reproduces_cubics():
     # 4-point Lagrange interpolation is exact for polynomials up to degree 3 (common practice);
-    # float32 samples bound the agreement to about 1e-6.
+    # float32 samples bound the agreement to about 1e-6. Read at fractions on the kernel's
+    # table of phases (1/4096 sample; how far rounding to them moves a read is
+    # test_tabulated_lagrange_reads_stay_within_their_bound's).
     x = np.arange(60.0) / 10
     y = 0.3 * x ** 3 - 2 * x ** 2 + x - 4
-    pos = 2.37 + np.arange(50)
-    s = pos / 10
-    np.testing.assert_allclose(lagrange_read(y, 2.37, 50), 0.3 * s ** 3 - 2 * s ** 2 + s - 4,
-                               rtol=2e-6, atol=2e-6)
+    for offset in (2.0, 2.375, 2.5, 2 + 1517 / 4096):
+        s = (offset + np.arange(50)) / 10
+        np.testing.assert_allclose(lagrange_read(y, offset, 50),
+                                   0.3 * s ** 3 - 2 * s ** 2 + s - 4, rtol=2e-6, atol=2e-6)
 
 
 def test_broadband_band_power_matches_spectrum():

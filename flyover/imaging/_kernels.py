@@ -53,41 +53,51 @@ def _read_channel(sig, rx_pos, amp, step, dst):
                       np.float32((amp[j + 1] - amp[j]) * inv), dst, k0, min(k0 + step, n_out))
 
 
-@numba.njit(fastmath=True, cache=True, inline="always")
-def _lagrange4(sig, i, d):
-    """The channel ``sig`` at position ``i + d`` (0 <= d < 1), 4-point Lagrange interpolation
-    in Horner form (the same polynomial, fewer operations). ``i`` is unsigned: the reads are
-    checked before the kernels run, and numba then leaves out its negative-index handling of
-    each of the four reads (8-15 % faster)."""
-    ym1 = sig[i - np.uint64(1)]
-    y0 = sig[i]
-    y1 = sig[i + np.uint64(1)]
-    y2 = sig[i + np.uint64(2)]
-    c1 = y1 - np.float32(1.0 / 3.0) * ym1 - np.float32(0.5) * y0 - np.float32(1.0 / 6.0) * y2
-    c2 = np.float32(0.5) * (ym1 + y1) - y0
-    c3 = np.float32(1.0 / 6.0) * (y2 - ym1) + np.float32(0.5) * (y0 - y1)
-    return ((c3 * d + c2) * d + c1) * d + y0
-
-
 # Read positions are walked in fixed point, 32 bits of fraction: integer adds and shifts
 # instead of float-to-int conversions per sample (1.4-1.8x faster than double positions). A
 # stretch accumulates at most node_step * 2^-33 samples of rounding, 1.5e-8 at 128.
 _FRACTION_BITS = np.uint64(32)
 _ONE = 2.0 ** 32
+# The fraction is rounded to 1 / 2^PHASE_BITS of a sample and the four Lagrange weights read
+# from a table (64 kB): a timing error of at most 2^-13 sample, so an error below
+# 2 pi nu 2^-13 of the signal's peak at nu = f / fs (1e-4 at the cubic read's accurate limit,
+# 0.135 fs; an error of that size is 80 dB below the signal). 1.2x faster than evaluating
+# the polynomial per sample, for the whole summed kernel.
+PHASE_BITS = 12
+
+
+def lagrange_table(bits: int = PHASE_BITS) -> np.ndarray:
+    """4-point Lagrange weights of the samples at -1, 0, 1, 2 for the fractions ``d = j /
+    2^bits``, j = 0 .. 2^bits (the last one is the next sample's d = 0), float32 (2^bits + 1,
+    4)."""
+    d = np.arange(2 ** bits + 1) / 2 ** bits
+    return np.ascontiguousarray(np.stack([
+        -d * (d - 1) * (d - 2) / 6, (d + 1) * (d - 1) * (d - 2) / 2,
+        -(d + 1) * d * (d - 2) / 2, (d + 1) * d * (d - 1) / 6], axis=1), np.float32)
+
+
+_LAGRANGE = lagrange_table()     # a global: numba compiles it in as a constant
 
 
 @numba.njit(fastmath=True, cache=True, inline="always")
 def _read_segment(sig, p0, dp, a0, da, dst, k0, k1):
     """``dst[k0:k1]`` = the channel ``sig`` read with 4-point Lagrange interpolation from
     position p0 on, dp samples further each output sample, times an amplitude a0 growing by
-    da: one stretch between two nodes of the de-Dopplerization kernels."""
+    da: one stretch between two nodes of the de-Dopplerization kernels. Sample indices are
+    unsigned: the reads are checked before the kernels run, and numba then leaves out its
+    negative-index handling of each read (8-15 % faster)."""
     a = np.float32(a0)
     pos = np.uint64(p0 * _ONE)
     step = np.uint64(dp * _ONE + 0.5)
-    low = np.uint64(0xFFFFFFFF)
+    shift = _FRACTION_BITS - np.uint64(PHASE_BITS)
+    half = np.uint64(1) << (shift - np.uint64(1))
     for k in range(k0, k1):
-        d = np.float32(pos & low) * np.float32(1.0 / _ONE)
-        dst[k] = a * _lagrange4(sig, pos >> _FRACTION_BITS, d)
+        i = pos >> _FRACTION_BITS
+        # The fraction rounded to the table's phases: 0 .. 2^PHASE_BITS.
+        j = ((pos + half) >> shift) - (i << np.uint64(PHASE_BITS))
+        w = _LAGRANGE[j]
+        dst[k] = a * (w[0] * sig[i - np.uint64(1)] + w[1] * sig[i]
+                      + w[2] * sig[i + np.uint64(1)] + w[3] * sig[i + np.uint64(2)])
         a += da
         pos += step
 

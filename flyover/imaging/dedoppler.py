@@ -23,6 +23,8 @@ interpolation: 0.44 dB at 0.1 fs). Averaged over random delays the loss is about
 'sinc' option first oversamples each channel 4x (:func:`oversampled`: a 257-tap Kaiser-windowed
 low-pass, flat within 0.001 dB to 0.45 fs and 90 dB down on the images from 0.55 fs), so the
 cubic step sees nu / 4: 0.0001 dB at 0.1 fs and 0.030 dB at 0.4 fs (0.04 dB at 0.45 fs).
+The kernels round the fractional read position to 1/4096 sample (tabulated weights): an
+added error below 2 pi nu / 8192 of the signal's peak, 1e-4 at 0.135 fs.
 Bands whose highest received frequency passes ``ACCURATE_FRACTION`` of fs (worst-case loss
 0.1 dB) are flagged invalid. Delays between the coarse nodes (every ``node_step``
 samples) are linear: with a reception-time curvature V^2 / (c r) of 0.1 1/s the error is below
@@ -652,12 +654,16 @@ def _summed_band_powers(chain: _UsedChain, window: Window, settings: ChainSettin
     amp = geo.amplitude_center
     rho2 = (amp / amp[ref]) ** 2
     warp = geo.doppler_center / geo.doppler_center[ref]                  # s, (n_g, n_m)
-    edges = np.column_stack([settings.bands.lower_hz, settings.bands.upper_hz])  # (n_b, 2)
-    # Lines below a warped edge x: ceil(x / spacing), as band_bins counts them.
-    count = np.clip(np.ceil(edges[None, None] / warp[..., None, None] / (rate_hz / n_out)), 0,
-                    power.shape[-1]).astype(int)                          # (n_g, n_m, n_b, 2)
-    rows = np.arange(n_mics)[None, :, None]
-    band_power = cumulative[rows, count[..., 1]] - cumulative[rows, count[..., 0]]
+    # Lines below a warped edge x: ceil(x / spacing), as band_bins counts them; each distinct
+    # band edge once (adjacent bands share theirs), read from the flattened cumulative sums.
+    edges, at = np.unique(np.concatenate([settings.bands.lower_hz, settings.bands.upper_hz]),
+                          return_inverse=True)
+    count = np.multiply.outer(1.0 / (warp * (rate_hz / n_out)), edges)    # (n_g, n_m, n_e)
+    np.ceil(count, out=count)
+    np.clip(count, 0, power.shape[-1], out=count)
+    below = cumulative.ravel()[count.astype(np.intp)
+                               + (np.arange(n_mics) * cumulative.shape[1])[None, :, None]]
+    band_power = below[..., at[n_b:]] - below[..., at[:n_b]]
     autos = np.einsum("gmb,gmb->gb", weighted ** 2 * rho2[..., None], band_power)
     full = np.empty((n_grid, n_b))
     diag = np.empty((n_grid, n_b))
