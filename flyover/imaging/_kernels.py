@@ -449,6 +449,47 @@ def _catch_up_all(line, since, n, hr, hi, weight, lift, n_removed, pmap):
 
 
 @numba.njit(parallel=True, cache=True)
+def remove_point_sources(lines, powers, n_removed, pmap):
+    """Each line's diagonal-removed map less that of incoherent point sources at grid points
+    (the CSM ``sum_j p_j v_j v_j^H``)::
+
+        pmap[k, g] -= sum_j powers[k, j] (|v_g^H v_j|^2 - sum_m |v_gm|^2 |v_jm|^2)
+                      / n_removed[g]
+
+    over the points j with ``powers[k, j] > 0``, in parallel over lines, with the products of
+    CLEAN-SC's map updates (:func:`_map_drop`: single precision, microphones inner).
+
+    Parameters
+    ----------
+    lines : float32 array (n_lines, n_points, 3, n_mics)
+        As :func:`clean_lines` reads them.
+    powers : float64 array (n_lines, n_points)
+    n_removed : float64 array (n_points,)
+    pmap : float64 array (n_lines, n_points)
+        Reduced in place.
+    """
+    c, n_g, _, n_m = lines.shape
+    for k in numba.prange(c):
+        at = np.flatnonzero(powers[k] > 0)
+        n = len(at)
+        if n == 0:
+            continue
+        # The sources as pending components: h = v_j (the lines hold conj(v)).
+        hr = np.empty((n, n_m), np.float32)
+        hi = np.empty((n, n_m), np.float32)
+        weight = np.empty(n)
+        lift = np.zeros((n + 1, n_m))
+        for i in range(n):
+            weight[i] = powers[k, at[i]]
+            for m in range(n_m):
+                hr[i, m] = lines[k, at[i], 0, m]
+                hi[i, m] = -lines[k, at[i], 1, m]
+                lift[n, m] += weight[i] * (hr[i, m] * hr[i, m] + hi[i, m] * hi[i, m])
+        _catch_up_all(lines[k], np.zeros(n_g, np.int64), n, hr, hi, weight, lift, n_removed,
+                      pmap[k])
+
+
+@numba.njit(parallel=True, cache=True)
 def clean_lines(lines, s2, n_removed, d, pmap, loop_gain, max_sources, floor, found,
                 iterations):
     """CLEAN-SC's iterations, every line of a batch on its own (in parallel): see

@@ -385,8 +385,19 @@ def clean_sc(csm, steering: Steering, n_bands: int, *, loop_gain: float = 0.3,
         for b in np.unique(bands):
             removed_clean[:, b] += found[bands == b].sum(axis=0)
             removed_residual[:, b] += pmap[bands == b].sum(axis=0)
-        for k in range(c):
-            found[k], pmap[k] = _refit(found[k], start[k], vc[k], p2_line, n_removed_line)
+        # The residual: what the re-fitted sources leave of the starting maps; a line whose
+        # fit cannot be solved keeps its powers and its residual as removed.
+        solved = np.zeros(c, bool)
+        for k, line in enumerate(lines):
+            fit = _refit(found[k], start[k], ratio, advance, steering.frequency_hz[line],
+                         n_removed_line)
+            if fit is not None:
+                found[k], solved[k] = fit, True
+        residual_maps = start
+        _kernels.remove_point_sources(planes, found * solved[:, None], n_removed_line,
+                                      residual_maps)
+        residual_maps[~solved] = pmap[~solved]
+        pmap = residual_maps
         for b in np.unique(bands):
             clean[:, b] += found[bands == b].sum(axis=0)
             residual[:, b] += pmap[bands == b].sum(axis=0)
@@ -398,8 +409,9 @@ def clean_sc(csm, steering: Steering, n_bands: int, *, loop_gain: float = 0.3,
 REFIT_RIDGE = 1e-9
 
 
-def _refit(found, start_map, v, p2, n_removed) -> tuple[np.ndarray, np.ndarray]:
-    """One line's clean powers re-fitted, and its residual map after them.
+def _refit(found, start_map, ratio, advance_s, frequency_hz: float,
+           n_removed) -> np.ndarray | None:
+    """One line's clean powers re-fitted (n_points,), or None where the fit cannot be solved.
 
     CLEAN-SC removes with each source the part of the CSM coherent with it; with a finite
     number of averages, incoherent sources still share a random cross-spectrum, so removing a
@@ -409,23 +421,26 @@ def _refit(found, start_map, v, p2, n_removed) -> tuple[np.ndarray, np.ndarray]:
     ``min || D - sum_k p_k (v_k v_k^H - diag) ||_F``, whose normal equations need only the
     found points' steering vectors (Gram matrix ``|v_k^H v_l|^2 - sum_m |v_km|^2 |v_lm|^2``)
     and the starting map (``v_k^H D v_k``). The random cross-spectrum then averages out instead
-    of being removed. Only magnitudes of products of the steering vectors ``v`` (n_points,
-    n_mics) enter: their conjugates serve as well.
+    of being removed. The found points' steering vectors (from ``ratio`` and ``advance_s``,
+    (n_points, n_mics), at ``frequency_hz``) are formed in double precision: found neighbours
+    a grid step apart at low frequency have nearly equal ones, and in single precision their
+    Gram matrix came out indefinite (16 of 340 lines of a window). The residual map after
+    the fitted sources is formed for a whole batch of lines at once
+    (:func:`flyover.imaging._kernels.remove_point_sources`).
     """
     j = np.flatnonzero(found > 0)
     if not j.size:
-        return found, start_map
-    vj = v[j]
-    gram = np.abs(vj.conj() @ vj.T) ** 2 - p2[j] @ p2[j].T
+        return found
+    vj = ratio[j] * np.exp(-2j * np.pi * frequency_hz * advance_s[j])
+    p2 = ratio[j] ** 2
+    gram = np.abs(vj.conj() @ vj.T) ** 2 - p2 @ p2.T
     rhs = start_map[j] * n_removed[j]
     gram = gram + REFIT_RIDGE * np.trace(gram) / len(j) * np.eye(len(j))
     try:
         lower = np.linalg.cholesky(gram)
     except np.linalg.LinAlgError:
-        return found, start_map
+        return None
     powers, _ = nnls(lower.T, solve_triangular(lower, rhs, lower=True), maxiter=50 * len(j))
     out = np.zeros_like(found)
     out[j] = powers
-    # |v^H v_j| = |v^T conj(v_j)|: the small factor is conjugated, not the steering.
-    maps = (np.abs(v @ vj.conj().T) ** 2 - p2 @ p2[j].T) / n_removed[:, None]
-    return out, start_map - maps @ powers
+    return out
