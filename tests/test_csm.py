@@ -435,10 +435,16 @@ def test_compiled_steering_lines_match_their_definition():
                         rng.uniform(-2e-3, 2e-3, (50, 12)))
     for f in (steering.frequency_hz[:40], steering.frequency_hz[38:]):
         planes = np.empty((len(f), 50, 3, 12), np.float32)
-        vc = np.empty((len(f), 50, 12), np.complex64)
-        _kernels.steering_lines(steering.amplitude_ratio, steering.advance_s, f, planes, vc)
+        spectra = rng.standard_normal((len(f), 12, 5)) + 1j * rng.standard_normal((len(f), 12, 5))
+        blocks = np.stack([spectra.real, spectra.imag], axis=2).transpose(0, 3, 2, 1)
+        quad = np.empty((len(f), 50))
+        _kernels.steering_lines(steering.amplitude_ratio, steering.advance_s, f, planes,
+                                np.ascontiguousarray(blocks, np.float32), quad)
         lines = np.flatnonzero(np.isin(steering.frequency_hz, f))
         ref = np.stack([steering.vectors(k).conj() for k in lines])
-        np.testing.assert_allclose(vc, ref, rtol=0, atol=1e-6)
+        # The beam powers of the CSM F F^H: v^H F F^H v, with numpy.
+        csm = spectra @ spectra.conj().transpose(0, 2, 1)
+        np.testing.assert_allclose(quad, np.einsum("kgm,kmn,kgn->kg", ref, csm, ref.conj()).real,
+                                   rtol=1e-5)
         np.testing.assert_allclose(planes[:, :, 0] + 1j * planes[:, :, 1], ref, atol=1e-6)
         np.testing.assert_allclose(planes[:, :, 2], np.abs(ref) ** 2, rtol=1e-6)

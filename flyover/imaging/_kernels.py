@@ -335,10 +335,12 @@ def coherent_component(dw, w, iterations, h):
 
 
 @numba.njit(parallel=True, fastmath=True, cache=True)
-def steering_lines(ratio, advance_s, frequency_hz, planes, conjugate):
+def steering_lines(ratio, advance_s, frequency_hz, planes, blocks, quad):
     """The conjugated steering vectors ``conj(v_gm(f)) = ratio[g, m] exp(-i 2 pi f
-    advance[g, m])`` of a few lines, in the two forms CLEAN-SC reads them: as planes (real,
-    imaginary, squared magnitude per point, single precision) and as complex64.
+    advance[g, m])`` of a few lines as CLEAN-SC reads them (planes of the real part, the
+    imaginary part and the squared magnitude per point, single precision), and with them the
+    beam powers of a CSM given by its block spectra F, ``v^H F F^H v = sum_b |sum_m
+    conj(v_gm) F_mb|^2``, while the vectors are at hand (no second pass over them).
 
     Lines evenly spaced (``f_k = f_0 + k (f_1 - f_0)``) are stepped by one complex product
     each from an exact first line; the products are formed in double precision.
@@ -348,8 +350,11 @@ def steering_lines(ratio, advance_s, frequency_hz, planes, conjugate):
     ratio, advance_s : float64 arrays (n_points, n_mics)
     frequency_hz : float64 array (n_lines,)
     planes : float32 array (n_lines, n_points, 3, n_mics)
-    conjugate : complex64 array (n_lines, n_points, n_mics)
-        Both filled in place.
+        Filled in place.
+    blocks : float32 array (n_lines, n_blocks, 2, n_mics)
+        Real and imaginary parts of each line's block spectra (none: n_blocks = 0).
+    quad : float64 array (n_lines, n_points)
+        Filled in place with the beam powers (zero without blocks).
     """
     n_g, n_m = ratio.shape
     n_f = frequency_hz.shape[0]
@@ -363,15 +368,14 @@ def steering_lines(ratio, advance_s, frequency_hz, planes, conjugate):
         a, sr, si, zr, zi = work[0], work[1], work[2], work[3], work[4]
         for g in range(task * _ITEMS_PER_TASK, min(n_g, (task + 1) * _ITEMS_PER_TASK)):
             _steer_point(ratio[g], advance_s[g], frequency_hz, spacing, even, planes[:, g],
-                         conjugate[:, g], a, sr, si, zr, zi)
+                         blocks, quad[:, g], a, sr, si, zr, zi)
 
 
 @numba.njit(fastmath=True, cache=True, inline="always")
-def _steer_point(ratio, advance_s, frequency_hz, spacing, even, planes, conjugate, a, sr, si,
-                 zr, zi):
-    """One point's lines of :func:`steering_lines` (its rows of ``planes`` and
-    ``conjugate``), microphones inner: each line's values are written where they lie, in a
-    row."""
+def _steer_point(ratio, advance_s, frequency_hz, spacing, even, planes, blocks, quad, a, sr,
+                 si, zr, zi):
+    """One point's lines of :func:`steering_lines` (its rows of ``planes`` and ``quad``),
+    microphones inner: each line's values are written where they lie, in a row."""
     n_m = ratio.shape[0]
     _phase_steps(advance_s, spacing, -1.0, a, sr, si)
     for k in range(frequency_hz.shape[0]):
@@ -386,10 +390,17 @@ def _steer_point(ratio, advance_s, frequency_hz, spacing, even, planes, conjugat
             planes[k, 0, m] = zr[m]
             planes[k, 1, m] = zi[m]
             planes[k, 2, m] = ratio[m] * ratio[m]
-        out = conjugate[k].view(np.float32)
-        for m in range(n_m):
-            out[2 * m] = zr[m]
-            out[2 * m + 1] = zi[m]
+        power = 0.0
+        for b in range(blocks.shape[1]):
+            re = 0.0
+            im = 0.0
+            for m in range(n_m):
+                fr = blocks[k, b, 0, m]
+                fi = blocks[k, b, 1, m]
+                re += zr[m] * fr - zi[m] * fi
+                im += zr[m] * fi + zi[m] * fr
+            power += re * re + im * im
+        quad[k] = power
 
 
 # CLEAN-SC components held back before every point's map is brought up to date with them: at

@@ -358,24 +358,29 @@ def clean_sc(csm, steering: Steering, n_bands: int, *, loop_gain: float = 0.3,
     # move half the memory (their rounding, 1e-7, is far below the floor). The batch's arrays
     # are allocated once: fresh pages for every batch cost as much as filling them.
     batch = min(lines_per_batch, n_lines)
-    vc_all = np.empty((batch,) + ratio.shape, np.complex64)                 # (c, n_g, n_m)
     planes_all = np.empty((batch, n_points, 3, ratio.shape[1]), np.float32)
+    quad_all = np.empty((batch, n_points))
     for lo in range(0, n_lines, lines_per_batch):
         lines = np.arange(lo, min(lo + lines_per_batch, n_lines))
         c = len(lines)
-        vc, planes = vc_all[:c], planes_all[:c]
-        _kernels.steering_lines(ratio, advance, steering.frequency_hz[lines], planes, vc)
+        planes, quad = planes_all[:c], quad_all[:c]
+        # The block spectra as planes (line, block, real / imaginary, microphone); none for a
+        # CSM given without them.
+        f = (np.zeros((c, ratio.shape[1], 0), np.complex64) if factor is None
+             else factor[lines])
+        blocks = np.ascontiguousarray(np.stack([f.real, f.imag], axis=2).transpose(0, 3, 2, 1),
+                                      np.float32)
+        _kernels.steering_lines(ratio, advance, steering.frequency_hz[lines], planes, blocks,
+                                quad)
         d = csm[lines].copy()
         d[:, np.arange(d.shape[1]), np.arange(d.shape[1])] = 0.0
         if factor is None:
             # v^H D v = (conj v)^H conj(D) (conj v) for Hermitian D.
-            quad = np.stack([_quadratic_forms(vc[k], d[k].conj()) for k in range(c)])
+            quad = np.stack([_quadratic_forms(planes[k, :, 0] + 1j * planes[k, :, 1],
+                                              d[k].conj()) for k in range(c)])
         else:
-            # v^H D v = |F^H v|^2 - sum |v|^2 diag(C), F^H v = (conj v) F.
-            projected = vc @ factor[lines].astype(np.complex64)
-            quad = (np.einsum("cgi,cgi->cg", projected.view(np.float32),
-                              projected.view(np.float32), dtype=float)
-                    - (csm[lines].diagonal(axis1=1, axis2=2).real @ p2_line.T))
+            # v^H D v = |F^H v|^2 - sum |v|^2 diag(C).
+            quad = quad - csm[lines].diagonal(axis1=1, axis2=2).real @ p2_line.T
         pmap = quad / n_removed_line
         start = pmap.copy()
         found = np.zeros((c, n_points))
