@@ -487,3 +487,30 @@ def test_lowpass_keeps_its_passband_and_stops_above():
     mid = slice(1000, -1000)
     assert np.max(np.abs(out[0, mid] - keep[mid])) < 1e-4
     assert np.max(np.abs(out[1, mid])) < 1e-4
+
+
+def test_sinc_oversampling_is_done_once_a_window(monkeypatch):
+    # The 'sinc' option oversamples every channel 4x before reading: once per window, not once
+    # per chunk of grid points, in both time-domain chains.
+    from flyover.imaging import dedoppler
+    from flyover.imaging.dedoppler import (_per_microphone_band_powers, _summed_band_powers,
+                                           _UsedChain, absorption_gains)
+    src = PointSource("s", (0.5, 0.0, 0.0), broadband=Broadband(86.0, 0.0, 100.0, 3000.0),
+                      seed=4)
+    track, atm, _, p = one_source_pass([src])
+    w = windows_near_overhead(track, 20)[0]
+    points = VehicleGrid((-1.0, 1.0), (-0.4, 0.4), 0.4).points_m()           # 18 points
+    st = ChainSettings(third_octave_bands(500, 1000), np.ones(len(MICS)), 2.0,
+                       interpolation="sinc", chunk_points=4)
+    ctx = window_context(w, track=track, clock=CLOCK, atmosphere=atm, mic_enu_m=MICS,
+                         grid_points_m=points, settings=st)
+    chain = _UsedChain(rows(p, ctx.first_frame, ctx.n_frames), ctx.first_frame, ctx.geometry,
+                       CLOCK, np.ones(len(MICS)), absorption_gains(st, atm, ctx.geometry))
+    calls = []
+    original = dedoppler.oversampled
+    monkeypatch.setattr(dedoppler, "oversampled", lambda x: calls.append(1) or original(x))
+    for form in (_per_microphone_band_powers, _summed_band_powers):
+        calls.clear()
+        maps = form(chain, w, st, atm)
+        assert len(calls) == 1, form.__name__
+        assert np.all(np.isfinite(maps.full)) and maps.full.shape == (len(points), len(st.bands))

@@ -390,7 +390,15 @@ def dedopplerized_signals(signals_pa, first_frame, geometry: ReceptionGeometry,
     -------
     float32 array (n_points, n_mics, window.n_samples)
     """
-    sig, origin, scale = _reading(signals_pa, first_frame, clock, settings)
+    return _read_points(_reading(signals_pa, first_frame, clock, settings), geometry, window,
+                        settings, points)
+
+
+def _read_points(reading, geometry: ReceptionGeometry, window: Window, settings: ChainSettings,
+                 points) -> np.ndarray:
+    """:func:`dedopplerized_signals` from the signals as read (:func:`_reading`), which a
+    caller going through a window's points chunk by chunk forms once."""
+    sig, origin, scale = reading
     rx = (geometry.reception_s[points] - origin[:, None]) * scale[:, None]
     _check_reads(rx, sig)
     amp = geometry.amplitude[points].astype(np.float32)
@@ -648,7 +656,8 @@ def _summed_band_powers(chain: _UsedChain, window: Window, settings: ChainSettin
     # The reference's per-microphone band powers, cumulative over the lines.
     ref = n_grid // 2
     each = np.eye(n_mics, dtype=np.float32)[None]
-    a_ref = _dedopplerized_sums(chain, settings, [ref], each, q, n_out)[0] * win
+    reading = _reading(signals, chain.first_frame, chain.clock, settings)
+    a_ref = _dedopplerized_sums(reading, geo, settings, [ref], each, q, n_out)[0] * win
     power = np.abs(scipy.fft.rfft(a_ref, axis=-1, workers=workers)) ** 2 * norm
     cumulative = np.concatenate([np.zeros((n_mics, 1)), np.cumsum(power, axis=-1)], axis=-1)
     amp = geo.amplitude_center
@@ -670,7 +679,7 @@ def _summed_band_powers(chain: _UsedChain, window: Window, settings: ChainSettin
     chunk = max(1, settings.chunk_points * n_mics * q // (2 * k))
     for c0 in range(0, n_grid, chunk):
         pts = slice(c0, min(c0 + chunk, n_grid))
-        sums = _dedopplerized_sums(chain, settings, pts, coef[pts], q, n_out)
+        sums = _dedopplerized_sums(reading, geo, settings, pts, coef[pts], q, n_out)
         spec = scipy.fft.rfft(sums * win, axis=-1, workers=workers)      # (n_c, k, n_f)
         beam_power = np.empty((spec.shape[0], n_b))
         for b, sl in enumerate(bins):
@@ -681,12 +690,12 @@ def _summed_band_powers(chain: _UsedChain, window: Window, settings: ChainSettin
     return BandPowers(full, diag)
 
 
-def _dedopplerized_sums(chain: _UsedChain, settings: ChainSettings, points, coef, q: int,
-                        n_out: int) -> np.ndarray:
+def _dedopplerized_sums(reading, geo: ReceptionGeometry, settings: ChainSettings, points, coef,
+                        q: int, n_out: int) -> np.ndarray:
     """Weighted sums over microphones (n_points, n_sums, n_out) of the de-Dopplerized
-    signals of some grid points, every q-th emission sample."""
-    geo = chain.geometry
-    sig, origin, scale = _reading(chain.signals, chain.first_frame, chain.clock, settings)
+    signals of some grid points, every q-th emission sample, from the signals as read
+    (:func:`_reading`)."""
+    sig, origin, scale = reading
     # Reception grows with emission time: the first and last nodes bound every read.
     _check_reads((geo.reception_s[points][..., [0, -1]] - origin[:, None]) * scale[:, None], sig)
     out = np.empty((len(coef), coef.shape[1], n_out), dtype=np.float32)
@@ -766,10 +775,10 @@ def _per_microphone_band_powers(chain: _UsedChain, window: Window, settings: Cha
     n_b = len(bins)
     full = np.empty((n_grid, n_b))
     diag = np.empty((n_grid, n_b))
+    reading = _reading(chain.signals, chain.first_frame, chain.clock, settings)
     for c0 in range(0, n_grid, settings.chunk_points):
         pts = slice(c0, min(c0 + settings.chunk_points, n_grid))
-        a = dedopplerized_signals(chain.signals, chain.first_frame, sub, chain.clock, window,
-                                  settings, pts)
+        a = _read_points(reading, sub, window, settings, pts)
         a *= win
         spec = scipy.fft.rfft(a, axis=-1, workers=workers)          # (n_c, n_used, n_f)
         for b, s in enumerate(bins):
