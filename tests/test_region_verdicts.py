@@ -160,3 +160,32 @@ def test_modelled_point_spread_matches_the_simulated_unit_source(interpolation):
         np.testing.assert_allclose(10 * np.log10(m[own].sum(0) / s[own].sum(0)), 0.0, atol=0.1)
         leak = np.abs(s[other].sum(0)) > 0.05 * s[own].sum(0)
         np.testing.assert_allclose(m[other].sum(0)[leak], s[other].sum(0)[leak], rtol=0.1)
+
+
+def test_map_figure_marks_which_regions_have_levels():
+    # The window's map figure outlines a region solid where its level is given, dotted where it
+    # is given as dominant but not resolved, dashed with "no level" where it is not.
+    from types import SimpleNamespace
+
+    import matplotlib
+    matplotlib.use("Agg")
+    from flyover.imaging.integration import RegionVerdict
+    from flyover.io.figures import map_figure
+    regions = {"front": Region("front", (0.4, 1.6), (-0.6, 0.6)),
+               "rear": Region("rear", (-1.8, -0.6), (-0.6, 0.6))}
+    campaign = SimpleNamespace(grid=GRID, regions=regions, outline_m=())
+    bands = third_octave_bands(500, 800)                                 # 3 bands
+    yes, no = np.ones(3, bool), np.zeros(3, bool)
+    verdicts = {"front": RegionVerdict(yes, no, np.zeros(3), yes, ["", "", ""]),
+                "rear": RegionVerdict(np.array([True, False, False]),
+                                      np.array([False, True, False]), np.zeros(3),
+                                      np.array([True, True, False]),
+                                      ["", DOMINANT_NOTE, "not resolved"])}
+    maps = np.random.default_rng(0).random((len(GRID.points_m()), 3))
+    fig = map_figure(maps, campaign, bands, "pass", {"window": 1, "time_utc": "2026-12-04T10:00",
+                                                    "polar_angle_deg": 90.0, "distance_m": 35.0},
+                     verdicts=verdicts)
+    styles = [[p.get_linestyle() for p in ax.patches] for ax in fig.axes[:3]]
+    assert styles == [["-", "-"], ["-", ":"], ["-", "--"]]
+    texts = [[t.get_text() for t in ax.texts] for ax in fig.axes[:3]]
+    assert texts == [[], [], ["no level"]]

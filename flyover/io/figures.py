@@ -152,7 +152,7 @@ def _at_least_span(ax, values, span: float) -> None:
 
 @_styled
 def map_figure(maps, campaign, bands, pass_name: str, window_row: dict,
-               dynamic_range_db: float = 15.0):
+               dynamic_range_db: float = 15.0, verdicts: dict | None = None):
     """Small multiples of one window's maps, one panel per band, dB re each panel's peak.
 
     Parameters
@@ -161,6 +161,11 @@ def map_figure(maps, campaign, bands, pass_name: str, window_row: dict,
         Band power on the grid points (x varying slowest). Values at or below zero (possible
         after diagonal removal) and more than ``dynamic_range_db`` under the peak show as the
         floor colour.
+    verdicts : dict of str -> RegionVerdict, optional
+        Per region, whether its level is given in each band: a solid outline where it is, a
+        dotted one where it is given as dominant but not resolved, and a dashed one with
+        "no level" where it is not (region_power.csv's ``region_note`` says why). Without
+        them every region is outlined dashed, as a region only.
     """
     from matplotlib.patches import Rectangle
     nx, ny = campaign.grid.shape
@@ -178,9 +183,16 @@ def map_figure(maps, campaign, bands, pass_name: str, window_row: dict,
                 np.full_like(m, -np.inf)
         image = ax.imshow(db, extent=extent, cmap=cmap, vmin=-dynamic_range_db, vmax=0,
                           interpolation="nearest", aspect="equal")
-        for region in campaign.regions.values():
+        for name, region in campaign.regions.items():
+            v = verdicts.get(name) if verdicts else None
+            style = ("--" if v is None or not v.valid[b] else
+                     ":" if v.dominant[b] and not v.resolved[b] else "-")
             ax.add_patch(Rectangle((region.x_m[0], region.y_m[0]), np.ptp(region.x_m),
-                                   np.ptp(region.y_m), fill=False, ec="white", lw=1.0, ls="--"))
+                                   np.ptp(region.y_m), fill=False, ec="white", lw=1.0,
+                                   ls=style))
+            if v is not None and not v.valid[b]:
+                ax.text(np.mean(region.x_m), np.mean(region.y_m), "no level", color="white",
+                        fontsize=6, ha="center", va="center")
         if campaign.outline_m:
             poly = np.array(campaign.outline_m + (campaign.outline_m[0],))
             ax.plot(poly[:, 0], poly[:, 1], color=ARRAY, lw=0.9)
@@ -196,6 +208,9 @@ def map_figure(maps, campaign, bands, pass_name: str, window_row: dict,
     if image is not None:
         bar = fig.colorbar(image, ax=axes, shrink=0.8, extend="min", pad=0.02)
         bar.set_label(f"dB re panel peak ({dynamic_range_db:g} dB range)")
+    if verdicts:
+        fig.text(0.01, 0.005, "regions: solid, level given; dotted, given as dominant (not "
+                 "resolved); dashed, no level (region_power.csv says why)", fontsize=7)
     return fig
 
 

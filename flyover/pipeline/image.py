@@ -98,13 +98,13 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path, *, threads: int = 1,
         maps_full.append(res.full.T.reshape(len(bands), nx, ny))
         done.append(w)
         fig = map_figure(res.diagonal_removed if an.diagonal_removal else res.full, campaign,
-                         bands, pass_name, row, an.map_dynamic_range_db)
+                         bands, pass_name, row, an.map_dynamic_range_db, res.verdicts)
         save_figure(fig, out_dir / "maps" / f"window-{w.index:03d}.png")
         if len(methods) > 1 and w.index == _nearest_overhead(windows):
             for method, other in zip(methods[1:], results[1:]):
                 fig = map_figure(other.diagonal_removed if an.diagonal_removal else other.full,
                                  campaign, bands, f"{pass_name} ({method.name})", row,
-                                 an.map_dynamic_range_db)
+                                 an.map_dynamic_range_db, other.verdicts)
                 save_figure(fig, out_dir / "maps" / f"window-{w.index:03d}-{method.name}.png")
         progress.step(f"window {w.index} at {w.polar_angle_deg:.0f} deg")
     progress.close()
