@@ -54,8 +54,9 @@ def _read_channel(sig, rx_pos, amp, step, dst):
 
 
 # Read positions are walked in fixed point, 32 bits of fraction: integer adds and shifts
-# instead of float-to-int conversions per sample (1.4-1.8x faster than double positions). A
-# stretch accumulates at most node_step * 2^-33 samples of rounding, 1.5e-8 at 128.
+# instead of float-to-int conversions per sample (the summed kernel 1.46x faster than with
+# double positions). A stretch accumulates at most node_step * 2^-33 samples of rounding,
+# 1.5e-8 at 128.
 _FRACTION_BITS = np.uint64(32)
 _ONE = 2.0 ** 32
 # The fraction is rounded to 1 / 2^PHASE_BITS of a sample and the four Lagrange weights read
@@ -207,7 +208,9 @@ _HALF_PI_LO = 6.077100506506192e-11
 def _sincos(x):
     """``(sin x, cos x)`` in double precision (within 1e-13 for |x| < 3000) from polynomials
     on the quarter period, branch-free: numba's own sine and cosine are scalar library calls
-    that keep loops over them from vectorising, and they took 40 % of the steering loops.
+    that keep loops over them from vectorising. With them and the work arrays of
+    ``_ITEMS_PER_TASK``, ``line_beam_powers`` ran 2.2x faster on the time-domain unit
+    sources' shapes (the two were measured together).
     Taylor to x^13 / x^14: the first omitted term is below 1e-16 on |x| <= pi / 4."""
     n = np.floor(x * (2.0 / np.pi) + 0.5)
     r = (x - n * _HALF_PI_HI) - n * _HALF_PI_LO
@@ -241,8 +244,8 @@ def _phasors(ratio, a, frequency_hz, zr, zi):
         zi[m] = ratio[m] * y
 
 
-# Items of a parallel loop that share one set of work arrays (allocating them per item cost
-# 10-15 % of the steering loops).
+# Items of a parallel loop that share one set of work arrays (instead of allocating them per
+# item, thousands of times a call).
 _ITEMS_PER_TASK = 64
 
 
