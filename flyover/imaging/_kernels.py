@@ -67,14 +67,19 @@ _ONE = 2.0 ** 32
 PHASE_BITS = 12
 
 
+def lagrange_weights(d) -> np.ndarray:
+    """4-point Lagrange weights (..., 4) of the samples at -1, 0, 1, 2 for a read at the
+    fraction ``d`` (0 <= d <= 1) past sample 0."""
+    d = np.asarray(d, float)
+    return np.stack([-d * (d - 1) * (d - 2) / 6, (d + 1) * (d - 1) * (d - 2) / 2,
+                     -(d + 1) * d * (d - 2) / 2, (d + 1) * d * (d - 1) / 6], axis=-1)
+
+
 def lagrange_table(bits: int = PHASE_BITS) -> np.ndarray:
-    """4-point Lagrange weights of the samples at -1, 0, 1, 2 for the fractions ``d = j /
-    2^bits``, j = 0 .. 2^bits (the last one is the next sample's d = 0), float32 (2^bits + 1,
-    4)."""
-    d = np.arange(2 ** bits + 1) / 2 ** bits
-    return np.ascontiguousarray(np.stack([
-        -d * (d - 1) * (d - 2) / 6, (d + 1) * (d - 1) * (d - 2) / 2,
-        -(d + 1) * d * (d - 2) / 2, (d + 1) * d * (d - 1) / 6], axis=1), np.float32)
+    """:func:`lagrange_weights` for the fractions ``d = j / 2^bits``, j = 0 .. 2^bits (the
+    last one is the next sample's d = 0), float32 (2^bits + 1, 4)."""
+    return np.ascontiguousarray(lagrange_weights(np.arange(2 ** bits + 1) / 2 ** bits),
+                                np.float32)
 
 
 _LAGRANGE = lagrange_table()     # a global: numba compiles it in as a constant

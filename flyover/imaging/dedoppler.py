@@ -356,8 +356,7 @@ def interpolation_response(frequency_hz, sample_rate_hz: float, interpolation: s
     if interpolation == "sinc":
         nu = nu / OVERSAMPLING
     d, weight = _DELAY_NODES
-    lagrange = np.stack([-d * (d - 1) * (d - 2) / 6, (d + 1) * (d - 1) * (d - 2) / 2,
-                         -(d + 1) * d * (d - 2) / 2, (d + 1) * d * (d - 1) / 6])   # (4, n_d)
+    lagrange = _kernels.lagrange_weights(d).T                                     # (4, n_d)
     # exp(i 2 pi nu (k - d)) = exp(i 2 pi nu)^k exp(-i 2 pi nu d): 9 exponentials, not 32.
     per_tap = np.exp(-2j * np.pi * nu[..., None] * d) @ (lagrange * weight).T    # (..., 4)
     step = np.exp(2j * np.pi * nu)
