@@ -10,7 +10,10 @@ Definitions (IEC 61672-1:2013, clause 3; common practice for flyover noise):
   depend on beyond the filter's own few-millisecond memory).
 - Time-weighted level L_A,tau(t) = 10 lg( (1/tau) int_{-inf}^t p_A^2(x) e^{-(t-x)/tau} dx / p0^2 )
   with tau = 0.125 s (F, fast) or 1 s (S, slow): a first-order low pass of p_A^2, run here as
-  the exact discrete exponential recursion sample by sample.
+  the exact discrete exponential recursion sample by sample. The recording starts in the middle
+  of the sound, not in silence: the detector starts settled, at the mean square of the first
+  time constant (a meter switched on before the recording began), so that no maximum and no
+  10 dB-down edge comes from the detector warming up.
 - LAFmax, LASmax: their maxima over the pass.
 - Sound exposure level LAE = 10 lg( int_{t1}^{t2} p_A^2 dt / (p0^2 * 1 s) ) over the 10 dB-down
   interval [t1, t2]: from the first to the last time at which L_AS is within 10 dB of LASmax.
@@ -51,12 +54,17 @@ def a_weighted(pressure_pa, sample_rate_hz: float, band_hz=None) -> np.ndarray:
 
 
 def time_weighted_mean_square(p2, sample_rate_hz: float, time_constant_s: float) -> np.ndarray:
-    """Exponentially time-weighted mean square (Pa^2) of a squared signal, from rest.
+    """Exponentially time-weighted mean square (Pa^2) of a squared signal, shape (n,).
 
-    The exact discrete form of d y/dt = (p^2 - y) / tau over each sample interval.
+    The exact discrete form of d y/dt = (p^2 - y) / tau over each sample interval, started
+    settled: its state before the first sample is the mean of ``p2`` over the first time
+    constant (the whole signal if shorter). A signal that starts from silence starts from rest.
     """
+    p2 = np.asarray(p2, dtype=float)
     a = np.exp(-1.0 / (sample_rate_hz * time_constant_s))
-    return lfilter([1.0 - a], [1.0, -a], np.asarray(p2, dtype=float))
+    n_settle = max(1, int(round(sample_rate_hz * time_constant_s)))
+    settled = float(np.mean(p2[:n_settle])) if len(p2) else 0.0
+    return lfilter([1.0 - a], [1.0, -a], p2, zi=[a * settled])[0]
 
 
 def level_db(mean_square_pa2) -> np.ndarray:

@@ -145,6 +145,22 @@ def received_history(directivity: Directivity, *, track: TrackModel, observer_en
     return ReceivedHistory(t, total, received, polar)
 
 
+def energy_sum(mean_squares) -> np.ndarray:
+    """The energy sum of several components' mean-square histories, shape (n,): at every time
+    the sum of the components covered there, NaN only where none is. It is never below any one
+    component, so no metric of the sum falls under the same metric of a part (the detectors and
+    integrals are linear and positive); where a part is uncovered, the sum is a lower bound.
+
+    Parameters
+    ----------
+    mean_squares : sequence of ndarray, each shape (n,)
+        Pa^2, NaN where a component's directivity does not cover the emission angle.
+    """
+    stack = np.asarray(mean_squares, dtype=float)
+    covered = np.isfinite(stack)
+    return np.where(covered.any(axis=0), np.where(covered, stack, 0.0).sum(axis=0), np.nan)
+
+
 def reference_flight(height_m: float, speed_m_s: float, *, duration_s: float,
                      rate_hz: float = 50.0) -> TrackModel:
     """A straight, level reference flight heading north, overhead the site origin at t = 0,

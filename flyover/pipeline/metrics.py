@@ -11,8 +11,8 @@ import pandas as pd
 from flyover.acoustics.bands import third_octave_bands
 from flyover.acoustics.metrics import (EventMetrics, a_weighted, band_level_history,
                                       event_metrics, metrics_of_mean_square)
-from flyover.acoustics.reconstruct import (RAISED_MICROPHONE_M, Directivity, received_history,
-                                          reference_flight)
+from flyover.acoustics.reconstruct import (RAISED_MICROPHONE_M, Directivity, energy_sum,
+                                          received_history, reference_flight)
 from flyover.imaging.window import TOTAL
 from flyover.io.figures import level_history_figure, save_figure
 from flyover.io.results.event_metrics import (BAND_HISTORY, EVENT_METRICS, LEVEL_HISTORY,
@@ -178,8 +178,8 @@ def reconstruction_table(campaign: Campaign, inputs: PassInputs, summary: dict,
         envs = {name: received_history(d, body_m=centres.get(name, np.zeros(3)), **kw)
                 .a_weighted_mean_square() for name, d in dirs.items()}
         parts = [e for name, e in envs.items() if name != TOTAL]
-        if parts:   # empty where a component is uncovered
-            envs["components"] = np.sum(parts, axis=0)
+        if parts:
+            envs["components"] = energy_sum(parts)
         for name, env in envs.items():
             stretch = covered_stretch(env)
             if stretch is None:
