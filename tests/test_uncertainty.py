@@ -37,3 +37,40 @@ def test_each_term_by_hand():
 def test_position_term_grows_with_frequency_squared():
     inputs = InputUncertainty(0.0, 0.005, 0.0, 0.0)
     assert budget(4000.0, inputs) / budget(1000.0, inputs) == pytest.approx(16.0, rel=1e-3)
+
+
+def test_an_isolated_level_is_never_tighter_than_its_band():
+    # A level with no neighbouring window in its region and band has no window scatter of its
+    # own; dropping the term gave it the tightest interval of the pass (0.03 dB against 0.55-1.1
+    # for its neighbours). Its uncertainty must be at least the median of its band's supported
+    # levels, and the note must say where its scatter came from.
+    from types import SimpleNamespace
+
+    import pandas as pd
+
+    from flyover.io.results.levels import LEVELS
+    from flyover.pipeline.levels import ISOLATED_NOTE, with_uncertainty
+    rng = np.random.default_rng(4)
+    rows = []
+    for region in ("front", "rear"):
+        for window in range(10):
+            for band in (250.0, 1000.0):
+                level = 70.0 + rng.normal(0.0, 0.8) if region == "front" or window == 5 \
+                    else np.nan
+                rows.append(dict(window=window, region=region, band_hz=band, level_db=level,
+                                 level_1m_db=level, note="", distance_m=30.0,
+                                 polar_angle_deg=60.0 + 6 * window))
+    levels = pd.DataFrame(rows).reindex(columns=LEVELS.column_names)
+    alignment = dict(channels_used=48, array_aperture_m=12.0, speed_of_sound_m_s=343.0,
+                     atmosphere=dict(temperature_c=15.0), speed_m_s=20.0,
+                     track_noise_estimate_m=0.05, clock_offset_uncertainty_s=1e-5)
+    campaign = SimpleNamespace(analysis=SimpleNamespace(uncertainty=InputUncertainty()))
+    out = with_uncertainty(levels, alignment, campaign, "p1")
+    for band, g in out.groupby("band_hz"):
+        front = g[g["region"] == "front"]["uncertainty_db"]
+        lone = g[(g["region"] == "rear") & (g["window"] == 5)].iloc[0]
+        assert lone["uncertainty_db"] >= front.median()
+        assert lone["uncertainty_db"] > 0.3          # a window's scatter, not the inputs' 0.03
+        assert ISOLATED_NOTE in lone["note"]
+        assert not front.isna().any() and (g[g["region"] == "front"]["note"] == "").all()
+    assert out.loc[out["level_db"].isna(), "uncertainty_db"].isna().all()

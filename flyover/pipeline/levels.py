@@ -158,6 +158,12 @@ def _add_angles(p: pd.DataFrame, windows: pd.DataFrame, campaign: Campaign,
             p.loc[rows, "convective_exponent"] = r.convective_exponent
 
 
+# The window scatter of an isolated level in a pass where no level has a neighbour: a stated
+# conservative value, above the 0.5-1 dB scatter of the demo's supported levels (measured).
+UNSUPPORTED_SCATTER_DB = 1.5
+ISOLATED_NOTE = "isolated: window scatter taken from its band over the pass"
+
+
 def window_scatter_db(levels: pd.DataFrame) -> pd.Series:
     """Per region and band, the rms difference of consecutive windows' levels over sqrt(2):
     one window's scatter about the pass's smooth trend (NaN without two consecutive levels)."""
@@ -181,17 +187,37 @@ def clock_uncertainty_s(alignment: dict, inputs: InputUncertainty) -> float:
     return inputs.clock_s
 
 
+def scatter_where_unsupported_db(scatter: pd.Series) -> pd.Series:
+    """The conservative window scatter of a level whose own scatter cannot be estimated (no
+    consecutive window of its region and band has a level): per band, the largest scatter of any
+    region in that band over the pass; for a band with none, the largest of the pass; for a pass
+    with none, ``UNSUPPORTED_SCATTER_DB``. Indexed by band (nominal Hz)."""
+    by_band = scatter.groupby(level="band_hz").max()
+    fallback = float(scatter.max()) if scatter.notna().any() else UNSUPPORTED_SCATTER_DB
+    by_band.index = by_band.index.astype(float)
+    return by_band.fillna(fallback)
+
+
 def with_uncertainty(levels: pd.DataFrame, alignment: dict, campaign: Campaign,
                      pass_name: str) -> pd.DataFrame:
     """Add each level's standard uncertainty and 90 % interval
-    (:func:`flyover.acoustics.uncertainty.band_level_uncertainty_db`)."""
+    (:func:`flyover.acoustics.uncertainty.band_level_uncertainty_db`).
+
+    A level's window scatter comes from its consecutive windows. Where it cannot (an isolated
+    level), less data must not mean a tighter interval: the scatter is the band's largest over
+    the pass (:func:`scatter_where_unsupported_db`), the uncertainty at least the median of the
+    band's supported levels, and the note says so."""
     out = levels.copy()
     if len(out) == 0:
         return out
     inputs = campaign.analysis.uncertainty
     scatter = window_scatter_db(out)
     key = pd.MultiIndex.from_arrays([out["region"], out["band_hz"].astype(float)])
-    band_scatter = scatter.reindex(key).to_numpy()
+    band_scatter = scatter.reindex(key).to_numpy(float, copy=True)
+    isolated = ~np.isfinite(band_scatter)
+    fallback = scatter_where_unsupported_db(scatter)
+    band_scatter[isolated] = (out["band_hz"].astype(float)[isolated].map(fallback)
+                              .fillna(UNSUPPORTED_SCATTER_DB).to_numpy(float))
     bands = third_octave_bands(out["band_hz"].min(), out["band_hz"].max())
     centre = dict(zip(bands.nominal_hz, bands.center_hz))
     u = band_level_uncertainty_db(
@@ -203,11 +229,18 @@ def with_uncertainty(levels: pd.DataFrame, alignment: dict, campaign: Campaign,
         speed_m_s=float(alignment["speed_m_s"]),
         track_m=float(alignment["track_noise_estimate_m"]),
         clock_s=clock_uncertainty_s(alignment, inputs), inputs=inputs,
-        scatter_db=np.nan_to_num(band_scatter, nan=0.0))
+        scatter_db=band_scatter)
     has = np.isfinite(out["level_db"].to_numpy(float))
+    supported = pd.Series(np.where(has & ~isolated, u, np.nan), index=out.index)
+    band_median = supported.groupby(out["band_hz"]).transform("median").to_numpy(float)
+    floor = isolated & has & np.isfinite(band_median)
+    u = np.where(floor, np.fmax(u, band_median), u)
     out["uncertainty_db"] = np.where(has, u, np.nan)
     out["ci90_low_db"] = out["level_db"] - Z90 * out["uncertainty_db"]
     out["ci90_high_db"] = out["level_db"] + Z90 * out["uncertainty_db"]
+    note = out["note"].fillna("").astype(str)
+    out["note"] = np.where(isolated & has, np.where(note == "", ISOLATED_NOTE,
+                                                     note + "; " + ISOLATED_NOTE), note)
     return out[LEVELS.column_names]
 
 
