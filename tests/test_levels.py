@@ -278,3 +278,30 @@ def test_overall_sums_one_band_range_never_fewer_bands():
     wide = overall_table(pass_a, {"front": (500.0, 2000.0)})
     assert np.isfinite(wide["overall_db"].iloc[0]) and np.isnan(wide["overall_db"].iloc[1])
     assert "630 Hz" in wide["note"].iloc[1] and "fewer bands" in wide["note"].iloc[1]
+
+
+def test_default_band_range_is_decided_near_overhead_and_never_under_three_bands():
+    from flyover.pipeline._overall import NO_RANGE_NOTE, common_band_range, overall_table
+    full = {b: 60.0 for b in (400.0, 500.0, 630.0, 800.0, 1000.0, 1250.0, 1600.0, 2000.0)}
+    # A far window (polar 80 + 50 = 130 deg) missing every band but two: it does not decide the
+    # range of the windows near overhead (80, 81 deg), which support every band.
+    far = levels_rows(50, {"front": {800.0: 60.0, 1000.0: 60.0}})
+    pass_a = pd.concat([levels_rows(0, {"front": full}), levels_rows(1, {"front": full}), far])
+    assert common_band_range([pass_a]) == {"front": (400.0, 2000.0)}
+    # Two consecutive bands near overhead are not an overall: no range, and the note says how
+    # to set one.
+    two = pd.concat([levels_rows(0, {"front": {800.0: 60.0, 1000.0: 60.0}})])
+    assert common_band_range([two]) == {"front": None}
+    table = overall_table(two, {"front": None})
+    assert np.isnan(table["overall_db"].iloc[0]) and table["bands_summed"].iloc[0] == 0
+    assert table["note"].iloc[0] == NO_RANGE_NOTE
+    assert "analysis.overall_band_range_hz" in NO_RANGE_NOTE
+
+
+def test_an_overall_band_range_of_fewer_than_three_bands_is_refused(tiny_copy):
+    from flyover.model.errors import FlyoverInputError
+    path = edit_campaign(tiny_copy, lambda d: d["analysis"].update(
+        overall_band_range_hz=[2500, 2500]))
+    with pytest.raises(FlyoverInputError, match="fewer than 3") as err:
+        load_campaign(path)
+    assert "overall_band_range_hz" in str(err.value)

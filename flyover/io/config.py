@@ -23,6 +23,7 @@ from flyover.io.timestamps import parse_utc_ns
 from flyover.model.campaign import (AnalysisSettings, ArraySpec, Campaign, PassSpec, RotorSpec,
                                     WeatherLimits, WeatherSpec,
                                     RecorderSpec, ReferenceFlight, Region, VehicleGrid)
+from flyover.model.constants import MIN_OVERALL_BANDS
 from flyover.model.errors import FlyoverInputError, suggest
 
 
@@ -517,6 +518,17 @@ def campaign_from_mapping(data: dict, path: Path) -> Campaign:
                                 "1000 * 10^(k/10) Hz)",
                                 f"{analysis.band_min_hz} to {analysis.band_max_hz} Hz",
                                 "widen the range, e.g. to the next nominal bands")
+    chosen = analysis.overall_band_range_hz
+    if chosen is not None and len(third_octave_bands(*chosen)) < MIN_OVERALL_BANDS:
+        raise FlyoverInputError("the overall band range holds fewer than "
+                                f"{MIN_OVERALL_BANDS} one-third-octave bands",
+                                f"{source}, key analysis.overall_band_range_hz",
+                                f"a range of at least {MIN_OVERALL_BANDS} bands, low to high "
+                                "(a sum over fewer is not an overall level)",
+                                f"{list(chosen)}: "
+                                f"{len(third_octave_bands(*chosen))} band(s)",
+                                "leave it out to take each label's range from the levels "
+                                "near overhead")
     _check_regions_apart(regions, grid, source)
     _check_methods_for_raised(analysis, [array] + [p.array for p in passes.values() if p.array],
                               source)

@@ -7,28 +7,48 @@ import pandas as pd
 
 from flyover.acoustics.bands import a_weighting_db, third_octave_bands
 from flyover.acoustics.reference import overall_db
-from flyover.io.results.levels import LEVELS
 from flyover.io.results.levels_overall import LEVELS_OVERALL
 from flyover.model.campaign import Campaign
+from flyover.model.constants import MIN_OVERALL_BANDS
+
+
+# The default band range of a label's overall levels (stated in the README): the windows within
+# NEAR_OVERHEAD_DEG of overhead decide, where the array resolves the vehicle best and every pass
+# has windows; a band counts where a region has a level in at least SUPPORT_FRACTION of them in
+# every pass; the widest run of such bands is the range, and a run of fewer than
+# MIN_OVERALL_BANDS bands (flyover.model.constants) is no overall at all.
+NEAR_OVERHEAD_DEG = 30.0
+SUPPORT_FRACTION = 0.75
+NO_RANGE_NOTE = (f"no run of {MIN_OVERALL_BANDS} or more bands with a level in "
+                 f"{SUPPORT_FRACTION:.0%} of the windows within {NEAR_OVERHEAD_DEG:g} deg of "
+                 "overhead of every pass of the label; set analysis.overall_band_range_hz")
 
 
 def common_band_range(tables) -> dict[str, tuple[float, float] | None]:
-    """Per region, the widest run of consecutive bands with a level in every analysed window of
-    every table (the passes of one label), or None where no band has one everywhere."""
-    levels = pd.concat([t for t in tables if len(t)], ignore_index=True) if any(
-        len(t) for t in tables) else pd.DataFrame(columns=LEVELS.column_names)
+    """Per region, the band range of a label's overall levels: the widest run of consecutive
+    bands that every table (a pass of the label) supports near overhead (see
+    ``NEAR_OVERHEAD_DEG``), None where no run of ``MIN_OVERALL_BANDS`` bands is supported."""
+    frames = [t.assign(_table=i) for i, t in enumerate(tables) if len(t)]
+    if not frames:
+        return {}
+    levels = pd.concat(frames, ignore_index=True)
+    near = (levels["polar_angle_deg"].astype(float) - 90.0).abs() <= NEAR_OVERHEAD_DEG
     out = {}
     for region, g in levels.groupby("region", sort=False):
-        everywhere = g.assign(ok=np.isfinite(g["level_db"].astype(float))).groupby(
-            "band_hz")["ok"].all()
-        bands = third_octave_bands(everywhere.index.min(), everywhere.index.max()).nominal_hz
-        ok = everywhere.reindex(bands, fill_value=False).to_numpy()
+        bands = third_octave_bands(g["band_hz"].min(), g["band_hz"].max()).nominal_hz
+        close = g[near.loc[g.index]]
+        share = (close.assign(ok=np.isfinite(close["level_db"].astype(float)))
+                 .groupby(["_table", "band_hz"])["ok"].mean())
+        supported = (share >= SUPPORT_FRACTION).groupby(level="band_hz").all() if len(
+            share) else pd.Series(dtype=bool)
+        ok = supported.reindex(bands, fill_value=False).to_numpy()
         best, run = None, None
         for k, good in enumerate(ok):
             run = (run if run is not None else k) if good else None
             if run is not None and (best is None or k - run > best[1] - best[0]):
                 best = (run, k)
-        out[region] = None if best is None else (float(bands[best[0]]), float(bands[best[1]]))
+        wide_enough = best is not None and best[1] - best[0] + 1 >= MIN_OVERALL_BANDS
+        out[region] = (float(bands[best[0]]), float(bands[best[1]])) if wide_enough else None
     return out
 
 
@@ -40,7 +60,7 @@ def overall_table(levels: pd.DataFrame, band_range: dict) -> pd.DataFrame:
     for (window, region), g in levels.groupby(["window", "region"], sort=False):
         overall = a_weighted = u_overall = np.nan
         limits = band_range.get(region)
-        note, summed, text = "no band range with a level in every window of the label", 0, ""
+        note, summed, text = NO_RANGE_NOTE, 0, ""
         if limits is not None:
             bands = third_octave_bands(*limits)
             text = f"{limits[0]:g}-{limits[1]:g}"
@@ -70,8 +90,7 @@ def overall_table(levels: pd.DataFrame, band_range: dict) -> pd.DataFrame:
 
 def label_band_ranges(campaign: Campaign, tables) -> dict:
     """The band range of the overall levels per region for the passes of one label: the
-    campaign's ``analysis.overall_band_range_hz``, else the bands with a level in every
-    analysed window of every one of these passes."""
+    campaign's ``analysis.overall_band_range_hz``, else :func:`common_band_range`."""
     chosen = campaign.analysis.overall_band_range_hz
     found = common_band_range(tables)
     if chosen is None:

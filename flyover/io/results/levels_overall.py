@@ -11,8 +11,9 @@ LEVELS_OVERALL = TableFile("levels_overall.csv", (
     ("a_weighted_db", "dB(A) re 20 uPa (IEC 61672-1)"),
     ("bands_summed", "number of bands in the sums"),
     ("band_range_hz", "lowest-highest nominal band of the range summed: one range per label and "
-                      "region (analysis.overall_band_range_hz, or the bands with a level in every "
-                      "analysed window of every pass of the label)"),
+                      "region (analysis.overall_band_range_hz, or the widest run of at least "
+                      "three bands with a level in 75 % of the windows within 30 deg of "
+                      "overhead of every pass of the label)"),
     ("note", "why an overall is empty"),
     ("uncertainty_db", "dB, standard uncertainty of the A-weighted level from its bands' "
                        "(independent bands, first order)"),
