@@ -158,3 +158,16 @@ def test_warnings_for_bands_beyond_the_interpolation_and_mixed_labels(tiny_copy,
     _label_warnings(campaign, summaries)
     assert all(len(s["warnings"]) == 1 and "height" in s["warnings"][0] for s in summaries)
     assert "label 'a'" in summaries[0]["warnings"][0]
+
+
+def test_a_track_that_stops_before_overhead(tiny_copy, capsys):
+    # The GNSS log ends while the vehicle still approaches: its last point is the nearest, and
+    # the closest distance and overhead time printed were the track's end (32.3 m for a true
+    # 30 m). No 90 deg window can be formed, so check refuses the pass, unless the campaign
+    # says it is meant to be partial.
+    track = pd.read_csv(tiny_copy / "p1" / "track.csv")
+    track.iloc[: int(len(track) * 0.4)].to_csv(tiny_copy / "p1" / "track.csv", index=False)
+    refused(tiny_copy / "campaign.yaml", capsys, "pass p1 gives no 90 deg window",
+            "still approaching", "track.csv", "passes.p1.partial: true")
+    edit_campaign(tiny_copy, lambda d: d["passes"]["p1"].update(partial=True))
+    assert main(["check", str(tiny_copy / "campaign.yaml")]) == 0

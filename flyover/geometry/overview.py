@@ -25,6 +25,9 @@ class PassGeometry:
         Height above the array centre at closest approach.
     speed_m_s : float
         Ground-relative speed at closest approach.
+    reaches_overhead : bool
+        The vehicle comes nearer and then goes away within the covered span: the closest
+        approach is a true one, not the span's end (a track that stops short of overhead).
     """
 
     covered_s: tuple[float, float]
@@ -32,6 +35,7 @@ class PassGeometry:
     closest_m: float
     height_m: float
     speed_m_s: float
+    reaches_overhead: bool
 
 
 def pass_geometry(track: TrackModel, array_center_enu_m, recording_span_s) -> PassGeometry:
@@ -47,5 +51,9 @@ def pass_geometry(track: TrackModel, array_center_enu_m, recording_span_s) -> Pa
                           method="bounded", options={"xatol": 1e-6})
     tc = float(res.x)
     pos = track.position(tc)
+    # The range rate v . (x - c): negative while approaching, positive after.
+    ends = np.array([lo, hi])
+    range_rate = np.einsum("ij,ij->i", track.velocity(ends), track.position(ends) - c)
     return PassGeometry((lo, hi), tc, float(np.linalg.norm(pos - c)), float(pos[2] - c[2]),
-                        float(np.linalg.norm(track.velocity(tc))))
+                        float(np.linalg.norm(track.velocity(tc))),
+                        bool(range_rate[0] < 0.0 < range_rate[1]))

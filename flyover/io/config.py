@@ -436,6 +436,7 @@ def campaign_from_mapping(data: dict, path: Path) -> Campaign:
             atmosphere=None if weather is not None else _atmosphere(
                 {**default_atm, **p.get("atmosphere", {})}, f"{where}.atmosphere"),
             label=p.get("label", ""),
+            partial=bool(p.get("partial", False)),
             track_time_scale=p.get("track_time_scale", "utc"),
             track_height_datum=p.get("track_height_datum", "ellipsoidal"),
             track_position_noise_m=float(p.get("track_position_noise_m", 0.05)),

@@ -229,7 +229,9 @@ class PassSpec:
     ``atmosphere`` is None when the campaign's weather file gives it (resolved per pass when the
     pass is loaded); ``track_antenna_offset_m`` is the GNSS antenna's position in body axes
     (None: the track is the body origin's); ``array`` its own array (None: the campaign's);
-    ``atmosphere_profile`` the air by height above the array (empty: uniform).
+    ``atmosphere_profile`` the air by height above the array (empty: uniform); ``partial``
+    says the track is meant not to pass overhead (no 90 deg window), which `flyover check`
+    otherwise refuses.
     """
 
     name: str
@@ -249,6 +251,7 @@ class PassSpec:
     track_antenna_offset_m: tuple[float, float, float] | None = None
     array: ArraySpec | None = None
     atmosphere_profile: tuple[AtmosphereLayer, ...] = ()
+    partial: bool = False
 
     def input_files(self) -> list[Path]:
         """Every file of the pass: recordings, calibrations, the track and its own layout."""

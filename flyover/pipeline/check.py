@@ -37,6 +37,7 @@ def check_campaign(campaign: Campaign) -> list[dict]:
         check_memory(campaign, p)
         summary = pass_summary(p)
         _check_against_recording(campaign, p)
+        _check_overhead(campaign, p, summary)
         _check_samples(p, summary["covered_s"])
         summary["warnings"] = _band_warnings(campaign, summary)
         summary["separation"] = _separation(campaign, p, summary)
@@ -109,6 +110,33 @@ def _check_against_recording(campaign: Campaign, inputs: PassInputs) -> None:
             f"bands whose upper edge lies below half the sample rate ({fs / 2:g} Hz)",
             f"the band up to {top:.0f} Hz for pass {inputs.spec.name} at {fs:g} Hz",
             "lower band_max_hz")
+
+
+def _check_overhead(campaign: Campaign, inputs: PassInputs, summary: dict) -> None:
+    """A pass must give its 90 deg window: the track and the recording must hold the closest
+    approach with half a window either side (and the sound of the later half's travel time),
+    unless the campaign marks the pass ``partial``."""
+    name = inputs.spec.name
+    if inputs.spec.partial:
+        return
+    half = campaign.analysis.window_s / 2
+    lo, hi = summary["covered_s"]
+    t = summary["overhead_s"]
+    travel = summary["closest_distance_m"] / summary["speed_of_sound_m_s"]
+    if summary["reaches_overhead"] and t - half >= lo and t + half + travel <= hi:
+        return
+    where = (f"the track covers {lo:.2f} to {hi:.2f} s of the recording and is nearest the "
+             f"array centre ({summary['closest_distance_m']:.1f} m) at {t:.2f} s")
+    why = ("the vehicle is still approaching (or already leaving) at an end of the span"
+           if not summary["reaches_overhead"] else
+           f"less than half a window ({half:g} s) of it lies on one side of overhead")
+    raise FlyoverInputError(
+        f"pass {name} gives no 90 deg window: {why}",
+        f"{campaign.config_path}, key passes.{name}.track ({inputs.spec.track.name})",
+        "a track and recording that hold the closest approach over the array with half a "
+        "window either side", where,
+        f"check the track file and the recording's span; if the pass is meant to stop short of "
+        f"overhead, set passes.{name}.partial: true")
 
 
 def _check_samples(inputs: PassInputs, covered_s) -> None:

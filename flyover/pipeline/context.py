@@ -587,6 +587,7 @@ def pass_summary(inputs: PassInputs) -> dict:
         "covered_s": [geo.covered_s[0], geo.covered_s[1]],
         "overhead_utc": iso_utc(int(clock.utc_ns(geo.closest_s))),
         "overhead_s": geo.closest_s,
+        "reaches_overhead": geo.reaches_overhead,
         "closest_distance_m": geo.closest_m,
         "height_above_array_m": geo.height_m,
         "speed_m_s": geo.speed_m_s,
