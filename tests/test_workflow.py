@@ -11,6 +11,7 @@ from contextlib import contextmanager
 from pathlib import Path
 
 import numpy as np
+import pandas as pd
 import pytest
 import yaml
 from conftest import edit_campaign
@@ -138,7 +139,7 @@ def test_revised_track_reruns_that_pass_only(run_copy):
     assert planned(run_copy) == {("align", "p1"), ("image", "p1"), ("levels", "p1"),
                                  ("qc", "p1"), ("metrics", "p1"), ("tones", "p1"),
                                  ("campaign_summary", ""),
-                                 ("hemispheres", ""), ("report", "")}
+                                 ("hemispheres", ""), ("signoff", ""), ("report", "")}
 
 
 @pytest.mark.slow
@@ -149,7 +150,7 @@ def test_reference_distance_reruns_levels_not_imaging(finished_run):
         assert planned(finished_run) == {("levels", "p1"), ("levels", "p2"), ("metrics", "p1"),
                                          ("metrics", "p2"), ("tones", "p1"), ("tones", "p2"),
                                          ("campaign_summary", ""),
-                                         ("hemispheres", ""), ("report", "")}
+                                         ("hemispheres", ""), ("signoff", ""), ("report", "")}
 
 
 @pytest.mark.slow
@@ -159,7 +160,7 @@ def test_one_pass_atmosphere_reruns_that_pass(finished_run):
         assert planned(finished_run) == {("align", "p2"), ("image", "p2"), ("levels", "p2"),
                                          ("qc", "p2"), ("metrics", "p2"), ("tones", "p2"),
                                          ("campaign_summary", ""),
-                                         ("hemispheres", ""), ("report", "")}
+                                         ("hemispheres", ""), ("signoff", ""), ("report", "")}
 
 
 @pytest.mark.slow
@@ -169,7 +170,7 @@ def test_added_pass_runs_alone_then_summary(finished_run):
         assert planned(finished_run) == {("align", "p3"), ("image", "p3"), ("levels", "p3"),
                                          ("qc", "p3"), ("metrics", "p3"), ("tones", "p3"),
                                          ("campaign_summary", ""),
-                                         ("hemispheres", ""), ("report", "")}
+                                         ("hemispheres", ""), ("signoff", ""), ("report", "")}
 
 
 @pytest.mark.slow
@@ -246,6 +247,11 @@ def test_report_is_self_contained(finished_run):
                      "Recorders and clocks", "Reconstructed per component"):
         assert fragment in text, fragment
     assert str(finished_run) not in text
+    # Every pass has a status at the top, and no number reads 'nan'.
+    assert 'id="signoff"' in text and text.count('data-status="') == 2
+    assert not re.search(r"\bnan\b", text, re.IGNORECASE)
+    signed = pd.read_csv(finished_run / "results" / "signoff.csv")
+    assert set(signed["status"]) <= {"accepted", "flagged", "rejected"} and len(signed) == 2
 
 
 @pytest.mark.slow

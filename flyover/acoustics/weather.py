@@ -102,21 +102,31 @@ def weather_over(samples: WeatherSamples, start_ns: int, end_ns: int, *, where: 
     return atm, summary
 
 
-def weather_flags(summary: dict, limits, track_heading_deg: float) -> list[str]:
-    """The limits a pass's weather breaks, in words (empty when none).
+def weather_findings(summary: dict, limits, track_heading_deg: float) -> list[tuple]:
+    """Each weather limit a pass is held to, with its measured value:
+    ``(name, value, limit, unit)``, broken where value > limit.
 
     ``limits`` is a :class:`flyover.model.campaign.WeatherLimits`; the crosswind is the mean
-    wind's component across the pass's ground track.
+    wind's component across the pass's ground track. A typed atmosphere has no spreads: only
+    the mean wind and crosswind are held to their limits.
     """
     cross = abs(summary["wind_speed_m_s"]
                 * np.sin(np.deg2rad(summary["wind_from_deg"] - track_heading_deg)))
     checks = [
         ("mean wind", summary["wind_speed_m_s"], limits.wind_mean_max_m_s, "m/s"),
         ("mean crosswind", cross, limits.crosswind_mean_max_m_s, "m/s"),
-        ("wind speed spread", summary["wind_speed_spread_m_s"], limits.wind_spread_max_m_s,
+        ("wind speed spread", summary.get("wind_speed_spread_m_s"), limits.wind_spread_max_m_s,
          "m/s"),
-        ("temperature spread", summary["temperature_spread_k"], limits.temperature_spread_max_k,
-         "K"),
+        ("temperature spread", summary.get("temperature_spread_k"),
+         limits.temperature_spread_max_k, "K"),
     ]
+    return [(name, float(value), float(limit), unit) for name, value, limit, unit in checks
+            if value is not None]
+
+
+def weather_flags(summary: dict, limits, track_heading_deg: float) -> list[str]:
+    """The limits a pass's weather breaks, in words (empty when none); see
+    :func:`weather_findings`."""
     return [f"{name} {value:.1f} {unit} above the limit {limit:g} {unit}"
-            for name, value, limit, unit in checks if value > limit]
+            for name, value, limit, unit in weather_findings(summary, limits, track_heading_deg)
+            if value > limit]

@@ -21,7 +21,7 @@ from flyover.acoustics.uncertainty import InputUncertainty
 from flyover.imaging.methods import DEFAULT_METHOD, methods
 from flyover.io.timestamps import parse_utc_ns
 from flyover.model.campaign import (AnalysisSettings, ArraySpec, Campaign, PassSpec, RotorSpec,
-                                    WeatherLimits, WeatherSpec,
+                                    SignoffLimits, WeatherLimits, WeatherSpec,
                                     RecorderSpec, ReferenceFlight, Region, VehicleGrid)
 from flyover.model.constants import MIN_OVERALL_BANDS
 from flyover.model.errors import FlyoverInputError, suggest
@@ -413,9 +413,9 @@ def campaign_from_mapping(data: dict, path: Path) -> Campaign:
     array = _array(data["array"], base, source, "array")
     default_atm = data.get("atmosphere", {})
     weather = None
+    weather_limits = WeatherLimits(**data.get("weather_limits", {}))
     if "weather" in data:
-        weather = WeatherSpec(_resolve_path(base, data["weather"]),
-                              WeatherLimits(**data.get("weather_limits", {})))
+        weather = WeatherSpec(_resolve_path(base, data["weather"]), weather_limits)
     passes = {}
     for name, p in data["passes"].items():
         where = f"passes.{name}"
@@ -539,4 +539,5 @@ def campaign_from_mapping(data: dict, path: Path) -> Campaign:
                            int(r["motor"])) for n, r in veh.get("rotors", {}).items()}
     return Campaign(path, site, None if geoid is None else float(geoid), array, passes, grid,
                     regions, analysis, _resolve_path(base, data["output"]), outline, scenario,
-                    rotors, weather)
+                    rotors, weather, weather_limits,
+                    SignoffLimits(**data.get("signoff_limits", {})))

@@ -308,6 +308,36 @@ class WeatherLimits:
 
 
 @dataclass(frozen=True)
+class SignoffLimits:
+    """What a pass is held to before it is accepted (``signoff_limits`` in the campaign file;
+    the README states each rule and its source). Breaking one flags the pass; a pass without a
+    90 deg window (not meant to be partial) is rejected.
+
+    Attributes
+    ----------
+    clock_uncertainty_max_ms : float
+        Standard uncertainty of the clock offset (ours: 1 ms moves the sources V x 1 ms along
+        the track, 2-5 cm at drone speeds).
+    channels_left_out_max_pct : float
+        Microphones left out by the data-quality checks, in % of the layout's.
+    windows_skipped_max_pct : float
+        Planned windows not analysed.
+    label_height_tolerance_pct, label_speed_tolerance_pct : float
+        A pass's height and speed against its label's median (ours; 14 CFR 36 App. G allows
+        +-20 % of the reference height, so these are tighter).
+    track_offset_max_m : float
+        The acoustic track check's offset of best focus, beyond its own uncertainty.
+    """
+
+    clock_uncertainty_max_ms: float = 1.0
+    channels_left_out_max_pct: float = 10.0
+    windows_skipped_max_pct: float = 20.0
+    label_height_tolerance_pct: float = 10.0
+    label_speed_tolerance_pct: float = 5.0
+    track_offset_max_m: float = 0.5
+
+
+@dataclass(frozen=True)
 class WeatherSpec:
     """A weather station's file for the whole campaign and the limits a pass is held to."""
 
@@ -358,6 +388,8 @@ class Campaign:
     scenario: Path | None = None
     rotors: dict[str, RotorSpec] = field(default_factory=dict)
     weather: WeatherSpec | None = None
+    weather_limits: WeatherLimits = WeatherLimits()
+    signoff_limits: SignoffLimits = SignoffLimits()
 
     def input_files(self) -> list[Path]:
         """Every input file the campaign names: config, layout, weather, recordings,

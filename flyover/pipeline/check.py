@@ -47,13 +47,6 @@ def check_campaign(campaign: Campaign) -> list[dict]:
     return summaries
 
 
-# Passes averaged under one label should fly one condition: their heights within +-10 % and
-# speeds within +-5 % of the label's median (our tolerances; certification procedures allow
-# for instance +-20 % of the reference height in 14 CFR 36 App. G, so these are tighter).
-LABEL_HEIGHT_TOLERANCE = 0.10
-LABEL_SPEED_TOLERANCE = 0.05
-
-
 def _band_warnings(campaign: Campaign, summary: dict) -> list[str]:
     """Bands whose received upper edge passes the interpolation's accurate range in the windows
     furthest ahead of the vehicle (received frequency f / (1 - M cos theta))."""
@@ -74,15 +67,17 @@ def _band_warnings(campaign: Campaign, summary: dict) -> list[str]:
 
 def _label_warnings(campaign: Campaign, summaries: list[dict]) -> None:
     """Passes of one label whose height or speed is off the label's median by more than the
-    tolerances above (added to each such pass's warnings)."""
+    sign-off's tolerances (``signoff_limits``; added to each such pass's warnings)."""
+    limits = campaign.signoff_limits
     by_label: dict[str, list[dict]] = {}
     for s in summaries:
         by_label.setdefault(campaign.passes[s["pass"]].label, []).append(s)
     for label, group in by_label.items():
         if not label or len(group) < 2:
             continue
-        for key, tol, what in (("height_above_array_m", LABEL_HEIGHT_TOLERANCE, "height"),
-                               ("speed_m_s", LABEL_SPEED_TOLERANCE, "speed")):
+        for key, tol, what in (("height_above_array_m",
+                                limits.label_height_tolerance_pct / 100.0, "height"),
+                               ("speed_m_s", limits.label_speed_tolerance_pct / 100.0, "speed")):
             median = float(np.median([s[key] for s in group]))
             for s in group:
                 if abs(s[key] - median) > tol * median:

@@ -591,6 +591,7 @@ def pass_summary(inputs: PassInputs) -> dict:
         "closest_distance_m": geo.closest_m,
         "height_above_array_m": geo.height_m,
         "speed_m_s": geo.speed_m_s,
+        "course_deg": course_deg(inputs.track, geo.closest_s),
         "track_noise_estimate_m": inputs.track.residual_rms_m(),
         "speed_of_sound_m_s": atm.c_m_s,
         "array_aperture_m": inputs.layout.aperture_m,
@@ -637,10 +638,15 @@ def track_summary(inputs: PassInputs) -> dict:
                 inputs.track, inputs.layout.center_enu_m, inputs.recording_span_s).closest_s)}
 
 
+def course_deg(track, time_s: float) -> float:
+    """The ground track's direction at a time, degrees clockwise from north (0-360)."""
+    v = track.velocity(np.array([time_s]))[0]
+    return float(np.rad2deg(np.arctan2(v[0], v[1])) % 360.0)
+
+
 def crab_angle_deg(track, time_s: float) -> float:
     """Yaw minus the ground track's direction at a time, in degrees from -180 to 180."""
-    v = track.velocity(np.array([time_s]))[0]
-    course = np.rad2deg(np.arctan2(v[0], v[1]))
+    course = course_deg(track, time_s)
     return float((track.attitude_deg(np.array([time_s]))[0, 0] - course + 180.0) % 360.0 - 180.0)
 
 

@@ -10,14 +10,14 @@ import pandas as pd
 from flyover.acoustics.atmosphere import band_absorption_db
 from flyover.acoustics.bands import third_octave_bands
 from flyover.acoustics.reference import level_1m_db, reference_level_db
-from flyover.acoustics.uncertainty import Z90, InputUncertainty, band_level_uncertainty_db
+from flyover.acoustics.uncertainty import Z90, band_level_uncertainty_db
 from flyover.geometry.frames import attitude_rotation, enu_from_body_matrix
 from flyover.geometry.propagation import air_angles
 from flyover.geometry.windows import emission_angles_deg
 from flyover.imaging.window import TOTAL
 from flyover.io.figures import directivity_figure, save_figure, spectra_figure
 from flyover.io.results.directivity import DIRECTIVITY
-from flyover.io.results.alignment import pass_atmosphere, read_alignment
+from flyover.io.results.alignment import clock_uncertainty_s, pass_atmosphere, read_alignment
 from flyover.io.results.levels import LEVELS, LEVELS_BY_METHOD
 from flyover.io.results.region_power import REGION_POWER
 from flyover.io.results.spectra import SPECTRA
@@ -175,18 +175,6 @@ def window_scatter_db(levels: pd.DataFrame) -> pd.Series:
     return ordered.groupby(["region", "band_hz"])["level_1m_db"].apply(scatter)
 
 
-def clock_uncertainty_s(alignment: dict, inputs: InputUncertainty) -> float:
-    """The clock offset's standard uncertainty: the acoustic estimate's, the timing channels'
-    (the largest of the recorders'), or the stated default for a clock given by hand."""
-    if "clock_offset_uncertainty_s" in alignment:
-        return float(alignment["clock_offset_uncertainty_s"])
-    timed = [r["offset_uncertainty_s"] for r in alignment.get("recorders", [])
-             if r.get("clock_method") == "timing channel"]
-    if timed and len(timed) == len(alignment["recorders"]):
-        return float(max(timed))
-    return inputs.clock_s
-
-
 def scatter_where_unsupported_db(scatter: pd.Series) -> pd.Series:
     """The conservative window scatter of a level whose own scatter cannot be estimated (no
     consecutive window of its region and band has a level): per band, the largest scatter of any
@@ -228,7 +216,7 @@ def with_uncertainty(levels: pd.DataFrame, alignment: dict, campaign: Campaign,
         temperature_c=float(alignment["atmosphere"]["temperature_c"]),
         speed_m_s=float(alignment["speed_m_s"]),
         track_m=float(alignment["track_noise_estimate_m"]),
-        clock_s=clock_uncertainty_s(alignment, inputs), inputs=inputs,
+        clock_s=clock_uncertainty_s(alignment, inputs.clock_s), inputs=inputs,
         scatter_db=band_scatter)
     has = np.isfinite(out["level_db"].to_numpy(float))
     supported = pd.Series(np.where(has & ~isolated, u, np.nan), index=out.index)

@@ -16,13 +16,14 @@ import pandas as pd
 
 from flyover import __version__
 from flyover.io.atomic import write_text
-from flyover.io.results.alignment import pass_atmosphere, read_alignment
+from flyover.io.results.alignment import clock_uncertainty_s, pass_atmosphere, read_alignment
 from flyover.io.results.campaign_tables import CAMPAIGN_LEVELS, CAMPAIGN_OVERALL
 from flyover.acoustics.uncertainty import Z90
 from flyover.io.results.event_metrics import EVENT_METRICS, RECONSTRUCTED
 from flyover.io.results.rotor_tones import ROTOR_TONES
 from flyover.io.results.hemisphere import FOLDER as HEMISPHERE_FOLDER, HEMISPHERE, label_folders
 from flyover.io.results.levels_overall import LEVELS_OVERALL
+from flyover.io.results.signoff import SIGNOFF
 from flyover.io.results.windows import WINDOWS
 from flyover.model.campaign import Campaign
 from flyover.model.reads import guarded
@@ -76,11 +77,20 @@ def _img(path: Path, alt: str) -> str:
     return f'<img alt="{html.escape(alt)}" src="data:image/png;base64,{data}">'
 
 
+def _num(value, fmt: str = ".1f", missing: str = "missing") -> str:
+    """A number rounded for the report, or the words for a missing one (never 'nan')."""
+    try:
+        v = float(value)
+    except (TypeError, ValueError):
+        return missing
+    return format(v, fmt) if np.isfinite(v) else missing
+
+
 def _table(df: pd.DataFrame, flag_column: str | None = None, max_rows: int = 400) -> str:
     if df is None or len(df) == 0:
         return '<p class="muted">(no rows)</p>'
     rows = []
-    cols = list(df.columns)
+    cols = [c for c in df.columns if c != flag_column]
     head = "".join(f'<th class="{"t" if df[c].dtype == object else ""}">{html.escape(str(c))}</th>'
                    for c in cols)
     for _, r in df.head(max_rows).iterrows():
@@ -152,9 +162,30 @@ def _profile_text(atmosphere: dict) -> str:
             "the array (absorption, travel-time speed of sound, wind)")
 
 
+def _signoff_rows(out: Path) -> dict:
+    """The sign-off table's rows by pass (status and reasons)."""
+    table = SIGNOFF.read(out).fillna({"reasons": ""})
+    return {str(r["pass"]): r for _, r in table.iterrows()}
+
+
+def _signoff_table(out: Path) -> pd.DataFrame:
+    """The sign-off table for the report's top: status, reasons and headline numbers."""
+    t = SIGNOFF.read(out).fillna({"reasons": "", "label": ""})
+    return pd.DataFrame({
+        "pass": t["pass"], "label": t["label"], "status": t["status"],
+        "reasons": t["reasons"].map(lambda r: r or "none"),
+        "height (m)": t["height_m"].map(_num), "speed (m/s)": t["speed_m_s"].map(_num),
+        "closest (m)": t["closest_distance_m"].map(_num),
+        "LASmax (dB)": t["lasmax_db"].map(_num),
+        "LAE (dB)": [_num(v) + ("" if str(c).lower() == "true" else " (lower bound)")
+                     for v, c in zip(t["lae_db"], t["metrics_complete"])],
+        "_flag": t["status"] != "accepted"})
+
+
 def _pass_section(campaign: Campaign, name: str, out: Path) -> str:
     d = out / name
     al = read_alignment(d)
+    signed = _signoff_rows(out)[name]
     spec = campaign.passes[name]
     atm = pass_atmosphere(al)
     windows = WINDOWS.read(d)
@@ -179,17 +210,27 @@ def _pass_section(campaign: Campaign, name: str, out: Path) -> str:
     if tq.get("position_noise_estimate_m", 0) > 3 * spec.track_position_noise_m:
         warnings.append(f"track noise estimate {tq['position_noise_estimate_m']:.3f} m is over "
                         f"three times the stated {spec.track_position_noise_m} m")
+    given = "clock_offset_uncertainty_s" not in al and not any(
+        r.get("clock_method") == "timing channel" for r in al.get("recorders", []))
+    clock_u_ms = 1000.0 * clock_uncertainty_s(al, campaign.analysis.uncertainty.clock_s)
+    used, mics = al["channels_used"], al.get("microphones", al["channels"])
+    timing = int(al["channels"]) - int(mics)
     conditions = pd.DataFrame([{
-        "label": spec.label, "temperature (C)": atm.temperature_c,
-        "humidity (%)": atm.relative_humidity_pct, "pressure (kPa)": atm.pressure_kpa,
-        "wind (m/s)": atm.wind_speed_m_s, "wind from (deg)": atm.wind_from_deg,
-        "speed of sound (m/s)": atm.c_m_s, "clock offset (s)": al["clock_offset_s"],
+        "label": spec.label, "temperature (C)": f"{atm.temperature_c:.1f}",
+        "humidity (%)": f"{atm.relative_humidity_pct:.0f}",
+        "pressure (kPa)": f"{atm.pressure_kpa:.2f}",
+        "wind (m/s)": f"{atm.wind_speed_m_s:.1f}", "wind from (deg)": f"{atm.wind_from_deg:.0f}",
+        "speed of sound (m/s)": f"{atm.c_m_s:.1f}",
+        "clock offset (s)": f"{al['clock_offset_s']:+.4f}",
         "clock offset from": al.get("clock_offset_source", "config"),
-        "clock offset uncertainty (ms)": (f"{al['clock_offset_uncertainty_s'] * 1000:.1f}"
-                                          if "clock_offset_uncertainty_s" in al else "given"),
-        "overhead (UTC)": al["overhead_utc"], "closest (m)": al["closest_distance_m"],
-        "height (m)": al["height_above_array_m"], "speed (m/s)": al["speed_m_s"],
-        "channels used": f"{al['channels_used']}/{al['channels']}",
+        "clock offset uncertainty (ms)": (f"{clock_u_ms:.2f}" + (
+            " (stated for a clock given by hand: analysis.uncertainty.clock_s)" if given
+            else "")),
+        "overhead (UTC)": al["overhead_utc"], "closest (m)": f"{al['closest_distance_m']:.1f}",
+        "height (m)": f"{al['height_above_array_m']:.1f}", "speed (m/s)": f"{al['speed_m_s']:.1f}",
+        "microphones used": f"{used} of {mics}" + (
+            f" (the recording's {timing} other channel(s) carry timing or are unused)"
+            if timing > 0 else ""),
         "array": _array_text(al.get("array", {})),
         "yaw from": al.get("track", {}).get("heading_source", "attitude in the track"),
         "crab angle overhead (deg)": f"{al.get('track', {}).get('crab_angle_deg', 0.0):+.1f}",
@@ -210,11 +251,13 @@ def _pass_section(campaign: Campaign, name: str, out: Path) -> str:
         maps.append("<h4>Methods side by side</h4>" + _img(
             d / "maps" / f"{first}.png", f"{first} by {campaign.analysis.method}") + "".join(
             _img(p, f"{first} by {p.stem[11:]}") for p in compared))
+    warnings = [r for r in str(signed["reasons"]).split("; ") if r] + warnings
     warn_html = ("<ul>" + "".join(f'<li class="warn">{html.escape(w)}</li>' for w in warnings)
                  + "</ul>") if warnings else "<p>No data-quality warnings.</p>"
+    status = html.escape(str(signed["status"]))
     return f"""
-<h2 id="pass-{html.escape(name)}">Pass {html.escape(name)}</h2>
-<section class="pass" data-pass="{html.escape(name)}">
+<h2 id="pass-{html.escape(name)}">Pass {html.escape(name)}: {status}</h2>
+<section class="pass" data-pass="{html.escape(name)}" data-status="{status}">
 <h3>Conditions and alignment</h3>{_table(conditions)}
 <h3>Recorders and clocks</h3>{_table(_recorder_table(al))}
 <h3>Single-event metrics (as received)</h3>{_table(_metrics_table(d))}
@@ -253,8 +296,8 @@ def _rotor_table(d: Path) -> pd.DataFrame:
                      "frequency (Hz)": f"{g['frequency_hz'].mean():.1f}",
                      "windows separable": f"{len(ok)} of {len(g)}",
                      "level at 1 m near overhead (dB)": (
-                         f"{near['level_1m_db']:.1f} at {near['polar_angle_deg']:.0f} deg"
-                         if near is not None else ""),
+                         f"{_num(near['level_1m_db'], missing='no level')} at "
+                         f"{near['polar_angle_deg']:.0f} deg" if near is not None else ""),
                      "range over the pass (dB)": (
                          f"{ok['level_1m_db'].min():.1f} to {ok['level_1m_db'].max():.1f}"
                          if len(ok) else "")})
@@ -327,11 +370,13 @@ def _numbers_per_pass(campaign: Campaign, out: Path) -> pd.DataFrame:
     """Per pass: height, speed, LASmax and LAE measured, the reference flight's per component,
     and each component's overall A level nearest overhead with its band range and interval."""
     rows = []
+    signed = _signoff_rows(out)
     for name, spec in campaign.passes.items():
         d = out / name
         al = read_alignment(d)
         m = EVENT_METRICS.read(d).iloc[0]
-        row = {"pass": name, "label": spec.label, "height (m)": f"{al['height_above_array_m']:.1f}",
+        row = {"pass": name, "label": spec.label, "status": signed[name]["status"],
+               "height (m)": f"{al['height_above_array_m']:.1f}",
                "speed (m/s)": f"{al['speed_m_s']:.1f}",
                "LASmax measured (dB)": f"{m['lasmax_db']:.1f}",
                "LAE measured (dB)": f"{m['lae_db']:.1f}",
@@ -346,10 +391,12 @@ def _numbers_per_pass(campaign: Campaign, out: Path) -> pd.DataFrame:
             near = overall.loc[(overall["polar_angle_deg"] - 90).abs()
                                == (overall["polar_angle_deg"] - 90).abs().min()]
             for _, r in near.iterrows():
-                value = (f"{r['a_weighted_db']:.1f} +- {Z90 * r['uncertainty_db']:.1f}"
-                         if np.isfinite(r["a_weighted_db"]) else "none")
-                row[f"{r['region']}: overall A at {r['polar_angle_deg']:.0f} deg, "
-                    f"{r['band_range_hz']} Hz (dB)"] = value
+                value = (f"{r['a_weighted_db']:.1f} +- {_num(Z90 * r['uncertainty_db'])}"
+                         if np.isfinite(r["a_weighted_db"]) else f"missing: {r['note']}")
+                span = (f", {r['band_range_hz']} Hz" if isinstance(r["band_range_hz"], str)
+                        and r["band_range_hz"] else "")
+                row[f"{r['region']}: overall A at {r['polar_angle_deg']:.0f} deg{span} "
+                    "(dB)"] = value
         rows.append(row)
     return _by_column(rows, "pass")
 
@@ -364,19 +411,26 @@ def _numbers_per_label(campaign: Campaign, out: Path, overall: pd.DataFrame) -> 
     """Per label: the passes' mean measured LASmax and LAE, and the campaign's overall A level
     per component in the 90 deg bin with its 90 % interval and band range."""
     rows = []
+    signed = _signoff_rows(out)
     labels = dict.fromkeys(p.label for p in campaign.passes.values())
     for label in labels:
         names = [n for n, p in campaign.passes.items() if p.label == label]
         m = pd.concat([EVENT_METRICS.read(out / n) for n in names])
-        row = {"label": label or "unlabelled", "passes": len(names),
+        status = {n: signed[n]["status"] for n in names}
+        row = {"label": label or "unlabelled",
+               "passes (status)": ", ".join(f"{n} ({s})" for n, s in status.items()),
                "LASmax measured, mean (dB)": f"{m['lasmax_db'].mean():.1f}",
                "LAE measured, mean (dB)": f"{m['lae_db'].mean():.1f}"}
         sel = overall[(overall["label"] == (label or "unlabelled"))
                       & (overall["quantity"] == "A-weighted")
                       & (overall["polar_bin_deg"] == 90.0)] if len(overall) else overall
         for _, r in sel.iterrows():
-            row[f"{r['region']}: overall A at 90 deg, {r['band_range_hz']} Hz (dB)"] = (
-                f"{r['mean_db']:.1f} +- {r['ci_half_width_db']:.1f}")
+            span = (f", {r['band_range_hz']} Hz" if isinstance(r["band_range_hz"], str)
+                    and r["band_range_hz"] else "")
+            mean = _num(r["mean_db"], missing="")
+            row[f"{r['region']}: overall A at 90 deg{span} (dB)"] = (
+                f"{mean} +- {_num(r['ci_half_width_db'], missing='(one pass: no interval)')}"
+                f" over {r['passes']}" if mean else "missing: no pass has a level")
         rows.append(row)
     return _by_column(rows, "label")
 
@@ -451,7 +505,15 @@ def run(campaign: Campaign, out_dir: Path) -> None:
 <p class="muted">{html.escape(campaign.config_path.name)} &middot; generated {now}; file paths
 are relative to the campaign file's folder</p>
 <p class="caution"><strong>Caution.</strong> {html.escape(CAUTION)}</p>
-<nav><a href="#summary">summary</a>{nav}<a href="#provenance">provenance</a></nav>
+<nav><a href="#signoff">sign-off</a><a href="#summary">summary</a>{nav}<a href="#provenance">provenance</a></nav>
+<h2 id="signoff">Sign-off</h2>
+<section id="signoff-table">
+<p class="muted">Each pass is accepted, flagged (a limit broken: its numbers stand, with the
+reasons) or rejected (no number of it should be signed): the rules, their limits and sources are
+in the README (weather_limits and signoff_limits in the campaign file set them). signoff.csv and
+signoff.json hold the same with every rule's measured value and limit.</p>
+{_table(_signoff_table(out), flag_column="_flag")}
+</section>
 <h2 id="summary">Campaign summary</h2>
 <section id="campaign-summary">
 {_table(passes)}

@@ -22,6 +22,7 @@ from pathlib import Path
 
 from flyover.io.results.alignment import read_alignment
 from flyover.io.results.levels import LEVELS
+from flyover.io.results.signoff import SIGNOFF
 from flyover.io.results.windows import NO_WINDOW, WINDOWS
 from flyover.model.campaign import Campaign
 from flyover.model.errors import FlyoverInputError
@@ -319,11 +320,22 @@ def summary_text(campaign: Campaign, wall_s: float, log_path: Path) -> str:
     out = Path(campaign.output)
     lines = []
     done = 0
+    try:
+        signed = SIGNOFF.read(out).fillna({"reasons": ""}).set_index("pass")
+    except FlyoverInputError:
+        signed = None
     for name in campaign.passes:
         folder = out / name
         complete = (folder / "levels.csv").exists() and (folder / "qc_track.png").exists()
         done += complete
-        lines.append(f"  {name}: {'done' if complete else 'not complete'}")
+        status = ""
+        if signed is not None and name in signed.index:
+            status = f", {signed.loc[name, 'status']}"
+            reasons = [r for r in str(signed.loc[name, "reasons"]).split("; ") if r]
+        else:
+            reasons = []
+        lines.append(f"  {name}: {'done' if complete else 'not complete'}{status}")
+        lines += [f"    {w}" for w in reasons]
         lines += [f"    warning: {w}" for w in pass_warnings(folder)]
     report = out / "report.html"
     head = f"passes done: {done} of {len(campaign.passes)}"

@@ -57,3 +57,16 @@ def pass_atmosphere(alignment: dict) -> Atmosphere:
     a = alignment["atmosphere"]
     return Atmosphere(a["temperature_c"], a["relative_humidity_pct"], a["pressure_kpa"],
                       a["wind_speed_m_s"], a["wind_from_deg"], a.get("speed_of_sound_m_s"))
+
+
+def clock_uncertainty_s(alignment: dict, given_s: float) -> float:
+    """The clock offset's standard uncertainty: the acoustic estimate's, the timing channels'
+    (the largest of the recorders'), or ``given_s``, the stated default for a clock given by
+    hand (``analysis.uncertainty.clock_s``)."""
+    if "clock_offset_uncertainty_s" in alignment:
+        return float(alignment["clock_offset_uncertainty_s"])
+    timed = [r["offset_uncertainty_s"] for r in alignment.get("recorders", [])
+             if r.get("clock_method") == "timing channel"]
+    if timed and len(timed) == len(alignment["recorders"]):
+        return float(max(timed))
+    return float(given_s)

@@ -47,10 +47,33 @@ rule hemispheres:
         '"$FLYOVER_PYTHON" -m flyover stage-campaign hemispheres > {log:q} 2>&1'
 
 
+rule signoff:
+    input:
+        PLAN.pass_results(("alignment.json", "windows.csv", "event_metrics.csv",
+                           "reconstructed_metrics.csv")),
+    output:
+        table=update(f"{OUTP}/signoff.csv"),
+        record=update(f"{OUTP}/signoff.json"),
+    params:
+        fingerprint=PLAN.campaign_fingerprint("signoff"),
+    log:
+        f"{OUTP}/logs/signoff.log",
+    benchmark:
+        f"{OUTP}/benchmarks/signoff.tsv"
+    resources:
+        mem_mb=PLAN.memory_mb(None, "signoff"),
+        runtime=PLAN.runtime_min(None, "signoff"),
+    conda:
+        CONDA_ENV,
+    shell:
+        '"$FLYOVER_PYTHON" -m flyover stage-campaign signoff > {log:q} 2>&1'
+
+
 rule report:
     input:
         rules.campaign_summary.output,
         rules.hemispheres.output,
+        rules.signoff.output,
         PLAN.pass_results(("alignment.json", "windows.csv", "qc_track.png", "qc_spectrogram.png",
                            "spectra.png", "directivity.png", "event_metrics.csv",
                            "level_history.png", "reconstructed_metrics.csv",
