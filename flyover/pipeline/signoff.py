@@ -16,6 +16,7 @@ from flyover.acoustics.weather import weather_findings
 from flyover.io.results.alignment import clock_uncertainty_s, read_alignment
 from flyover.io.results.event_metrics import EVENT_METRICS, RECONSTRUCTED
 from flyover.io.results.signoff import SIGNOFF, write_signoff_json
+from flyover.io.results.track_check import read_track_check
 from flyover.io.results.windows import WINDOWS
 from flyover.model.campaign import Campaign
 from flyover.model.reads import guarded
@@ -36,7 +37,8 @@ def pass_findings(facts: dict, *, limits, weather_limits, clock_given_s: float,
     ----------
     facts : dict
         ``alignment`` (alignment.json), ``windows`` (windows.csv), ``metrics``
-        (event_metrics.csv) and ``reconstructed`` (reconstructed_metrics.csv) of the pass.
+        (event_metrics.csv), ``reconstructed`` (reconstructed_metrics.csv) and
+        ``track_check`` (track_check.json, optional) of the pass.
     limits : SignoffLimits
     weather_limits : WeatherLimits
     clock_given_s : float
@@ -86,12 +88,44 @@ def pass_findings(facts: dict, *, limits, weather_limits, clock_given_s: float,
         out.append(Finding("measured single-event metrics", "incomplete", "complete", "", FLAG,
                            "the recording cuts the 10 dB-down interval short: LAE and the "
                            "duration are lower bounds"))
+    out += track_findings(facts.get("track_check"), limits.track_offset_max_m)
     rec = facts["reconstructed"]
     ref = rec[(rec["route"] == "reference flight") & (rec["component"] == "total")]
     if len(ref) and not _true(ref["complete"].iloc[0]):
         out.append(Finding("reference-flight metrics", "incomplete", "complete", "", FLAG,
                            "the measured directivity ends before 10 dB down: the reference "
                            "flight's LAE is a lower bound"))
+    return out
+
+
+def track_findings(check: dict | None, tolerance_m: float) -> list[Finding]:
+    """The acoustic track check against its tolerance: per axis, an offset of best focus beyond
+    the tolerance (plus, along-track and laterally, the anchor region's half-extent: the source
+    may sit anywhere in it) or at the scan's edge flags the pass; so does a scan that cannot
+    decide (no source to focus on), which then says so."""
+    if check is None:
+        return []
+    out = []
+    axes = check.get("axes", {})
+    if not axes:
+        return [Finding("acoustic track check", "not run", "windows near overhead", "", FLAG,
+                        "the acoustic track check found no window near overhead")]
+    for axis, r in axes.items():
+        allowed = tolerance_m + float(check["region_half_extent_m"].get(axis, 0.0))
+        if not r["decided"]:
+            out.append(Finding(f"track {axis} against the sound", "undecided",
+                               f"+- {allowed:.2f}", "m", FLAG,
+                               f"the acoustic track check cannot decide the {axis} offset "
+                               f"(best focus {r['peak_focus']:.2f}: no clear source at "
+                               f"the {check['anchor']})"))
+        elif r["at_edge"] or abs(r["offset_m"]) > allowed:
+            beyond = " (at the scan's edge: possibly more)" if r["at_edge"] else ""
+            out.append(Finding(f"track {axis} against the sound", round(r["offset_m"], 2),
+                               f"+- {allowed:.2f}", "m", FLAG,
+                               f"the sound is in best focus with the track moved "
+                               f"{r['offset_m']:+.2f} m in {axis}{beyond} (+- "
+                               f"{r['uncertainty_m']:.2f} m; tolerance {allowed:.2f} m): "
+                               "check the track's heights, datum and antenna offset"))
     return out
 
 
@@ -132,7 +166,8 @@ def run(campaign: Campaign, out_dir: Path) -> None:
         folder = out_dir / name
         facts[name] = {"alignment": read_alignment(folder), "windows": WINDOWS.read(folder),
                        "metrics": EVENT_METRICS.read(folder),
-                       "reconstructed": RECONSTRUCTED.read(folder)}
+                       "reconstructed": RECONSTRUCTED.read(folder),
+                       "track_check": read_track_check(folder)}
     labels = {n: campaign.passes[n].label for n in campaign.passes}
     by_label = label_findings({n: f["alignment"]["height_above_array_m"] for n, f in facts.items()},
                               {n: f["alignment"]["speed_m_s"] for n, f in facts.items()},

@@ -55,7 +55,8 @@ class JobSizes:
 # 16-microphone test campaign): peak resident memory of each stage beyond the chain itself, the
 # chain's temporaries per byte of `window_memory_bytes`, and the whole image stage's throughput.
 _BASE_MB = {"align": 320, "image": 330, "levels": 260, "qc": 380, "metrics": 300, "tones": 380,
-            "campaign_summary": 300, "hemispheres": 400, "signoff": 300, "report": 300}
+            "campaign_summary": 300, "hemispheres": 400, "signoff": 300, "trackcheck": 380,
+            "report": 300}
 _CHAIN_FACTOR = 1.7            # image: 561 MB at 142 MiB of chain (demo), 332 MB at 12 MiB
 # mic * grid point * sample per second, whole image stage with its unit sources, 2 threads:
 # demo pass-1, 48 mics x 775 points x 6400 samples x 16 windows in 50.6 s.

@@ -50,7 +50,7 @@ rule hemispheres:
 rule signoff:
     input:
         PLAN.pass_results(("alignment.json", "windows.csv", "event_metrics.csv",
-                           "reconstructed_metrics.csv")),
+                           "reconstructed_metrics.csv", "track_check.json")),
     output:
         table=update(f"{OUTP}/signoff.csv"),
         record=update(f"{OUTP}/signoff.json"),

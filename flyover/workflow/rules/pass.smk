@@ -82,6 +82,29 @@ rule levels:
         f"{STAGE} levels --pass {{wildcards.pass_name:q}} > {{log:q}} 2>&1"
 
 
+rule trackcheck:
+    input:
+        alignment=f"{OUTP}/{{pass_name}}/alignment.json",
+        levels=f"{OUTP}/{{pass_name}}/levels.csv",
+    output:
+        update(f"{OUTP}/{{pass_name}}/track_check.json"),
+    params:
+        fingerprint=lambda w: PLAN.fingerprint(w.pass_name, "trackcheck"),
+    log:
+        f"{OUTP}/logs/{{pass_name}}/trackcheck.log",
+    benchmark:
+        f"{OUTP}/benchmarks/{{pass_name}}/trackcheck.tsv"
+    group:
+        "pass_light"
+    resources:
+        mem_mb=lambda w: PLAN.memory_mb(w.pass_name, "trackcheck"),
+        runtime=lambda w: PLAN.runtime_min(w.pass_name, "trackcheck"),
+    conda:
+        CONDA_ENV,
+    shell:
+        f"{STAGE} trackcheck --pass {{wildcards.pass_name:q}} > {{log:q}} 2>&1"
+
+
 rule metrics:
     input:
         unpack(lambda w: PLAN.pass_inputs(w.pass_name)),
