@@ -5,6 +5,7 @@ from __future__ import annotations
 import base64
 import hashlib
 import html
+import io
 import os
 import platform
 from datetime import datetime, timezone
@@ -13,6 +14,7 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
+from PIL import Image
 
 from flyover import __version__
 from flyover.io.atomic import write_text
@@ -34,6 +36,7 @@ CAUTION = ("Outdoor flight tests and their measurements must follow the applicab
            "operator's own risk assessment.")
 PACKAGES = ("numpy", "scipy", "pandas", "pyproj", "matplotlib", "snakemake", "numba",
             "soundfile", "PyYAML", "jsonschema")
+REPORT_IMAGE_QUALITY = 65  # WebP quality of the embedded figures (the PNGs keep full detail)
 FULL_DIGEST_BYTES = 1 << 30  # files above this get a partial digest (head, tail and size)
 
 _STYLE = """
@@ -71,10 +74,18 @@ def file_digest(path: Path) -> str:
 
 
 def _img(path: Path, alt: str) -> str:
+    """A figure embedded as lossy WebP on white (the PNG stays in the results folder): a third
+    of the PNG's bytes at this quality, which keeps the demo's report under 5 MB."""
     if not Path(path).exists():
         return f'<p class="muted">({html.escape(alt)}: not available)</p>'
-    data = base64.b64encode(Path(path).read_bytes()).decode("ascii")
-    return f'<img alt="{html.escape(alt)}" src="data:image/png;base64,{data}">'
+    with Image.open(path) as image:
+        flat = Image.new("RGB", image.size, "white")
+        rgba = image.convert("RGBA")
+        flat.paste(rgba, mask=rgba.getchannel("A"))
+    buffer = io.BytesIO()
+    flat.save(buffer, "WEBP", quality=REPORT_IMAGE_QUALITY, method=6)
+    data = base64.b64encode(buffer.getvalue()).decode("ascii")
+    return f'<img alt="{html.escape(alt)}" src="data:image/webp;base64,{data}">'
 
 
 def _num(value, fmt: str = ".1f", missing: str = "missing") -> str:
