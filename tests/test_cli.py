@@ -14,7 +14,7 @@ from flyover.io.config import load_campaign
 def test_check_prints_summary(tiny_campaign_dir, capsys):
     assert main(["check", str(tiny_campaign_dir / "campaign.yaml")]) == 0
     out = capsys.readouterr().out
-    for fragment in ("16/16 microphones used", "recorder recorder: WAV file recording.wav",
+    for fragment in ("16/16 microphones used", "recorder 'recorder': WAV file recording.wav",
                      "overhead at", "closest 30.0 m", "all inputs are valid"):
         assert fragment in out
 
@@ -73,3 +73,18 @@ def test_array_plan_prints_widths_and_where_two_points_separate(tmp_path, capsys
     assert out.count("\n") >= 8 and "the two points separate from" in out
     assert figure.stat().st_size > 10_000
     assert main(["array-plan", str(layout), "--height-m", "0.1"]) == 2
+
+
+def test_plan_names_the_input_file_that_changed():
+    # A dry run's job block as Snakemake 9 prints it with --reason.
+    from flyover.workflow.dryrun import format_plan, parse_dry_run
+    text = """
+rule align:
+    input: /c/p1/track.csv, /c/p1/recording.wav
+    output: /c/results/p1/alignment.json
+    jobid: 3
+    reason: Updated input files: /c/p1/track.csv
+    wildcards: pass_name=p1
+"""
+    plan = format_plan(parse_dry_run(text))
+    assert "pass p1:" in plan and "input changed: /c/p1/track.csv" in plan

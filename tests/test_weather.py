@@ -109,7 +109,7 @@ def test_a_pass_takes_the_mean_over_its_analysed_stretch(tiny_copy, capsys):
     assert inputs.weather["samples"] == len(rows)
     assert main(["check", str(tiny_copy / "campaign.yaml")]) == 0
     out = capsys.readouterr().out
-    assert "weather file:" in out and "track track.csv: CSV, 10.0 Hz" in out
+    assert "weather file:" in out and "track file track.csv: CSV, 10.0 Hz" in out
 
 
 def test_weather_refusals(tiny_copy, capsys):

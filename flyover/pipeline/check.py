@@ -265,7 +265,7 @@ def _track_lines(s: dict) -> list[str]:
     t = s["track"]
     lever = (f", antenna at {t['antenna_offset_m']} m in body axes"
              if t["antenna_offset_m"] is not None else "")
-    lines = [f"    track {t['file']}: {t['source']}, {t['rate_hz']:.1f} Hz, {t['samples']} "
+    lines = [f"    track file {t['file']}: {t['source']}, {t['rate_hz']:.1f} Hz, {t['samples']} "
              f"samples from {t['start_utc']} to {t['end_utc']}; holds "
              f"{', '.join(t['holds'])}; position noise ~"
              f"{t['position_noise_estimate_m'] * 100:.1f} cm{lever}"]
@@ -309,7 +309,7 @@ def _recorder_lines(s: dict) -> list[str]:
                  }[r["clock_method"]]
         if r["offset_s"] is not None and r["clock_method"] == "timing channel":
             clock += f"; its own clock was off by {-r['offset_s']:+.4f} s"
-        lines += [f"    recorder {r['name']}: {files}, {r['channels']} channels "
+        lines += [f"    recorder '{r['name']}': {files}, {r['channels']} channels "
                   f"(microphones {r['layout_channels']}), from {r['start_utc']} for "
                   f"{r['duration_s']:.2f} s (t = {r['span_s'][0]:.3f} to {r['span_s'][1]:.3f} s)",
                   f"      {clock}"]

@@ -48,4 +48,19 @@ def _short_reason(reason: str) -> str:
              ("Code has changed", "the rule changed"),
              ("Set of input files has changed", "the set of inputs changed"))
     found = [short for key, short in table if key in reason]
+    changed = _named_files(reason, "Updated input files")
+    if changed:
+        found = [f"input changed: {changed}" if f == "an input file changed" else f
+                 for f in found]
     return "; ".join(found) if found else reason[:100]
+
+
+def _named_files(reason: str, key: str, most: int = 3) -> str:
+    """The files Snakemake lists after ``key:`` in a reason, by name (relative to the campaign
+    where they are given so), at most ``most`` of them."""
+    if key + ":" not in reason:
+        return ""
+    listed = reason.split(key + ":", 1)[1].split(";", 1)[0]
+    names = [n.strip() for n in listed.split(",") if n.strip()]
+    shown = ", ".join(names[:most])
+    return shown + (f" and {len(names) - most} more" if len(names) > most else "")
