@@ -254,6 +254,8 @@ def test_report_is_self_contained(finished_run):
     # Every pass has a status at the top, and no number reads 'nan'.
     assert 'id="signoff"' in text and text.count('data-status="') == 2
     assert not re.search(r"\bnan\b", text, re.IGNORECASE)
+    from flyover.io.results.signoff import read_signoff_json
+    assert set(read_signoff_json(finished_run / "results")) == {"p1", "p2"}
     signed = pd.read_csv(finished_run / "results" / "signoff.csv")
     assert set(signed["status"]) <= {"accepted", "flagged", "rejected"} and len(signed) == 2
 

@@ -3,14 +3,13 @@ the track in height, along-track and laterally that bring the dominant source in
 
 from __future__ import annotations
 
-import json
 from pathlib import Path
 
 import numpy as np
 
 from flyover.acoustics.bands import third_octave_bands
 from flyover.geometry.windows import plan_windows
-from flyover.io.atomic import write_text
+from flyover.io.results import write_json
 from flyover.io.results.levels import LEVELS
 from flyover.io.results.track_check import NAME as TRACK_CHECK
 from flyover.model.campaign import PASS_INPUTS, Campaign
@@ -91,5 +90,5 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> dict:
                 "reach_m": reach,
                 "scan_offsets_m": [round(float(v), 4) for v in r.scan_offsets_m],
                 "scan_focus": [round(float(v), 5) for v in r.scan_focus]}
-    write_text(out_dir / TRACK_CHECK, json.dumps(record, indent=2, sort_keys=True) + "\n")
+    write_json(out_dir, TRACK_CHECK, record)
     return record

@@ -6,11 +6,13 @@ that writes a file and the stages that read it back share one description of it.
 
 from __future__ import annotations
 
+import json
 from dataclasses import dataclass
 from pathlib import Path
 
 import pandas as pd
 
+from flyover.io.atomic import write_text
 from flyover.io.csvtable import write_csv
 from flyover.model.errors import FlyoverInputError
 
@@ -78,6 +80,22 @@ class TableFile:
         if self.more_columns:
             rows.append(f"- then: {self.more_columns}")
         return f"`{self.name}`\n" + "\n".join(rows)
+
+
+def write_json(folder, name: str, data: dict) -> Path:
+    """Write a JSON result file (sorted keys, indented: stable bytes for identical results)."""
+    path = Path(folder) / name
+    write_text(path, json.dumps(data, indent=2, sort_keys=True) + "\n")
+    return path
+
+
+def read_json(folder, name: str, step: str) -> dict:
+    """Read a JSON result file back; a missing one names the workflow step that writes it."""
+    path = Path(folder) / name
+    if not path.is_file():
+        raise FlyoverInputError(f"result file {name} is missing", str(path),
+                                hint=f"run the {step} step (flyover run)")
+    return json.loads(path.read_text(encoding="utf-8"))
 
 
 # Sizes of a pass's result files, measured on the demo (16 windows, 13 bands, 775 grid points):

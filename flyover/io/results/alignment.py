@@ -6,11 +6,10 @@ report and the engineer.
 
 from __future__ import annotations
 
-import json
 from pathlib import Path
 
 from flyover.acoustics.atmosphere import Atmosphere
-from flyover.io.atomic import write_text
+from flyover.io.results import read_json, write_json
 from flyover.model.errors import FlyoverInputError
 
 NAME = "alignment.json"
@@ -32,18 +31,13 @@ def write_alignment(folder, summary: dict) -> Path:
     missing = sorted(set(REQUIRED_KEYS) - set(summary))
     if missing:
         raise RuntimeError(f"{NAME}: keys {missing} missing")
-    path = Path(folder) / NAME
-    write_text(path, json.dumps(summary, indent=2, sort_keys=True) + "\n")
-    return path
+    return write_json(folder, NAME, summary)
 
 
 def read_alignment(folder) -> dict:
     """Read a pass's alignment back, checking the keys later stages need."""
     path = Path(folder) / NAME
-    if not path.is_file():
-        raise FlyoverInputError(f"result file {NAME} is missing", str(path),
-                                hint="run the align step first (flyover run)")
-    data = json.loads(path.read_text(encoding="utf-8"))
+    data = read_json(folder, NAME, "align")
     missing = sorted(set(REQUIRED_KEYS) - set(data))
     if missing:
         raise FlyoverInputError(f"{NAME} lacks keys {missing}", str(path),

@@ -3,12 +3,9 @@ numbers (campaign folder)."""
 
 from __future__ import annotations
 
-import json
 from pathlib import Path
 
-from flyover.io.atomic import write_text
-from flyover.io.results import TableFile
-from flyover.model.errors import FlyoverInputError
+from flyover.io.results import TableFile, read_json, write_json
 
 SIGNOFF = TableFile("signoff.csv", (
     ("pass", "pass name"),
@@ -27,16 +24,10 @@ SIGNOFF_JSON = "signoff.json"
 
 
 def write_signoff_json(folder, passes: dict) -> Path:
-    """Write ``{pass: {status, label, findings: [...], headline: {...}}}`` (sorted keys)."""
-    path = Path(folder) / SIGNOFF_JSON
-    write_text(path, json.dumps(passes, indent=2, sort_keys=True) + "\n")
-    return path
+    """Write ``{pass: {status, label, findings: [...], headline: {...}}}``."""
+    return write_json(folder, SIGNOFF_JSON, passes)
 
 
 def read_signoff_json(folder) -> dict:
     """The sign-off of every pass, as written by :func:`write_signoff_json`."""
-    path = Path(folder) / SIGNOFF_JSON
-    if not path.is_file():
-        raise FlyoverInputError(f"result file {SIGNOFF_JSON} is missing", str(path),
-                                hint="run the sign-off step (flyover run)")
-    return json.loads(path.read_text(encoding="utf-8"))
+    return read_json(folder, SIGNOFF_JSON, "sign-off")

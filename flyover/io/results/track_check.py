@@ -9,17 +9,10 @@ decide), ``at_edge``, ``decided``, ``peak_focus``, ``reach_m`` and the coarse sc
 
 from __future__ import annotations
 
-import json
-from pathlib import Path
-
-from flyover.model.errors import FlyoverInputError
+from flyover.io.results import read_json
 
 NAME = "track_check.json"
 
 
 def read_track_check(folder) -> dict:
-    path = Path(folder) / NAME
-    if not path.is_file():
-        raise FlyoverInputError(f"result file {NAME} is missing", str(path),
-                                hint="run the track check step (flyover run)")
-    return json.loads(path.read_text(encoding="utf-8"))
+    return read_json(folder, NAME, "track check")
