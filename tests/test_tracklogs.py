@@ -260,7 +260,7 @@ def test_a_pass_flown_with_an_autopilot_log_and_its_rotor_speeds(tiny_copy, caps
     path.write_text(yaml.safe_dump(data))
     assert main(["check", str(path)]) == 0
     out = capsys.readouterr().out
-    assert "track flight.ulg: PX4 ULog (vehicle_global_position), 10.0 Hz" in out
+    assert "track file flight.ulg: PX4 ULog (vehicle_global_position), 10.0 Hz" in out
     assert "holds position, attitude, rotor speeds" in out
     assert "rotor front (motor 1, 2 blades)" in out and "mean 6000 rpm" in out
     assert "blade passing 200.0 Hz" in out
