@@ -309,10 +309,16 @@ def _rotor_table(d: Path) -> pd.DataFrame:
                      "level at 1 m near overhead (dB)": (
                          f"{_num(near['level_1m_db'], missing='no level')} at "
                          f"{near['polar_angle_deg']:.0f} deg" if near is not None else ""),
-                     "range over the pass (dB)": (
-                         f"{ok['level_1m_db'].min():.1f} to {ok['level_1m_db'].max():.1f}"
-                         if len(ok) else "")})
+                     "range over the pass (dB)": _level_range(ok["level_1m_db"])})
     return pd.DataFrame(rows)
+
+
+def _level_range(levels) -> str:
+    """The lowest to the highest of the levels given, or why there is none."""
+    given = pd.to_numeric(levels, errors="coerce").dropna()
+    if len(given) == 0:
+        return "no level in any window (under 6 dB above the residual)" if len(levels) else ""
+    return f"{given.min():.1f} to {given.max():.1f}"
 
 
 def _metrics_table(d: Path) -> pd.DataFrame:
