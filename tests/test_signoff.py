@@ -88,3 +88,15 @@ def test_height_off_its_label_flags_even_heights_in_feet():
     found = label_findings(heights, speeds, dict.fromkeys(heights, "cruise"), SignoffLimits())
     assert [f.rule for f in found["c"]] == ["height against the label"]
     assert found["a"] == [] and found["b"] == []
+
+
+def test_an_undecided_track_check_says_so_and_flags():
+    # No source at the anchor (best focus 0.05, under the 0.2 a true anchor clears): the check
+    # cannot decide, and says so rather than reporting its offset as a finding of fact.
+    from flyover.pipeline.signoff import track_findings
+    check = {"anchor": "centre of region 'front'", "region_half_extent_m": {"height": 0.0},
+             "axes": {"height": {"offset_m": 3.2, "uncertainty_m": None, "at_edge": False,
+                                 "decided": False, "peak_focus": 0.05}}}
+    found = track_findings(check, SignoffLimits().track_offset_max_m)
+    assert [f.measured for f in found] == ["undecided"] and "cannot decide" in found[0].text
+    assert status_of(found) == FLAGGED
