@@ -19,8 +19,9 @@ import numpy as np
 from flyover.acoustics.atmosphere import Atmosphere
 from flyover.geometry.track import TrackModel
 from flyover.geometry.windows import Window
-from flyover.imaging.dedoppler import ChainSettings, reception_geometry, window_band_powers
+from flyover.imaging.dedoppler import ChainSettings, reception_geometry
 from flyover.sync.timebase import ArrayClock
+from flyover.sync.track_check import anchor_coherence
 
 
 @dataclass(frozen=True)
@@ -65,8 +66,6 @@ def anchor_power(read_frames, track: TrackModel, windows: list[Window], anchor_b
     reception times (a common offset of all recorders).
     """
     total = np.zeros(len(offsets_s))
-    w_used = np.asarray(settings.weights, float)
-    s1, s2 = w_used.sum(), (w_used ** 2).sum()
     for w in windows:
         geo = reception_geometry(track, w, np.asarray(anchor_body_m, float)[None], mic_enu_m,
                                  atmosphere, settings.pressure_gain, node_step=settings.node_step)
@@ -77,12 +76,8 @@ def anchor_power(read_frames, track: TrackModel, windows: list[Window], anchor_b
         signals = read_frames(first, n)
         for k, dt in enumerate(offsets_s):
             shifted = replace(geo, reception_s=geo.reception_s - dt)
-            bp = window_band_powers(signals, first, shifted, clock, w, settings, atmosphere)
-            beam = np.sum(bp.full[0]) * s1 ** 2
-            cross = np.sum(bp.diagonal_removed[0]) * (s1 ** 2 - s2)
-            auto = beam - cross
-            # Normalised so that one source alone at the anchor gives 1 (equal amplitudes).
-            total[k] += (cross * s2 / (auto * (s1 ** 2 - s2)) if auto > 0 else 0.0) / len(windows)
+            total[k] += anchor_coherence(signals, first, shifted, clock, w, settings,
+                                         atmosphere) / len(windows)
     return total
 
 
