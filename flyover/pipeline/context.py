@@ -391,9 +391,8 @@ def _weather_atmosphere(campaign: Campaign, inputs: PassInputs) -> tuple[Atmosph
     samples = read("weather", weather.path)
     atm, summary = weather_over(samples, int(inputs.clock.utc_ns(lo)),
                                 int(inputs.clock.utc_ns(hi)), where=str(weather.path))
-    v = inputs.track.velocity(np.array([0.5 * (lo + hi)]))[0]
-    heading = float(np.rad2deg(np.arctan2(v[0], v[1])))
-    summary["flags"] = weather_flags(summary, weather.limits, heading)
+    summary["flags"] = weather_flags(summary, weather.limits,
+                                     course_deg(inputs.track, 0.5 * (lo + hi)))
     summary["start_utc"], summary["end_utc"] = (iso_utc(summary.pop("start_utc_ns")),
                                                 iso_utc(summary.pop("end_utc_ns")))
     return atm, summary

@@ -179,9 +179,9 @@ def _signoff_rows(out: Path) -> dict:
     return {str(r["pass"]): r for _, r in table.iterrows()}
 
 
-def _signoff_table(out: Path) -> pd.DataFrame:
+def _signoff_table(signed: dict) -> pd.DataFrame:
     """The sign-off table for the report's top: status, reasons and headline numbers."""
-    t = SIGNOFF.read(out).fillna({"reasons": "", "label": ""})
+    t = pd.DataFrame(list(signed.values())).fillna({"label": ""})
     return pd.DataFrame({
         "pass": t["pass"], "label": t["label"], "status": t["status"],
         "reasons": t["reasons"].map(lambda r: r or "none"),
@@ -193,10 +193,11 @@ def _signoff_table(out: Path) -> pd.DataFrame:
         "_flag": t["status"] != "accepted"})
 
 
-def _pass_section(campaign: Campaign, name: str, out: Path) -> str:
+def _pass_section(campaign: Campaign, name: str, out: Path, signed: dict) -> str:
+    """One pass's section; ``signed`` is the sign-off row of every pass (:func:`_signoff_rows`)."""
     d = out / name
     al = read_alignment(d)
-    signed = _signoff_rows(out)[name]
+    mine = signed[name]
     spec = campaign.passes[name]
     atm = pass_atmosphere(al)
     windows = WINDOWS.read(d)
@@ -262,10 +263,10 @@ def _pass_section(campaign: Campaign, name: str, out: Path) -> str:
         maps.append("<h4>Methods side by side</h4>" + _img(
             d / "maps" / f"{first}.png", f"{first} by {campaign.analysis.method}") + "".join(
             _img(p, f"{first} by {p.stem[11:]}") for p in compared))
-    warnings = [r for r in str(signed["reasons"]).split("; ") if r] + warnings
+    warnings = [r for r in str(mine["reasons"]).split("; ") if r] + warnings
     warn_html = ("<ul>" + "".join(f'<li class="warn">{html.escape(w)}</li>' for w in warnings)
                  + "</ul>") if warnings else "<p>No data-quality warnings.</p>"
-    status = html.escape(str(signed["status"]))
+    status = html.escape(str(mine["status"]))
     return f"""
 <h2 id="pass-{html.escape(name)}">Pass {html.escape(name)}: {status}</h2>
 <section class="pass" data-pass="{html.escape(name)}" data-status="{status}">
@@ -383,11 +384,10 @@ def _with_band_range(overall: pd.DataFrame) -> pd.DataFrame:
                                   zip(overall["region"], overall["band_range_hz"])])
 
 
-def _numbers_per_pass(campaign: Campaign, out: Path) -> pd.DataFrame:
+def _numbers_per_pass(campaign: Campaign, out: Path, signed: dict) -> pd.DataFrame:
     """Per pass: height, speed, LASmax and LAE measured, the reference flight's per component,
     and each component's overall A level nearest overhead with its band range and interval."""
     rows = []
-    signed = _signoff_rows(out)
     for name, spec in campaign.passes.items():
         d = out / name
         al = read_alignment(d)
@@ -424,11 +424,11 @@ def _by_column(rows: list[dict], key: str) -> pd.DataFrame:
             .reset_index().rename(columns={key: "quantity"}))
 
 
-def _numbers_per_label(campaign: Campaign, out: Path, overall: pd.DataFrame) -> pd.DataFrame:
+def _numbers_per_label(campaign: Campaign, out: Path, overall: pd.DataFrame,
+                       signed: dict) -> pd.DataFrame:
     """Per label: the passes' mean measured LASmax and LAE, and the campaign's overall A level
     per component in the 90 deg bin with its 90 % interval and band range."""
     rows = []
-    signed = _signoff_rows(out)
     labels = dict.fromkeys(p.label for p in campaign.passes.values())
     for label in labels:
         names = [n for n, p in campaign.passes.items() if p.label == label]
@@ -493,6 +493,7 @@ def run(campaign: Campaign, out_dir: Path) -> None:
     out = Path(out_dir)
     camp = CAMPAIGN_LEVELS.read(out)
     overall = CAMPAIGN_OVERALL.read(out)
+    signed = _signoff_rows(out)
     passes = pd.DataFrame([{"pass": n, "label": p.label,
                             "temperature (C)": a.temperature_c,
                             "humidity (%)": a.relative_humidity_pct,
@@ -529,7 +530,7 @@ are relative to the campaign file's folder</p>
 reasons) or rejected (no number of it should be signed): the rules, their limits and sources are
 in the README (weather_limits and signoff_limits in the campaign file set them). signoff.csv and
 signoff.json hold the same with every rule's measured value and limit.</p>
-{_table(_signoff_table(out), flag_column="_flag")}
+{_table(_signoff_table(signed), flag_column="_flag")}
 </section>
 <h2 id="summary">Campaign summary</h2>
 <section id="campaign-summary">
@@ -539,8 +540,8 @@ signoff.json hold the same with every rule's measured value and limit.</p>
 per component for the reference flight from the measured directivity; overall A-weighted
 levels of the window nearest overhead over the label's band range, with their 90&nbsp;%
 intervals. Rounded to 0.1 dB, 0.01 s and 0.1 m.</p>
-{_table(_numbers_per_pass(campaign, out))}
-{_table(_numbers_per_label(campaign, out, overall))}
+{_table(_numbers_per_pass(campaign, out, signed))}
+{_table(_numbers_per_label(campaign, out, overall, signed))}
 <p>Levels at {an.reference_distance_m:g} m in the reference atmosphere
 ({an.reference_atmosphere.temperature_c:g} &deg;C, {an.reference_atmosphere.relative_humidity_pct:g} %
 RH), free field, convective amplification removed. Per configuration label, region,
@@ -573,7 +574,7 @@ with its residual: a smoothing of the measurement, not a measurement. The covera
 each pass's line across the hemisphere: the empty rows are the offsets to fly next.</p>
 {_hemisphere_section(campaign, out)}
 </section>
-{''.join(_pass_section(campaign, n, out) for n in campaign.passes)}
+{''.join(_pass_section(campaign, n, out, signed) for n in campaign.passes)}
 <h2 id="provenance">Provenance</h2>
 <section id="provenance-details">
 <p>Config digest (SHA-256): <code>{file_digest(campaign.config_path)}</code></p>
