@@ -6,7 +6,8 @@ import pandas as pd
 
 from flyover.model.campaign import SignoffLimits, WeatherLimits
 from flyover.model.signoff import ACCEPTED, FLAGGED, REJECTED, status_of
-from flyover.pipeline.signoff import label_findings, pass_findings
+from flyover.model.signoff import label_findings
+from flyover.pipeline.signoff import pass_findings
 
 
 def facts(**changes) -> dict:

@@ -13,6 +13,7 @@ from flyover.imaging.dedoppler import ACCURATE_FRACTION
 from flyover.imaging.planning import band_resolution, separable_from_hz
 from flyover.model.campaign import Campaign
 from flyover.model.errors import FlyoverInputError
+from flyover.model.signoff import label_findings
 from flyover.pipeline.context import (PassInputs, check_memory, load_pass, output_bytes,
                                       pass_summary)
 
@@ -68,23 +69,12 @@ def _band_warnings(campaign: Campaign, summary: dict) -> list[str]:
 def _label_warnings(campaign: Campaign, summaries: list[dict]) -> None:
     """Passes of one label whose height or speed is off the label's median by more than the
     sign-off's tolerances (``signoff_limits``; added to each such pass's warnings)."""
-    limits = campaign.signoff_limits
-    by_label: dict[str, list[dict]] = {}
+    found = label_findings({s["pass"]: s["height_above_array_m"] for s in summaries},
+                           {s["pass"]: s["speed_m_s"] for s in summaries},
+                           {s["pass"]: campaign.passes[s["pass"]].label for s in summaries},
+                           campaign.signoff_limits)
     for s in summaries:
-        by_label.setdefault(campaign.passes[s["pass"]].label, []).append(s)
-    for label, group in by_label.items():
-        if not label or len(group) < 2:
-            continue
-        for key, tol, what in (("height_above_array_m",
-                                limits.label_height_tolerance_pct / 100.0, "height"),
-                               ("speed_m_s", limits.label_speed_tolerance_pct / 100.0, "speed")):
-            median = float(np.median([s[key] for s in group]))
-            for s in group:
-                if abs(s[key] - median) > tol * median:
-                    s["warnings"].append(
-                        f"{what} {s[key]:.1f} differs from the median {median:.1f} of label "
-                        f"'{label}' by more than {tol:.0%}: averaging it with the label's "
-                        "other passes mixes conditions")
+        s["warnings"] += [f.text for f in found[s["pass"]]]
 
 
 def _check_against_recording(campaign: Campaign, inputs: PassInputs) -> None:

@@ -9,7 +9,6 @@ from __future__ import annotations
 
 from pathlib import Path
 
-import numpy as np
 import pandas as pd
 
 from flyover.acoustics.weather import weather_findings
@@ -20,7 +19,7 @@ from flyover.io.results.track_check import read_track_check
 from flyover.io.results.windows import WINDOWS
 from flyover.model.campaign import Campaign
 from flyover.model.reads import guarded
-from flyover.model.signoff import FLAG, REJECT, Finding, status_of
+from flyover.model.signoff import FLAG, REJECT, Finding, label_findings, status_of
 
 # What this stage reads of the campaign (flyover.model.reads): its re-run fingerprint too.
 READS = ("passes", "weather_limits", "signoff_limits", "analysis.uncertainty.clock_s")
@@ -126,30 +125,6 @@ def track_findings(check: dict | None, tolerance_m: float) -> list[Finding]:
                                f"{r['offset_m']:+.2f} m in {axis}{beyond} (+- "
                                f"{r['uncertainty_m']:.2f} m; tolerance {allowed:.2f} m): "
                                "check the track's heights, datum and antenna offset"))
-    return out
-
-
-def label_findings(heights: dict, speeds: dict, labels: dict, limits) -> dict[str, list]:
-    """Passes whose height or speed is off their label's median by more than the tolerances
-    (labels of two passes or more)."""
-    out: dict[str, list] = {n: [] for n in heights}
-    for label in set(labels.values()):
-        names = [n for n in heights if labels[n] == label]
-        if not label or len(names) < 2:
-            continue
-        for values, tol, what, unit in ((heights, limits.label_height_tolerance_pct, "height",
-                                         "m"),
-                                        (speeds, limits.label_speed_tolerance_pct, "speed",
-                                         "m/s")):
-            median = float(np.median([values[n] for n in names]))
-            for n in names:
-                off = 100.0 * abs(values[n] - median) / median
-                if off > tol:
-                    out[n].append(Finding(
-                        f"{what} against the label", round(values[n], 1),
-                        f"{median:.1f} +- {tol:g} %", unit, FLAG,
-                        f"{what} {values[n]:.1f} {unit} is {off:.0f} % off the median "
-                        f"{median:.1f} {unit} of label '{label}' (limit {tol:g} %)"))
     return out
 
 
