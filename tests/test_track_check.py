@@ -78,7 +78,7 @@ def flags(result) -> list:
 
 def test_the_true_track_is_in_focus(pass_20m, tmp_path):
     # Simulated truth: the sources sit on the track (offset 0). Seen on the way: 1 mm in
-    # height, 2 mm laterally, with resolutions of 0.3 m and 0.06 m.
+    # height, 2 mm laterally, with resolutions of 0.24 m and 0.06 m.
     r = height_offset(pass_20m, tmp_path, lambda t: None)
     assert r.decided and abs(r.offset_m) < 0.1 and r.uncertainty_m < 0.5
     assert flags(r) == []

@@ -140,7 +140,7 @@ def parabola_peak(offsets, focus) -> tuple[float, float]:
 def scan_track_offset(read_frames, track: TrackModel, windows: list[Window], anchor_body_m,
                       mic_enu_m, atmosphere: Atmosphere, clock: ArrayClock,
                       settings: ChainSettings, *, axis: str, reach_m: float,
-                      steps: int = 16) -> TrackOffset:
+                      steps: int = 8) -> TrackOffset:
     """The track's offset of best focus along one axis within +-``reach_m``: a coarse scan of
     ``2 steps + 1`` offsets, then a fine one of the same count over two coarse steps either side
     of its best."""
