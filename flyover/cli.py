@@ -203,7 +203,8 @@ def _dispatch(args) -> int:
         if res.returncode != 0:
             print(res.stderr, file=sys.stderr)
             return 1
-        print(format_plan(parse_dry_run(res.stdout + res.stderr)))
+        jobs = parse_dry_run(res.stdout + res.stderr)
+        print(format_plan(jobs, _changed_settings(load_campaign(args.campaign), jobs)))
         return 0
     if args.command == "report":
         from flyover.io.config import load_campaign
@@ -227,8 +228,10 @@ def _dispatch(args) -> int:
                                 ", ".join(known), args.name)
     campaign = load_campaign(args.campaign)
     stage = importlib.import_module(f"flyover.pipeline.{args.name}")
+    from flyover.workflow.settings_record import write_settings_record
     if args.command == "stage-campaign":
         stage.run(campaign, campaign.output)
+        write_settings_record(campaign.output, campaign, args.name, None)
         return 0
     out = args.out if args.out is not None else campaign.output / args.pass_name
     options = {"threads": args.threads} if args.name == "image" else {}
@@ -240,4 +243,23 @@ def _dispatch(args) -> int:
                                                                         args.pass_name))),
               file=sys.stderr)
         return 1
+    write_settings_record(campaign.output, campaign, args.name, args.pass_name)
     return 0
+
+
+def _changed_settings(campaign, jobs: list[dict]) -> dict:
+    """Per planned job whose settings changed, (rule, pass) -> the settings that did, against
+    what the step last ran with (:mod:`flyover.workflow.settings_record`)."""
+    from flyover.pipeline import stages
+    from flyover.workflow.settings_record import changed_settings
+    known = set(stages("pass")) | set(stages("campaign"))
+    out = {}
+    for j in jobs:
+        if "Params have changed" not in j["reason"]:
+            continue
+        # Rules carry their stage's name ("campaign_summary" runs the stage "summary").
+        stage = j["rule"] if j["rule"] in known else j["rule"].removeprefix("campaign_")
+        if stage in known:
+            out[(j["rule"], j["pass"])] = changed_settings(campaign.output, campaign, stage,
+                                                           j["pass"] or None)
+    return out

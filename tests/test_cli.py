@@ -88,3 +88,24 @@ rule align:
 """
     plan = format_plan(parse_dry_run(text))
     assert "pass p1:" in plan and "input changed: /c/p1/track.csv" in plan
+
+
+def test_plan_names_the_settings_that_changed(tiny_copy):
+    # A step's record of what it ran with, then two edits: the plan names exactly those keys.
+    from conftest import edit_campaign
+    from flyover.workflow.dryrun import format_plan
+    from flyover.workflow.settings_record import changed_settings, write_settings_record
+    campaign = load_campaign(tiny_copy / "campaign.yaml")
+    write_settings_record(campaign.output, campaign, "align", "p1")
+    assert changed_settings(campaign.output, campaign, "align", "p1") == []
+    edited = load_campaign(edit_campaign(tiny_copy, lambda d: (
+        d["analysis"].update(window_s=0.2),
+        d["passes"]["p1"]["atmosphere"].update(temperature_c=21.5))))
+    names = changed_settings(edited.output, edited, "align", "p1")
+    assert names == ["analysis.window_s", "passes.p1.atmosphere.temperature_c"]
+    job = {"rule": "align", "pass": "p1", "reason": "Params have changed since last execution"}
+    plan = format_plan([job], {("align", "p1"): names})
+    assert "changed: analysis.window_s, passes.p1.atmosphere.temperature_c" in plan
+    # A step that never recorded (an older run) falls back to the general words.
+    assert changed_settings(edited.output, edited, "qc", "p1") == []
+    assert "config values it uses changed" in format_plan([job])

@@ -305,3 +305,32 @@ def test_an_overall_band_range_of_fewer_than_three_bands_is_refused(tiny_copy):
     with pytest.raises(FlyoverInputError, match="fewer than 3") as err:
         load_campaign(path)
     assert "overall_band_range_hz" in str(err.value)
+
+
+def test_directivity_trend_does_not_follow_window_scatter():
+    # Windows every 10 deg of a flat directivity (80 dB), each 1.5 dB up or down by turns (the
+    # window-to-window scatter of short windows): the drawn trend stays within 0.5 dB of the
+    # level, where joining the points would zigzag by 3 dB.
+    from flyover.io.figures import angle_trend_db
+    theta = np.arange(20.0, 161.0, 10.0)
+    level = 80.0 + 1.5 * (-1.0) ** np.arange(len(theta))
+    grid, trend = angle_trend_db(theta, level, np.full(len(theta), 1.6))
+    assert grid[0] == 20.0 and grid[-1] == 160.0
+    assert np.max(np.abs(trend[(grid >= 40) & (grid <= 140)] - 80.0)) < 0.5
+    # A level with a 10 times wider interval barely moves it.
+    level[7] += 20.0
+    wide = np.full(len(theta), 1.6)
+    wide[7] = 16.0
+    _, trend = angle_trend_db(theta, level, wide)
+    assert np.max(np.abs(trend - 80.0)) < 2.0
+    assert angle_trend_db(theta[:2], level[:2])[0].size == 0
+
+
+def test_directivity_figure_draws_every_level_with_its_interval():
+    from flyover.io.figures import directivity_figure
+    theta = np.arange(30.0, 151.0, 10.0)
+    levels = pd.DataFrame({"region": "front", "band_hz": 500.0, "polar_angle_deg": theta,
+                           "level_db": 70.0 + 0.1 * theta, "uncertainty_db": 0.8})
+    fig = directivity_figure(levels, "p1")
+    bars = [c for c in fig.axes[0].containers if type(c).__name__ == "ErrorbarContainer"]
+    assert len(bars) == 1 and len(bars[0].lines[2][0].get_segments()) == len(theta)

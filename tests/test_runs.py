@@ -146,3 +146,15 @@ def test_live_status_shows_the_windows_of_a_running_imaging(tmp_path):
         state.feed(line)
     assert state.status(["p1", "p2"], tmp_path) == ("2/11 steps | running: image p1 "
                                                     "(window 2/16) | passes done 0/2")
+    # p1's results appear and its imaging finishes: done; its metrics step then starts and the
+    # count stays (it only goes forward). Six steps of eleven in 60 s: about 50 s left.
+    (tmp_path / "p1").mkdir()
+    for name in ("levels.csv", "qc_track.png"):
+        (tmp_path / "p1" / name).write_text("x")
+    for line in ("Finished jobid: 4 (Rule: image)", "6 of 11 steps (55%) done"):
+        state.feed(line)
+    assert state.status(["p1", "p2"], tmp_path).endswith("passes done 1/2")
+    for line in ("rule metrics:", "    jobid: 7", "    wildcards: pass_name=p1"):
+        state.feed(line)
+    assert state.status(["p1", "p2"], tmp_path, elapsed_s=60.0) == (
+        "6/11 steps | running: metrics p1 | passes done 1/2 | about 50 s left")

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import numpy as np
 import pandas as pd
 
 from flyover.model.campaign import SignoffLimits, WeatherLimits
@@ -67,13 +68,18 @@ def test_skipped_windows_left_out_channels_clock_and_incomplete_metrics_flag():
              "channels left out": dict(quality_excluded_channels=list(range(6))),
              "clock uncertainty": dict(clock_offset_uncertainty_s=0.004),
              "measured single-event metrics": dict(metrics=pd.DataFrame(
-                 {"ten_db_down_complete": [False]})),
+                 {"ten_db_down_complete": [False], "lae_shortfall_db": [1.26]})),
              "reference-flight metrics": dict(reconstructed=pd.DataFrame(
                  {"route": ["reference flight"], "component": ["total"],
-                  "complete": [False]}))}
+                  "complete": [False], "lae_shortfall_db": [np.inf]}))}
     for rule, change in cases.items():
         status, found = judged(**change)
         assert status == FLAGGED and [f.rule for f in found] == [rule], rule
+    # A cut-short LAE says by about how much, or that it cannot say.
+    _, (short,) = judged(**cases["measured single-event metrics"])
+    assert short.measured == 1.3 and "about 1.3 dB short" in short.text
+    _, (unknown,) = judged(**cases["reference-flight metrics"])
+    assert "cannot be estimated" in unknown.text
     # A clock given by hand is held to its stated uncertainty (1 ms here: at the limit).
     del_clock = facts()
     del del_clock["alignment"]["clock_offset_uncertainty_s"]

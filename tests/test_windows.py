@@ -66,3 +66,32 @@ def test_emission_angles_include_attitude_and_the_source_position():
     polar, _ = emission_angles_deg([[0.0, 0.0, 30.0]], [[90.0, 0.0, 0.0]], [2.0, 0.0, 0.0],
                                    np.zeros(3))
     assert polar[0] == pytest.approx(90 + np.degrees(np.arctan(2 / 30)))
+
+
+@pytest.mark.parametrize("height_m, speed_m_s", [(30.0, 22.0), (60.0, 35.0)])
+def test_polar_step_windows_lie_at_the_same_angles_whatever_the_height_and_speed(height_m,
+                                                                                   speed_m_s):
+    # A level pass over the point: polar = 90 deg + atan(V dt / h), so the window at 90 + k step
+    # is centred at dt = h tan(k step) / V after overhead (the geometry, by hand).
+    track, *_ = straight_track(speed_m_s, height_m, 90.0, 10.0, -2.0, 22.0)
+    windows = plan_windows(track, np.zeros(3), (0.0, 20.0), 0.25, None, FS,
+                           max_polar_offset_deg=70.0, polar_step_deg=10.0)
+    angles = np.array([w.polar_angle_deg for w in windows])
+    np.testing.assert_allclose(angles, np.arange(20.0, 161.0, 10.0), atol=1e-3)
+    dt = height_m * np.tan(np.deg2rad(angles - 90.0)) / speed_m_s
+    np.testing.assert_allclose([w.center_s for w in windows], 10.0 + dt, atol=1e-4)
+    assert [w.index for w in windows] == list(range(len(windows)))
+
+
+def test_polar_step_windows_stop_where_the_span_does():
+    # The span ends 1 s after overhead: windows behind stop short of the 70 deg offset, and a
+    # step must be given one way only.
+    track, *_ = straight_track(22.0, 30.0, 90.0, 10.0, -2.0, 22.0)
+    windows = plan_windows(track, np.zeros(3), (0.0, 11.0), 0.25, None, FS,
+                           max_polar_offset_deg=70.0, polar_step_deg=10.0)
+    last = windows[-1]
+    assert last.center_s + 0.125 <= 11.0
+    # The last centre at most 0.875 s after overhead: 90 + atan(22 x 0.875 / 30) = 122.7 deg.
+    assert last.polar_angle_deg == pytest.approx(120.0, abs=1e-3)
+    with pytest.raises(ValueError, match="exactly one"):
+        plan_windows(track, np.zeros(3), (0.0, 11.0), 0.25, 0.25, FS, polar_step_deg=10.0)

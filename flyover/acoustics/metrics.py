@@ -149,6 +149,63 @@ def metrics_of_mean_square(p2, sample_rate_hz: float) -> tuple[EventMetrics, dic
     return metrics, {"LAF": laf, "LAS": las}
 
 
+def lae_shortfall_db(metrics: EventMetrics, history: dict, *, closest_s: float,
+                     closest_distance_m: float, speed_m_s: float) -> float:
+    """How much LAE can miss where the signal cuts its 10 dB-down interval short (dB, 0 when
+    it does not), estimated for a straight flight whose sound beyond each cut end falls off
+    by spherical spreading from the level there.
+
+    At a cut end, at time t_e from the closest approach, the level L_e is the higher of L_AF
+    and L_AS there (L_AS trails a rising sound). Beyond it the mean square is taken as
+    p_e^2 (d^2 + v^2 t_e^2) / (d^2 + v^2 t^2) until it is 10 dB under the higher of LASmax
+    and L_e, one S time constant later than the spreading alone says (L_AS trails the
+    sound), at t_10; its energy is p_e^2 (d^2 + v^2 t_e^2) / (v d) [atan(v t_10 / d) -
+    atan(v t_e / d)] (the standard integral of 1 / (d^2 + v^2 t^2)). Directivity and
+    absorption beyond the end are not known: the figure is an estimate of the shortfall's
+    size, not a guarantee.
+
+    Parameters
+    ----------
+    metrics : EventMetrics
+    history : dict
+        The signal's ``"LAF"`` and ``"LAS"`` histories (:func:`metrics_of_mean_square`).
+    closest_s : float
+        Time of the closest approach as received, seconds from the signal's first sample.
+    closest_distance_m, speed_m_s : float
+        Closest distance and speed of the flight.
+
+    Returns
+    -------
+    float
+        dB to add to LAE for its estimated full value; inf where a cut end lies on the near
+        side of the closest approach (the peak itself may lie beyond it); NaN for a silent
+        signal.
+    """
+    if metrics.ten_db_down_complete:
+        return 0.0
+    if not np.isfinite(metrics.lasmax_db):
+        return float("nan")                           # a silent signal: no event to complete
+    las, laf = np.asarray(history["LAS"], float), np.asarray(history["LAF"], float)
+    n = len(las)
+    rate = n / metrics.laeq_duration_s                # samples per second
+    d, v = float(closest_distance_m), float(speed_m_s)
+    missing = 0.0
+    for k, outward in ((0, -1.0), (n - 1, 1.0)):
+        if las[k] < metrics.lasmax_db - TEN_DB_DOWN:
+            continue                                  # this end reached 10 dB down
+        t_e = (k / rate - closest_s) * outward        # from the closest approach, outward
+        if t_e < 0:
+            return float("inf")
+        level = max(las[k], laf[k])
+        threshold = max(metrics.lasmax_db, level) - TEN_DB_DOWN
+        r2_e = d * d + (v * t_e) ** 2
+        t_10 = (np.sqrt(max(r2_e * 10.0 ** ((level - threshold) / 10.0) - d * d, 0.0)) / v
+                + TIME_CONSTANT_S["S"])
+        missing += (10.0 ** (level / 10.0) * r2_e / (v * d)
+                    * (np.arctan(v * t_10 / d) - np.arctan(v * t_e / d)))
+    return float(10.0 * np.log10(1.0 + missing / 10.0 ** (metrics.lae_db / 10.0)))
+
+
 def band_level_history(pressure_pa, sample_rate_hz: float, bands: ThirdOctaveBands,
                        block_s: float = 0.5) -> tuple[np.ndarray, np.ndarray]:
     """One-third-octave band levels of consecutive blocks (energy per band from the block's

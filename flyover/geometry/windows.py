@@ -107,21 +107,32 @@ def emission_angles_deg(position_enu_m, attitude_deg, source_body_m, target_enu_
 def overhead_time_s(track: TrackModel, array_center_enu_m, span_s: tuple[float, float],
                     step_s: float = 0.01) -> float | None:
     """Emission time in a span at which the polar angle is 90 deg (the array abeam of the
-    flight direction), or None when the span holds no such time.
+    flight direction), or None when the span holds no such time (:func:`polar_time_s`)."""
+    return polar_time_s(track, array_center_enu_m, span_s, 90.0, step_s=step_s)
 
-    The sign change of v . (x_array - x) is found on a grid of ``step_s`` and refined by
-    bisection to a microsecond.
+
+def polar_time_s(track: TrackModel, array_center_enu_m, span_s: tuple[float, float],
+                 polar_deg: float, *, step_s: float = 0.01) -> float | None:
+    """First emission time in a span at which the polar angle to the array centre grows
+    through ``polar_deg``, or None when it does not within the span.
+
+    The sign change of v . (x_array - x) / |x_array - x| - |v| cos(polar) is found on a grid of
+    ``step_s`` and refined by bisection to a microsecond.
     """
     c = np.asarray(array_center_enu_m, float)
+    cos_target = np.cos(np.deg2rad(polar_deg))
 
     def ahead(t):
-        return np.sum(track.velocity(t) * (c - track.position(t)), axis=-1)
+        d = c - track.position(t)
+        v = track.velocity(t)
+        return (np.sum(v * d, axis=-1) / np.linalg.norm(d, axis=-1)
+                - np.linalg.norm(v, axis=-1) * cos_target)
 
     t = np.arange(span_s[0], span_s[1] + step_s / 2, step_s)
     if len(t) < 2:
         return None
     g = ahead(t)
-    k = np.flatnonzero((g[:-1] > 0) & (g[1:] <= 0))    # array ahead, then behind
+    k = np.flatnonzero((g[:-1] > 0) & (g[1:] <= 0))    # the angle still under, then through
     if len(k) == 0:
         return None
     a, b = float(t[k[0]]), float(t[k[0] + 1])
@@ -132,29 +143,42 @@ def overhead_time_s(track: TrackModel, array_center_enu_m, span_s: tuple[float, 
 
 
 def plan_windows(track: TrackModel, array_center_enu_m, span_s: tuple[float, float],
-                 window_s: float, hop_s: float, sample_rate_hz: float, *,
-                 max_polar_offset_deg: float = 90.0) -> list[Window]:
-    """Windows of ``window_s`` every ``hop_s`` within an emission-time span.
+                 window_s: float, hop_s: float | None, sample_rate_hz: float, *,
+                 max_polar_offset_deg: float = 90.0,
+                 polar_step_deg: float | None = None) -> list[Window]:
+    """Windows of ``window_s`` within an emission-time span, every ``hop_s`` or every
+    ``polar_step_deg`` of polar angle.
 
     Windows are anchored on overhead: one is centred on the emission time at which the polar
-    angle is 90 deg (:func:`overhead_time_s`), the others at whole hops from it, so that every
-    pass has a 90 deg window and the windows of passes line up in polar angle. A span that never
-    comes abeam of the array anchors on its start. Windows are kept when their polar angle lies
-    within ``max_polar_offset_deg`` of 90 deg. Whether each window's sound reaches the
-    microphones inside the recording is checked by the caller, who knows the grid and the
-    microphones.
+    angle is 90 deg (:func:`overhead_time_s`), so that every pass has a 90 deg window. The
+    others lie at whole hops from it (the windows of passes flown alike line up in polar angle)
+    or, with ``polar_step_deg``, are centred where the polar angle is 90 deg plus a whole
+    number of steps: the windows of every pass line up in angle whatever its height and speed,
+    and wide angles, where the angle changes slowly, take few windows. A span that never comes
+    abeam of the array anchors time hops on its start and has no polar-step windows. Windows
+    are kept when their polar angle lies within ``max_polar_offset_deg`` of 90 deg. Whether
+    each window's sound reaches the microphones inside the recording is checked by the
+    caller, who knows the grid and the microphones.
     """
+    if (hop_s is None) == (polar_step_deg is None):
+        raise ValueError("give exactly one of hop_s and polar_step_deg")
     n = int(round(window_s * sample_rate_hz))
     half = 0.5 * (n - 1) / sample_rate_hz
     lo = max(span_s[0], track.start_s)
     hi = min(span_s[1], track.end_s) - n / sample_rate_hz
     if hi < lo:
         return []
-    overhead = overhead_time_s(track, array_center_enu_m, (lo + half, hi + half))
-    anchor = lo if overhead is None else overhead - half      # a window's start on the grid
-    k = np.arange(np.ceil((lo - anchor) / hop_s - 1e-9), np.floor((hi - anchor) / hop_s + 1e-9)
-                  + 1)
-    starts = anchor + hop_s * k
+    if polar_step_deg is None:
+        overhead = overhead_time_s(track, array_center_enu_m, (lo + half, hi + half))
+        anchor = lo if overhead is None else overhead - half      # a window's start on the grid
+        k = np.arange(np.ceil((lo - anchor) / hop_s - 1e-9),
+                      np.floor((hi - anchor) / hop_s + 1e-9) + 1)
+        starts = anchor + hop_s * k
+    else:
+        steps = int(np.floor(min(max_polar_offset_deg, 89.999) / polar_step_deg + 1e-9))
+        centres = [polar_time_s(track, array_center_enu_m, (lo + half, hi + half),
+                                90.0 + k * polar_step_deg) for k in range(-steps, steps + 1)]
+        starts = np.array([t - half for t in centres if t is not None])
     centers = starts + half
     pos = track.position(centers)
     vel = track.velocity(centers)
@@ -162,7 +186,7 @@ def plan_windows(track: TrackModel, array_center_enu_m, span_s: tuple[float, flo
     c = np.asarray(array_center_enu_m, float)
     polar = polar_angle_deg(vel, pos, c)
     dist = np.linalg.norm(c - pos, axis=1)
-    keep = np.abs(polar - 90.0) <= max_polar_offset_deg
+    keep = np.abs(polar - 90.0) <= max_polar_offset_deg + 1e-3   # the bisection's tolerance
     return [Window(k, float(starts[i]), n, float(sample_rate_hz), pos[i], vel[i], att[i],
                    float(polar[i]), float(dist[i]))
             for k, i in enumerate(np.flatnonzero(keep))]

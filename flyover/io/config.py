@@ -484,7 +484,10 @@ def campaign_from_mapping(data: dict, path: Path) -> Campaign:
     an = data["analysis"]
     ref = an["reference_atmosphere"]
     analysis = AnalysisSettings(
-        window_s=float(an["window_s"]), hop_s=float(an["hop_s"]),
+        window_s=float(an["window_s"]),
+        hop_s=float(an["hop_s"]) if "hop_s" in an else None,
+        window_polar_step_deg=(float(an["window_polar_step_deg"])
+                               if "window_polar_step_deg" in an else None),
         band_min_hz=float(an["band_min_hz"]), band_max_hz=float(an["band_max_hz"]),
         reference_distance_m=float(an["reference_distance_m"]),
         reference_atmosphere=Atmosphere(ref["temperature_c"], ref["relative_humidity_pct"],

@@ -11,6 +11,7 @@ matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
 
+from flyover.acoustics.uncertainty import Z90  # noqa: E402
 from flyover.io.atomic import atomic_path  # noqa: E402
 from flyover.model.constants import P0_PA  # noqa: E402
 
@@ -251,7 +252,9 @@ def spectra_figure(spectra, pass_name: str):
 
 @_styled
 def directivity_figure(levels, pass_name: str, max_bands: int = 6):
-    """Level against polar angle per region, for a spread of bands."""
+    """Level against polar angle per region, for a spread of bands: each window's level with
+    its 90 % interval, and a trend that does not follow the window-to-window scatter
+    (:func:`angle_trend_db`)."""
     regions = list(dict.fromkeys(levels["region"])) if len(levels) else []
     fig, axes = plt.subplots(1, max(1, len(regions)), figsize=(4.2 * max(1, len(regions)), 3.6),
                              squeeze=False, sharey=True)
@@ -263,15 +266,51 @@ def directivity_figure(levels, pass_name: str, max_bands: int = 6):
         sel = levels[levels["region"] == region]
         for i, band in enumerate(pick):
             s = sel[sel["band_hz"] == band].sort_values("polar_angle_deg")
-            ax.plot(s["polar_angle_deg"], s["level_db"], marker=".", lw=1.3,
-                    color=cmap(i / max(1, len(pick) - 1)), label=f"{band:g} Hz")
+            s = s[np.isfinite(s["level_db"])]
+            colour = cmap(i / max(1, len(pick) - 1))
+            half = Z90 * s["uncertainty_db"].to_numpy(float) if "uncertainty_db" in s else None
+            ax.errorbar(s["polar_angle_deg"], s["level_db"], yerr=half, fmt=".", ms=4,
+                        elinewidth=0.8, capsize=1.5, color=colour, label=f"{band:g} Hz")
+            theta, trend = angle_trend_db(s["polar_angle_deg"], s["level_db"], half)
+            ax.plot(theta, trend, lw=1.2, color=colour, alpha=0.8)
         ax.set_xlabel("polar emission angle (deg, 90 = overhead)")
         ax.set_title(region)
         ax.legend(fontsize=7, frameon=False)
     axes[0][0].set_ylabel("band level at reference distance (dB)")
-    fig.suptitle(f"{pass_name}: directivity", fontsize=11)
+    fig.suptitle(f"{pass_name}: directivity (points: windows with 90 % intervals; lines: "
+                 f"trend over {TREND_WIDTH_DEG:g} deg)", fontsize=10)
     fig.tight_layout()
     return fig
+
+
+TREND_WIDTH_DEG = 20.0   # the trend's Gaussian kernel, full width at half height
+
+
+def angle_trend_db(polar_deg, level_db, half_width_db=None, *, step_deg: float = 2.0):
+    """A trend of levels against polar angle that window-to-window scatter does not drive: the
+    mean of the levels under a Gaussian kernel in angle (``TREND_WIDTH_DEG`` at half height),
+    weighted by 1 / interval^2 where intervals are given. Drawn only over the measured angles
+    and only where a window lies within half the width.
+
+    Returns
+    -------
+    theta_deg, trend_db : ndarray, shape (n,)
+        Empty with fewer than three levels.
+    """
+    theta = np.asarray(polar_deg, float)
+    level = np.asarray(level_db, float)
+    if len(theta) < 3:
+        return np.array([]), np.array([])
+    w = np.ones_like(level)
+    if half_width_db is not None:
+        u = np.asarray(half_width_db, float)
+        w = np.where(np.isfinite(u) & (u > 0), 1.0 / np.maximum(u, 0.05) ** 2, 1.0)
+    grid = np.arange(theta.min(), theta.max() + step_deg / 2, step_deg)
+    sigma = TREND_WIDTH_DEG / (2.0 * np.sqrt(2.0 * np.log(2.0)))
+    k = w[None, :] * np.exp(-0.5 * ((grid[:, None] - theta[None, :]) / sigma) ** 2)
+    trend = (k @ level) / k.sum(axis=1)
+    near = np.min(np.abs(grid[:, None] - theta[None, :]), axis=1) <= TREND_WIDTH_DEG / 2
+    return grid[near], trend[near]
 
 
 @_styled
@@ -485,9 +524,11 @@ def rotor_tones_figure(tones, pass_name: str, note: str = ""):
         part = tones[tones["rotor"] == rotor]
         for i, (k, g) in enumerate(part.groupby("harmonic")):
             g = g.sort_values("polar_angle_deg")
-            ax.plot(g["polar_angle_deg"], g["level_1m_db"], marker="o", ms=3, lw=1.2,
-                    color=colours[i % len(colours)],
-                    label=f"k = {k} ({g['frequency_hz'].mean():.0f} Hz)")
+            half = (Z90 * g["uncertainty_db"].to_numpy(float) if "uncertainty_db" in g
+                    else None)
+            ax.errorbar(g["polar_angle_deg"], g["level_1m_db"], yerr=half, marker="o", ms=3,
+                        lw=1.0, elinewidth=0.8, capsize=1.5, color=colours[i % len(colours)],
+                        label=f"k = {k} ({g['frequency_hz'].mean():.0f} Hz)")
         ax.set_title(rotor)
         ax.set_xlabel("polar emission angle (deg, 90 = overhead)")
         ax.legend(fontsize=8, frameon=False)
@@ -495,8 +536,9 @@ def rotor_tones_figure(tones, pass_name: str, note: str = ""):
     if not rotors:
         axes[0][0].text(0.5, 0.5, note or "no rotor tones", ha="center", wrap=True,
                         transform=axes[0][0].transAxes)
-    fig.suptitle(f"{pass_name}: blade-passing harmonics per rotor, from each rotor's own shaft "
-                 "speed (empty: not separable)", fontsize=10)
+    fig.suptitle(f"{pass_name}: blade-passing harmonics per rotor with 90 % intervals, from "
+                 "each rotor's own shaft speed (gaps: no level, rotor_tones.csv says why)",
+                 fontsize=10)
     fig.tight_layout()
     return fig
 

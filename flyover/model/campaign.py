@@ -112,8 +112,10 @@ class AnalysisSettings:
 
     Attributes
     ----------
-    window_s, hop_s : float
-        Emission-time window length and step.
+    window_s : float
+        Emission-time window length.
+    hop_s : float or None
+        Step between windows in emission time; None with ``window_polar_step_deg``.
     band_min_hz, band_max_hz : float
         One-third-octave bands analysed (exact midbands inside this range).
     reference_distance_m : float
@@ -132,6 +134,9 @@ class AnalysisSettings:
     diagonal_removal : bool
     max_polar_offset_deg : float
         Windows whose polar angle is further than this from 90 deg are not analysed.
+    window_polar_step_deg : float or None
+        Step between windows in polar angle (deg) instead of ``hop_s``: every pass's windows
+        then lie at the same angles, and wide angles take few windows.
     map_dynamic_range_db : float
         Range shown under each map's peak in the figures.
     spectra_polar_deg : tuple of float
@@ -152,7 +157,7 @@ class AnalysisSettings:
     """
 
     window_s: float
-    hop_s: float
+    hop_s: float | None
     band_min_hz: float
     band_max_hz: float
     reference_distance_m: float
@@ -171,11 +176,16 @@ class AnalysisSettings:
     overall_band_range_hz: tuple[float, float] | None = None
     hemisphere: HemisphereSettings = HemisphereSettings()
     rotor_harmonics: int = 4
+    window_polar_step_deg: float | None = None
 
     def __post_init__(self):
-        require(self.window_s > 0 and self.hop_s > 0, "window and hop must be positive",
-                "analysis.window_s/hop_s", "positive durations in seconds",
-                f"{self.window_s}, {self.hop_s}")
+        require((self.hop_s is None) != (self.window_polar_step_deg is None),
+                "windows need one step: in time or in polar angle",
+                "analysis.hop_s / analysis.window_polar_step_deg", "exactly one of the two",
+                "both" if self.hop_s is not None else "neither")
+        require(self.window_s > 0 and (self.hop_s is None or self.hop_s > 0),
+                "window and hop must be positive", "analysis.window_s/hop_s",
+                "positive durations in seconds", f"{self.window_s}, {self.hop_s}")
         require(math.isfinite(self.reference_distance_m) and self.reference_distance_m > 0,
                 "reference distance must be a positive finite distance",
                 "analysis.reference_distance_m", "a distance in metres such as 100",
@@ -184,6 +194,12 @@ class AnalysisSettings:
                 "analysis.band_absorption", "'midband' or 'band'", f"'{self.band_absorption}'")
         require(self.interpolation in ("cubic", "sinc"), "unknown interpolation",
                 "analysis.interpolation", "'cubic' or 'sinc'", f"'{self.interpolation}'")
+
+    def window_count_bound(self, duration_s: float) -> int:
+        """At most how many windows a pass of ``duration_s`` seconds is cut into."""
+        if self.hop_s is None:
+            return 2 * int(self.max_polar_offset_deg / self.window_polar_step_deg) + 1
+        return int(duration_s / self.hop_s) + 1
 
 
 @dataclass(frozen=True)

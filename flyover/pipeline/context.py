@@ -745,6 +745,6 @@ def load_aligned_pass(campaign: Campaign, name: str, out_dir) -> tuple[PassInput
 def output_bytes(campaign: Campaign, inputs: PassInputs) -> int:
     """About how many bytes the results of a pass will take."""
     an = campaign.analysis
-    n_windows = int(inputs.duration_s / an.hop_s) + 1
+    n_windows = an.window_count_bound(inputs.duration_s)
     return pass_output_bytes(n_windows, len(third_octave_bands(an.band_min_hz, an.band_max_hz)),
                              int(np.prod(campaign.grid.shape)))

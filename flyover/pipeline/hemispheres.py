@@ -20,6 +20,7 @@ from flyover.io.figures import coverage_figure, hemisphere_figure, save_figure
 from flyover.io.results.hemisphere import (FOLDER, HEMISPHERE, hemisphere_cube, label_folders,
                                            write_cube)
 from flyover.io.results.levels import LEVELS
+from flyover.io.results.signoff import rejected_passes
 from flyover.model.campaign import Campaign
 from flyover.model.reads import guarded
 from flyover.pipeline._overall import label_band_ranges
@@ -35,8 +36,12 @@ def run(campaign: Campaign, out_dir: Path) -> None:
     out_dir = Path(out_dir)
     grid = campaign.analysis.hemisphere
     folders = label_folders(p.label for p in campaign.passes.values())
+    rejected = rejected_passes(out_dir)
     for label, folder in folders.items():
-        names = [n for n, p in campaign.passes.items() if p.label == label]
+        # Passes the sign-off rejected are left out (the cube's attributes name those used),
+        # unless every pass of the label was.
+        of_label = [n for n, p in campaign.passes.items() if p.label == label]
+        names = [n for n in of_label if n not in rejected] or of_label
         tables = [LEVELS.read(out_dir / n) for n in names]
         levels = pd.concat([t.assign(**{"pass": n}) for n, t in zip(names, tables)],
                            ignore_index=True)
@@ -51,6 +56,7 @@ def run(campaign: Campaign, out_dir: Path) -> None:
             azimuth_deg=grid.azimuth_deg,
             attrs={"title": f"flyover directivity hemispheres, label {label}",
                    "label": label, "passes": " ".join(names),
+                   "passes_rejected": " ".join(n for n in of_label if n in rejected),
                    "polar_step_deg": grid.polar_step_deg,
                    "azimuth_step_deg": grid.azimuth_step_deg,
                    "fit_degree": -1 if grid.fit_degree is None else grid.fit_degree,

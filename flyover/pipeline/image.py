@@ -28,6 +28,7 @@ from flyover.sync.timebase import iso_utc
 
 # What this stage reads of the campaign (flyover.model.reads): its re-run fingerprint too.
 READS = PASS_INPUTS + ("grid", "regions", "outline_m", "analysis.window_s", "analysis.hop_s",
+                       "analysis.window_polar_step_deg",
                        "analysis.band_min_hz", "analysis.band_max_hz", "analysis.method",
                        "analysis.other_methods",
                        "analysis.interpolation", "analysis.diagonal_removal",
@@ -62,7 +63,8 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path, *, threads: int = 1,
     mics = inputs.layout.enu_m
     windows = plan_windows(inputs.track, inputs.layout.center_enu_m, inputs.recording_span_s,
                            an.window_s, an.hop_s, fs,
-                           max_polar_offset_deg=an.max_polar_offset_deg)
+                           max_polar_offset_deg=an.max_polar_offset_deg,
+                           polar_step_deg=an.window_polar_step_deg)
     progress = Progress(len(windows), f"{pass_name} imaging",
                         stream=io.StringIO() if quiet else None)
     rows, region_rows, maps_dr, maps_full, done = [], [], [], [], []

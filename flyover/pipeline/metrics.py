@@ -10,7 +10,7 @@ import pandas as pd
 
 from flyover.acoustics.bands import third_octave_bands
 from flyover.acoustics.metrics import (EventMetrics, a_weighted, band_level_history,
-                                      event_metrics, metrics_of_mean_square)
+                                      event_metrics, lae_shortfall_db, metrics_of_mean_square)
 from flyover.acoustics.reconstruct import (RAISED_MICROPHONE_M, Directivity, energy_sum,
                                           received_history, reference_flight)
 from flyover.imaging.window import TOTAL
@@ -69,6 +69,9 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> None:
     fs = float(inputs.clock.rate_hz[mic])          # the recorder's true rate: true seconds
     t0 = float(inputs.clock.start_s[mic] + first[mic] / fs)
     metrics, history = event_metrics(pressure, fs)
+    # The closest approach as the reference microphone hears it.
+    closest_s = (summary["overhead_s"] + summary["closest_distance_m"]
+                 / summary["speed_of_sound_m_s"] - t0)
 
     def utc(t_s):
         return iso_utc(int(inputs.clock.utc_ns(t0 + t_s)))
@@ -81,6 +84,9 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> None:
            "ten_db_down_end_utc": utc(metrics.ten_db_down_s[1]),
            "ten_db_down_s": metrics.ten_db_down_duration_s,
            "ten_db_down_complete": metrics.ten_db_down_complete,
+           "lae_shortfall_db": lae_shortfall_db(
+               metrics, history, closest_s=closest_s,
+               closest_distance_m=summary["closest_distance_m"], speed_m_s=summary["speed_m_s"]),
            "laeq_db": metrics.laeq_db, "laeq_duration_s": metrics.laeq_duration_s,
            "as_measured": inputs.array.mounting}
     EVENT_METRICS.write(out_dir, pd.DataFrame([row]))
@@ -103,7 +109,7 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> None:
                 out_dir / "level_history.png")
     RECONSTRUCTED.write(out_dir, reconstruction_table(
         campaign, inputs, summary, LEVELS.read(out_dir), pressure, fs, mic, (t0, t0 + n / fs),
-        metrics))
+        (metrics, row["lae_shortfall_db"])))
 
 
 def directivities(levels: pd.DataFrame) -> dict[str, Directivity]:
@@ -135,11 +141,13 @@ def covered_stretch(env) -> slice | None:
 
 def reconstruction_table(campaign: Campaign, inputs: PassInputs, summary: dict,
                          levels: pd.DataFrame, pressure, fs: float, mic: int, span_s,
-                         full: EventMetrics) -> pd.DataFrame:
+                         full: tuple[EventMetrics, float]) -> pd.DataFrame:
     """LASmax and LAE per component: rebuilt on the measured path at the measured microphone
     (against the measurement in the analysed bands: the check of the reconstruction), for the
     reference flight, and the measured levels (``full``: all frequencies) with
-    certification-style adjustments. ``summary`` is the pass's :func:`pass_summary`."""
+    certification-style adjustments, and its LAE shortfall. ``summary`` is the pass's
+    :func:`pass_summary`."""
+    full, full_shortfall_db = full
     an = campaign.analysis
     ref = an.reference_flight
     height_t, speed_t = summary["height_above_array_m"], summary["speed_m_s"]
@@ -148,7 +156,18 @@ def reconstruction_table(campaign: Campaign, inputs: PassInputs, summary: dict,
     bands = third_octave_bands(an.band_min_hz, an.band_max_hz)
     # The measurement in the analysed bands, A-weighted once for the whole span and its stretch.
     p2_band = a_weighted(pressure, fs, (bands.lower_hz[0], bands.upper_hz[-1])) ** 2
-    measured = metrics_of_mean_square(p2_band, fs)[0]
+    c_t = summary["speed_of_sound_m_s"]
+    closest_t = summary["overhead_s"] + summary["closest_distance_m"] / c_t   # as heard
+
+    def metrics_of(p2, rate_hz, start_s, closest_s, distance_m, speed_m_s):
+        """Metrics of a mean-square history starting at ``start_s`` and their LAE
+        shortfall, the closest approach heard at ``closest_s``."""
+        m, history = metrics_of_mean_square(p2, rate_hz)
+        return m, lae_shortfall_db(m, history, closest_s=closest_s - start_s,
+                                   closest_distance_m=distance_m, speed_m_s=speed_m_s)
+
+    measured = metrics_of(p2_band, fs, span_s[0], closest_t, summary["closest_distance_m"],
+                          speed_t)
     mounting, gain = inputs.array.mounting, inputs.array.pressure_gain
     rows = [_row("measured", "total", measured, height_t, speed_t, mounting,
                  f"channel {inputs.layout.channel[mic]}, {bands.nominal_hz[0]:g}-"
@@ -171,10 +190,12 @@ def reconstruction_table(campaign: Campaign, inputs: PassInputs, summary: dict,
                      reception_s=np.arange(-duration / 2, duration / 2, 1 / ENVELOPE_RATE_HZ),
                      atmosphere=an.reference_atmosphere, pressure_gain=1.0 if raised else 2.0,
                      ground_image=raised)
-    for route, kw, h, v, obs in (("rebuilt on the measured path", measured_path, height_t,
-                                  speed_t, mounting),
-                                 ("reference flight", reference, height_r, speed_r,
-                                  ref.observer)):
+    reference_closest_s = height_r / an.reference_atmosphere.c_m_s    # overhead at t = 0
+    for route, kw, h, v, obs, closest_s, distance_m in (
+            ("rebuilt on the measured path", measured_path, height_t, speed_t, mounting,
+             closest_t, summary["closest_distance_m"]),
+            ("reference flight", reference, height_r, speed_r, ref.observer,
+             reference_closest_s, height_r)):
         envs = {name: received_history(d, body_m=centres.get(name, np.zeros(3)), **kw)
                 .a_weighted_mean_square() for name, d in dirs.items()}
         parts = [e for name, e in envs.items() if name != TOTAL]
@@ -184,15 +205,17 @@ def reconstruction_table(campaign: Campaign, inputs: PassInputs, summary: dict,
             stretch = covered_stretch(env)
             if stretch is None:
                 continue
-            m = metrics_of_mean_square(env[stretch], ENVELOPE_RATE_HZ)[0]
+            t = kw["reception_s"][stretch]
+            m = metrics_of(env[stretch], ENVELOPE_RATE_HZ, t[0], closest_s, distance_m, v)
             rows.append(_row(route, name, m, h, v, obs, "from the measured directivity"))
             if route.startswith("rebuilt") and name == TOTAL:
                 # The like-for-like check: the measurement over the stretch the
                 # reconstruction covers (the directivity's angles may end before 10 dB down).
-                t = kw["reception_s"][stretch]
                 k0, k1 = (int(round((v_s - span_s[0]) * fs)) for v_s in (t[0], t[-1]))
+                k0 = max(k0, 0)
                 rows.append(_row("measured over the rebuilt stretch", TOTAL,
-                                 metrics_of_mean_square(p2_band[max(k0, 0):k1 + 1], fs)[0],
+                                 metrics_of(p2_band[k0:k1 + 1], fs, span_s[0] + k0 / fs,
+                                            closest_s, distance_m, v),
                                  h, v, obs,
                                  f"{t[0] - span_s[0]:.2f} to {t[-1] - span_s[0]:.2f} s of the "
                                  "measured span, the analysed bands only"))
@@ -202,7 +225,8 @@ def reconstruction_table(campaign: Campaign, inputs: PassInputs, summary: dict,
         full.lae_db + LAE_HEIGHT_SLOPE_DB * np.log10(height_t / height_r)
         + 10 * np.log10(speed_t / speed_r), full.ten_db_down_s, full.laeq_db,
         full.laeq_duration_s, full.ten_db_down_complete)
-    rows.append(_row("adjusted measurement", "total", adjusted, height_r, speed_r, mounting,
+    rows.append(_row("adjusted measurement", "total", (adjusted, full_shortfall_db), height_r,
+                     speed_r, mounting,
                      "all frequencies; LASmax + 22 lg(H_T/H_R) (14 CFR 36 App. G), LAE + 12.5 "
                      "lg(H_T/H_R) + 10 lg(V_T/V_R) (App. J)"))
     table = pd.DataFrame(rows, columns=RECONSTRUCTED.column_names)
@@ -215,14 +239,19 @@ def reconstruction_table(campaign: Campaign, inputs: PassInputs, summary: dict,
             "lae_db": r["lae_db"] - adjusted.lae_db,
             "ten_db_down_s": r["ten_db_down_s"] - adjusted.ten_db_down_duration_s,
             "complete": bool(r["complete"]) and adjusted.ten_db_down_complete,
+            "lae_shortfall_db": max(r["lae_shortfall_db"], full_shortfall_db),
             "height_m": height_r, "speed_m_s": speed_r, "observer": ref.observer,
             "note": "the two routes to the reference flight compared (the reconstruction holds "
                     "the analysed bands only)"}
     return table
 
 
-def _row(route, component, m: EventMetrics, height, speed, observer, note) -> dict:
+def _row(route, component, metrics: tuple[EventMetrics, float], height, speed, observer,
+         note) -> dict:
+    """A table row from metrics and their LAE shortfall (dB)."""
+    m, shortfall_db = metrics
     return {"route": route, "component": component, "lasmax_db": m.lasmax_db,
             "lae_db": m.lae_db, "ten_db_down_s": m.ten_db_down_duration_s,
-            "complete": m.ten_db_down_complete, "height_m": height, "speed_m_s": speed,
+            "complete": m.ten_db_down_complete, "lae_shortfall_db": shortfall_db,
+            "height_m": height, "speed_m_s": speed,
             "observer": observer, "note": note}

@@ -20,6 +20,7 @@ from flyover import __version__
 from flyover.io.atomic import write_text
 from flyover.io.results.alignment import clock_uncertainty_s, pass_atmosphere, read_alignment
 from flyover.io.results.campaign_tables import CAMPAIGN_LEVELS, CAMPAIGN_OVERALL
+from flyover.acoustics.orders import SEPARATION_CORRELATION
 from flyover.acoustics.uncertainty import Z90
 from flyover.io.results.event_metrics import EVENT_METRICS, RECONSTRUCTED
 from flyover.io.results.rotor_tones import ROTOR_TONES
@@ -95,6 +96,15 @@ def _num(value, fmt: str = ".1f", missing: str = "missing") -> str:
     except (TypeError, ValueError):
         return missing
     return format(v, fmt) if np.isfinite(v) else missing
+
+
+def _lae(lae_db, complete, shortfall_db) -> str:
+    """An LAE for the report: a cut-short one says it is a lower bound and by about how much."""
+    if str(complete).lower() == "true":
+        return _num(lae_db)
+    short = float(shortfall_db) if shortfall_db is not None else np.inf
+    return _num(lae_db) + (f" (cut short: about {short:.1f} dB more)" if np.isfinite(short)
+                           else " (cut short: a lower bound)")
 
 
 def _table(df: pd.DataFrame, flag_column: str | None = None, max_rows: int = 400) -> str:
@@ -188,8 +198,8 @@ def _signoff_table(signed: dict) -> pd.DataFrame:
         "height (m)": t["height_m"].map(_num), "speed (m/s)": t["speed_m_s"].map(_num),
         "closest (m)": t["closest_distance_m"].map(_num),
         "LASmax (dB)": t["lasmax_db"].map(_num),
-        "LAE (dB)": [_num(v) + ("" if str(c).lower() == "true" else " (lower bound)")
-                     for v, c in zip(t["lae_db"], t["metrics_complete"])],
+        "LAE (dB)": [_lae(v, c, x) for v, c, x in
+                     zip(t["lae_db"], t["metrics_complete"], t["lae_shortfall_db"])],
         "_flag": t["status"] != "accepted"})
 
 
@@ -288,8 +298,11 @@ panel in dB re its own peak over {campaign.analysis.map_dynamic_range_db:g} dB.<
 <h3>Directivity</h3>{_img(d / "directivity.png", "directivity")}
 <h3>Rotor tones</h3><p class="muted">Each rotor's blade-passing harmonics, fitted along its own
 shaft angle from the logged speed (all rotors jointly, so rotors the map cannot tell apart are
-told apart by their speeds); levels at 1 m, free field. Harmonics within one frequency bin of
-another rotor's are not separable and have no level. Band levels split into the tonal part of
+told apart by their speeds); levels at 1 m, free field, with the noise's bias taken off and a
+standard uncertainty from the fit. A harmonic whose fit column correlates above
+{SEPARATION_CORRELATION:g} with another's (about half a bin apart, or speeds crossing in the
+window) is not separable and has no level; over raised microphones no tone has a level (the
+ground reflection at its frequency is not taken off). Band levels split into the tonal part of
 the rotors whose hub lies in the region and the broadband rest: band_parts.csv.</p>
 {_table(_rotor_table(d))}
 {_img(d / "rotor_tones.png", "rotor harmonics against polar angle")}
@@ -308,8 +321,11 @@ def _rotor_table(d: Path) -> pd.DataFrame:
                      "frequency (Hz)": f"{g['frequency_hz'].mean():.1f}",
                      "windows separable": f"{len(ok)} of {len(g)}",
                      "level at 1 m near overhead (dB)": (
-                         f"{_num(near['level_1m_db'], missing='no level')} at "
-                         f"{near['polar_angle_deg']:.0f} deg" if near is not None else ""),
+                         f"{_num(near['level_1m_db'], missing='no level')}"
+                         + (f" +- {Z90 * near['uncertainty_db']:.1f}"
+                            if np.isfinite(near["uncertainty_db"]) else "")
+                         + f" at {near['polar_angle_deg']:.0f} deg" if near is not None
+                         else "no window separates it"),
                      "range over the pass (dB)": _level_range(ok["level_1m_db"])})
     return pd.DataFrame(rows)
 
@@ -318,18 +334,18 @@ def _level_range(levels) -> str:
     """The lowest to the highest of the levels given, or why there is none."""
     given = pd.to_numeric(levels, errors="coerce").dropna()
     if len(given) == 0:
-        return "no level in any window (under 6 dB above the residual)" if len(levels) else ""
+        return "no level in any window (rotor_tones.csv says why)" if len(levels) else ""
     return f"{given.min():.1f} to {given.max():.1f}"
 
 
 def _metrics_table(d: Path) -> pd.DataFrame:
     """The pass's single-event metrics, rounded to what they can defend (0.1 dB, 0.01 s)."""
     m = EVENT_METRICS.read(d).iloc[0]
-    cut = "" if bool(m["ten_db_down_complete"]) else " (cut short by the recording)"
     rows = [("reference microphone", f"channel {int(m['channel'])} ({m['as_measured']})"),
             ("LAFmax (dB)", f"{m['lafmax_db']:.1f} at {m['lafmax_utc']}"),
             ("LASmax (dB)", f"{m['lasmax_db']:.1f} at {m['lasmax_utc']}"),
-            ("LAE, 10 dB down (dB)", f"{m['lae_db']:.1f}{cut}"),
+            ("LAE, 10 dB down (dB)", _lae(m["lae_db"], m["ten_db_down_complete"],
+                                          m["lae_shortfall_db"])),
             ("10 dB-down duration (s)", f"{m['ten_db_down_s']:.2f} from "
                                         f"{m['ten_db_down_start_utc']}"),
             ("LAeq (dB)", f"{m['laeq_db']:.1f} over {m['laeq_duration_s']:.2f} s")]
@@ -342,7 +358,8 @@ def _reconstruction_table(d: Path) -> pd.DataFrame:
     return pd.DataFrame({
         "route": t["route"], "component": t["component"],
         "LASmax (dB)": t["lasmax_db"].map(lambda v: f"{v:.1f}"),
-        "LAE (dB)": t["lae_db"].map(lambda v: f"{v:.1f}"),
+        "LAE (dB)": [_lae(v, c, x) for v, c, x in
+                     zip(t["lae_db"], t["complete"], t["lae_shortfall_db"])],
         "10 dB down (s)": t["ten_db_down_s"].map(lambda v: f"{v:.2f}"),
         "complete": t["complete"].map(lambda v: "yes" if str(v).lower() == "true" else "no"),
         "flight": [f"{h:.1f} m, {v:.1f} m/s, {o}" for h, v, o in
@@ -396,13 +413,13 @@ def _numbers_per_pass(campaign: Campaign, out: Path, signed: dict) -> pd.DataFra
                "height (m)": f"{al['height_above_array_m']:.1f}",
                "speed (m/s)": f"{al['speed_m_s']:.1f}",
                "LASmax measured (dB)": f"{m['lasmax_db']:.1f}",
-               "LAE measured (dB)": f"{m['lae_db']:.1f}",
+               "LAE measured (dB)": _lae(m["lae_db"], m["ten_db_down_complete"],
+                                         m["lae_shortfall_db"]),
                "10 dB down (s)": f"{m['ten_db_down_s']:.2f}"}
         rec = RECONSTRUCTED.read(d)
         for _, r in rec[rec["route"] == "reference flight"].iterrows():
-            mark = "" if str(r["complete"]).lower() == "true" else " (incomplete)"
             row[f"{r['component']}: reference LASmax / LAE (dB)"] = (
-                f"{r['lasmax_db']:.1f} / {r['lae_db']:.1f}{mark}")
+                f"{r['lasmax_db']:.1f} / {_lae(r['lae_db'], r['complete'], r['lae_shortfall_db'])}")
         overall = LEVELS_OVERALL.read(d)
         if len(overall):
             near = overall.loc[(overall["polar_angle_deg"] - 90).abs()
@@ -432,12 +449,20 @@ def _numbers_per_label(campaign: Campaign, out: Path, overall: pd.DataFrame,
     labels = dict.fromkeys(p.label for p in campaign.passes.values())
     for label in labels:
         names = [n for n, p in campaign.passes.items() if p.label == label]
-        m = pd.concat([EVENT_METRICS.read(out / n) for n in names])
         status = {n: signed[n]["status"] for n in names}
+        # Rejected passes are left out of the means, as of the campaign tables.
+        used = [n for n in names if status[n] != "rejected"]
+        m = pd.concat([EVENT_METRICS.read(out / n) for n in used]) if used else None
+        cut = 0 if m is None else int((m["ten_db_down_complete"].astype(str).str.lower()
+                                       != "true").sum())
         row = {"label": label or "unlabelled",
                "passes (status)": ", ".join(f"{n} ({s})" for n, s in status.items()),
-               "LASmax measured, mean (dB)": f"{m['lasmax_db'].mean():.1f}",
-               "LAE measured, mean (dB)": f"{m['lae_db'].mean():.1f}"}
+               "LASmax measured, mean (dB)": ("missing: every pass rejected" if m is None else
+                                              f"{m['lasmax_db'].mean():.1f}"),
+               "LAE measured, mean (dB)": (
+                   "missing: every pass rejected" if m is None else
+                   f"{m['lae_db'].mean():.1f}"
+                   + (f" ({cut} of {len(used)} cut short: a lower bound)" if cut else ""))}
         sel = overall[(overall["label"] == (label or "unlabelled"))
                       & (overall["quantity"] == "A-weighted")
                       & (overall["polar_bin_deg"] == 90.0)] if len(overall) else overall

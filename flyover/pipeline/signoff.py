@@ -9,6 +9,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
+import numpy as np
 import pandas as pd
 
 from flyover.acoustics.weather import weather_findings
@@ -84,17 +85,34 @@ def pass_findings(facts: dict, *, limits, weather_limits, clock_given_s: float,
                            f"{limits.clock_uncertainty_max_ms:g} ms)"))
     metrics = facts["metrics"]
     if len(metrics) and not _true(metrics["ten_db_down_complete"].iloc[0]):
-        out.append(Finding("measured single-event metrics", "incomplete", "complete", "", FLAG,
-                           "the recording cuts the 10 dB-down interval short: LAE and the "
-                           "duration are lower bounds"))
+        out.append(_cut_short("measured single-event metrics", metrics.iloc[0],
+                              "the recording cuts the 10 dB-down interval short"))
     out += track_findings(facts.get("track_check"), limits.track_offset_max_m)
     rec = facts["reconstructed"]
     ref = rec[(rec["route"] == "reference flight") & (rec["component"] == "total")]
     if len(ref) and not _true(ref["complete"].iloc[0]):
-        out.append(Finding("reference-flight metrics", "incomplete", "complete", "", FLAG,
-                           "the measured directivity ends before 10 dB down: the reference "
-                           "flight's LAE is a lower bound"))
+        out.append(_cut_short("reference-flight metrics", ref.iloc[0],
+                              "the measured directivity ends before 10 dB down"))
     return out
+
+
+def _finite_or_none(column):
+    """A table's first value, None where it is not a finite number (JSON has no inf)."""
+    v = float(column.iloc[0])
+    return v if np.isfinite(v) else None
+
+
+def _cut_short(rule: str, row, why: str) -> Finding:
+    """The finding of metrics whose 10 dB-down interval is cut short, with LAE's estimated
+    shortfall (``lae_shortfall_db``)."""
+    short = float(row["lae_shortfall_db"])
+    if np.isfinite(short):
+        return Finding(rule, round(short, 1), 0.0, "dB short", FLAG,
+                       f"{why}: LAE and the duration are lower bounds, LAE about "
+                       f"{short:.1f} dB short (spherical-spreading estimate)")
+    return Finding(rule, "incomplete", "complete", "", FLAG,
+                   f"{why} on the side of the peak: LAE and the duration are lower bounds and "
+                   "the shortfall cannot be estimated")
 
 
 def track_findings(check: dict | None, tolerance_m: float) -> list[Finding]:
@@ -158,7 +176,8 @@ def run(campaign: Campaign, out_dir: Path) -> None:
                     "closest_distance_m": al["closest_distance_m"],
                     "lasmax_db": float(m["lasmax_db"].iloc[0]) if len(m) else None,
                     "lae_db": float(m["lae_db"].iloc[0]) if len(m) else None,
-                    "metrics_complete": bool(len(m)) and _true(m["ten_db_down_complete"].iloc[0])}
+                    "metrics_complete": bool(len(m)) and _true(m["ten_db_down_complete"].iloc[0]),
+                    "lae_shortfall_db": _finite_or_none(m["lae_shortfall_db"]) if len(m) else None}
         status = status_of(findings)
         rows.append({"pass": name, "label": labels[name], "status": status,
                      "reasons": "; ".join(x.text for x in findings), **headline})

@@ -13,6 +13,7 @@ from flyover.io.figures import campaign_figure, save_figure
 from flyover.io.results.campaign_tables import CAMPAIGN_LEVELS, CAMPAIGN_OVERALL
 from flyover.io.results.levels import LEVELS
 from flyover.io.results.levels_overall import LEVELS_OVERALL
+from flyover.io.results.signoff import rejected_passes
 from flyover.model.campaign import Campaign
 from flyover.model.reads import guarded
 from flyover.pipeline._overall import label_band_ranges, overall_table
@@ -66,23 +67,28 @@ def summarise(per_pass: dict[str, pd.DataFrame], labels: dict[str, str], value: 
 def run(campaign: Campaign, out_dir: Path) -> None:
     """Write every pass's levels_overall.csv (over its label's band range), then
     campaign_levels.csv (bands), campaign_overall.csv (overall, A-weighted) and
-    campaign_overall.png."""
+    campaign_overall.png. Passes the sign-off rejected keep their own tables but are left out
+    of the label's band range and statistics (each row names the passes it includes)."""
     campaign = guarded(campaign, READS, stage="summary")
     out_dir = Path(out_dir)
     labels = {n: p.label for n, p in campaign.passes.items()}
     bands = {n: LEVELS.read(out_dir / n) for n in campaign.passes}
+    rejected = rejected_passes(out_dir)
     overall = {}
     for label in dict.fromkeys(labels.values()):
         names = [n for n in campaign.passes if labels[n] == label]
-        ranges = label_band_ranges(campaign, [bands[n] for n in names])
+        ranges = label_band_ranges(campaign, [bands[n] for n in names if n not in rejected]
+                                   or [bands[n] for n in names])
         for n in names:
             overall[n] = overall_table(bands[n], ranges)
             LEVELS_OVERALL.write(out_dir / n, overall[n])
-    table = summarise(bands, labels, "level_db", ["region", "band_hz"])
+    signed = {n: t for n, t in bands.items() if n not in rejected}
+    table = summarise(signed, labels, "level_db", ["region", "band_hz"])
     CAMPAIGN_LEVELS.write(out_dir, table)
     parts = []
     for value in ("overall_db", "a_weighted_db"):
-        s = summarise(overall, labels, value, ["region", "band_range_hz"])
+        s = summarise({n: t for n, t in overall.items() if n not in rejected}, labels, value,
+                      ["region", "band_range_hz"])
         s.insert(3, "quantity", "overall" if value == "overall_db" else "A-weighted")
         parts.append(s)
     overall_summary = pd.concat(parts, ignore_index=True)

@@ -11,8 +11,7 @@ import numpy as np
 import pandas as pd
 
 from flyover.acoustics.bands import third_octave_bands
-from flyover.acoustics.orders import (OrderTrack, fit_orders, refine_speeds,
-                                     separable_groups)
+from flyover.acoustics.orders import SEPARATION_CORRELATION, OrderTrack, fit_orders, refine_speeds
 from flyover.forward.moving_source import ShaftSpeed
 from flyover.imaging.window import TOTAL
 from flyover.io.figures import rotor_tones_figure, save_figure
@@ -69,6 +68,7 @@ def tone_table(campaign: Campaign, inputs: PassInputs, windows: pd.DataFrame) ->
     an = campaign.analysis
     fs = inputs.sample_rate_hz
     used = inputs.weights > 0
+    raised = inputs.array.mounting == "raised"
     ref = an.reference_atmosphere
     rows = []
     for _, w in windows.iterrows():
@@ -90,10 +90,9 @@ def tone_table(campaign: Campaign, inputs: PassInputs, windows: pd.DataFrame) ->
             if mics is not None:
                 hubs[rotor.spec.name] = np.average(mics[used].astype(float), axis=0,
                                                    weights=inputs.weights[used])
-        groups = separable_groups(tracks, fs)        # decided on the logged speeds
-        tracks = refine_speeds(hubs, tracks, fs)
+        tracks, kept = refine_speeds(hubs, tracks)
         for name, hub in hubs.items():
-            for fit in fit_orders(hub, tracks, fs, groups=groups):
+            for fit in fit_orders(hub, tracks, fs):
                 if fit.rotor != name:
                     continue
                 path_db = inputs.atmosphere.absorption_db_per_m(fit.frequency_hz * doppler) \
@@ -101,20 +100,38 @@ def tone_table(campaign: Campaign, inputs: PassInputs, windows: pd.DataFrame) ->
                 l1 = fit.level_db + path_db
                 lref = (l1 - 20 * np.log10(an.reference_distance_m)
                         - ref.absorption_db_per_m(fit.frequency_hz) * an.reference_distance_m)
-                heard = fit.separable and fit.snr_db >= MIN_SNR_DB
-                note = ("" if heard else
-                        "another rotor's harmonic stays within one frequency bin"
-                        if not fit.separable else
-                        f"not above the noise ({fit.snr_db:.1f} dB, under {MIN_SNR_DB:g} dB)")
+                note = _why_empty(fit, raised)
+                heard = note == ""
                 rows.append({"window": int(w["window"]), "time_utc": w["time_utc"],
                              "polar_angle_deg": float(w["polar_angle_deg"]),
                              "rotor": fit.rotor, "harmonic": fit.harmonic, "order": fit.order,
                              "frequency_hz": fit.frequency_hz,
                              "level_1m_db": l1 if heard else np.nan,
                              "level_db": lref if heard else np.nan,
+                             "uncertainty_db": fit.level_sd_db if heard else np.nan,
                              "phase_deg": np.rad2deg(fit.phase_rad) if heard else np.nan,
-                             "snr_db": fit.snr_db, "separable": fit.separable, "note": note})
+                             "snr_db": fit.snr_db, "separable": fit.separable,
+                             "column_correlation": fit.correlation,
+                             "note": "; ".join(x for x in (note, kept.get(name, "")) if x)})
     return pd.DataFrame(rows, columns=cols)
+
+
+RAISED_NOTE = ("over raised microphones the tone holds the ground reflection at its own "
+               "frequency (up to a notch), which is not taken off: no level")
+
+
+def _why_empty(fit, raised: bool) -> str:
+    """Why a fitted tone gets no level ('' when it gets one)."""
+    if not fit.separable:
+        return (f"another component's fit column correlates {fit.correlation:.2f} with this "
+                f"one's (over {SEPARATION_CORRELATION:g}): not separable")
+    if not fit.snr_db >= MIN_SNR_DB:
+        return f"not above the noise ({fit.snr_db:.1f} dB, under {MIN_SNR_DB:g} dB)"
+    if not fit.amplitude_pa > 0:
+        return "no larger than the noise's share of the fit"
+    if raised:
+        return RAISED_NOTE
+    return ""
 
 
 def band_parts(levels: pd.DataFrame, tones: pd.DataFrame, campaign: Campaign) -> pd.DataFrame:
@@ -143,6 +160,9 @@ def band_parts(levels: pd.DataFrame, tones: pd.DataFrame, campaign: Campaign) ->
                 continue
             if not here["separable"].astype(str).str.lower().eq("true").all():
                 out.loc[i, "note"] = "a rotor harmonic in this band is not separable"
+                continue
+            if here["note"].astype(str).str.contains(RAISED_NOTE, regex=False).any():
+                out.loc[i, "note"] = "the band's tones are not corrected for the ground path"
                 continue
             heard = here["level_1m_db"].dropna()   # tones under the noise are part of the rest
             if len(heard):

@@ -22,8 +22,11 @@ def parse_dry_run(text: str) -> list[dict]:
     return [j for j in jobs if j["rule"] != "all"]
 
 
-def format_plan(jobs: list[dict]) -> str:
-    """Readable text of a dry run: per pass the steps to redo and why, then campaign steps."""
+def format_plan(jobs: list[dict], changed: dict | None = None) -> str:
+    """Readable text of a dry run: per pass the steps to redo and why, then campaign steps.
+    ``changed`` maps (rule, pass) to the settings whose change re-runs the step (``code``: the
+    package itself)."""
+    changed = changed or {}
     if not jobs:
         return "nothing to redo: every result is up to date"
     lines = [f"{len(jobs)} step(s) to run:"]
@@ -31,16 +34,17 @@ def format_plan(jobs: list[dict]) -> str:
     for p in passes:
         lines.append(f"  pass {p}:")
         for j in (j for j in jobs if j["pass"] == p):
-            lines.append(f"    {j['rule']:<16} {_short_reason(j['reason'])}")
+            lines.append(f"    {j['rule']:<16} {_short_reason(j, changed)}")
     rest = [j for j in jobs if not j["pass"]]
     if rest:
         lines.append("  campaign:")
         for j in rest:
-            lines.append(f"    {j['rule']:<16} {_short_reason(j['reason'])}")
+            lines.append(f"    {j['rule']:<16} {_short_reason(j, changed)}")
     return "\n".join(lines)
 
 
-def _short_reason(reason: str) -> str:
+def _short_reason(job: dict, changed: dict) -> str:
+    reason = job["reason"]
     table = (("Missing output files", "results missing"),
              ("Params have changed", "config values it uses changed"),
              ("Input files updated by another job", "an earlier step re-runs"),
@@ -48,9 +52,15 @@ def _short_reason(reason: str) -> str:
              ("Code has changed", "the rule changed"),
              ("Set of input files has changed", "the set of inputs changed"))
     found = [short for key, short in table if key in reason]
-    changed = _named_files(reason, "Updated input files")
-    if changed:
-        found = [f"input changed: {changed}" if f == "an input file changed" else f
+    files = _named_files(reason, "Updated input files")
+    if files:
+        found = [f"input changed: {files}" if f == "an input file changed" else f
+                 for f in found]
+    settings = changed.get((job["rule"], job["pass"]))
+    if settings:
+        named = ", ".join("the flyover code" if s == "code" else s for s in settings[:4])
+        more = f" and {len(settings) - 4} more" if len(settings) > 4 else ""
+        found = [f"changed: {named}{more}" if f == "config values it uses changed" else f
                  for f in found]
     return "; ".join(found) if found else reason[:100]
 

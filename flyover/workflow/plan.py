@@ -8,11 +8,8 @@ one pass's atmosphere re-runs that pass only, and editing flyover re-runs what i
 
 from __future__ import annotations
 
-import hashlib
-import importlib
 import json
 from dataclasses import dataclass, field
-from functools import lru_cache
 from pathlib import Path
 
 import numpy as np
@@ -25,19 +22,8 @@ from flyover.io.results import hemisphere
 from flyover.io.scenario import load_scenario
 from flyover.model.campaign import Campaign, pass_array
 from flyover.model.errors import FlyoverInputError
-from flyover.model.reads import read_values
 from flyover.sim.demo import WEATHER_FILE, pass_files
-
-
-@lru_cache(maxsize=1)
-def package_digest() -> str:
-    """SHA-256 over the package's Python sources and schemas (sorted by path)."""
-    root = Path(__file__).resolve().parents[1]
-    h = hashlib.sha256()
-    for path in sorted(list(root.rglob("*.py")) + list(root.rglob("*.json"))):
-        h.update(str(path.relative_to(root)).encode())
-        h.update(path.read_bytes())
-    return h.hexdigest()[:16]
+from flyover.workflow.settings_record import stage_settings
 
 
 @dataclass(frozen=True)
@@ -190,7 +176,7 @@ class CampaignPlan:
         return JobSizes(n_grid=int(np.prod(camp.grid.shape)), n_mics=channels,
                         window_samples=int(an.window_s * fs),
                         n_bands=len(third_octave_bands(an.band_min_hz, an.band_max_hz)),
-                        n_windows=int(duration / an.hop_s) + 1)
+                        n_windows=an.window_count_bound(duration))
 
     def input_files(self) -> list[str]:
         """Every input file but the campaign file: its content reaches the rules through the
@@ -206,10 +192,7 @@ class CampaignPlan:
         return self._fingerprint(stage, name)
 
     def _fingerprint(self, stage: str, pass_name: str | None) -> str:
-        reads = importlib.import_module(f"flyover.pipeline.{stage}").READS
-        picked = read_values(self.campaign, reads, pass_name)
-        picked["code"] = package_digest()
-        return json.dumps(picked, sort_keys=True, default=str)
+        return json.dumps(stage_settings(self.campaign, stage, pass_name), sort_keys=True)
 
     def pass_results(self, files) -> list[str]:
         return [f"{self.output}/{p}/{f}" for p in self.passes for f in files]

@@ -64,6 +64,7 @@ class RunState:
     done_steps: int = 0
     total_steps: int = 0
     failed: list = field(default_factory=list)      # _Job
+    passes_done: set = field(default_factory=set)
     _current: _Job | None = None
     _current_id: str = ""
 
@@ -104,8 +105,9 @@ class RunState:
         elif m := _STEPS.match(text):
             self.done_steps, self.total_steps = int(m.group(1)), int(m.group(2))
 
-    def status(self, passes: list[str], out: Path) -> str:
-        """One line: steps, the running steps (windows done within imaging), passes done."""
+    def status(self, passes: list[str], out: Path, elapsed_s: float | None = None) -> str:
+        """One line: steps, the running steps (windows done within imaging), passes done and,
+        ``elapsed_s`` into the run, an estimate of the time left."""
         parts = []
         for jid in sorted(self.running):
             job = self.jobs[jid]
@@ -115,10 +117,29 @@ class RunState:
             parts.append(text)
         finished = {j.pass_name for k, j in self.jobs.items() if k not in self.running}
         busy = {self.jobs[k].pass_name for k in self.running}
-        done = sum(1 for p in passes if p in finished and p not in busy
-                   and (out / p / "levels.csv").exists() and (out / p / "qc_track.png").exists())
+        # A pass once done stays counted: a later step of it (a check, the metrics) does not
+        # take the count back.
+        self.passes_done |= {p for p in passes if p in finished and p not in busy
+                             and (out / p / "levels.csv").exists()
+                             and (out / p / "qc_track.png").exists()}
         steps = f"{self.done_steps}/{self.total_steps} steps" if self.total_steps else "starting"
-        return f"{steps} | running: {', '.join(parts) or '-'} | passes done {done}/{len(passes)}"
+        text = (f"{steps} | running: {', '.join(parts) or '-'} | passes done "
+                f"{len(self.passes_done & set(passes))}/{len(passes)}")
+        left = self.time_left_s(elapsed_s)
+        return text if left is None else f"{text} | {_duration_text(left)} left"
+
+    def time_left_s(self, elapsed_s: float | None) -> float | None:
+        """Steps left at the pace of the steps done so far (None before the first)."""
+        if elapsed_s is None or not self.done_steps or not self.total_steps:
+            return None
+        return elapsed_s / self.done_steps * (self.total_steps - self.done_steps)
+
+
+def _duration_text(seconds: float) -> str:
+    """'about 40 s' below two minutes, else 'about 7 min'."""
+    if seconds < 120:
+        return f"about {max(5, int(round(seconds / 5)) * 5)} s"
+    return f"about {int(round(seconds / 60))} min"
 
 
 def _windows_done(log: Path) -> str:
@@ -246,7 +267,7 @@ def run_campaign(campaign: Campaign, campaign_file: Path, snakemake_args: list[s
                 if verbose:
                     stream.write(line)
                 elif tty:
-                    status = state.status(passes, out)
+                    status = state.status(passes, out, time.perf_counter() - start)
                     if status != shown:
                         stream.write("\r\033[K" + status[:150])
                         stream.flush()
@@ -254,7 +275,11 @@ def run_campaign(campaign: Campaign, campaign_file: Path, snakemake_args: list[s
                 elif finished := _FINISHED.match(line.strip()):
                     job = state.jobs.get(finished.group(1))
                     if job is not None:
-                        stream.write(f"done: {job.rule} {job.pass_name}".rstrip() + "\n")
+                        left = state.time_left_s(time.perf_counter() - start)
+                        pace = (f" ({state.done_steps}/{state.total_steps} steps, "
+                                f"{_duration_text(left)} left)" if left is not None else "")
+                        stream.write(f"done: {job.rule} {job.pass_name}".rstrip() + pace
+                                     + "\n")
             code = proc.wait()
     if tty and not verbose:
         stream.write("\r\033[K")

@@ -6,6 +6,10 @@
 
 from flyover.io.results import TableFile
 
+SHORTFALL = ("dB, how much LAE may miss where the 10 dB-down interval is cut short: estimated "
+             "for a straight flight whose sound falls off by spherical spreading beyond the cut "
+             "(0 when complete, inf where the cut may hold the peak)")
+
 EVENT_METRICS = TableFile("event_metrics.csv", (
     ("channel", "layout channel of the reference microphone"),
     ("lafmax_db", "dB(A) re 20 uPa, maximum of the F-weighted level (IEC 61672-1, 125 ms)"),
@@ -17,6 +21,7 @@ EVENT_METRICS = TableFile("event_metrics.csv", (
     ("ten_db_down_end_utc", "ISO 8601 UTC where it last is"),
     ("ten_db_down_s", "s, the 10 dB-down duration"),
     ("ten_db_down_complete", "false where the recording cuts the interval short"),
+    ("lae_shortfall_db", SHORTFALL),
     ("laeq_db", "dB(A) re 20 uPa, equivalent level over the span analysed"),
     ("laeq_duration_s", "s, that span"),
     ("as_measured", "levels as the microphone measured them (a ground-plate microphone "
@@ -48,6 +53,7 @@ RECONSTRUCTED = TableFile("reconstructed_metrics.csv", (
     ("lae_db", "dB(A) re 20 uPa and 1 s, over the 10 dB-down interval"),
     ("ten_db_down_s", "s"),
     ("complete", "the 10 dB-down interval lies inside the span reconstructed or measured"),
+    ("lae_shortfall_db", SHORTFALL),
     ("height_m", "m, of the flight (above the observer's ground)"),
     ("speed_m_s", "m/s"),
     ("observer", "'ground-plate' or 'raised' (1.2 m over hard ground)"),

@@ -1,6 +1,7 @@
 """``rotor_tones.csv`` and ``band_parts.csv``: each rotor's harmonics per window, and the band
 levels split into their rotors' tonal part and the broadband rest."""
 
+from flyover.acoustics.orders import SEPARATION_CORRELATION
 from flyover.io.results import TableFile
 
 ROTOR_TONES = TableFile("rotor_tones.csv", (
@@ -14,13 +15,18 @@ ROTOR_TONES = TableFile("rotor_tones.csv", (
     ("level_1m_db", "dB re 20 uPa rms at 1 m, free field (path absorption undone); empty when "
                     "not separable or not above the noise"),
     ("level_db", "dB re 20 uPa at the reference distance in the reference atmosphere"),
+    ("uncertainty_db", "dB, standard uncertainty of the level from the fit's covariance and "
+                       "the residual's spectrum near the tone (the noise's bias is taken off "
+                       "the level)"),
     ("phase_deg", "deg, of the cosine at the window's first sample against the shaft angle "
                   "integrated from the logged speed since the pass epoch (no once-per-rev "
                   "mark: comparable between harmonics of one window only)"),
     ("snr_db", "dB, the tone over the fit's residual near its frequency; under 6 dB the "
                "level is not given"),
-    ("separable", "false when another component stays within one frequency bin (1 / window "
-                  "length) of this one over the window"),
+    ("separable", "false when another component's fit column (exp(2 pi i order "
+                  f"revolutions) over the window) correlates with this one's above "
+                  f"{SEPARATION_CORRELATION:g}"),
+    ("column_correlation", "the largest such correlation (0 to 1)"),
     ("note", "why a level is empty"),
 ), float_format="%.3f")
 

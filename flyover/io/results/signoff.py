@@ -19,6 +19,7 @@ SIGNOFF = TableFile("signoff.csv", (
     ("lasmax_db", "dB(A), measured at the metrics microphone (event_metrics.csv)"),
     ("lae_db", "dB(A) re 1 s, over the 10 dB-down interval"),
     ("metrics_complete", "the 10 dB-down interval lies inside the recording"),
+    ("lae_shortfall_db", "dB that LAE may miss where it is not (event_metrics.csv)"),
 ), float_format="%.2f")
 SIGNOFF_JSON = "signoff.json"
 
@@ -31,3 +32,9 @@ def write_signoff_json(folder, passes: dict) -> Path:
 def read_signoff_json(folder) -> dict:
     """The sign-off of every pass, as written by :func:`write_signoff_json`."""
     return read_json(folder, SIGNOFF_JSON, "sign-off")
+
+
+def rejected_passes(folder) -> set[str]:
+    """Passes the sign-off rejected: the campaign statistics leave them out."""
+    table = SIGNOFF.read(folder)
+    return set(table.loc[table["status"] == "rejected", "pass"].astype(str))

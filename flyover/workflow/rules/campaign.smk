@@ -2,9 +2,32 @@
 # pass.smk).
 
 
+rule signoff:
+    input:
+        PLAN.pass_results(("alignment.json", "windows.csv", "event_metrics.csv",
+                           "reconstructed_metrics.csv", "track_check.json")),
+    output:
+        table=update(f"{OUTP}/signoff.csv"),
+        record=update(f"{OUTP}/signoff.json"),
+    params:
+        fingerprint=PLAN.campaign_fingerprint("signoff"),
+    log:
+        f"{OUTP}/logs/signoff.log",
+    benchmark:
+        f"{OUTP}/benchmarks/signoff.tsv"
+    resources:
+        mem_mb=PLAN.memory_mb(None, "signoff"),
+        runtime=PLAN.runtime_min(None, "signoff"),
+    conda:
+        CONDA_ENV,
+    shell:
+        '"$FLYOVER_PYTHON" -m flyover stage-campaign signoff > {log:q} 2>&1'
+
+
 rule campaign_summary:
     input:
         PLAN.pass_results(("levels.csv",)),
+        rules.signoff.output.table,     # rejected passes are left out
     output:
         # Each pass's overall levels sum its label's band range: they follow from all the
         # label's passes, so they are written here.
@@ -30,6 +53,7 @@ rule campaign_summary:
 rule hemispheres:
     input:
         PLAN.pass_results(("levels.csv",)),
+        rules.signoff.output.table,
     output:
         update([f.replace("{", "{{").replace("}", "}}") for f in PLAN.hemisphere_files()]),
     params:
@@ -45,28 +69,6 @@ rule hemispheres:
         CONDA_ENV,
     shell:
         '"$FLYOVER_PYTHON" -m flyover stage-campaign hemispheres > {log:q} 2>&1'
-
-
-rule signoff:
-    input:
-        PLAN.pass_results(("alignment.json", "windows.csv", "event_metrics.csv",
-                           "reconstructed_metrics.csv", "track_check.json")),
-    output:
-        table=update(f"{OUTP}/signoff.csv"),
-        record=update(f"{OUTP}/signoff.json"),
-    params:
-        fingerprint=PLAN.campaign_fingerprint("signoff"),
-    log:
-        f"{OUTP}/logs/signoff.log",
-    benchmark:
-        f"{OUTP}/benchmarks/signoff.tsv"
-    resources:
-        mem_mb=PLAN.memory_mb(None, "signoff"),
-        runtime=PLAN.runtime_min(None, "signoff"),
-    conda:
-        CONDA_ENV,
-    shell:
-        '"$FLYOVER_PYTHON" -m flyover stage-campaign signoff > {log:q} 2>&1'
 
 
 rule report:
