@@ -141,8 +141,19 @@ def hemisphere_run(tmp_path_factory):
         align.run(campaign, name, out)
         image.run(campaign, name, out, threads=2, quiet=True)
         levels.run(campaign, name, out)
+    _signed(campaign, rejected=())
     hemispheres.run(campaign, campaign.output)
     return campaign
+
+
+def _signed(campaign, rejected):
+    """The sign-off the workflow writes before the hemispheres: every pass accepted but
+    ``rejected`` (the other checks are not run here)."""
+    import pandas as pd
+    from flyover.io.results.signoff import SIGNOFF
+    SIGNOFF.write(campaign.output, pd.DataFrame(
+        [{"pass": n, "label": p.label, "status": "rejected" if n in rejected else "accepted",
+          "reasons": ""} for n, p in campaign.passes.items()], columns=SIGNOFF.column_names))
 
 
 def pattern_truth_db(levels: pd.DataFrame) -> np.ndarray:
@@ -230,3 +241,18 @@ def test_the_netcdf_cube_opens_with_xarray_and_carries_units(hemisphere_run):
         assert bool(np.isnan(ds["level_db"].where(ds["n_windows"] == 0)).all())
     for name in ("hemisphere.png", "coverage.png"):
         assert (folder / name).stat().st_size > 10_000
+
+
+def test_a_rejected_pass_is_left_out_of_its_labels_hemisphere(hemisphere_run, tmp_path):
+    import shutil
+    from flyover.pipeline import hemispheres
+    from dataclasses import replace
+    campaign = replace(hemisphere_run, output=tmp_path / "results")
+    shutil.copytree(hemisphere_run.output, campaign.output)
+    first, *others = campaign.passes
+    _signed(campaign, rejected=(first,))
+    hemispheres.run(campaign, campaign.output)
+    with xr.open_dataset(campaign.output / "hemispheres" / "h" / "hemisphere.nc",
+                         engine="h5netcdf") as ds:
+        assert ds.attrs["passes"].split() == others
+        assert ds.attrs["passes_rejected"] == first

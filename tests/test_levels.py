@@ -189,6 +189,23 @@ def test_stages_on_the_tiny_campaign(tiny_copy):
         assert (out / name).exists(), name
     maps = read_maps(out)
     assert maps["diagonal_removed"].shape[1:] == (len(maps["band_hz"]),) + campaign.grid.shape
+    # The two routes to the reference flight compared like for like: the same bands and the
+    # same mounting (a ground plate both), so the difference is reference minus the adjusted
+    # measurement of the analysed bands, not of all frequencies.
+    rec = pd.read_csv(out / "reconstructed_metrics.csv").set_index("route")
+    ref = rec[rec["component"] == "total"]
+    diff = ref.loc["reference flight minus adjusted measurement"]
+    assert diff["lae_db"] == pytest.approx(ref.loc["reference flight", "lae_db"]
+                                           - ref.loc["adjusted measurement, analysed bands",
+                                                     "lae_db"], abs=2e-3)
+    # A reference microphone 1.2 m over the ground hears the ground otherwise than the array's
+    # plates: no difference is given, and the note says why.
+    raised = load_campaign(edit_campaign(tiny_copy, lambda d: d["analysis"].update(
+        reference_flight={"observer": "raised"})))
+    metrics.run(raised, "p1", out)
+    diff = pd.read_csv(out / "reconstructed_metrics.csv").set_index("route").loc[
+        "reference flight minus adjusted measurement"]
+    assert np.isnan(diff["lae_db"]) and "hear the ground differently" in diff["note"]
 
 
 def test_clock_offset_estimated_from_an_anchor(tiny_copy):

@@ -340,7 +340,8 @@ def test_flyover_plan_explains_reruns(finished_run, monkeypatch, capsys):
                        lambda d: d["analysis"].update(reference_distance_m=150.0)):
         assert main(["plan", str(finished_run / "campaign.yaml")]) == 0
         out = capsys.readouterr().out
-    assert "pass p1:" in out and "levels" in out and "config values it uses changed" in out
+    # Each step records the settings it ran with: the plan names the one that changed.
+    assert "pass p1:" in out and "levels           changed: analysis.reference_distance_m" in out
     assert "image" not in out
 
 

@@ -100,8 +100,8 @@ def _num(value, fmt: str = ".1f", missing: str = "missing") -> str:
 
 def _lae(lae_db, complete, shortfall_db) -> str:
     """An LAE for the report: a cut-short one says it is a lower bound and by about how much."""
-    if str(complete).lower() == "true":
-        return _num(lae_db)
+    if str(complete).lower() == "true" or not np.isfinite(float(lae_db)):
+        return _num(lae_db, missing="none")
     short = float(shortfall_db) if shortfall_db is not None else np.inf
     return _num(lae_db) + (f" (cut short: about {short:.1f} dB more)" if np.isfinite(short)
                            else " (cut short: a lower bound)")
@@ -357,10 +357,10 @@ def _reconstruction_table(d: Path) -> pd.DataFrame:
     t = RECONSTRUCTED.read(d)
     return pd.DataFrame({
         "route": t["route"], "component": t["component"],
-        "LASmax (dB)": t["lasmax_db"].map(lambda v: f"{v:.1f}"),
+        "LASmax (dB)": t["lasmax_db"].map(lambda v: _num(v, missing="none")),
         "LAE (dB)": [_lae(v, c, x) for v, c, x in
                      zip(t["lae_db"], t["complete"], t["lae_shortfall_db"])],
-        "10 dB down (s)": t["ten_db_down_s"].map(lambda v: f"{v:.2f}"),
+        "10 dB down (s)": t["ten_db_down_s"].map(lambda v: _num(v, ".2f", missing="none")),
         "complete": t["complete"].map(lambda v: "yes" if str(v).lower() == "true" else "no"),
         "flight": [f"{h:.1f} m, {v:.1f} m/s, {o}" for h, v, o in
                    zip(t["height_m"], t["speed_m_s"], t["observer"])],

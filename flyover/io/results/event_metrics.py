@@ -46,8 +46,11 @@ RECONSTRUCTED = TableFile("reconstructed_metrics.csv", (
     ("route", "'measured' (the microphone, in the analysed bands), 'rebuilt on the measured "
               "path', 'measured over the rebuilt stretch' (the check, like for like), "
               "'reference flight', 'adjusted measurement' (certification-style "
-              "height and speed adjustments of the measured levels), or 'reference flight "
-              "minus adjusted measurement' (the two routes compared)"),
+              "height and speed adjustments of the measured levels, all frequencies), "
+              "'adjusted measurement, analysed bands' (the same over the bands the "
+              "reconstruction holds), or 'reference flight minus adjusted measurement' (the "
+              "two routes compared like for like: analysed bands, and empty unless the "
+              "reference observer has the array's mounting)"),
     ("component", "region name, 'components' (their sum), or 'total' (all regions together)"),
     ("lasmax_db", "dB(A) re 20 uPa"),
     ("lae_db", "dB(A) re 20 uPa and 1 s, over the 10 dB-down interval"),
