@@ -71,6 +71,8 @@ def test_a_stray_microphone_and_a_layout_in_millimetres(tiny_copy, capsys):
     (lambda d: d["analysis"].update(window_s=10.0, hop_s=10.0),
      ["window is longer than the recording"]),
     (lambda d: d["analysis"].update(window_polar_step_deg=10.0), ["exactly one of the two"]),
+    (lambda d: d["analysis"].update(reference_flight={"adjustment": "helicoptre"}),
+     ["unknown certification-style adjustment", "helicopter"]),
     (lambda d: d["analysis"].pop("hop_s"), ["exactly one of the two", "neither"]),
     (lambda d: d["vehicle"]["regions"].update(mid={"x_m": [0.0, 1.0], "y_m": [-0.5, 0.5]}),
      ["overlap", "count their sound twice"]),

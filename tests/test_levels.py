@@ -189,9 +189,14 @@ def test_stages_on_the_tiny_campaign(tiny_copy):
         assert (out / name).exists(), name
     maps = read_maps(out)
     assert maps["diagonal_removed"].shape[1:] == (len(maps["band_hz"]),) + campaign.grid.shape
-    # The two routes to the reference flight compared like for like: the same bands and the
-    # same mounting (a ground plate both), so the difference is reference minus the adjusted
-    # measurement of the analysed bands, not of all frequencies.
+    # No certification-style adjustment by default: no adjusted rows.
+    rec = pd.read_csv(out / "reconstructed_metrics.csv")
+    assert not rec["route"].str.startswith("adjusted").any()
+    # The two routes to the reference flight compared like for like (App. J's LAE adjustment
+    # chosen): the same bands and the same mounting (a ground plate both), so the difference is
+    # reference minus the adjusted measurement of the analysed bands, not of all frequencies.
+    metrics.run(load_campaign(edit_campaign(tiny_copy, lambda d: d["analysis"].update(
+        reference_flight={"adjustment": "helicopter"}))), "p1", out)
     rec = pd.read_csv(out / "reconstructed_metrics.csv").set_index("route")
     ref = rec[rec["component"] == "total"]
     diff = ref.loc["reference flight minus adjusted measurement"]
@@ -201,7 +206,7 @@ def test_stages_on_the_tiny_campaign(tiny_copy):
     # A reference microphone 1.2 m over the ground hears the ground otherwise than the array's
     # plates: no difference is given, and the note says why.
     raised = load_campaign(edit_campaign(tiny_copy, lambda d: d["analysis"].update(
-        reference_flight={"observer": "raised"})))
+        reference_flight={"observer": "raised", "adjustment": "helicopter"})))
     metrics.run(raised, "p1", out)
     diff = pd.read_csv(out / "reconstructed_metrics.csv").set_index("route").loc[
         "reference flight minus adjusted measurement"]
@@ -295,6 +300,22 @@ def test_overall_sums_one_band_range_never_fewer_bands():
     wide = overall_table(pass_a, {"front": (500.0, 2000.0)})
     assert np.isfinite(wide["overall_db"].iloc[0]) and np.isnan(wide["overall_db"].iloc[1])
     assert "630 Hz" in wide["note"].iloc[1] and "fewer bands" in wide["note"].iloc[1]
+
+
+
+def test_overall_uncertainty_keeps_the_shared_part_whole():
+    # Four bands of equal A-weighted share (w = 1/4 each), 0.5 dB each of which 0.3 dB is common
+    # to all (the calibration's shared term): the independent 0.4 dB adds as 0.4 / 2, the
+    # shared part whole (first-order propagation with r = 1, GUM 5.2.2, from memory).
+    from flyover.acoustics.bands import a_weighting_db, third_octave_bands
+    from flyover.pipeline._overall import overall_table
+    bands = third_octave_bands(800.0, 1600.0)
+    flat_a = dict(zip(bands.nominal_hz, 60.0 - a_weighting_db(bands.center_hz)))
+    table = levels_rows(0, {"front": flat_a}).assign(uncertainty_db=0.5)
+    u = overall_table(table, {"front": (800.0, 1600.0)}, shared_db=0.3)["uncertainty_db"]
+    assert u.iloc[0] == pytest.approx(np.hypot(0.4 / 2, 0.3), rel=1e-6)
+    u = overall_table(table, {"front": (800.0, 1600.0)})["uncertainty_db"]
+    assert u.iloc[0] == pytest.approx(0.5 / 2, rel=1e-6)
 
 
 def test_default_band_range_is_decided_near_overhead_and_never_under_three_bands():

@@ -33,3 +33,18 @@ def test_interval_combines_scatter_and_stated_uncertainties():
     assert two["ci_half_width_db"] == pytest.approx(np.hypot(6.314, 1.6449 / np.sqrt(2)),
                                                     abs=2e-3)
     assert two["uncertainty_db"] == pytest.approx(1 / np.sqrt(2))
+
+
+def test_a_shared_uncertainty_does_not_shrink_with_more_passes():
+    # Sixteen passes, each 0.5 dB uncertain of which 0.3 dB every pass shares (one calibrator):
+    # the independent 0.4 dB averages to 0.4 / 4 = 0.1 dB, the shared 0.3 dB stays (fully
+    # correlated terms add linearly: GUM 5.2.2 with r = 1, from memory): u = hypot(0.1, 0.3).
+    values = np.full(16, 70.0)
+    many = mean_and_interval(values, uncertainty_db=np.full(16, 0.5), shared_db=0.3)
+    assert many["uncertainty_db"] == pytest.approx(np.hypot(0.1, 0.3), rel=1e-9)
+    # Without a shared part all 0.5 dB averages down: 0.125 dB.
+    assert mean_and_interval(values, uncertainty_db=np.full(16, 0.5))["uncertainty_db"] == \
+        pytest.approx(0.125)
+    # One pass: its whole uncertainty, shared or not.
+    assert mean_and_interval([70.0], uncertainty_db=[0.5], shared_db=0.3)["uncertainty_db"] \
+        == pytest.approx(0.5)

@@ -20,18 +20,21 @@ def polar_bin_deg(polar_angle_deg, width_deg: float = 10.0):
     return np.round(np.asarray(polar_angle_deg, float) / width_deg) * width_deg
 
 
-def mean_and_interval(values_db, confidence: float = 0.90, uncertainty_db=None) -> dict:
+def mean_and_interval(values_db, confidence: float = 0.90, uncertainty_db=None, *,
+                      shared_db: float = 0.0) -> dict:
     """Mean, standard deviation and two-sided interval of the mean.
 
     Without ``uncertainty_db`` the interval is Student t's from the pass-to-pass scatter alone.
     With each value's own standard uncertainty it combines both in quadrature: the scatter's
-    t-interval and the normal interval of the values' rms uncertainty over sqrt(n) (which also
-    covers what all passes share and the scatter cannot show; for one pass it is the interval).
+    t-interval and the normal interval of the values' uncertainty, whose independent part
+    (rms over the values, less the shared part) shrinks as 1 / sqrt(n) while ``shared_db``,
+    common to every value (fully correlated: GUM 5.2.2 with r = 1, from memory), does not.
+    For one value the interval is its own uncertainty's.
 
     Returns a dict with ``mean_db``, ``std_db`` (n - 1 in the denominator), ``n``,
     ``ci_half_width_db`` (NaN for fewer than two values and no uncertainties), ``ci_low_db``,
-    ``ci_high_db``, and ``uncertainty_db`` (the values' rms uncertainty over sqrt(n), NaN
-    without them).
+    ``ci_high_db``, and ``uncertainty_db`` (the mean's standard uncertainty from the values'
+    own, NaN without them).
     """
     x = np.asarray(values_db, float)
     keep = np.isfinite(x)
@@ -45,7 +48,10 @@ def mean_and_interval(values_db, confidence: float = 0.90, uncertainty_db=None) 
     mean = float(np.mean(x))
     std = float(np.std(x, ddof=1)) if n > 1 else np.nan
     half = float(stats.t.ppf(0.5 + confidence / 2, n - 1) * std / np.sqrt(n)) if n > 1 else np.nan
-    own = float(np.sqrt(np.mean(u ** 2)) / np.sqrt(n)) if np.all(np.isfinite(u)) else np.nan
+    own = np.nan
+    if np.all(np.isfinite(u)):
+        independent = max(float(np.mean(u ** 2)) - shared_db ** 2, 0.0)
+        own = float(np.sqrt(independent / n + shared_db ** 2))
     if np.isfinite(own):
         half = float(np.hypot(np.nan_to_num(half), stats.norm.ppf(0.5 + confidence / 2) * own))
     return {"mean_db": mean, "std_db": std, "n": n, "ci_half_width_db": half,

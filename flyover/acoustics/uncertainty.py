@@ -5,6 +5,10 @@ first-order sensitivity (the terms are independent and added in quadrature, GUM 
 
 - calibration, ``calibration_db`` per microphone, independent: the beam power scales with the
   square of the mean gain, so the level's uncertainty is ``calibration_db / sqrt(N)``;
+- calibration shared by every microphone, ``calibration_shared_db``: the calibrator's own level
+  and the capsule type's response move every channel alike, so N microphones do not average
+  it away (nor do many passes with one calibrator: see
+  :func:`flyover.acoustics.statistics.mean_and_interval`);
 - microphone positions, ``mic_position_m`` per coordinate: phase errors k delta along the
   propagation direction make the delay-and-sum lose e^(-(k sigma)^2) of its power, which the
   unit sources (on the nominal positions) do not see: ``10 lg(e) (k sigma)^2`` dB;
@@ -48,12 +52,16 @@ class InputUncertainty:
         Of the air temperature on the path (0.5 K).
     clock_s : float
         Of the clock offset where nothing measured it (given by hand): 1 ms.
+    calibration_shared_db : float
+        Common to every microphone and pass: the calibrator's stated level and the capsule
+        type's response (0.15 dB; about 0.1-0.2 dB is common practice).
     """
 
     calibration_db: float = 0.2
     mic_position_m: float = 0.005
     temperature_k: float = 0.5
     clock_s: float = 0.001
+    calibration_shared_db: float = 0.15
 
 
 def band_level_uncertainty_db(band_center_hz, *, distance_m, polar_deg, n_mics: int,
@@ -87,6 +95,7 @@ def band_level_uncertainty_db(band_center_hz, *, distance_m, polar_deg, n_mics: 
     along = speed_m_s * clock_s * np.abs(np.cos(np.deg2rad(np.asarray(polar_deg, float))))
     terms = [
         np.full_like(f, inputs.calibration_db / np.sqrt(max(n_mics, 1))),
+        np.full_like(f, inputs.calibration_shared_db),
         DB_PER_NEPER_POWER * (k * position_like) ** 2,
         2 * DB_PER_NEPER_POWER * np.hypot(track_m, along) / r,
         np.asarray(scatter_db, float),

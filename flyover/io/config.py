@@ -215,6 +215,18 @@ def _imaging_method(name: str, source: str, key: str = "analysis.method") -> str
     return name
 
 
+def _reference_flight(data: dict, source: str) -> ReferenceFlight:
+    """The reference flight, its certification-style adjustment named by a known class."""
+    from flyover.acoustics.certification import CERTIFICATION_ADJUSTMENTS
+    known = ["none", *sorted(CERTIFICATION_ADJUSTMENTS)]
+    name = data.get("adjustment", "none")
+    if name not in known:
+        raise FlyoverInputError(f"unknown certification-style adjustment '{name}'",
+                                f"{source}, key analysis.reference_flight.adjustment",
+                                f"one of {', '.join(known)}", hint=suggest(name, known))
+    return ReferenceFlight(**data)
+
+
 def _check_methods_for_raised(analysis: AnalysisSettings, arrays, source: str) -> None:
     """Raised microphones need a headline method that models the ground's reflection (the
     comparison methods that do not are skipped for their passes, said in the image log)."""
@@ -504,7 +516,7 @@ def campaign_from_mapping(data: dict, path: Path) -> Campaign:
         spectra_polar_deg=tuple(float(v) for v in an.get("spectra_polar_deg",
                                                           (60.0, 75.0, 90.0, 105.0, 120.0))),
         metrics_channel=an.get("metrics_channel"),
-        reference_flight=ReferenceFlight(**an.get("reference_flight", {})),
+        reference_flight=_reference_flight(an.get("reference_flight", {}), source),
         uncertainty=InputUncertainty(**an.get("uncertainty", {})),
         overall_band_range_hz=(_range(an["overall_band_range_hz"])
                                if "overall_band_range_hz" in an else None),

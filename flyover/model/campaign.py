@@ -99,11 +99,14 @@ class ReferenceFlight:
     """The flight the single-event metrics are reconstructed for: straight and level at
     ``height_m`` (default: the reference distance) and ``speed_m_s`` (default: the pass's own)
     over an observer on a ground plate or 1.2 m above hard ground (``raised``), in the
-    reference atmosphere."""
+    reference atmosphere. ``adjustment`` names the certification procedure whose simple
+    height and speed adjustment of the measured levels is compared with it
+    (``propeller-aeroplane``: 14 CFR 36 App. G; ``helicopter``: App. J; ``none``)."""
 
     height_m: float | None = None
     speed_m_s: float | None = None
     observer: str = "ground-plate"
+    adjustment: str = "none"
 
 
 @dataclass(frozen=True)

@@ -52,10 +52,13 @@ def common_band_range(tables) -> dict[str, tuple[float, float] | None]:
     return out
 
 
-def overall_table(levels: pd.DataFrame, band_range: dict) -> pd.DataFrame:
+def overall_table(levels: pd.DataFrame, band_range: dict, *, shared_db: float = 0.0
+                  ) -> pd.DataFrame:
     """Overall and A-weighted sums per window and region over one band range per region
     (``band_range[region]``, nominal band limits, or None): a window missing a band of the
-    range gets no overall (with a note), never a sum over fewer bands."""
+    range gets no overall (with a note), never a sum over fewer bands. ``shared_db`` is the
+    part of every band's uncertainty common to all bands (the calibration's shared term):
+    the sum does not average it away."""
     rows = []
     for (window, region), g in levels.groupby(["window", "region"], sort=False):
         overall = a_weighted = u_overall = np.nan
@@ -76,10 +79,13 @@ def overall_table(levels: pd.DataFrame, band_range: dict) -> pd.DataFrame:
                 if "uncertainty_db" in g:
                     u = (g.set_index("band_hz")["uncertainty_db"].astype(float)
                          .reindex(bands.nominal_hz).to_numpy())
-                    # Each band's share of the A-weighted sum carries its uncertainty
-                    # (independent bands, first order).
+                    # Each band's share w of the A-weighted sum carries its uncertainty, first
+                    # order: the independent parts in quadrature, the shared part whole
+                    # (sum w = 1).
                     share = 10 ** ((by_band.to_numpy() + a_weighting_db(bands.center_hz)) / 10)
-                    u_overall = float(np.sqrt(np.sum((share / share.sum() * u) ** 2)))
+                    w = share / share.sum()
+                    own = np.fmax(u ** 2 - shared_db ** 2, 0.0)
+                    u_overall = float(np.sqrt(np.sum(w ** 2 * own) + shared_db ** 2))
         rows.append({"window": window, "time_utc": g["time_utc"].iloc[0],
                      "polar_angle_deg": g["polar_angle_deg"].iloc[0], "region": region,
                      "overall_db": overall, "a_weighted_db": a_weighted,

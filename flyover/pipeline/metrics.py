@@ -9,6 +9,7 @@ import numpy as np
 import pandas as pd
 
 from flyover.acoustics.bands import third_octave_bands
+from flyover.acoustics.certification import CERTIFICATION_ADJUSTMENTS
 from flyover.acoustics.metrics import (EventMetrics, a_weighted, band_level_history,
                                       event_metrics, lae_shortfall_db, metrics_of_mean_square)
 from flyover.acoustics.reconstruct import (RAISED_MICROPHONE_M, Directivity, energy_sum,
@@ -29,12 +30,6 @@ READS = PASS_INPUTS + ("analysis.metrics_channel", "analysis.reference_flight",
                        "analysis.reference_distance_m", "analysis.reference_atmosphere",
                        "analysis.band_min_hz", "analysis.band_max_hz", "regions")
 ENVELOPE_RATE_HZ = 100.0    # reconstructed mean-square histories, sampled every 10 ms
-# Certification-style adjustments of a measured level to another height and speed (stated in
-# the reference notes from the text of 14 CFR 36): LASmax + 22 lg(H_T / H_R) (App. G, G36.201,
-# inside its temperature and humidity window; 20 lg outside it) and LAE + 12.5 lg(H_T / H_R)
-# + 10 lg(V_T / V_R) (App. J, J36.205, for helicopters' SEL).
-LASMAX_HEIGHT_SLOPE_DB = 22.0
-LAE_HEIGHT_SLOPE_DB = 12.5
 
 HISTORY_STEP_S = 0.01
 BAND_BLOCK_S = 0.5
@@ -219,17 +214,23 @@ def reconstruction_table(campaign: Campaign, inputs: PassInputs, summary: dict,
                                  h, v, obs,
                                  f"{t[0] - span_s[0]:.2f} to {t[-1] - span_s[0]:.2f} s of the "
                                  "measured span, the analysed bands only"))
-    adjusted = _adjusted(full, height_t / height_r, speed_t / speed_r)
-    rows.append(_row("adjusted measurement", "total", (adjusted, full_shortfall_db), height_r,
-                     speed_r, mounting, "all frequencies; " + ADJUSTMENT_NOTE))
+    table = pd.DataFrame(rows, columns=RECONSTRUCTED.column_names)
+    rule = CERTIFICATION_ADJUSTMENTS.get(ref.adjustment)
+    if rule is None:
+        return table
+    lateral_m = np.sqrt(max(summary["closest_distance_m"] ** 2 - height_t ** 2, 0.0))
+    window = rule.window_note(height_t, height_r, speed_t, speed_r, lateral_m)
+    adjusted = rule.adjusted(full, height_t, height_r, speed_t, speed_r)
+    table.loc[len(table)] = _row("adjusted measurement", "total", (adjusted, full_shortfall_db),
+                                 height_r, speed_r, mounting,
+                                 f"all frequencies; {rule.text}{window}")
     # The like-for-like route: the measurement in the analysed bands (as the reconstruction
     # holds), adjusted the same way.
-    adjusted_bands = _adjusted(measured[0], height_t / height_r, speed_t / speed_r)
-    rows.append(_row("adjusted measurement, analysed bands", "total",
-                     (adjusted_bands, measured[1]), height_r, speed_r, mounting,
-                     f"{bands.nominal_hz[0]:g}-{bands.nominal_hz[-1]:g} Hz bands only; "
-                     + ADJUSTMENT_NOTE))
-    table = pd.DataFrame(rows, columns=RECONSTRUCTED.column_names)
+    adjusted_bands = rule.adjusted(measured[0], height_t, height_r, speed_t, speed_r)
+    table.loc[len(table)] = _row("adjusted measurement, analysed bands", "total",
+                                 (adjusted_bands, measured[1]), height_r, speed_r, mounting,
+                                 f"{bands.nominal_hz[0]:g}-{bands.nominal_hz[-1]:g} Hz bands "
+                                 f"only; {rule.text}{window}")
     rebuilt = table[(table["route"] == "reference flight") & (table["component"] == TOTAL)]
     if len(rebuilt):
         r = rebuilt.iloc[0]
@@ -248,20 +249,6 @@ def reconstruction_table(campaign: Campaign, inputs: PassInputs, summary: dict,
                      f"no difference: the reference observer ({ref.observer}) and the array's "
                      f"microphones ({mounting}) hear the ground differently")}
     return table
-
-
-ADJUSTMENT_NOTE = ("LASmax + 22 lg(H_T/H_R) (14 CFR 36 App. G), LAE + 12.5 lg(H_T/H_R) + "
-                   "10 lg(V_T/V_R) (App. J)")
-
-
-def _adjusted(m: EventMetrics, height_ratio: float, speed_ratio: float) -> EventMetrics:
-    """Measured metrics with the certification-style adjustments to the reference height
-    and speed (``height_ratio`` H_T / H_R, ``speed_ratio`` V_T / V_R)."""
-    return EventMetrics(
-        m.lafmax_db, m.lafmax_s, m.lasmax_db + LASMAX_HEIGHT_SLOPE_DB * np.log10(height_ratio),
-        m.lasmax_s, m.lae_db + LAE_HEIGHT_SLOPE_DB * np.log10(height_ratio)
-        + 10 * np.log10(speed_ratio), m.ten_db_down_s, m.laeq_db, m.laeq_duration_s,
-        m.ten_db_down_complete)
 
 
 def _row(route, component, metrics: tuple[EventMetrics, float], height, speed, observer,

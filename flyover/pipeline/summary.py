@@ -21,7 +21,7 @@ from flyover.pipeline._overall import label_band_ranges, overall_table
 POLAR_BIN_DEG = 10.0
 
 # What this stage reads of the campaign (flyover.model.reads): its re-run fingerprint too.
-READS = ("passes", "analysis.overall_band_range_hz")
+READS = ("passes", "analysis.overall_band_range_hz", "analysis.uncertainty")
 
 
 
@@ -40,8 +40,9 @@ def pass_bins(levels: pd.DataFrame, value: str, keys: list[str]) -> pd.DataFrame
 
 
 def summarise(per_pass: dict[str, pd.DataFrame], labels: dict[str, str], value: str,
-              keys: list[str]) -> pd.DataFrame:
-    """Mean over the passes of each label, with spread, count and 90 % interval."""
+              keys: list[str], *, shared_db: float = 0.0) -> pd.DataFrame:
+    """Mean over the passes of each label, with spread, count and 90 % interval
+    (``shared_db``: the part of the levels' uncertainty every pass shares)."""
     rows = []
     frames = []
     for name, table in per_pass.items():
@@ -53,7 +54,8 @@ def summarise(per_pass: dict[str, pd.DataFrame], labels: dict[str, str], value: 
         return pd.DataFrame()
     allb = pd.concat(frames, ignore_index=True)
     for key, g in allb.groupby(["label"] + keys + ["polar_bin_deg"], sort=True):
-        s = mean_and_interval(g[value], uncertainty_db=g["uncertainty_db"])
+        s = mean_and_interval(g[value], uncertainty_db=g["uncertainty_db"],
+                              shared_db=shared_db)
         row = dict(zip(["label"] + keys + ["polar_bin_deg"], key))
         row.update(s)
         row["passes"] = " ".join(sorted(g.loc[np.isfinite(g[value]), "pass"]))
@@ -74,21 +76,22 @@ def run(campaign: Campaign, out_dir: Path) -> None:
     labels = {n: p.label for n, p in campaign.passes.items()}
     bands = {n: LEVELS.read(out_dir / n) for n in campaign.passes}
     rejected = rejected_passes(out_dir)
+    shared = campaign.analysis.uncertainty.calibration_shared_db
     overall = {}
     for label in dict.fromkeys(labels.values()):
         names = [n for n in campaign.passes if labels[n] == label]
         ranges = label_band_ranges(campaign, [bands[n] for n in names if n not in rejected]
                                    or [bands[n] for n in names])
         for n in names:
-            overall[n] = overall_table(bands[n], ranges)
+            overall[n] = overall_table(bands[n], ranges, shared_db=shared)
             LEVELS_OVERALL.write(out_dir / n, overall[n])
     signed = {n: t for n, t in bands.items() if n not in rejected}
-    table = summarise(signed, labels, "level_db", ["region", "band_hz"])
+    table = summarise(signed, labels, "level_db", ["region", "band_hz"], shared_db=shared)
     CAMPAIGN_LEVELS.write(out_dir, table)
     parts = []
     for value in ("overall_db", "a_weighted_db"):
         s = summarise({n: t for n, t in overall.items() if n not in rejected}, labels, value,
-                      ["region", "band_range_hz"])
+                      ["region", "band_range_hz"], shared_db=shared)
         s.insert(3, "quantity", "overall" if value == "overall_db" else "A-weighted")
         parts.append(s)
     overall_summary = pd.concat(parts, ignore_index=True)
