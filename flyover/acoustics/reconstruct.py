@@ -5,11 +5,13 @@ emission polar angle are carried along a flight path to an observer: for each re
 the emission time tau solves tau + T(tau) = t (the forward model's Newton solution, wind
 included), and the received mean square of band k is
 
-    P_k(t) = G^2 p0^2 10^(L_k(theta) / 10) / (r^2 (1 - M_r)^4) * 10^(-alpha(f_air) r / 10)
+    P_k(t) = G^2 p0^2 10^(L_k(theta) / 10) / (r^2 (1 - M_r)^(2n)) * 10^(-alpha(f_air) r / 10)
 
 with r the emission distance, M_r the source's Mach number towards the observer in the moving
-air (the convective amplification (1 - M_r)^-4 of a moving monopole's mean square, Dowling &
-Ffowcs Williams 1983, from memory), theta the emission polar angle, alpha the ISO 9613-1
+air (the convective amplification (1 - M_r)^-2n of the mean square, n = 2 for a moving
+monopole, Dowling & Ffowcs Williams 1983, from memory; n is the component's declared
+``convective_exponent``, the same the levels removed, so the reconstruction puts back exactly
+what the levels took off), theta the emission polar angle, alpha the ISO 9613-1
 absorption at the frequency the band has in the air, f / (1 - M_r), and G the observer's
 pressure gain (2 on a ground plate). The band is received at f / (dt/dtau): its A-weighting is
 taken there (the Doppler shift of the bands). An observer 1.2 m above hard ground receives the
@@ -49,11 +51,14 @@ class Directivity:
         Exact midbands.
     level_1m_db : ndarray, shape (n_angles, n_bands)
         dB re 20 uPa; NaN where not measured.
+    convective_exponent : float
+        n of the component (the pressure's (1 - M_r)^-n), as its levels were formed with.
     """
 
     polar_deg: np.ndarray
     band_center_hz: np.ndarray
     level_1m_db: np.ndarray
+    convective_exponent: float = 2.0
 
     def at(self, polar_deg) -> np.ndarray:
         """Levels at polar angles (n,) -> (n, n_bands), NaN outside a band's measured angles."""
@@ -137,7 +142,8 @@ def received_history(directivity: Directivity, *, track: TrackModel, observer_en
         f = directivity.band_center_hz[None, :]
         alpha = atmosphere.absorption_db_per_m(f / (1.0 - m_r[:, None]))
         power = (pressure_gain ** 2 * P0_PA ** 2 * 10.0 ** (level / 10.0)
-                 / (r[:, None] ** 2 * (1.0 - m_r[:, None]) ** 4)
+                 / (r[:, None] ** 2
+                    * (1.0 - m_r[:, None]) ** (2.0 * directivity.convective_exponent))
                  * 10.0 ** (-alpha * r[:, None] / 10.0))
         total = power if total is None else total + power
         if k == 0:

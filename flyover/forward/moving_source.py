@@ -171,8 +171,9 @@ class PointSource:
     rotor : RotorTones or None
         Blade-passing harmonics locked to a shaft whose speed may change.
     convective_exponent : float
-        n in ``p = G s / (r (1 - M_r)^n)``: 2 for the design notes' monopole, 1 for the
-        free-space Green's function of a mass source, about 3 dipole-like, 4 quadrupole-like.
+        n in ``p = G s / (r (1 - M_r)^n)``: 2 for the design notes' monopole (and, with s the
+        force's rate of change, a moving point force), 1 for the free-space Green's function of
+        a mass source, 3 for a compact quadrupole (after Lowson 1965, from memory).
     """
 
     name: str

@@ -28,10 +28,11 @@ MOUNTING_GAIN = {"ground-plate": 2.0, "free-field": 1.0, "raised": 1.0}
 class Region:
     """A rectangle of the vehicle grid (body axes x forward, y starboard), e.g. the propulsion.
 
-    ``z_m`` is the grid's plane (body z, down); ``convective_exponent`` the power of
-    ``1 / (1 - M_r)`` in its sources' pressure: 2 for a monopole (the source model's), about 3
-    for a dipole-like and 4 for a quadrupole-like source, under the normalisation of the source
-    model (source strength as the pressure at 1 m from the same source at rest; Dowling 1976).
+    ``z_m`` is the grid's plane (body z, down); ``convective_exponent`` n, the power of
+    ``1 / (1 - M_r)`` in its sources' pressure under the chain's normalisation (the source's
+    waveform in source time, at 1 m): 2 for a monopole and, after Lowson (1965), for a moving
+    point force whose waveform is the force's rate of change; 3 for a compact quadrupole
+    (from memory). The levels take (1 - M_r)^-n off and the reconstruction puts the same back.
     """
 
     name: str
@@ -43,7 +44,7 @@ class Region:
     def __post_init__(self):
         require(0.0 <= self.convective_exponent <= 6.0, "convective exponent out of range",
                 f"vehicle.regions.{self.name}.convective_exponent",
-                "2 (monopole), about 3 (dipole-like) or 4 (quadrupole-like)",
+                "2 (monopole, moving point force) or 3 (compact quadrupole)",
                 f"{self.convective_exponent}")
 
     @property

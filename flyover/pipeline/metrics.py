@@ -108,7 +108,8 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> None:
 
 
 def directivities(levels: pd.DataFrame) -> dict[str, Directivity]:
-    """Each component's band levels at 1 m against polar angle from a pass's levels table."""
+    """Each component's band levels at 1 m against polar angle from a pass's levels table,
+    with the convective exponent they were formed with."""
     out = {}
     if len(levels) == 0:
         return out
@@ -117,8 +118,10 @@ def directivities(levels: pd.DataFrame) -> dict[str, Directivity]:
         wide = g.pivot_table(index="polar_angle_deg", columns="band_hz", values="level_1m_db",
                              aggfunc="first", dropna=False).reindex(columns=bands.nominal_hz)
         wide = wide.sort_index()
+        exponent = (float(g["convective_exponent"].iloc[0]) if "convective_exponent" in g
+                    else 2.0)
         out[region] = Directivity(wide.index.to_numpy(float), bands.center_hz,
-                                  wide.to_numpy(float))
+                                  wide.to_numpy(float), exponent)
     return out
 
 

@@ -31,8 +31,9 @@ LEVELS = TableFile("levels.csv", (
                       "(ground velocity minus wind) and the direction its sound travels in the "
                       "air to the array centre (0 ahead, 90 abeam)"),
     ("mach_r", "the region's Mach number through the air along that direction (+ approaching)"),
-    ("convective_exponent", "n of the region's sources: 2 monopole (the chain's), ~3 dipole-like,"
-                            " ~4 quadrupole-like; levels corrected by 20 (n - 2) lg(1 - M_r)"),
+    ("convective_exponent", "n of the region's sources' pressure (1 - M_r)^-n: 2 monopole (the "
+                            "chain's) and moving point force, 3 compact quadrupole; levels "
+                            "corrected by 20 (n - 2) lg(1 - M_r)"),
     ("convective_amplification_db", "dB, -20 n lg(1 - M_r): what the motion adds at the array "
                                     "(removed from the levels)"),
     ("level_as_heard_db", "dB, level_db with the convective amplification kept: as heard on "
