@@ -241,6 +241,34 @@ def test_clock_offset_estimated_from_an_anchor(tiny_copy):
     assert 0.004 < summary["clock_offset_uncertainty_s"] < 0.1
 
 
+def test_clock_estimate_refuses_an_anchor_outweighed_in_some_bands(tmp_path):
+    # The front source sounds below 450 Hz only, the rear one (2 m behind) above it: anchored
+    # on the front, the lower bands put the offset at the true 0.1 s and the upper bands at
+    # 2 m / 20 m/s = 0.1 s earlier. A single estimate over all bands would land between them
+    # with a confident peak; the estimate is refused, naming both halves.
+    import copy
+
+    import yaml
+
+    from flyover.model.errors import FlyoverInputError
+    from flyover.sim.demo import write_campaign
+    from conftest import TINY_SCENARIO
+    scenario = copy.deepcopy(TINY_SCENARIO)
+    front, rear = scenario["sources"]
+    front["broadband"].update(max_hz=450)
+    rear["broadband"].update(level_1khz_db=86.0, min_hz=450)
+    (tmp_path / "scenario.yaml").write_text(yaml.safe_dump(scenario))
+    write_campaign(tmp_path / "scenario.yaml", tmp_path, progress=lambda *_: None)
+    path = tmp_path / "campaign.yaml"
+    data = yaml.safe_load(path.read_text())
+    data["passes"]["p1"].update(clock_offset_s="auto", clock_anchor_m=[1.0, 0.0, 0.0],
+                                clock_search_s=0.5)
+    path.write_text(yaml.safe_dump(data))
+    with pytest.raises(FlyoverInputError, match="not the dominant source in every band") as info:
+        align.run(load_campaign(path), "p1", tmp_path / "results" / "p1")
+    assert "250-400 Hz put it at" in info.value.message
+
+
 @pytest.mark.parametrize("anchor, refusal", [
     ([1.0, 15.0, 0.0], "no source at the anchor"),            # 15 m to the side: nothing there
     ([1.0, 0.0, -20.0], "no clear peak over the offsets searched"),  # 20 m above the vehicle

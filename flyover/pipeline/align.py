@@ -115,6 +115,19 @@ def _estimate_offset(campaign: Campaign, inputs):
             f"a peak {MIN_ANCHOR_PROMINENCE:g} times the scan's spread above its median",
             f"{estimate.prominence:.1f} times (peak at {estimate.offset_s:+.4f} s, uncertain by "
             f"{estimate.uncertainty_s * 1000:.0f} ms)", hint)
+    if estimate.halves_disagree:
+        low, high = estimate.half_offsets_s
+        half = max(1, len(bands) // 2)
+        raise FlyoverInputError(
+            "the anchor is not the dominant source in every band: the clock offset cannot be "
+            "estimated from it",
+            f"{campaign.config_path}, key passes.{spec.name}.clock_anchor_m",
+            f"the lower and upper bands to agree within "
+            f"{estimate.halves_tolerance_s * 1000:.0f} ms",
+            f"{bands.nominal_hz[0]:g}-{bands.nominal_hz[half - 1]:g} Hz put it at "
+            f"{low:+.3f} s, {bands.nominal_hz[half]:g}-{bands.nominal_hz[-1]:g} Hz at "
+            f"{high:+.3f} s (a source elsewhere on the body outweighs the anchor in some "
+            "bands)", hint)
     return estimate
 
 

@@ -81,18 +81,25 @@ def track_axes(track: TrackModel, time_s: float) -> dict[str, np.ndarray]:
 
 
 def anchor_coherence(signals, first, geometry, clock: ArrayClock, window: Window,
-                     settings: ChainSettings, atmosphere: Atmosphere) -> float:
+                     settings: ChainSettings, atmosphere: Atmosphere,
+                     band_groups=(slice(None),)) -> float | np.ndarray:
     """Array coherence of the de-Dopplerized signals at one point (summed over bands): the
     cross-power of the delay-and-sum output (autopowers removed) over the autopowers, scaled so
     that one source alone at the point gives 1. Unlike the beam power it does not grow with
-    the amplitude factor r (1 - M_r)^2 of a displaced path."""
+    the amplitude factor r (1 - M_r)^2 of a displaced path.
+
+    ``band_groups``: slices of the settings' bands, each summed apart; with the default (all
+    bands) a float, else an array of one coherence per group (at the cost of one)."""
     w = np.asarray(settings.weights, float)
     s1, s2 = w.sum(), (w ** 2).sum()
     bp = window_band_powers(signals, first, geometry, clock, window, settings, atmosphere)
-    beam = np.sum(bp.full[0]) * s1 ** 2
-    cross = np.sum(bp.diagonal_removed[0]) * (s1 ** 2 - s2)
-    auto = beam - cross
-    return float(cross * s2 / (auto * (s1 ** 2 - s2))) if auto > 0 else 0.0
+    out = []
+    for group in band_groups:
+        beam = np.sum(bp.full[0][group]) * s1 ** 2
+        cross = np.sum(bp.diagonal_removed[0][group]) * (s1 ** 2 - s2)
+        auto = beam - cross
+        out.append(float(cross * s2 / (auto * (s1 ** 2 - s2))) if auto > 0 else 0.0)
+    return out[0] if len(band_groups) == 1 else np.array(out)
 
 
 def focus_over_offsets(read_frames, track: TrackModel, windows: list[Window], anchor_body_m,
