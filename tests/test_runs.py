@@ -158,3 +158,24 @@ def test_live_status_shows_the_windows_of_a_running_imaging(tmp_path):
         state.feed(line)
     assert state.status(["p1", "p2"], tmp_path, elapsed_s=60.0) == (
         "6/11 steps | running: metrics p1 | passes done 1/2 | about 50 s left")
+
+
+def test_time_left_weighs_each_rule_by_its_own_duration():
+    # Snakemake's job stats: one simulation, two imagings and two level steps, two jobs at a
+    # time. The simulation took 300 s and one imaging 60 s; the other imaging has run its
+    # expected 60 s already; no level step has finished, so each counts the median of what
+    # did (180 s): (0 + 2 x 180) / 2 = 180 s left. The plain pace of steps (2 of 5 in 360 s)
+    # would say 540 s.
+    state = RunState()
+    lines = [(0, "Job stats:"), (0, "job          count"), (0, "---------  -------"),
+             (0, "simulate         1"), (0, "image            2"), (0, "levels           2"),
+             (0, "all              1"), (0, "total            6"),
+             (0, "rule simulate:"), (0, "    jobid: 1"),
+             (300, "Finished jobid: 1 (Rule: simulate)"),
+             (300, "rule image:"), (300, "    jobid: 2"), (300, "    wildcards: pass_name=p1"),
+             (300, "rule image:"), (300, "    jobid: 3"), (300, "    wildcards: pass_name=p2"),
+             (360, "Finished jobid: 2 (Rule: image)"), (360, "2 of 5 steps (40%) done")]
+    for t, line in lines:
+        state.feed(line, now_s=float(t))
+    # At 360 s the second imaging has run 60 s of its expected 60 s.
+    assert state.time_left_s(360.0, now_s=360.0) == pytest.approx((0 + 2 * 180.0) / 2)

@@ -48,3 +48,28 @@ def test_a_shared_uncertainty_does_not_shrink_with_more_passes():
     # One pass: its whole uncertainty, shared or not.
     assert mean_and_interval([70.0], uncertainty_db=[0.5], shared_db=0.3)["uncertainty_db"] \
         == pytest.approx(0.5)
+
+
+def test_campaign_rows_name_the_flagged_passes_they_include():
+    # Three passes of one label, one flagged by the sign-off: the row's mean includes it and
+    # says so; the figure's panel title names it.
+    import pandas as pd
+
+    from flyover.io.figures import campaign_figure
+    from flyover.pipeline.summary import summarise
+    per_pass = {n: pd.DataFrame({"window": [0], "polar_angle_deg": [90.0], "region": ["total"],
+                                 "band_range_hz": ["500-2000"], "a_weighted_db": [v],
+                                 "uncertainty_db": [0.5]})
+                for n, v in (("a", 70.0), ("b", 71.0), ("c", 72.0))}
+    table = summarise(per_pass, dict.fromkeys(per_pass, "cruise"), "a_weighted_db",
+                      ["region", "band_range_hz"], shared_db=0.15, flagged={"b"})
+    row = table.iloc[0]
+    assert row["passes"] == "a b c" and row["passes_flagged"] == "b"
+    assert row["mean_db"] == pytest.approx(71.0)
+    fig = campaign_figure(table.assign(quantity="A-weighted"))
+    assert "flagged: b" in fig.axes[0].get_title()
+    # A label with none flagged keeps a plain title.
+    clean = summarise(per_pass, dict.fromkeys(per_pass, "cruise"), "a_weighted_db",
+                      ["region", "band_range_hz"])
+    assert campaign_figure(clean.assign(quantity="A-weighted")).axes[0].get_title() == \
+        "cruise (3 passes)"

@@ -364,7 +364,11 @@ def campaign_figure(overall, quantity: str = "A-weighted"):
                         capsize=2.5, lw=1.3, color=colours[i % len(colours)],
                         label=f"{region} ({ranges} Hz)" if ranges else region)
         n = int(part["n_passes"].max()) if len(part) else 0
-        ax.set_title(f"{label} ({n} pass{'es' if n != 1 else ''})")
+        column = part["passes_flagged"] if "passes_flagged" in part else []
+        flagged = sorted({p for v in column if isinstance(v, str) for p in v.split()})
+        ax.set_title(f"{label} ({n} pass{'es' if n != 1 else ''}"
+                     + (f"; flagged: {', '.join(flagged)}" if flagged else "") + ")",
+                     **({"color": ACCENT} if flagged else {}))
         ax.set_xlabel("polar emission angle (deg, 90 = overhead)")
         ax.legend(fontsize=8, frameon=False)
     axes[0][0].set_ylabel(f"{quantity} level at reference distance (dB)")

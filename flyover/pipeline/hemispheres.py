@@ -20,7 +20,7 @@ from flyover.io.figures import coverage_figure, hemisphere_figure, save_figure
 from flyover.io.results.hemisphere import (FOLDER, HEMISPHERE, hemisphere_cube, label_folders,
                                            write_cube)
 from flyover.io.results.levels import LEVELS
-from flyover.io.results.signoff import rejected_passes
+from flyover.io.results.signoff import signoff_statuses
 from flyover.model.campaign import Campaign
 from flyover.model.reads import guarded
 from flyover.pipeline._overall import label_band_ranges
@@ -36,7 +36,7 @@ def run(campaign: Campaign, out_dir: Path) -> None:
     out_dir = Path(out_dir)
     grid = campaign.analysis.hemisphere
     folders = label_folders(p.label for p in campaign.passes.values())
-    rejected = rejected_passes(out_dir)
+    rejected = {n for n, s in signoff_statuses(out_dir).items() if s == "rejected"}
     for label, folder in folders.items():
         # Passes the sign-off rejected are left out (the cube's attributes name those used),
         # unless every pass of the label was.

@@ -37,7 +37,8 @@ CAUTION = ("Outdoor flight tests and their measurements must follow the applicab
            "operator's own risk assessment.")
 PACKAGES = ("numpy", "scipy", "pandas", "pyproj", "matplotlib", "snakemake", "numba",
             "soundfile", "PyYAML", "jsonschema")
-REPORT_IMAGE_QUALITY = 65  # WebP quality of the embedded figures (the PNGs keep full detail)
+REPORT_IMAGE_QUALITY = 60  # WebP quality of the embedded figures (the PNGs keep full detail)
+REPORT_IMAGE_WIDTH = 1600  # pixels at most: wider figures are scaled down for the page
 FULL_DIGEST_BYTES = 1 << 30  # files above this get a partial digest (head, tail and size)
 
 _STYLE = """
@@ -75,14 +76,19 @@ def file_digest(path: Path) -> str:
 
 
 def _img(path: Path, alt: str) -> str:
-    """A figure embedded as lossy WebP on white (the PNG stays in the results folder): a third
-    of the PNG's bytes at this quality, which keeps the demo's report under 5 MB."""
+    """A figure embedded as lossy WebP on white, at most ``REPORT_IMAGE_WIDTH`` wide (the PNG
+    stays in the results folder): about a quarter of the PNG's bytes, which keeps the demo's
+    report under 5 MB."""
     if not Path(path).exists():
         return f'<p class="muted">({html.escape(alt)}: not available)</p>'
     with Image.open(path) as image:
         flat = Image.new("RGB", image.size, "white")
         rgba = image.convert("RGBA")
         flat.paste(rgba, mask=rgba.getchannel("A"))
+    if flat.width > REPORT_IMAGE_WIDTH:
+        flat = flat.resize((REPORT_IMAGE_WIDTH,
+                            round(flat.height * REPORT_IMAGE_WIDTH / flat.width)),
+                           Image.Resampling.LANCZOS)
     buffer = io.BytesIO()
     flat.save(buffer, "WEBP", quality=REPORT_IMAGE_QUALITY, method=6)
     data = base64.b64encode(buffer.getvalue()).decode("ascii")
@@ -472,7 +478,10 @@ def _numbers_per_label(campaign: Campaign, out: Path, overall: pd.DataFrame,
             mean = _num(r["mean_db"], missing="")
             row[f"{r['region']}: overall A at 90 deg{span} (dB)"] = (
                 f"{mean} +- {_num(r['ci_half_width_db'], missing='(one pass: no interval)')}"
-                f" over {r['passes']}" if mean else "missing: no pass has a level")
+                f" over {r['passes']}"
+                + (f" (flagged: {r['passes_flagged']})" if isinstance(r.get("passes_flagged"), str)
+                   and r["passes_flagged"] else "")
+                if mean else "missing: no pass has a level")
         rows.append(row)
     return _by_column(rows, "label")
 

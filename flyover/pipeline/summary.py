@@ -13,7 +13,7 @@ from flyover.io.figures import campaign_figure, save_figure
 from flyover.io.results.campaign_tables import CAMPAIGN_LEVELS, CAMPAIGN_OVERALL
 from flyover.io.results.levels import LEVELS
 from flyover.io.results.levels_overall import LEVELS_OVERALL
-from flyover.io.results.signoff import rejected_passes
+from flyover.io.results.signoff import signoff_statuses
 from flyover.model.campaign import Campaign
 from flyover.model.reads import guarded
 from flyover.pipeline._overall import label_band_ranges, overall_table
@@ -40,9 +40,10 @@ def pass_bins(levels: pd.DataFrame, value: str, keys: list[str]) -> pd.DataFrame
 
 
 def summarise(per_pass: dict[str, pd.DataFrame], labels: dict[str, str], value: str,
-              keys: list[str], *, shared_db: float = 0.0) -> pd.DataFrame:
+              keys: list[str], *, shared_db: float = 0.0, flagged=()) -> pd.DataFrame:
     """Mean over the passes of each label, with spread, count and 90 % interval
-    (``shared_db``: the part of the levels' uncertainty every pass shares)."""
+    (``shared_db``: the part of the levels' uncertainty every pass shares; ``flagged``: passes
+    the sign-off flagged, named in each row that includes them)."""
     rows = []
     frames = []
     for name, table in per_pass.items():
@@ -58,7 +59,9 @@ def summarise(per_pass: dict[str, pd.DataFrame], labels: dict[str, str], value: 
                               shared_db=shared_db)
         row = dict(zip(["label"] + keys + ["polar_bin_deg"], key))
         row.update(s)
-        row["passes"] = " ".join(sorted(g.loc[np.isfinite(g[value]), "pass"]))
+        used = sorted(g.loc[np.isfinite(g[value]), "pass"])
+        row["passes"] = " ".join(used)
+        row["passes_flagged"] = " ".join(n for n in used if n in flagged)
         row["wide_interval"] = bool(np.isfinite(s["ci_half_width_db"])
                                     and s["ci_half_width_db"] > WIDE_INTERVAL_DB)
         rows.append(row)
@@ -75,7 +78,9 @@ def run(campaign: Campaign, out_dir: Path) -> None:
     out_dir = Path(out_dir)
     labels = {n: p.label for n, p in campaign.passes.items()}
     bands = {n: LEVELS.read(out_dir / n) for n in campaign.passes}
-    rejected = rejected_passes(out_dir)
+    statuses = signoff_statuses(out_dir)
+    rejected = {n for n, s in statuses.items() if s == "rejected"}
+    flagged = {n for n, s in statuses.items() if s == "flagged"}
     shared = campaign.analysis.uncertainty.calibration_shared_db
     overall = {}
     for label in dict.fromkeys(labels.values()):
@@ -86,12 +91,13 @@ def run(campaign: Campaign, out_dir: Path) -> None:
             overall[n] = overall_table(bands[n], ranges, shared_db=shared)
             LEVELS_OVERALL.write(out_dir / n, overall[n])
     signed = {n: t for n, t in bands.items() if n not in rejected}
-    table = summarise(signed, labels, "level_db", ["region", "band_hz"], shared_db=shared)
+    table = summarise(signed, labels, "level_db", ["region", "band_hz"], shared_db=shared,
+                      flagged=flagged)
     CAMPAIGN_LEVELS.write(out_dir, table)
     parts = []
     for value in ("overall_db", "a_weighted_db"):
         s = summarise({n: t for n, t in overall.items() if n not in rejected}, labels, value,
-                      ["region", "band_range_hz"], shared_db=shared)
+                      ["region", "band_range_hz"], shared_db=shared, flagged=flagged)
         s.insert(3, "quantity", "overall" if value == "overall_db" else "A-weighted")
         parts.append(s)
     overall_summary = pd.concat(parts, ignore_index=True)

@@ -20,6 +20,8 @@ import time
 from dataclasses import dataclass, field
 from pathlib import Path
 
+import numpy as np
+
 from flyover.io.results.alignment import read_alignment
 from flyover.io.results.levels import LEVELS
 from flyover.io.results.signoff import SIGNOFF
@@ -34,6 +36,7 @@ _JOB = re.compile(r"^(?:local)?rule (\w+):$")
 _FINISHED = re.compile(r"^Finished jobid: (\d+) \(Rule: (\w+)\)")
 _ERROR = re.compile(r"^Error in rule (\w+):$")
 _WINDOWS = re.compile(r"imaging: (\d+)/(\d+)")
+_JOB_COUNT = re.compile(r"^(\w+)\s+(\d+)$")
 
 
 def snakemake_command(campaign_file: Path, *extra: str) -> list[str]:
@@ -65,12 +68,26 @@ class RunState:
     total_steps: int = 0
     failed: list = field(default_factory=list)      # _Job
     passes_done: set = field(default_factory=set)
+    planned: dict = field(default_factory=dict)     # rule -> jobs (Snakemake's job stats)
+    durations: dict = field(default_factory=dict)   # rule -> seconds of its finished jobs
+    started_s: dict = field(default_factory=dict)   # jobid -> when it started
+    most_running: int = 1
     _current: _Job | None = None
     _current_id: str = ""
+    _in_stats: bool = False
 
-    def feed(self, line: str) -> None:
+    def feed(self, line: str, now_s: float | None = None) -> None:
+        """Take one line of Snakemake's log (``now_s``: when it came, monotonic seconds)."""
+        now_s = time.monotonic() if now_s is None else now_s
         text = line.strip()
-        if m := _JOB.match(text):
+        if text == "Job stats:":
+            self._in_stats = True
+        elif self._in_stats and (m := _JOB_COUNT.match(text)):
+            if m.group(1) == "total":
+                self._in_stats = False
+            elif m.group(1) != "all":
+                self.planned[m.group(1)] = int(m.group(2))
+        elif m := _JOB.match(text):
             self._current = _Job(m.group(1))
             self._current_id = ""
         elif m := _ERROR.match(text):
@@ -81,6 +98,8 @@ class RunState:
             if self._current not in self.failed:
                 self.jobs[self._current_id] = self._current
                 self.running.add(self._current_id)
+                self.started_s[self._current_id] = now_s
+                self.most_running = max(self.most_running, len(self.running))
             elif self._current_id in self.jobs:  # an error block: what the job was started with
                 started = self.jobs[self._current_id]
                 self._current.resources = started.resources
@@ -102,10 +121,14 @@ class RunState:
                                   text[4:].split(" (check log")[0].split(", ") if p.strip()]
         elif m := _FINISHED.match(text):
             self.running.discard(m.group(1))
+            if m.group(1) in self.started_s:
+                self.durations.setdefault(m.group(2), []).append(
+                    now_s - self.started_s[m.group(1)])
         elif m := _STEPS.match(text):
             self.done_steps, self.total_steps = int(m.group(1)), int(m.group(2))
 
-    def status(self, passes: list[str], out: Path, elapsed_s: float | None = None) -> str:
+    def status(self, passes: list[str], out: Path, elapsed_s: float | None = None,
+               now_s: float | None = None) -> str:
         """One line: steps, the running steps (windows done within imaging), passes done and,
         ``elapsed_s`` into the run, an estimate of the time left."""
         parts = []
@@ -125,14 +148,34 @@ class RunState:
         steps = f"{self.done_steps}/{self.total_steps} steps" if self.total_steps else "starting"
         text = (f"{steps} | running: {', '.join(parts) or '-'} | passes done "
                 f"{len(self.passes_done & set(passes))}/{len(passes)}")
-        left = self.time_left_s(elapsed_s)
+        left = self.time_left_s(elapsed_s, now_s)
         return text if left is None else f"{text} | {_duration_text(left)} left"
 
-    def time_left_s(self, elapsed_s: float | None) -> float | None:
-        """Steps left at the pace of the steps done so far (None before the first)."""
+    def time_left_s(self, elapsed_s: float | None, now_s: float | None = None) -> float | None:
+        """The time left: each job still to run at its rule's mean duration so far (the mean
+        of all rules' where its own has none finished yet), running ones less their time
+        already spent, shared over as many jobs as have run at once. Before Snakemake's job
+        stats are seen, the steps left at the pace of the steps done (None before the first)."""
         if elapsed_s is None or not self.done_steps or not self.total_steps:
             return None
-        return elapsed_s / self.done_steps * (self.total_steps - self.done_steps)
+        observed = [d for v in self.durations.values() for d in v]
+        if not self.planned or not observed:
+            return elapsed_s / self.done_steps * (self.total_steps - self.done_steps)
+        now_s = time.monotonic() if now_s is None else now_s
+        typical = float(np.median(observed))
+
+        def expected(rule):
+            own = self.durations.get(rule)
+            return float(np.mean(own)) if own else typical
+
+        left = 0.0
+        for rule, count in self.planned.items():
+            running = [j for j in self.running if self.jobs[j].rule == rule]
+            waiting = count - len(self.durations.get(rule, [])) - len(running)
+            left += max(waiting, 0) * expected(rule)
+            left += sum(max(expected(rule) - (now_s - self.started_s.get(j, now_s)), 0.0)
+                        for j in running)
+        return left / self.most_running
 
 
 def _duration_text(seconds: float) -> str:

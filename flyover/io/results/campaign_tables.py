@@ -10,11 +10,13 @@ _STATISTICS = (
     ("ci_half_width_db", "dB, half-width of the 90 % interval of the mean: the Student-t "
                          "interval of the pass-to-pass scatter and the passes' own stated "
                          "uncertainties (levels.csv) combined in quadrature"),
-    ("uncertainty_db", "dB, the passes' rms stated uncertainty over sqrt(passes) (empty for "
-                       "overall levels)"),
+    ("uncertainty_db", "dB, the mean's standard uncertainty from the passes' stated ones: "
+                       "their independent part over sqrt(passes), the part all share "
+                       "(calibration_shared_db) whole"),
     ("ci_low_db", "dB"),
     ("ci_high_db", "dB"),
-    ("passes", "names of the passes averaged"),
+    ("passes", "names of the passes averaged (rejected passes are left out)"),
+    ("passes_flagged", "those of them the sign-off flagged (signoff.csv says why)"),
     ("wide_interval", "interval wider than +-1.5 dB"),
 )
 CAMPAIGN_LEVELS = TableFile("campaign_levels.csv", (

@@ -34,7 +34,8 @@ def read_signoff_json(folder) -> dict:
     return read_json(folder, SIGNOFF_JSON, "sign-off")
 
 
-def rejected_passes(folder) -> set[str]:
-    """Passes the sign-off rejected: the campaign statistics leave them out."""
+def signoff_statuses(folder) -> dict[str, str]:
+    """Each pass's status ('accepted', 'flagged' or 'rejected'): the campaign statistics leave
+    rejected passes out and name the flagged ones they include."""
     table = SIGNOFF.read(folder)
-    return set(table.loc[table["status"] == "rejected", "pass"].astype(str))
+    return dict(zip(table["pass"].astype(str), table["status"].astype(str)))
