@@ -164,6 +164,12 @@ def test_stages_on_the_tiny_campaign(tiny_copy):
     np.testing.assert_allclose(total["emission_polar_deg"], total["polar_angle_deg"], atol=0.5)
     by_region = table.pivot_table(index="window", columns="region", values="emission_polar_deg")
     assert (by_region["front"] > by_region["rear"]).all()
+    # Every given region level carries the stability test's change in its uncertainty (a
+    # rectangular term of that half-width), the total none.
+    given = table[np.isfinite(table["level_db"])]
+    regions = given[given["region"] != "total"]
+    assert (regions["uncertainty_db"] >= regions["leakage_db"] / np.sqrt(3) - 1e-9).all()
+    assert (given.loc[given["region"] == "total", "leakage_db"] == 0).all()
     # A level left empty (not separable, not measurable) is empty in every level column.
     empty = table["level_db"].isna()
     assert empty.any() and table.loc[empty, "level_1m_db"].isna().all()

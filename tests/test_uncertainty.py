@@ -32,6 +32,10 @@ def test_each_term_by_hand():
     assert budget(clock_s=0.01) == pytest.approx(0.0, abs=1e-12)
     assert budget(clock_s=0.01, polar_deg=60.0) == pytest.approx(8.6859 * 25 * 0.01 * 0.5 / 35,
                                                                  rel=1e-4)
+    # Leakage: the level moved 0.9 dB under the stability test's shifts; the source may sit
+    # anywhere in its region, a rectangular distribution of that half-width: 0.9 / sqrt(3)
+    # (GUM 4.3.7, from memory).
+    assert budget(leakage_db=0.9) == pytest.approx(0.9 / np.sqrt(3))
     # Terms add in quadrature (GUM 5.1.2), the scatter among them.
     both = budget(inputs=InputUncertainty(0.2, 0.0, 0.0, 0.0, 0.0), scatter_db=0.5)
     assert both == pytest.approx(np.hypot(0.05, 0.5))

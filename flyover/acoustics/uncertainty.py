@@ -19,6 +19,10 @@ first-order sensitivity (the terms are independent and added in quadrature, GUM 
   ``clock_s`` as an along-track error V sigma_t: the level's distance correction 20 lg r moves by
   ``20 lg(e) sigma_r / r``, with sigma_r the error along the line of sight (the clock's part is
   V sigma_t cos(theta), theta the polar angle);
+- the leakage solve's sensitivity, ``leakage_db``: how far the level moved when a unit source
+  shifted within its region (the imaging's stability test): the source's true place in its
+  region is unknown, so the level is known to within that much, a rectangular distribution of
+  that half-width, ``leakage_db / sqrt(3)`` (GUM 4.3.7, from memory);
 - the window's own scatter: a band power measured over T seconds of a band B Hz wide scatters by
   about 1/sqrt(B T) (noise) and less for tones; flyover takes it from the data, as the rms
   difference of consecutive windows' levels over sqrt(2) (``scatter_db``, computed by the
@@ -67,7 +71,8 @@ class InputUncertainty:
 def band_level_uncertainty_db(band_center_hz, *, distance_m, polar_deg, n_mics: int,
                               aperture_m: float, c_m_s: float, temperature_c: float,
                               speed_m_s: float, track_m: float, clock_s: float,
-                              inputs: InputUncertainty, scatter_db=0.0) -> np.ndarray:
+                              inputs: InputUncertainty, scatter_db=0.0,
+                              leakage_db=0.0) -> np.ndarray:
     """Standard uncertainty (dB) of band levels from the inputs and the window scatter.
 
     Parameters
@@ -86,6 +91,8 @@ def band_level_uncertainty_db(band_center_hz, *, distance_m, polar_deg, n_mics: 
     inputs : InputUncertainty
     scatter_db : array
         The window scatter of the level.
+    leakage_db : array
+        How far the level moved under the stability test's shifts (0 where it has none).
     """
     f = np.asarray(band_center_hz, float)
     k = 2 * np.pi * f / c_m_s
@@ -99,5 +106,6 @@ def band_level_uncertainty_db(band_center_hz, *, distance_m, polar_deg, n_mics: 
         DB_PER_NEPER_POWER * (k * position_like) ** 2,
         2 * DB_PER_NEPER_POWER * np.hypot(track_m, along) / r,
         np.asarray(scatter_db, float),
+        np.asarray(leakage_db, float) / np.sqrt(3.0),
     ]
     return np.sqrt(sum(np.broadcast_to(t, np.broadcast(*terms).shape) ** 2 for t in terms))

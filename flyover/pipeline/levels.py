@@ -124,6 +124,10 @@ def level_table(powers: pd.DataFrame, windows: pd.DataFrame, campaign: Campaign,
     order = {name: i for i, name in enumerate(list(campaign.regions) + [TOTAL])}
     p = p.assign(_o=p["region"].map(order)).sort_values(["window", "_o", "band_hz"])
     p["uncertainty_db"] = p["ci90_low_db"] = p["ci90_high_db"] = np.nan
+    # The stability test's change where the level is given (a total has none).
+    p["leakage_db"] = np.where(p["region"] == TOTAL, 0.0,
+                               pd.to_numeric(p["stability_db"], errors="coerce"))
+    p.loc[~np.isfinite(p["level_db"]), "leakage_db"] = np.nan
     return p[cols].reset_index(drop=True)
 
 
@@ -217,7 +221,9 @@ def with_uncertainty(levels: pd.DataFrame, alignment: dict, campaign: Campaign,
         speed_m_s=float(alignment["speed_m_s"]),
         track_m=float(alignment["track_noise_estimate_m"]),
         clock_s=clock_uncertainty_s(alignment, inputs.clock_s), inputs=inputs,
-        scatter_db=band_scatter)
+        scatter_db=band_scatter,
+        leakage_db=np.nan_to_num(out["leakage_db"].to_numpy(float), posinf=0.0)
+        if "leakage_db" in out else 0.0)
     has = np.isfinite(out["level_db"].to_numpy(float))
     supported = pd.Series(np.where(has & ~isolated, u, np.nan), index=out.index)
     band_median = supported.groupby(out["band_hz"]).transform("median").to_numpy(float)

@@ -12,7 +12,11 @@ LEVELS = TableFile("levels.csv", (
     ("level_db", "dB re 20 uPa at the reference distance in the reference atmosphere; empty "
                  "where not separable or not measurable"),
     ("level_1m_db", "dB re 20 uPa, source strength at 1 m; empty where level_db is"),
-    ("uncertainty_db", "dB, standard uncertainty of both levels (inputs and window scatter)"),
+    ("uncertainty_db", "dB, standard uncertainty of both levels (inputs, window scatter and "
+                       "leakage)"),
+    ("leakage_db", "dB, how far the level moved when a unit source shifted or with the "
+                   "method's variant (region_power.csv's stability_db; 0 for 'total'; empty where "
+                   "the level is): in uncertainty_db as a rectangular term of that half-width"),
     ("ci90_low_db", "dB, level_db - 1.645 uncertainty_db: the 90 % interval"),
     ("ci90_high_db", "dB, level_db + 1.645 uncertainty_db"),
     ("resolved", "the region is resolved from every other in the window (region_power.csv); a "
