@@ -35,6 +35,26 @@ def test_a_key_given_twice(tiny_copy, capsys):
     refused(path, capsys, "key 'p2' is given twice", "line")
 
 
+def test_shared_settings_through_anchors_and_the_merge_key(tiny_copy):
+    # YAML 1.1's merge key (yaml.org/type/merge.html): p2 takes p1's atmosphere through an
+    # anchor and overrides its temperature beside the merge, which is not a repeated key.
+    import yaml
+
+    from flyover.io.config import load_campaign
+    path = tiny_copy / "campaign.yaml"
+    data = yaml.safe_load(path.read_text())
+    humidity = data["passes"]["p1"]["atmosphere"]["relative_humidity_pct"]
+    data["passes"]["p2"]["atmosphere"] = "MERGED"
+    text = yaml.safe_dump(data, sort_keys=True)
+    text = text.replace("\n    atmosphere:\n", "\n    atmosphere: &atm\n", 1)
+    text = text.replace("    atmosphere: MERGED\n",
+                        "    atmosphere:\n      <<: *atm\n      temperature_c: 21.5\n")
+    assert "&atm" in text and "<<: *atm" in text
+    path.write_text(text)
+    p2 = load_campaign(path).passes["p2"].atmosphere
+    assert p2.temperature_c == 21.5 and p2.relative_humidity_pct == humidity
+
+
 def test_a_pass_named_by_a_number(tiny_copy, capsys):
     path = tiny_copy / "campaign.yaml"
     path.write_text(path.read_text().replace("  p2:", "  1:"))

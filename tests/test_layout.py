@@ -63,3 +63,15 @@ def test_every_reader_module_registers_and_files_find_their_reader(tmp_path):
     odd.write_bytes(b"RIFF\x24\x00\x00\x00WAVE" + b"\x00" * 32)
     assert reader_for("recording", odd).kind == "recording"
     assert reader_for("track", tmp_path / "track.csv").kind == "track"
+
+
+def test_the_reports_provenance_lists_every_runtime_dependency():
+    # The provenance table takes the installed distribution's requirements, not a list kept
+    # by hand: every name of pyproject.toml's [project] dependencies (PEP 621) is in it.
+    import re
+    import tomllib
+
+    from flyover.pipeline.report import runtime_dependencies
+    project = tomllib.loads((PACKAGE.parent / "pyproject.toml").read_text())["project"]
+    declared = [re.match(r"[A-Za-z0-9_.-]+", r).group(0) for r in project["dependencies"]]
+    assert runtime_dependencies() == declared

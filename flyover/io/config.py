@@ -47,11 +47,15 @@ class _YamlKeyError(yaml.YAMLError):
 
 class _StrictLoader(yaml.SafeLoader):
     """Safe YAML that refuses a key given twice (a pasted block would silently win) and keys
-    that YAML reads as something other than text (a pass named 1 or 2026-05-14)."""
+    that YAML reads as something other than text (a pass named 1 or 2026-05-14). Shared
+    settings may come in through anchors and the merge key (``<<: *atm``): keys given beside
+    a merge override the merged ones, as YAML says."""
 
     def construct_mapping(self, node, deep=False):
         seen = {}
         for key_node, _ in node.value:
+            if key_node.tag == "tag:yaml.org,2002:merge":
+                continue                   # merged keys may be overridden: not a repeat
             key = self.construct_object(key_node, deep=deep)
             line = key_node.start_mark.line + 1
             if not isinstance(key, str):
@@ -62,6 +66,7 @@ class _StrictLoader(yaml.SafeLoader):
                 raise _YamlKeyError(f"key '{key}' is given twice (lines {seen[key]} and {line})",
                                     line, "keep one of them: YAML would silently use the last")
             seen[key] = line
+        self.flatten_mapping(node)
         return super().construct_mapping(node, deep=deep)
 
 

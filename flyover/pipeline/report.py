@@ -5,6 +5,7 @@ from __future__ import annotations
 import base64
 import hashlib
 import html
+import re
 import io
 import os
 import platform
@@ -35,8 +36,6 @@ CAUTION = ("Outdoor flight tests and their measurements must follow the applicab
            "noise-certification standards, aviation rules and local regulations; flyover defers "
            "to them and is no substitute for them. Flying near people and microphones needs the "
            "operator's own risk assessment.")
-PACKAGES = ("numpy", "scipy", "pandas", "pyproj", "matplotlib", "snakemake", "numba",
-            "soundfile", "PyYAML", "jsonschema")
 REPORT_IMAGE_QUALITY = 60  # WebP quality of the embedded figures (the PNGs keep full detail)
 REPORT_IMAGE_WIDTH = 1600  # pixels at most: wider figures are scaled down for the page
 FULL_DIGEST_BYTES = 1 << 30  # files above this get a partial digest (head, tail and size)
@@ -544,7 +543,8 @@ def run(campaign: Campaign, out_dir: Path) -> None:
                             for f in campaign.input_files()])
     versions = pd.DataFrame([{"software": "flyover", "version": __version__},
                              {"software": "python", "version": platform.python_version()}]
-                            + [{"software": p, "version": _version(p)} for p in PACKAGES])
+                            + [{"software": p, "version": _version(p)}
+                               for p in runtime_dependencies()])
     now = datetime.now(timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
     nav = " ".join(f'<a href="#pass-{html.escape(n)}">{html.escape(n)}</a>'
                    for n in campaign.passes)
@@ -620,6 +620,18 @@ each pass's line across the hemisphere: the empty rows are the offsets to fly ne
 </body></html>
 """
     write_text(out / "report.html", body)
+
+
+def runtime_dependencies(distribution: str = "flyover-noise") -> list[str]:
+    """The distribution's own runtime requirements by name, as installed (its metadata: the
+    pyproject's dependencies, extras such as the test tools left out)."""
+    try:
+        required = metadata.requires(distribution) or []
+    except metadata.PackageNotFoundError:
+        return []
+    names = [re.match(r"[A-Za-z0-9_.-]+", r).group(0) for r in required
+             if "extra ==" not in r]
+    return list(dict.fromkeys(names))
 
 
 def _version(name: str) -> str:
