@@ -75,3 +75,15 @@ def test_the_reports_provenance_lists_every_runtime_dependency():
     project = tomllib.loads((PACKAGE.parent / "pyproject.toml").read_text())["project"]
     declared = [re.match(r"[A-Za-z0-9_.-]+", r).group(0) for r in project["dependencies"]]
     assert runtime_dependencies() == declared
+
+
+def test_flag_columns_come_back_as_booleans(tmp_path):
+    # CSV holds true/false as text; a result file's declared flags are read back as booleans,
+    # so no stage parses them by hand.
+    import pandas as pd
+
+    from flyover.io.results import TableFile
+    table = TableFile("t.csv", (("name", ""), ("ok", "")), flags=("ok",))
+    table.write(tmp_path, pd.DataFrame({"name": ["a", "b", "c"], "ok": [True, False, None]}))
+    back = table.read(tmp_path)
+    assert back["ok"].dtype == bool and back["ok"].tolist() == [True, False, False]

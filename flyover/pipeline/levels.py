@@ -79,10 +79,7 @@ def level_table(powers: pd.DataFrame, windows: pd.DataFrame, campaign: Campaign,
     p["window"] = p["window"].astype(int)
     p["band_hz"] = p["band_hz"].astype(float)
     p["power_1m_pa2"] = pd.to_numeric(p["power_1m_pa2"], errors="coerce")
-    for flag in ("resolved", "dominant", "region_valid"):
-        p[flag] = p[flag].astype(str).str.lower() == "true"
     p["region_note"] = p["region_note"].astype(object).fillna("")
-    p["band_valid"] = p["band_valid"].astype(str).str.lower() == "true"
     p["band_note"] = p["band_note"].astype(object).fillna("")
     unknown = sorted(set(p["region"]) - set(campaign.regions) - {TOTAL})
     if unknown:

@@ -105,7 +105,7 @@ def _num(value, fmt: str = ".1f", missing: str = "missing") -> str:
 
 def _lae(lae_db, complete, shortfall_db) -> str:
     """An LAE for the report: a cut-short one says it is a lower bound and by about how much."""
-    if str(complete).lower() == "true" or not np.isfinite(float(lae_db)):
+    if bool(complete) or not np.isfinite(float(lae_db)):
         return _num(lae_db, missing="none")
     short = float(shortfall_db) if shortfall_db is not None else np.inf
     return _num(lae_db) + (f" (cut short: about {short:.1f} dB more)" if np.isfinite(short)
@@ -320,7 +320,7 @@ def _rotor_table(d: Path) -> pd.DataFrame:
     tones = ROTOR_TONES.read(d)
     rows = []
     for (rotor, k), g in tones.groupby(["rotor", "harmonic"], sort=True):
-        ok = g[g["separable"].astype(str).str.lower() == "true"]
+        ok = g[g["separable"]]
         near = ok.loc[(ok["polar_angle_deg"] - 90).abs().idxmin()] if len(ok) else None
         rows.append({"rotor": rotor, "harmonic": int(k), "order": int(g["order"].iloc[0]),
                      "frequency (Hz)": f"{g['frequency_hz'].mean():.1f}",
@@ -366,7 +366,7 @@ def _reconstruction_table(d: Path) -> pd.DataFrame:
         "LAE (dB)": [_lae(v, c, x) for v, c, x in
                      zip(t["lae_db"], t["complete"], t["lae_shortfall_db"])],
         "10 dB down (s)": t["ten_db_down_s"].map(lambda v: _num(v, ".2f", missing="none")),
-        "complete": t["complete"].map(lambda v: "yes" if str(v).lower() == "true" else "no"),
+        "complete": t["complete"].map({True: "yes", False: "no"}),
         "flight": [f"{h:.1f} m, {v:.1f} m/s, {o}" for h, v, o in
                    zip(t["height_m"], t["speed_m_s"], t["observer"])],
         "how": t["note"]})
@@ -458,8 +458,7 @@ def _numbers_per_label(campaign: Campaign, out: Path, overall: pd.DataFrame,
         # Rejected passes are left out of the means, as of the campaign tables.
         used = [n for n in names if status[n] != "rejected"]
         m = pd.concat([EVENT_METRICS.read(out / n) for n in used]) if used else None
-        cut = 0 if m is None else int((m["ten_db_down_complete"].astype(str).str.lower()
-                                       != "true").sum())
+        cut = 0 if m is None else int((~m["ten_db_down_complete"]).sum())
         row = {"label": label or "unlabelled",
                "passes (status)": ", ".join(f"{n} ({s})" for n, s in status.items()),
                "LASmax measured, mean (dB)": ("missing: every pass rejected" if m is None else

@@ -84,13 +84,13 @@ def pass_findings(facts: dict, *, limits, weather_limits, clock_given_s: float,
                            f"clock offset uncertain by {clock_ms:.2f} ms (limit "
                            f"{limits.clock_uncertainty_max_ms:g} ms)"))
     metrics = facts["metrics"]
-    if len(metrics) and not _true(metrics["ten_db_down_complete"].iloc[0]):
+    if len(metrics) and not bool(metrics["ten_db_down_complete"].iloc[0]):
         out.append(_cut_short("measured single-event metrics", metrics.iloc[0],
                               "the recording cuts the 10 dB-down interval short"))
     out += track_findings(facts.get("track_check"), limits.track_offset_max_m)
     rec = facts["reconstructed"]
     ref = rec[(rec["route"] == "reference flight") & (rec["component"] == "total")]
-    if len(ref) and not _true(ref["complete"].iloc[0]):
+    if len(ref) and not bool(ref["complete"].iloc[0]):
         out.append(_cut_short("reference-flight metrics", ref.iloc[0],
                               "the measured directivity ends before 10 dB down"))
     return out
@@ -146,10 +146,6 @@ def track_findings(check: dict | None, tolerance_m: float) -> list[Finding]:
     return out
 
 
-def _true(value) -> bool:
-    return str(value).strip().lower() in ("true", "1", "1.0")
-
-
 def run(campaign: Campaign, out_dir: Path) -> None:
     """Write signoff.csv and signoff.json in the campaign's result folder."""
     campaign = guarded(campaign, READS, stage="signoff")
@@ -176,7 +172,7 @@ def run(campaign: Campaign, out_dir: Path) -> None:
                     "closest_distance_m": al["closest_distance_m"],
                     "lasmax_db": float(m["lasmax_db"].iloc[0]) if len(m) else None,
                     "lae_db": float(m["lae_db"].iloc[0]) if len(m) else None,
-                    "metrics_complete": bool(len(m)) and _true(m["ten_db_down_complete"].iloc[0]),
+                    "metrics_complete": bool(len(m)) and bool(m["ten_db_down_complete"].iloc[0]),
                     "lae_shortfall_db": _finite_or_none(m["lae_shortfall_db"]) if len(m) else None}
         status = status_of(findings)
         rows.append({"pass": name, "label": labels[name], "status": status,

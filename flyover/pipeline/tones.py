@@ -158,7 +158,7 @@ def band_parts(levels: pd.DataFrame, tones: pd.DataFrame, campaign: Campaign) ->
                                       or row["region"] in home.get(r, []))]
             if len(here) == 0:
                 continue
-            if not here["separable"].astype(str).str.lower().eq("true").all():
+            if not here["separable"].astype(bool).all():
                 out.loc[i, "note"] = "a rotor harmonic in this band is not separable"
                 continue
             if here["note"].astype(str).str.contains(RAISED_NOTE, regex=False).any():

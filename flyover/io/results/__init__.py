@@ -31,12 +31,15 @@ class TableFile:
         printf format of floats: fixed, so identical results give identical bytes.
     more_columns : str
         When not empty, further columns may follow the fixed ones; says what they are.
+    flags : tuple of str
+        Columns of true/false values: read back as booleans (CSV holds them as text).
     """
 
     name: str
     columns: tuple[tuple[str, str], ...]
     float_format: str = "%.6f"
     more_columns: str = ""
+    flags: tuple[str, ...] = ()
 
     @property
     def column_names(self) -> list[str]:
@@ -72,6 +75,8 @@ class TableFile:
                                     ",".join(self.column_names), ",".join(frame.columns),
                                     "it was written by another flyover version: re-run the "
                                     "workflow")
+        for name in self.flags:
+            frame[name] = frame[name].astype(str).str.strip().str.lower().isin(("true", "1"))
         return frame
 
     def describe(self) -> str:

@@ -26,7 +26,7 @@ EVENT_METRICS = TableFile("event_metrics.csv", (
     ("laeq_duration_s", "s, that span"),
     ("as_measured", "levels as the microphone measured them (a ground-plate microphone "
                     "includes the pressure doubling)"),
-), float_format="%.3f")
+), float_format="%.3f", flags=("ten_db_down_complete",))
 
 LEVEL_HISTORY = TableFile("level_history.csv", (
     ("time_utc", "ISO 8601 UTC, as received"),
@@ -61,4 +61,4 @@ RECONSTRUCTED = TableFile("reconstructed_metrics.csv", (
     ("speed_m_s", "m/s"),
     ("observer", "'ground-plate' or 'raised' (1.2 m over hard ground)"),
     ("note", "how the row was obtained"),
-), float_format="%.3f")
+), float_format="%.3f", flags=("complete",))

@@ -26,4 +26,5 @@ REGION_POWER = TableFile("region_power.csv", (
     ("main_lobe_width_m", "m, the Rayleigh width 1.22 lambda z / D (for reference)"),
     ("band_valid", "the window can measure the band"),
     ("band_note", "why not"),
-), float_format="%.6e")
+), float_format="%.6e", flags=("resolved", "dominant", "region_valid",
+                                   "band_valid"))

@@ -28,7 +28,7 @@ ROTOR_TONES = TableFile("rotor_tones.csv", (
                   f"{SEPARATION_CORRELATION:g}"),
     ("column_correlation", "the largest such correlation (0 to 1)"),
     ("note", "why a level is empty"),
-), float_format="%.3f")
+), float_format="%.3f", flags=("separable",))
 
 BAND_PARTS = TableFile("band_parts.csv", (
     ("window", "index"),

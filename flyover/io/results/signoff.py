@@ -20,7 +20,7 @@ SIGNOFF = TableFile("signoff.csv", (
     ("lae_db", "dB(A) re 1 s, over the 10 dB-down interval"),
     ("metrics_complete", "the 10 dB-down interval lies inside the recording"),
     ("lae_shortfall_db", "dB that LAE may miss where it is not (event_metrics.csv)"),
-), float_format="%.2f")
+), float_format="%.2f", flags=("metrics_complete",))
 SIGNOFF_JSON = "signoff.json"
 
 
