@@ -36,7 +36,7 @@ from flyover.io.readers.soundfile_recording import (_declared_data_bytes,  # noq
                                                     recording_info)
 from flyover.geometry.track import straight_track  # noqa: E402
 from flyover.sim.scenario import incoherent_noise_pa, spiral_layout  # noqa: E402
-from flyover.sync.timebase import iso_utc  # noqa: E402
+from flyover.model.timebase import iso_utc  # noqa: E402
 
 FS = 51200
 N_MICS = 64

@@ -44,7 +44,7 @@ from flyover.imaging.window import (blas_on_one_thread, image_window,  # noqa: E
                                     window_context)
 from flyover.model.campaign import Region, VehicleGrid  # noqa: E402
 from flyover.sim.scenario import incoherent_noise_pa, spiral_layout  # noqa: E402
-from flyover.sync.timebase import ArrayClock, RecordingClock  # noqa: E402
+from flyover.model.timebase import ArrayClock, RecordingClock  # noqa: E402
 
 FS = 51200.0
 METHODS = ("time-domain", "frequency-domain", "functional", "clean-sc")

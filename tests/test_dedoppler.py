@@ -20,7 +20,7 @@ from flyover.imaging.window import image_window, window_context
 from flyover.model.campaign import Region, VehicleGrid
 from flyover.geometry.track import straight_track
 from flyover.sim.scenario import incoherent_noise_pa, spiral_layout
-from flyover.sync.timebase import ArrayClock, RecordingClock
+from flyover.model.timebase import ArrayClock, RecordingClock
 
 FS = 12800.0
 MICS = spiral_layout(4, 8, 0.5, 6.0)          # 32 microphones, 12 m aperture

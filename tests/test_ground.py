@@ -26,7 +26,7 @@ from flyover.io.results.alignment import read_alignment
 from flyover.model.campaign import Region, VehicleGrid
 from flyover.pipeline import align, image, levels
 from flyover.sim.scenario import incoherent_noise_pa, spiral_layout
-from flyover.sync.timebase import ArrayClock, RecordingClock
+from flyover.model.timebase import ArrayClock, RecordingClock
 
 FS = 8000.0
 ATM = Atmosphere(20.0, 50.0)

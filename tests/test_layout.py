@@ -87,3 +87,24 @@ def test_flag_columns_come_back_as_booleans(tmp_path):
     table.write(tmp_path, pd.DataFrame({"name": ["a", "b", "c"], "ok": [True, False, None]}))
     back = table.read(tmp_path)
     assert back["ok"].dtype == bool and back["ok"].tolist() == [True, False, False]
+
+
+def test_the_physics_packages_form_no_loop():
+    # Floors: a package may import those below it, never one that imports it back (directly
+    # or through others). The time base and the emission-time solver sit low so that imaging,
+    # sync and acoustics need not import each other in a circle.
+    physics = ("geometry", "acoustics", "forward", "imaging", "sync")
+    edges = {p: set() for p in physics}
+    for p in physics:
+        for path in (PACKAGE / p).rglob("*.py"):
+            for module in imported_modules(path):
+                parts = module.split(".")
+                if len(parts) > 1 and parts[0] == "flyover" and parts[1] in physics \
+                        and parts[1] != p:
+                    edges[p].add(parts[1])
+
+    def reaches(start, goal, seen=()):
+        return any(n == goal or (n not in seen and reaches(n, goal, seen + (n,)))
+                   for n in edges[start])
+    loops = sorted(p for p in physics if reaches(p, p))
+    assert not loops, {p: sorted(edges[p]) for p in loops}

@@ -4,7 +4,7 @@ import numpy as np
 from hypothesis import given
 from hypothesis import strategies as st
 
-from flyover.sync.timebase import RecordingClock, iso_utc
+from flyover.model.timebase import RecordingClock, iso_utc
 
 START = int(np.datetime64("2026-05-14T09:30:00", "ns").astype(np.int64))
 

@@ -200,7 +200,7 @@ def test_lever_arm_moves_a_pitched_and_rolled_track_to_the_body_origin(tiny_copy
     from flyover.io.scenario import load_scenario
     from flyover.pipeline.context import load_pass
     from flyover.sim.scenario import pass_truth_track
-    from flyover.sync.timebase import iso_utc
+    from flyover.model.timebase import iso_utc
 
     scenario, _, _ = load_scenario(tiny_copy / "scenario.yaml")
     ps = next(p for p in scenario.passes if p.name == "p1")

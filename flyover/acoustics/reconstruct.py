@@ -31,7 +31,7 @@ import numpy as np
 
 from flyover.acoustics.atmosphere import Atmosphere
 from flyover.acoustics.bands import a_weighting_db
-from flyover.forward.moving_source import emission_times_s
+from flyover.geometry.propagation import emission_times_s
 from flyover.geometry.track import TrackModel, straight_track
 from flyover.geometry.windows import polar_angle_deg
 from flyover.model.constants import P0_PA

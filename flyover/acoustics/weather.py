@@ -14,6 +14,7 @@ import numpy as np
 
 from flyover.acoustics.atmosphere import Atmosphere
 from flyover.model.errors import FlyoverInputError
+from flyover.model.timebase import iso_utc
 
 
 @dataclass(frozen=True)
@@ -68,7 +69,6 @@ def weather_over(samples: WeatherSamples, start_ns: int, end_ns: int, *, where: 
     """
     t = samples.utc_ns
     if len(t) == 0 or t[0] > start_ns or t[-1] < end_ns:
-        from flyover.sync.timebase import iso_utc
         found = f"{iso_utc(int(t[0]))} to {iso_utc(int(t[-1]))}" if len(t) else "no samples"
         raise FlyoverInputError("the weather file does not cover the pass", where,
                                 f"samples from {iso_utc(start_ns)} to {iso_utc(end_ns)}", found)

@@ -23,7 +23,7 @@ from flyover.acoustics.bands import ThirdOctaveBands
 from flyover.acoustics.ground import GroundSurface, reflection_transfer
 from flyover.forward import _sinc
 from flyover.geometry.frames import enu_from_body_matrix
-from flyover.geometry.propagation import paths_between
+from flyover.geometry.propagation import emission_times_s
 from flyover.geometry.track import TrackModel
 from flyover.model.constants import P0_PA
 from flyover.model.errors import require
@@ -285,45 +285,6 @@ class Propagator:
     absorption: bool = True
     image_mic_enu_m: np.ndarray | None = None
     ground: GroundSurface | None = None
-
-
-def emission_times_s(track: TrackModel, body_m, mic_enu_m, reception_s, wind_enu_m_s,
-                     c_m_s: float, *, iterations: int = 4):
-    """Emission times whose sound reaches each microphone at the given reception times.
-
-    Newton iterations on ``tau + T(tau) = t`` with the exact forward travel time; quadratic
-    convergence from the start value ``t - |x_m - x(t)| / c``.
-
-    Parameters
-    ----------
-    track : TrackModel
-    body_m : ndarray, shape (3,)
-    mic_enu_m : ndarray, shape (n_mics, 3)
-    reception_s : ndarray, shape (n,) or (n_mics, n)
-        Reception times, the same for every microphone or per microphone.
-
-    Returns
-    -------
-    tau : ndarray, shape (n_mics, n)
-    paths : Paths
-        Geometry at those emission times, arrays of shape (n_mics, n).
-    """
-    mics = np.asarray(mic_enu_m, float)[:, None, :]
-    reception_s = np.asarray(reception_s, float)
-    t = np.broadcast_to(reception_s, (len(mics), reception_s.shape[-1]))
-    point = np.asarray(body_m, float)[None, :]
-    pos0 = track.body_points_enu(point, np.clip(t.ravel(), track.start_s, track.end_s))
-    tau = t - np.linalg.norm(mics - pos0.reshape(t.shape + (3,)), axis=-1) / c_m_s
-    for _ in range(iterations):
-        flat = tau.ravel()
-        pos = track.body_points_enu(point, flat).reshape(t.shape + (3,))
-        vel = track.body_points_velocity(point, flat).reshape(t.shape + (3,))
-        p = paths_between(pos, vel, mics, wind_enu_m_s, c_m_s)
-        tau = tau - (tau + p.travel_time_s - t) / p.doppler_factor
-    flat = tau.ravel()
-    pos = track.body_points_enu(point, flat).reshape(t.shape + (3,))
-    vel = track.body_points_velocity(point, flat).reshape(t.shape + (3,))
-    return tau, paths_between(pos, vel, mics, wind_enu_m_s, c_m_s)
 
 
 def emission_directions_body(track: TrackModel, body_m, mic_enu_m, tau_s) -> np.ndarray:

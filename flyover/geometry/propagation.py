@@ -2,7 +2,8 @@
 
 Everything here works forward from emission time: for a source point at emission time tau the
 travel time T solves ``|x_m - x_s(tau) - U T| = c T`` in closed form, so reception times on a
-uniform emission-time grid need no root finding.
+uniform emission-time grid need no root finding. The inverse, the emission times heard at given
+reception times (:func:`emission_times_s`), takes a few Newton steps on that forward time.
 """
 
 from __future__ import annotations
@@ -10,6 +11,8 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
+
+from flyover.geometry.track import TrackModel
 
 
 @dataclass(frozen=True)
@@ -126,3 +129,42 @@ def air_angles(source_enu_m, source_velocity_enu_m_s, target_enu_m, wind_enu_m_s
     speed = np.linalg.norm(air, axis=1)
     cos = np.clip(p.mach_r * c_m_s / np.where(speed > 0, speed, np.inf), -1.0, 1.0)
     return np.rad2deg(np.arccos(cos)), p.mach_r
+
+
+def emission_times_s(track: TrackModel, body_m, mic_enu_m, reception_s, wind_enu_m_s,
+                     c_m_s: float, *, iterations: int = 4):
+    """Emission times whose sound reaches each microphone at the given reception times.
+
+    Newton iterations on ``tau + T(tau) = t`` with the exact forward travel time; quadratic
+    convergence from the start value ``t - |x_m - x(t)| / c``.
+
+    Parameters
+    ----------
+    track : TrackModel
+    body_m : ndarray, shape (3,)
+    mic_enu_m : ndarray, shape (n_mics, 3)
+    reception_s : ndarray, shape (n,) or (n_mics, n)
+        Reception times, the same for every microphone or per microphone.
+
+    Returns
+    -------
+    tau : ndarray, shape (n_mics, n)
+    paths : Paths
+        Geometry at those emission times, arrays of shape (n_mics, n).
+    """
+    mics = np.asarray(mic_enu_m, float)[:, None, :]
+    reception_s = np.asarray(reception_s, float)
+    t = np.broadcast_to(reception_s, (len(mics), reception_s.shape[-1]))
+    point = np.asarray(body_m, float)[None, :]
+    pos0 = track.body_points_enu(point, np.clip(t.ravel(), track.start_s, track.end_s))
+    tau = t - np.linalg.norm(mics - pos0.reshape(t.shape + (3,)), axis=-1) / c_m_s
+    for _ in range(iterations):
+        flat = tau.ravel()
+        pos = track.body_points_enu(point, flat).reshape(t.shape + (3,))
+        vel = track.body_points_velocity(point, flat).reshape(t.shape + (3,))
+        p = paths_between(pos, vel, mics, wind_enu_m_s, c_m_s)
+        tau = tau - (tau + p.travel_time_s - t) / p.doppler_factor
+    flat = tau.ravel()
+    pos = track.body_points_enu(point, flat).reshape(t.shape + (3,))
+    vel = track.body_points_velocity(point, flat).reshape(t.shape + (3,))
+    return tau, paths_between(pos, vel, mics, wind_enu_m_s, c_m_s)

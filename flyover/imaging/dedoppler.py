@@ -46,7 +46,7 @@ from flyover.geometry.propagation import paths_between
 from flyover.geometry.track import TrackModel
 from flyover.geometry.windows import Window
 from flyover.imaging import _kernels
-from flyover.sync.timebase import ArrayClock
+from flyover.model.timebase import ArrayClock
 
 OVERSAMPLING = 4
 # Anti-imaging filter of the 4x oversampling: cut-off at the original Nyquist frequency (0.25 of

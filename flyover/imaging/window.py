@@ -27,7 +27,7 @@ from flyover.imaging.integration import (region_powers, region_verdicts,
                                          shift_changes_db)
 from flyover.imaging.planning import HALF_POWER
 from flyover.model.campaign import Region
-from flyover.sync.timebase import ArrayClock
+from flyover.model.timebase import ArrayClock
 
 TOTAL = "total"  # the key of all regions together in WindowMaps.region_power
 

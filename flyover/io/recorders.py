@@ -16,7 +16,7 @@ import numpy as np
 
 from flyover.io.readers import Recording, read
 from flyover.model.errors import FlyoverInputError
-from flyover.sync.timebase import iso_utc
+from flyover.model.timebase import iso_utc
 
 
 @dataclass(frozen=True)

@@ -25,7 +25,7 @@ from flyover.model.campaign import (ArraySpec, Campaign, PassSpec, RecorderSpec,
                                    pass_array)
 from flyover.model.flightdata import TrackSamples
 from flyover.model.errors import FlyoverInputError, suggest
-from flyover.sync.timebase import ArrayClock, RecordingClock, iso_utc
+from flyover.model.timebase import ArrayClock, RecordingClock, iso_utc
 from flyover.sync.timecode import TimingFit, measure_clock
 
 

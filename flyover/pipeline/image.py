@@ -24,7 +24,7 @@ from flyover.model.campaign import PASS_INPUTS, Campaign
 from flyover.model.reads import guarded
 from flyover.pipeline.context import chain_settings, check_memory, load_aligned_pass
 from flyover.pipeline.progress import Progress
-from flyover.sync.timebase import iso_utc
+from flyover.model.timebase import iso_utc
 
 # What this stage reads of the campaign (flyover.model.reads): its re-run fingerprint too.
 READS = PASS_INPUTS + ("grid", "regions", "outline_m", "analysis.window_s", "analysis.hop_s",

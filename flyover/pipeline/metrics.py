@@ -23,7 +23,7 @@ from flyover.model.campaign import PASS_INPUTS, Campaign
 from flyover.model.errors import FlyoverInputError
 from flyover.model.reads import guarded
 from flyover.pipeline.context import PassInputs, load_aligned_pass, pass_summary
-from flyover.sync.timebase import iso_utc
+from flyover.model.timebase import iso_utc
 
 # What this stage reads of the campaign (flyover.model.reads): its re-run fingerprint too.
 READS = PASS_INPUTS + ("analysis.metrics_channel", "analysis.reference_flight",

@@ -19,7 +19,7 @@ from flyover.model.errors import FlyoverInputError
 from flyover.sim.flightlogs import ESC_REPORT, px4_topics, write_ulog
 from flyover.sim.scenario import pass_microphones, PassScenario, pass_source, simulate_pass
 from flyover.sim.timing import irig_b_signal, pps_signal
-from flyover.sync.timebase import iso_utc
+from flyover.model.timebase import iso_utc
 
 
 def pass_files(out_dir: Path, ps: PassScenario, fmt: str = "wav",

@@ -28,7 +28,7 @@ from flyover.acoustics.atmosphere import Atmosphere
 from flyover.geometry.track import TrackModel
 from flyover.geometry.windows import Window
 from flyover.imaging.dedoppler import ChainSettings, reception_geometry
-from flyover.sync.timebase import ArrayClock
+from flyover.model.timebase import ArrayClock
 from flyover.sync.track_check import anchor_coherence
 
 

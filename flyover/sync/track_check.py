@@ -25,7 +25,7 @@ from flyover.acoustics.atmosphere import Atmosphere
 from flyover.geometry.track import TrackModel
 from flyover.geometry.windows import Window
 from flyover.imaging.dedoppler import ChainSettings, reception_geometry, window_band_powers
-from flyover.sync.timebase import ArrayClock
+from flyover.model.timebase import ArrayClock
 
 
 @dataclass(frozen=True)

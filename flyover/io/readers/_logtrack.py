@@ -77,7 +77,7 @@ def drop_in_spans(utc_ns, spans) -> np.ndarray:
 
 
 def no_fix_note(spans, n_dropped: int) -> str:
-    from flyover.sync.timebase import iso_utc
+    from flyover.model.timebase import iso_utc
     listed = ", ".join(f"{iso_utc(lo)} to {iso_utc(hi)}" for lo, hi in spans[:3])
     more = f" and {len(spans) - 3} more" if len(spans) > 3 else ""
     return (f"GNSS without a fix {listed}{more}: {n_dropped} position samples dropped (not "
