@@ -196,3 +196,22 @@ def test_a_track_that_stops_before_overhead(tiny_copy, capsys):
             "still approaching", "track.csv", "passes.p1.partial: true")
     edit_campaign(tiny_copy, lambda d: d["passes"]["p1"].update(partial=True))
     assert main(["check", str(tiny_copy / "campaign.yaml")]) == 0
+
+
+def test_method_tunables_come_from_the_campaign(tiny_copy, capsys):
+    # analysis.method_tuning reaches the imaging chain; an impossible loop gain is refused.
+    from flyover.acoustics.bands import third_octave_bands
+    from flyover.io.config import load_campaign
+    from flyover.pipeline.context import load_pass
+    from flyover.pipeline.image import image_chain_settings
+    path = edit_campaign(tiny_copy, lambda d: d["analysis"].update(method_tuning={
+        "functional_exponent": 16, "clean_loop_gain": 0.1, "clean_max_sources": 50}))
+    campaign = load_campaign(path)
+    settings = image_chain_settings(campaign, load_pass(campaign, "p1"),
+                                    third_octave_bands(200, 800))
+    assert (settings.functional_exponent, settings.clean_loop_gain,
+            settings.clean_max_sources) == (16, 0.1, 50)
+    edit_campaign(tiny_copy, lambda d: d["analysis"].update(method_tuning={
+        "clean_loop_gain": 0.0}))
+    assert main(["check", str(path)]) == 2
+    assert "clean_loop_gain" in capsys.readouterr().err

@@ -46,6 +46,7 @@ from flyover.geometry.propagation import paths_between
 from flyover.geometry.track import TrackModel
 from flyover.geometry.windows import Window
 from flyover.imaging import _kernels
+from flyover.model.constants import CLEAN_LOOP_GAIN, CLEAN_MAX_SOURCES, FUNCTIONAL_EXPONENT
 from flyover.model.timebase import ArrayClock
 
 OVERSAMPLING = 4
@@ -102,9 +103,9 @@ class ChainSettings:
     image_mic_enu_m: np.ndarray | None = None
     ground: GroundSurface | None = None
     csm_block_samples: int | None = None
-    functional_exponent: float = 8.0
-    clean_loop_gain: float = 0.3
-    clean_max_sources: int = 200
+    functional_exponent: float = FUNCTIONAL_EXPONENT
+    clean_loop_gain: float = CLEAN_LOOP_GAIN
+    clean_max_sources: int = CLEAN_MAX_SOURCES
 
 
 @dataclass(frozen=True)

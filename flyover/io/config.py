@@ -20,9 +20,10 @@ from flyover.acoustics.hemisphere import HemisphereSettings
 from flyover.acoustics.uncertainty import InputUncertainty
 from flyover.imaging.methods import DEFAULT_METHOD, methods
 from flyover.io.timestamps import parse_utc_ns
-from flyover.model.campaign import (AnalysisSettings, ArraySpec, Campaign, PassSpec, RotorSpec,
-                                    SignoffLimits, WeatherLimits, WeatherSpec,
-                                    RecorderSpec, ReferenceFlight, Region, VehicleGrid)
+from flyover.model.campaign import (AnalysisSettings, ArraySpec, Campaign, MethodTuning,
+                                    PassSpec, RotorSpec, SignoffLimits, WeatherLimits,
+                                    WeatherSpec, RecorderSpec, ReferenceFlight, Region,
+                                    VehicleGrid)
 from flyover.model.constants import MIN_OVERALL_BANDS
 from flyover.model.errors import FlyoverInputError, suggest
 
@@ -527,6 +528,7 @@ def campaign_from_mapping(data: dict, path: Path) -> Campaign:
                                if "overall_band_range_hz" in an else None),
         hemisphere=_hemisphere(an.get("hemisphere", {})),
         rotor_harmonics=int(an.get("rotor_harmonics", 4)),
+        method_tuning=MethodTuning(**an.get("method_tuning", {})),
     )
     if analysis.band_min_hz > analysis.band_max_hz:
         raise FlyoverInputError("band range inverted", f"{source}, key analysis.band_min_hz",

@@ -17,6 +17,7 @@ from flyover.acoustics.ground import GroundSurface
 from flyover.acoustics.hemisphere import HemisphereSettings
 from flyover.acoustics.uncertainty import InputUncertainty
 from flyover.geometry.frames import SiteFrame
+from flyover.model.constants import CLEAN_LOOP_GAIN, CLEAN_MAX_SOURCES, FUNCTIONAL_EXPONENT
 from flyover.model.errors import require
 
 # G of the source model per mounting; raised microphones see the direct path as in free field
@@ -111,6 +112,17 @@ class ReferenceFlight:
 
 
 @dataclass(frozen=True)
+class MethodTuning:
+    """The imaging methods' tunables (``analysis.method_tuning``): functional beamforming's
+    exponent nu, CLEAN-SC's loop gain (the share of each found source removed per iteration)
+    and its iterations per frequency line at most."""
+
+    functional_exponent: float = FUNCTIONAL_EXPONENT
+    clean_loop_gain: float = CLEAN_LOOP_GAIN
+    clean_max_sources: int = CLEAN_MAX_SOURCES
+
+
+@dataclass(frozen=True)
 class AnalysisSettings:
     """How windows, bands and levels are formed.
 
@@ -158,6 +170,8 @@ class AnalysisSettings:
         The grid, fit and band ranges of the directivity hemispheres.
     rotor_harmonics : int
         Blade-passing harmonics fitted per rotor (k = 1..K).
+    method_tuning : MethodTuning
+        The imaging methods' tunables.
     """
 
     window_s: float
@@ -181,6 +195,7 @@ class AnalysisSettings:
     hemisphere: HemisphereSettings = HemisphereSettings()
     rotor_harmonics: int = 4
     window_polar_step_deg: float | None = None
+    method_tuning: MethodTuning = MethodTuning()
 
     def __post_init__(self):
         require((self.hop_s is None) != (self.window_polar_step_deg is None),

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import io
 import sys
+from dataclasses import replace
 from pathlib import Path
 
 import numba
@@ -12,7 +13,7 @@ import pandas as pd
 
 from flyover.acoustics.bands import third_octave_bands
 from flyover.geometry.windows import plan_windows
-from flyover.imaging.dedoppler import valid_bands
+from flyover.imaging.dedoppler import ChainSettings, valid_bands
 from flyover.imaging.methods import method_named
 from flyover.imaging.resolution import main_lobe_width_m
 from flyover.imaging.window import TOTAL, image_window, window_context
@@ -22,18 +23,27 @@ from flyover.io.results.region_power import REGION_POWER
 from flyover.io.results.windows import NO_WINDOW, WINDOWS
 from flyover.model.campaign import PASS_INPUTS, Campaign
 from flyover.model.reads import guarded
+from flyover.model.timebase import iso_utc
 from flyover.pipeline.context import chain_settings, check_memory, load_aligned_pass
 from flyover.pipeline.progress import Progress
-from flyover.model.timebase import iso_utc
 
 # What this stage reads of the campaign (flyover.model.reads): its re-run fingerprint too.
 READS = PASS_INPUTS + ("grid", "regions", "outline_m", "analysis.window_s", "analysis.hop_s",
-                       "analysis.window_polar_step_deg",
+                       "analysis.window_polar_step_deg", "analysis.method_tuning",
                        "analysis.band_min_hz", "analysis.band_max_hz", "analysis.method",
                        "analysis.other_methods",
                        "analysis.interpolation", "analysis.diagonal_removal",
                        "analysis.max_polar_offset_deg", "analysis.map_dynamic_range_db")
 
+
+
+def image_chain_settings(campaign: Campaign, inputs, bands) -> ChainSettings:
+    """The pass's chain with the campaign's interpolation and method tunables."""
+    an, tuning = campaign.analysis, campaign.analysis.method_tuning
+    return replace(chain_settings(inputs, bands, an.interpolation),
+                   functional_exponent=tuning.functional_exponent,
+                   clean_loop_gain=tuning.clean_loop_gain,
+                   clean_max_sources=tuning.clean_max_sources)
 
 
 def run(campaign: Campaign, pass_name: str, out_dir: Path, *, threads: int = 1,
@@ -49,7 +59,7 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path, *, threads: int = 1,
     clock = inputs.clock
     bands = third_octave_bands(an.band_min_hz, an.band_max_hz)
     fs = inputs.sample_rate_hz
-    settings = chain_settings(inputs, bands, an.interpolation)
+    settings = image_chain_settings(campaign, inputs, bands)
     points = campaign.grid.points_m()
     # The headline method first: its maps are the pass's; the others' go to the tables and a
     # side-by-side figure of the window nearest overhead.
