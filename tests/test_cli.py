@@ -93,6 +93,7 @@ rule align:
 def test_plan_names_the_settings_that_changed(tiny_copy):
     # A step's record of what it ran with, then two edits: the plan names exactly those keys.
     from conftest import edit_campaign
+
     from flyover.workflow.dryrun import format_plan
     from flyover.workflow.settings_record import changed_settings, write_settings_record
     campaign = load_campaign(tiny_copy / "campaign.yaml")

@@ -255,10 +255,10 @@ def test_clock_estimate_refuses_an_anchor_outweighed_in_some_bands(tmp_path):
     import copy
 
     import yaml
+    from conftest import TINY_SCENARIO
 
     from flyover.model.errors import FlyoverInputError
     from flyover.sim.demo import write_campaign
-    from conftest import TINY_SCENARIO
     scenario = copy.deepcopy(TINY_SCENARIO)
     front, rear = scenario["sources"]
     front["broadband"].update(max_hz=450)

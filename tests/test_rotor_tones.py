@@ -110,8 +110,7 @@ def test_converging_and_crossing_rotors_get_a_level_only_where_the_fit_separates
     # harmonic. Each is logged 0.05 % off. Every level given is within 1 dB of the truth or
     # inside its 90 % interval; no component whose true columns correlate above the threshold
     # with another's gets a level; the converged pair gets none at all.
-    from flyover.acoustics.orders import (SEPARATION_CORRELATION, column_correlations,
-                                          refine_speeds)
+    from flyover.acoustics.orders import SEPARATION_CORRELATION, column_correlations, refine_speeds
     speeds = {"r1": (4800.0, 4800.0), "r2": (4805.0, 4805.0), "r3": (4900.0, 5150.0),
               "r4": (5150.0, 4900.0), "r5": (5400.0, 5400.0), "r6": (5442.0, 5442.0),
               "r7": (5970.0, 6030.0), "r8": (6030.0, 5970.0)}

@@ -198,9 +198,9 @@ def test_lever_arm_moves_a_pitched_and_rolled_track_to_the_body_origin(tiny_copy
     from flyover.geometry.frames import attitude_rotation, enu_from_body_matrix
     from flyover.io.config import load_campaign
     from flyover.io.scenario import load_scenario
+    from flyover.model.timebase import iso_utc
     from flyover.pipeline.context import load_pass
     from flyover.sim.scenario import pass_truth_track
-    from flyover.model.timebase import iso_utc
 
     scenario, _, _ = load_scenario(tiny_copy / "scenario.yaml")
     ps = next(p for p in scenario.passes if p.name == "p1")

@@ -131,10 +131,9 @@ def estimate_clock_offset(read_frames, track: TrackModel, windows: list[Window],
     coarse = np.arange(-max_offset_s, max_offset_s + coarse_step_s / 2, coarse_step_s)
     args = (track, windows, anchor_body_m, mic_enu_m, atmosphere, clock, settings)
     half = max(1, len(settings.bands) // 2)
-    all_bands, low, high = anchor_power(
+    p, low, high = anchor_power(
         read_frames, *args, offsets_s=coarse, max_offset_s=max_offset_s,
         band_groups=(slice(None), slice(0, half), slice(half, None)))
-    p = all_bands
     best = coarse[int(np.argmax(p))]
     fine = best + np.arange(-coarse_step_s, coarse_step_s + fine_step_s / 2, fine_step_s)
     q = anchor_power(read_frames, *args, offsets_s=fine,
