@@ -263,3 +263,52 @@ def test_stages_run_a_pass_flown_over_raised_microphones(tiny_copy):
     assert set(pd.read_csv(out / "levels_by_method.csv")["method"]) == {"time-domain"}
     alignment = read_alignment(out)
     assert alignment["array"]["mounting"] == "raised" and alignment["array"]["own_array"]
+
+
+def test_raised_microphones_give_the_components_ground_plates_give():
+    # The same two components (0.1 m off their region centres) flown over the array on ground
+    # plates and on 1.2 m stands over hard ground. Every region band that the plates give in
+    # most windows near overhead, the stands give within 1 dB in most of those windows too, and
+    # no level they give is more than 1.5 dB off. The stability test compares like with like
+    # (modelled shifts against a modelled centre, scaled onto the simulated unit source): a
+    # simulated centre against modelled shifts left 9 of 14 such bands empty on a pass
+    # simulated outside the project.
+    front = PointSource("front", (1.2, 0.1, 0.0), tones=(Tone(630.0, 88.0),),
+                        broadband=Broadband(86.0, -2.0, 100.0, 3000.0), seed=11)
+    rear = PointSource("rear", (-1.4, -0.1, 0.0),
+                       broadband=Broadband(84.0, 0.0, 100.0, 3000.0), seed=12)
+    regions = {"front": Region("front", (0.5, 1.9), (-0.7, 0.7)),
+               "rear": Region("rear", (-2.1, -0.7), (-0.7, 0.7))}
+    grid = VehicleGrid((-2.6, 2.6), (-1.2, 1.2), 0.2)
+    bands = third_octave_bands(800, 2500)
+    given, within = {}, {}
+    # On the ground the image path coincides with the direct one: a ground plate's doubling.
+    for mic_height_m in (0.0, 1.2):
+        track, mics, images, sigs, p = raised_pass([front, rear], GroundSurface("hard"),
+                                                   mic_height_m=mic_height_m,
+                                                   noise_spl_db=50.0)
+        clock = ArrayClock.of_recorders([RecordingClock(0, 0.0, CHAIN_FS)],
+                                        np.zeros(len(mics), int))
+        settings = (ChainSettings(bands, np.ones(len(mics)), 2.0) if mic_height_m == 0 else
+                    ChainSettings(bands, np.ones(len(mics)), 1.0, image_mic_enu_m=images,
+                                  ground=GroundSurface("hard")))
+        ok, good = [], []
+        for w in plan_windows(track, mics.mean(0), (0.4, 3.6), 0.5, 0.5, CHAIN_FS,
+                              max_polar_offset_deg=25):
+            truth = {s.source.name: signal_band_power(s(w.emission_times_s), bands, CHAIN_FS)
+                     for s in sigs}
+            ctx = window_context(w, track=track, clock=clock, atmosphere=ATM, mic_enu_m=mics,
+                                 grid_points_m=grid.points_m(), settings=settings, workers=2)
+            span = np.stack([p[m, f:f + ctx.n_frames] for m, f in enumerate(ctx.first_frame)])
+            res = image_window(span, ctx, method=method_named("time-domain"),
+                               grid_points_m=grid.points_m(), regions=regions)
+            valid = np.stack([res.verdicts[n].valid for n in regions])
+            err = np.stack([10 * np.log10(res.region_power[n] / truth[n]) for n in regions])
+            assert np.all(np.abs(err[valid]) <= 1.5), (mic_height_m, w.index, err, valid)
+            ok.append(valid)
+            good.append(valid & (np.abs(err) <= 1.0))
+        given[mic_height_m] = np.mean(ok, axis=0)
+        within[mic_height_m] = np.mean(good, axis=0)
+    plates = given[0.0] > 0.5
+    assert plates.sum() >= 8
+    assert np.all(within[1.2][plates] > 0.5), within[1.2]

@@ -11,8 +11,8 @@ from test_dedoppler import CLOCK, FS, MICS, one_source_pass, rows, windows_near_
 from flyover.acoustics.bands import third_octave_bands
 from flyover.forward.moving_source import Broadband, PointSource, Tone
 from flyover.imaging.dedoppler import ChainSettings, signal_band_power
-from flyover.imaging.integration import (DOMINANT_NOTE, SHIFT_TOLERANCE_DB, region_verdicts,
-                                         shift_changes_db)
+from flyover.imaging.integration import (DOMINANT_NOTE, SHIFT_LOBE_LEVEL, SHIFT_TOLERANCE_DB,
+                                         region_verdicts, shift_changes_db, shift_distances_m)
 from flyover.imaging.methods import method_named
 from flyover.imaging.methods.time_domain import modelled_point_spread, simulated_point_spread
 from flyover.imaging.planning import main_lobe_m
@@ -131,6 +131,32 @@ def test_shift_changes_against_a_naive_solve():
         worst = np.maximum(worst, np.abs(10 * np.log10(p / powers)))
     np.testing.assert_allclose(shift_changes_db(moved, measured, powers), worst, rtol=1e-9)
     assert SHIFT_TOLERANCE_DB == 1.0
+    # Shifts that test only some regions leave the others' changes out.
+    tested = np.array([[True, False], [False, True], [True, True], [False, False]])
+    part = np.zeros((3, 2))
+    for c, which in zip(moved, tested):
+        p = np.stack([np.linalg.solve(cc, m) for cc, m in zip(c, measured)])
+        part = np.maximum(part, np.abs(10 * np.log10(p / powers)) * which)
+    np.testing.assert_allclose(shift_changes_db(moved, measured, powers, tested=tested), part,
+                               rtol=1e-9)
+
+
+def test_shift_distances_by_hand():
+    # A region 1.4 m x 1.0 m on a 0.1 m grid and a round Gaussian lobe whose -1 dB contour
+    # has radius 0.3 m at the first band, 0.8 m (wider than the region) at the second. The
+    # neighbours' shift reaches the farthest grid point inside the contour along each axis:
+    # 0.3 m, and the region's edges (0.7 m along x, 0.5 m across); the region's own shift is
+    # a quarter wavelength, cut at the edge (0.5 m across for the 2.4 m wavelength).
+    x, y = np.meshgrid(np.arange(-0.7, 0.71, 0.1), np.arange(-0.5, 0.51, 0.1), indexing="ij")
+    offsets = np.column_stack([x.ravel(), y.ravel(), np.zeros(x.size)])
+    r2 = (offsets[:, :2] ** 2).sum(axis=1)
+    radius = np.array([0.3, 0.8]) + 1e-9
+    lobe = SHIFT_LOBE_LEVEL ** (r2[:, None] / radius ** 2)
+    own, reach = shift_distances_m(offsets, lobe, np.array([0.4, 2.4]),
+                                   np.array([0.7, 0.7, 0.5, 0.5]))
+    np.testing.assert_allclose(reach, [[0.3, 0.7], [0.3, 0.7], [0.3, 0.5], [0.3, 0.5]],
+                               atol=1e-9)
+    np.testing.assert_allclose(own, [[0.1, 0.6], [0.1, 0.6], [0.1, 0.5], [0.1, 0.5]])
 
 
 @pytest.mark.parametrize("interpolation", ["cubic", "sinc"])

@@ -54,16 +54,62 @@ def region_powers(coupling, measured) -> tuple[np.ndarray, np.ndarray]:
     return np.where(out > 0, out, np.nan), np.where(total > 0, total, np.nan)
 
 
-# A region's level is given only if moving any region's unit source by a quarter wavelength
-# changes it by at most this: the coupling of a real source, somewhere in its region, is then
-# close enough to the unit source's.
+# A region's level is given only if moving any region's unit source within its region and its
+# half-power main lobe (:func:`shift_distances_m`) changes it by at most this: the coupling of
+# a real source, wherever the map cannot tell it from the centre, is then close enough to the
+# unit source's.
 SHIFT_TOLERANCE_DB = 1.0
+# The four directions of the shifts, in body axes: forward, back, starboard, port.
+SHIFT_DIRECTIONS = np.array([[1.0, 0.0, 0.0], [-1.0, 0.0, 0.0], [0.0, 1.0, 0.0],
+                             [0.0, -1.0, 0.0]])
+# A neighbour's unit source is shifted to its -1 dB contour (about 0.6 of the half-power
+# radius): a source anywhere inside it makes a map whose peak a window cannot place apart from
+# the centre's, so the leakage solve must hold for it. A region's own unit source moves a
+# quarter wavelength: moved farther in a region narrower than its lobe, its level changes by
+# the region's own edge loss (1-1.5 dB for a source well placed at the centre), which is how
+# the region was drawn, not leakage.
+SHIFT_LOBE_LEVEL = 10 ** -0.1
+
+
+def shift_distances_m(offsets_m, lobe, wavelength_m, half_extent_m):
+    """How far the stability test moves a region's unit source, per direction and band.
+
+    Parameters
+    ----------
+    offsets_m : ndarray, shape (n_points, 3)
+        The region's grid points relative to its centre, body axes.
+    lobe : ndarray, shape (n_points, n_bands)
+        The unit source's map on them relative to its peak.
+    wavelength_m : ndarray, shape (n_bands,)
+    half_extent_m : ndarray, shape (4,)
+        Centre to edge along each of ``SHIFT_DIRECTIONS``.
+
+    Returns
+    -------
+    own : ndarray, shape (4, n_bands)
+        The shift that tests the region's own level: a quarter wavelength, or to the region's
+        edge if nearer.
+    reach : ndarray, shape (4, n_bands)
+        The shift that tests the other regions' levels: the farthest region point along the
+        direction inside the unit source's -1 dB contour (``SHIFT_LOBE_LEVEL``; the whole
+        region where the contour covers it), never less than ``own``. A quarter wavelength
+        alone is a small fraction of the main lobe at flyover heights (a twelfth of the -3 dB
+        width at a height of three apertures) and barely probes where a strong neighbour sits.
+    """
+    along = np.asarray(offsets_m, float) @ SHIFT_DIRECTIONS.T                 # (n_p, 4)
+    inside = np.asarray(lobe, float) >= SHIFT_LOBE_LEVEL                        # (n_p, n_b)
+    reach = np.where(inside[:, None, :], along[:, :, None], 0.0).max(axis=0, initial=0.0)
+    own = np.minimum(np.asarray(wavelength_m, float)[None, :] / 4,
+                     np.asarray(half_extent_m, float)[:, None])
+    return own, np.maximum(reach, own)
+
+
 # A region not resolved from its neighbours still gets its level when it holds at least this
 # many times their power together (10 dB): their leakage into it is then small.
 DOMINANCE = 10.0
 
 
-def shift_changes_db(shifted, measured, powers, fixed=0.0) -> np.ndarray:
+def shift_changes_db(shifted, measured, powers, fixed=0.0, *, tested=None) -> np.ndarray:
     """The largest change of each region's level over re-solves with moved unit sources.
 
     Parameters
@@ -76,6 +122,8 @@ def shift_changes_db(shifted, measured, powers, fixed=0.0) -> np.ndarray:
     fixed : ndarray, shape (n_bands, n_regions), or float
         A part of each region's level that the shifts do not move (a deconvolving method's
         integrated residual), added to both solves before comparing.
+    tested : bool array, shape (n_shifts, n_regions), optional
+        Which regions' levels each shift tests (default: all).
 
     Returns
     -------
@@ -84,11 +132,14 @@ def shift_changes_db(shifted, measured, powers, fixed=0.0) -> np.ndarray:
         does not.
     """
     worst = np.zeros(np.shape(powers))
-    for c in shifted:
+    if tested is None:
+        tested = np.ones((len(shifted), worst.shape[-1]), bool)
+    for c, which in zip(shifted, tested):
         moved = region_powers(c, measured)[0]
         with np.errstate(divide="ignore", invalid="ignore"):
             change = np.abs(10.0 * np.log10((moved + fixed) / (powers + fixed)))
-        worst = np.maximum(worst, np.where(np.isfinite(change), change, np.inf))
+        change = np.where(np.isfinite(change), change, np.inf)
+        worst = np.maximum(worst, np.where(which, change, 0.0))
     return worst
 
 
@@ -105,7 +156,8 @@ class RegionVerdict:
         Not resolved, but holding at least ``DOMINANCE`` times the power of the regions it is
         not resolved from.
     stability_db : float array
-        How far its level moves when a unit source moves a quarter wavelength (or with the
+        How far its level moves when a unit source moves within its half-power main lobe and
+        region (:func:`shift_distances_m`), or with the
         method's variant, :class:`flyover.imaging.dedoppler.BandPowers`).
     valid : bool array
         The level is given: finite, within ``SHIFT_TOLERANCE_DB`` of its moved solves, and
@@ -149,8 +201,8 @@ def region_verdicts(powers, changes_db, resolved_pairs) -> list[RegionVerdict]:
                 # An infinite change: a shifted solve (or the variant) failed or found no power.
                 moves = (f"moves {changes_db[b, i]:.1f} dB" if np.isfinite(changes_db[b, i])
                          else "cannot be solved")
-                notes.append(f"unstable: the level {moves} when a unit source shifts a quarter "
-                             "wavelength (or with the method's variant)")
+                notes.append(f"unstable: the level {moves} when a unit source shifts within its "
+                             "main lobe and region (or with the method's variant)")
             elif dominant[b]:
                 notes.append(DOMINANT_NOTE)
             elif not resolved[b]:

@@ -23,8 +23,8 @@ from flyover.geometry.track import TrackModel
 from flyover.geometry.windows import Window
 from flyover.imaging.dedoppler import (BandPowers, ChainSettings, ReceptionGeometry,
                                        reception_geometry, required_frames)
-from flyover.imaging.integration import (region_powers, region_verdicts,
-                                         shift_changes_db)
+from flyover.imaging.integration import (SHIFT_DIRECTIONS, region_powers, region_verdicts,
+                                         shift_changes_db, shift_distances_m)
 from flyover.imaging.planning import HALF_POWER
 from flyover.model.campaign import Region
 from flyover.model.timebase import ArrayClock
@@ -104,10 +104,14 @@ class PointSpread:
         On the grid points asked for, shape (n_points, n_bands) each.
     source_power_pa2 : ndarray, shape (n_bands,)
         The unit source's own band power at 1 m in the window.
+    simulated : bool
+        A simulated signal through the chain rather than the steering model (a unit source with
+        a position per band is always modelled).
     """
 
     maps: BandPowers
     source_power_pa2: np.ndarray
+    simulated: bool = False
 
 
 @dataclass(frozen=True)
@@ -226,11 +230,14 @@ def image_window(signals_pa, context: WindowContext, *, method: ImagingMethod, g
 
     Notes
     -----
-    Besides the unit sources at the region centres, each region's unit source is moved a
-    quarter wavelength (at each band's centre) forward, back, to port and to starboard and the
-    leakage solve repeated: a real source sits somewhere in its region, and where that moves a
-    level by more than ``SHIFT_TOLERANCE_DB`` (a weak region beside a strong one, whose
-    leakage into it the unit source cannot pin down), the level is not given. Pairs of regions
+    Besides the unit sources at the region centres, each region's unit source is moved forward,
+    back, to starboard and to port (a quarter wavelength for its own level, within its region
+    to its -1 dB contour for its neighbours':
+    :func:`flyover.imaging.integration.shift_distances_m`), and the leakage solve repeated: a
+    real source sits somewhere in its region, and where that moves a level by more than
+    ``SHIFT_TOLERANCE_DB`` (a weak region beside a strong one, whose leakage into it the
+    unit source cannot pin down), the level is not given. A simulated unit source (raised
+    microphones) is shifted by the model's relative change of its couplings. Pairs of regions
     are resolved where their midpoint lies outside both unit sources' half-power main lobes
     (the planning criterion, with this window's geometry: foreshortening included); see
     :func:`flyover.imaging.integration.region_verdicts` for the rest. BLAS runs on one thread
@@ -266,9 +273,15 @@ def _image_window(signals_pa, context: WindowContext, *, method: ImagingMethod, 
     # coupling[b, i, j]: region i's summed map of the unit source at region j's centre, per unit
     # power (see flyover.imaging.integration.region_powers).
     coupling = np.empty((n_b, n_r, n_r))
-    units, psf_sums, residual_psf, lobes = {}, {}, {}, []
+    units, psf_sums, residual_psf, lobes, modelled = {}, {}, {}, [], []
     for j, name in enumerate(names):
         coupling[:, :, j], psf = column(j, regions[name].center_m)
+        # A simulated unit source (raised microphones) has a modelled twin, a position per
+        # band: the shifts are modelled too and scale the couplings by the model's own change,
+        # and the lobe is the model's (the simulated one carries the ground correction's
+        # per-line division, which blurs it away from the source).
+        twin = column(j, np.broadcast_to(centres[j], (n_b, 3))) if psf.simulated else None
+        modelled.append(None if twin is None else twin[0])
         psf_maps = psf.maps.diagonal_removed if use_removed else psf.maps.full
         units[name] = psf.source_power_pa2
         psf_sums[name] = psf_maps[where[j]].sum(axis=0)
@@ -276,7 +289,9 @@ def _image_window(signals_pa, context: WindowContext, *, method: ImagingMethod, 
             residual_psf[name] = psf.maps.residual[where[j]].sum(axis=0)
         # The conventional map of the unit source (a deconvolving method's residual map is
         # one) relative to its peak: the half-power test of the pairs.
-        lobe = psf.maps.residual if psf.maps.residual is not None else psf_maps
+        shape = psf if twin is None else twin[1]
+        lobe = shape.maps.residual if shape.maps.residual is not None else (
+            shape.maps.diagonal_removed if use_removed else shape.maps.full)
         lobes.append(lobe / lobe.max(axis=0))
 
     def integrate(found: BandPowers):
@@ -299,15 +314,28 @@ def _image_window(signals_pa, context: WindowContext, *, method: ImagingMethod, 
 
     map_sums, residuals, measured, solved, total = integrate(bp)
     wavelength = context.atmosphere.c_m_s / context.settings.bands.center_hz
-    shifted = []
-    for j in range(n_r):
-        for direction in ((1, 0, 0), (-1, 0, 0), (0, 1, 0), (0, -1, 0)):
-            moved = coupling.copy()
-            moved[:, :, j] = column(j, centres[j] + np.outer(wavelength / 4, direction))[0]
-            shifted.append(moved)
+    # The shifted unit sources (a position per band) are modelled: where the centred one was
+    # simulated, the test measures the source's place, not the difference of two models.
+    shifted, tested = [], []
+    for j, name in enumerate(names):
+        extent = np.abs(np.diff([regions[name].x_m, regions[name].y_m], axis=1)[:, 0])
+        own, reach = shift_distances_m(pts[masks[j]] - centres[j], lobes[j][where[j]],
+                                       wavelength, np.repeat(extent / 2, 2))
+        alone = np.arange(n_r) == j
+        for direction, near, far in zip(SHIFT_DIRECTIONS, own, reach):
+            tests = ([(near, alone), (far, ~alone)] if np.any(far > near) else
+                     [(near, np.ones(n_r, bool))])
+            for d, which in tests:
+                moved = coupling.copy()
+                moved[:, :, j] = column(j, centres[j] + np.outer(d, direction))[0]
+                if modelled[j] is not None:
+                    with np.errstate(divide="ignore", invalid="ignore"):
+                        moved[:, :, j] *= coupling[:, :, j] / modelled[j]
+                shifted.append(moved)
+                tested.append(which)
     # The shifts move the solve alone; a deconvolving method's residual part stays.
     parts = np.stack([residuals.get(n, np.zeros(n_b)) for n in names], axis=-1)
-    changes = shift_changes_db(shifted, measured, solved - parts, parts)
+    changes = shift_changes_db(shifted, measured, solved - parts, parts, tested=tested)
     if bp.variant is not None:
         with np.errstate(divide="ignore", invalid="ignore"):
             change = np.abs(10.0 * np.log10(integrate(bp.variant)[3] / solved))

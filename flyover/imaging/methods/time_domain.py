@@ -165,7 +165,7 @@ def simulated_point_spread(body_m, points, context: WindowContext, seed: int) ->
                               context.clock, w, settings, context.atmosphere,
                               workers=context.workers)
     return PointSpread(maps, signal_band_power(signal(w.emission_times_s), bands,
-                                               w.sample_rate_hz))
+                                               w.sample_rate_hz), simulated=True)
 
 
 register(ImagingMethod("time-domain", "delay-and-sum of de-Dopplerized signals per grid point, "

@@ -17,9 +17,9 @@ REGION_POWER = TableFile("region_power.csv", (
                  "lies outside both unit sources' half-power main lobes"),
     ("dominant", "not resolved, but holding at least 10 times the power of the regions it is "
                  "not resolved from"),
-    ("stability_db", "dB, how far the level moves when any region's unit source shifts a "
-                     "quarter wavelength, or (CLEAN-SC) without its power re-fit; over 1 dB it "
-                     "is not given"),
+    ("stability_db", "dB, how far the level moves when any region's unit source shifts within "
+                     "its region to its -1 dB contour, or (CLEAN-SC) without its power re-fit; "
+                     "over 1 dB it is not given"),
     ("region_valid", "the level can be given: finite, steady under the shifts, resolved or "
                      "dominant"),
     ("region_note", "why not, or 'dominant, not resolved'"),
