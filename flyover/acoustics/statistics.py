@@ -21,7 +21,7 @@ def polar_bin_deg(polar_angle_deg, width_deg: float = 10.0):
 
 
 def mean_and_interval(values_db, confidence: float = 0.90, uncertainty_db=None, *,
-                      shared_db: float = 0.0) -> dict:
+                      shared_db: float = 0.0, bias_db=None) -> dict:
     """Mean, standard deviation and two-sided interval of the mean.
 
     Without ``uncertainty_db`` the interval is Student t's from the pass-to-pass scatter alone.
@@ -29,7 +29,8 @@ def mean_and_interval(values_db, confidence: float = 0.90, uncertainty_db=None, 
     t-interval and the normal interval of the values' uncertainty, whose independent part
     (rms over the values, less the shared part) shrinks as 1 / sqrt(n) while ``shared_db``,
     common to every value (fully correlated: GUM 5.2.2 with r = 1, from memory), does not.
-    For one value the interval is its own uncertainty's.
+    For one value the interval is its own uncertainty's. ``bias_db`` (per value) is a
+    one-sided loss the values share (the microphone positions'): its mean raises the upper end.
 
     Returns a dict with ``mean_db``, ``std_db`` (n - 1 in the denominator), ``n``,
     ``ci_half_width_db`` (NaN for fewer than two values and no uncertainties), ``ci_low_db``,
@@ -54,5 +55,7 @@ def mean_and_interval(values_db, confidence: float = 0.90, uncertainty_db=None, 
         own = float(np.sqrt(independent / n + shared_db ** 2))
     if np.isfinite(own):
         half = float(np.hypot(np.nan_to_num(half), stats.norm.ppf(0.5 + confidence / 2) * own))
+    bias = 0.0 if bias_db is None else float(np.nanmean(np.asarray(bias_db, float)[keep]))
     return {"mean_db": mean, "std_db": std, "n": n, "ci_half_width_db": half,
-            "ci_low_db": mean - half, "ci_high_db": mean + half, "uncertainty_db": own}
+            "ci_low_db": mean - half, "ci_high_db": mean + half + np.nan_to_num(bias),
+            "uncertainty_db": own}

@@ -10,7 +10,8 @@ import pandas as pd
 from flyover.acoustics.atmosphere import band_absorption_db
 from flyover.acoustics.bands import third_octave_bands
 from flyover.acoustics.reference import level_1m_db, reference_level_db
-from flyover.acoustics.uncertainty import Z90, band_level_uncertainty_db
+from flyover.acoustics.uncertainty import (Z90, InputUncertainty, band_level_uncertainty_db,
+                                          ground_correction_spread_db, position_loss_db)
 from flyover.geometry.frames import attitude_rotation, enu_from_body_matrix
 from flyover.geometry.propagation import air_angles
 from flyover.geometry.windows import emission_angles_deg
@@ -22,12 +23,13 @@ from flyover.io.results.levels import LEVELS, LEVELS_BY_METHOD
 from flyover.io.results.region_power import REGION_POWER
 from flyover.io.results.spectra import SPECTRA
 from flyover.io.results.windows import read_analysed
-from flyover.model.campaign import Campaign, pass_array
+from flyover.model.campaign import ArraySpec, Campaign, pass_array
 from flyover.model.errors import FlyoverInputError
 from flyover.model.reads import guarded
 
 # What this stage reads of the campaign (flyover.model.reads): its re-run fingerprint too.
-READS = ("regions", "array.plate_correction_db", "passes.{pass}.array",
+READS = ("regions", "array.plate_correction_db", "array.mounting", "array.ground",
+         "passes.{pass}.array",
          "analysis.reference_distance_m",
          "analysis.reference_atmosphere", "analysis.band_absorption", "analysis.method",
          "analysis.other_methods",
@@ -48,7 +50,8 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> None:
         mine = powers[powers["method"].astype(str) == method].drop(columns="method")
         per_method[method] = with_uncertainty(level_table(mine, windows, campaign, alignment,
                                                           pass_name),
-                                              alignment, campaign, pass_name)
+                                              alignment, campaign.analysis.uncertainty,
+                                              array=pass_array(campaign, pass_name))
     levels = per_method[campaign.analysis.method]
     LEVELS.write(out_dir, levels)
     LEVELS_BY_METHOD.write(out_dir, pd.concat(
@@ -120,7 +123,9 @@ def level_table(powers: pd.DataFrame, windows: pd.DataFrame, campaign: Campaign,
     p["note"] = np.where(~p["band_valid"], p["band_note"], p["region_note"])
     order = {name: i for i, name in enumerate(list(campaign.regions) + [TOTAL])}
     p = p.assign(_o=p["region"].map(order)).sort_values(["window", "_o", "band_hz"])
-    p["uncertainty_db"] = p["ci90_low_db"] = p["ci90_high_db"] = np.nan
+    for name in ("uncertainty_db", "ci90_low_db", "ci90_high_db", "ground_db",
+                 "position_bias_db"):
+        p[name] = np.nan
     # The stability test's change where the level is given (a total has none).
     p["leakage_db"] = np.where(p["region"] == TOTAL, 0.0,
                                pd.to_numeric(p["stability_db"], errors="coerce"))
@@ -187,11 +192,13 @@ def scatter_where_unsupported_db(scatter: pd.Series) -> pd.Series:
     return by_band.fillna(fallback)
 
 
-def with_uncertainty(levels: pd.DataFrame, alignment: dict, campaign: Campaign,
-                     pass_name: str) -> pd.DataFrame:
+def with_uncertainty(levels: pd.DataFrame, alignment: dict, inputs: InputUncertainty, *,
+                     array: ArraySpec | None = None) -> pd.DataFrame:
     """Add each level's standard uncertainty and 90 % interval
     (:func:`flyover.acoustics.uncertainty.band_level_uncertainty_db`).
 
+    ``array`` is the pass's (its ground enters the budget under raised microphones); the
+    positions' one-sided loss raises the interval's upper end (``position_bias_db``).
     A level's window scatter comes from its consecutive windows. Where it cannot (an isolated
     level), less data must not mean a tighter interval: the scatter is the band's largest over
     the pass (:func:`scatter_where_unsupported_db`), the uncertainty at least the median of the
@@ -199,7 +206,6 @@ def with_uncertainty(levels: pd.DataFrame, alignment: dict, campaign: Campaign,
     out = levels.copy()
     if len(out) == 0:
         return out
-    inputs = campaign.analysis.uncertainty
     scatter = window_scatter_db(out)
     key = pd.MultiIndex.from_arrays([out["region"], out["band_hz"].astype(float)])
     band_scatter = scatter.reindex(key).to_numpy(float, copy=True)
@@ -209,30 +215,57 @@ def with_uncertainty(levels: pd.DataFrame, alignment: dict, campaign: Campaign,
                               .fillna(UNSUPPORTED_SCATTER_DB).to_numpy(float))
     bands = third_octave_bands(out["band_hz"].min(), out["band_hz"].max())
     centre = dict(zip(bands.nominal_hz, bands.center_hz))
+    at = out["band_hz"].map(centre).to_numpy(float)
+    aperture_m, c_m_s = float(alignment["array_aperture_m"]), float(alignment["speed_of_sound_m_s"])
+    temperature_c = float(alignment["atmosphere"]["temperature_c"])
+    out["ground_db"] = _ground_spread_db(out, bands, alignment, array,
+                                         inputs.flow_resistivity_factor)
     u = band_level_uncertainty_db(
-        out["band_hz"].map(centre).to_numpy(float), distance_m=out["distance_m"].to_numpy(float),
+        at, distance_m=out["distance_m"].to_numpy(float),
         polar_deg=out["polar_angle_deg"].to_numpy(float), n_mics=int(alignment["channels_used"]),
-        aperture_m=float(alignment["array_aperture_m"]),
-        c_m_s=float(alignment["speed_of_sound_m_s"]),
-        temperature_c=float(alignment["atmosphere"]["temperature_c"]),
+        aperture_m=aperture_m, c_m_s=c_m_s, temperature_c=temperature_c,
         speed_m_s=float(alignment["speed_m_s"]),
         track_m=float(alignment["track_noise_estimate_m"]),
         clock_s=clock_uncertainty_s(alignment, inputs.clock_s), inputs=inputs,
         scatter_db=band_scatter,
         leakage_db=np.nan_to_num(out["leakage_db"].to_numpy(float), posinf=0.0)
-        if "leakage_db" in out else 0.0)
+        if "leakage_db" in out else 0.0, ground_db=out["ground_db"].to_numpy(float))
     has = np.isfinite(out["level_db"].to_numpy(float))
     supported = pd.Series(np.where(has & ~isolated, u, np.nan), index=out.index)
     band_median = supported.groupby(out["band_hz"]).transform("median").to_numpy(float)
     floor = isolated & has & np.isfinite(band_median)
     u = np.where(floor, np.fmax(u, band_median), u)
     out["uncertainty_db"] = np.where(has, u, np.nan)
+    # The position errors' loss is one-sided: it raises the interval's upper end only.
+    out["position_bias_db"] = np.where(has, position_loss_db(
+        at, aperture_m=aperture_m, c_m_s=c_m_s, temperature_c=temperature_c, inputs=inputs),
+        np.nan)
     out["ci90_low_db"] = out["level_db"] - Z90 * out["uncertainty_db"]
-    out["ci90_high_db"] = out["level_db"] + Z90 * out["uncertainty_db"]
+    out["ci90_high_db"] = (out["level_db"] + Z90 * out["uncertainty_db"]
+                           + out["position_bias_db"])
     note = out["note"].fillna("").astype(str)
     out["note"] = np.where(isolated & has, np.where(note == "", ISOLATED_NOTE,
                                                      note + "; " + ISOLATED_NOTE), note)
     return out[LEVELS.column_names]
+
+
+def _ground_spread_db(levels: pd.DataFrame, bands, alignment: dict, array, factor: float):
+    """Per row, the ground correction's spread over the flow resistivity's factor
+    (:func:`flyover.acoustics.uncertainty.ground_correction_spread_db`) at its window's distance
+    and angle; 0 off raised microphones or over hard ground."""
+    out = np.zeros(len(levels))
+    if array is None or array.mounting != "raised" or array.ground is None:
+        return out
+    height = float(np.mean(alignment["array"]["mic_height_m"]))
+    index = {f: i for i, f in enumerate(bands.nominal_hz)}
+    for _, rows in levels.groupby("window").groups.items():
+        first = levels.loc[rows[0]]
+        spread = ground_correction_spread_db(
+            bands, distance_m=float(first["distance_m"]), polar_deg=float(first["polar_angle_deg"]),
+            mic_height_m=height, aperture_m=float(alignment["array_aperture_m"]),
+            c_m_s=float(alignment["speed_of_sound_m_s"]), ground=array.ground, factor=factor)
+        out[levels.index.get_indexer(rows)] = spread[levels.loc[rows, "band_hz"].map(index)]
+    return out
 
 
 def spectra_table(levels: pd.DataFrame, polar_deg,

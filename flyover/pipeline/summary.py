@@ -26,17 +26,21 @@ READS = ("passes", "analysis.overall_band_range_hz", "analysis.uncertainty")
 
 
 def pass_bins(levels: pd.DataFrame, value: str, keys: list[str]) -> pd.DataFrame:
-    """Energetic mean of a pass's windows within each polar bin, and the rms of their stated
-    uncertainties where the table has them (``uncertainty_db``, else NaN)."""
+    """Energetic mean of a pass's windows within each polar bin, the rms of their stated
+    uncertainties where the table has them (``uncertainty_db``, else NaN) and the mean of their
+    one-sided position bias (``position_bias_db``, else 0)."""
     if len(levels) == 0:
-        return pd.DataFrame(columns=keys + ["polar_bin_deg", value, "uncertainty_db"])
+        return pd.DataFrame(columns=keys + ["polar_bin_deg", value, "uncertainty_db",
+                                            "position_bias_db"])
     d = levels.assign(polar_bin_deg=polar_bin_deg(levels["polar_angle_deg"], POLAR_BIN_DEG))
     if "uncertainty_db" not in d:
         d["uncertainty_db"] = np.nan
+    if "position_bias_db" not in d:
+        d["position_bias_db"] = 0.0
     g = d.groupby(keys + ["polar_bin_deg"])
     return pd.concat([g[value].apply(energetic_mean_db),
-                      g["uncertainty_db"].apply(lambda u: float(np.sqrt(np.mean(u ** 2))))],
-                     axis=1).reset_index()
+                      g["uncertainty_db"].apply(lambda u: float(np.sqrt(np.mean(u ** 2)))),
+                      g["position_bias_db"].mean()], axis=1).reset_index()
 
 
 def summarise(per_pass: dict[str, pd.DataFrame], labels: dict[str, str], value: str,
@@ -56,7 +60,7 @@ def summarise(per_pass: dict[str, pd.DataFrame], labels: dict[str, str], value: 
     allb = pd.concat(frames, ignore_index=True)
     for key, g in allb.groupby(["label"] + keys + ["polar_bin_deg"], sort=True):
         s = mean_and_interval(g[value], uncertainty_db=g["uncertainty_db"],
-                              shared_db=shared_db)
+                              shared_db=shared_db, bias_db=g["position_bias_db"])
         row = dict(zip(["label"] + keys + ["polar_bin_deg"], key))
         row.update(s)
         used = sorted(g.loc[np.isfinite(g[value]), "pass"])

@@ -17,8 +17,15 @@ LEVELS = TableFile("levels.csv", (
     ("leakage_db", "dB, how far the level moved when a unit source shifted or with the "
                    "method's variant (region_power.csv's stability_db; 0 for 'total'; empty where "
                    "the level is): in uncertainty_db as a rectangular term of that half-width"),
+    ("ground_db", "dB, over raised microphones on soft ground: how far the ground correction "
+                  "moves when the flow resistivity is off by analysis.uncertainty."
+                  "flow_resistivity_factor either way; in uncertainty_db as a rectangular term "
+                  "(0 otherwise)"),
+    ("position_bias_db", "dB, the mean loss of the level to the microphones' position errors "
+                         "and the speed of sound's, 10 lg(e) (k sigma)^2: one-sided (the true "
+                         "level lies above), so in ci90_high_db, not in uncertainty_db"),
     ("ci90_low_db", "dB, level_db - 1.645 uncertainty_db: the 90 % interval"),
-    ("ci90_high_db", "dB, level_db + 1.645 uncertainty_db"),
+    ("ci90_high_db", "dB, level_db + 1.645 uncertainty_db + position_bias_db"),
     ("resolved", "the region is resolved from every other in the window (region_power.csv); a "
                  "level that is not is given only when dominant (see note)"),
     ("band_valid", "the window can measure the band"),
