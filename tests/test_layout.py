@@ -108,3 +108,18 @@ def test_the_physics_packages_form_no_loop():
                    for n in edges[start])
     loops = sorted(p for p in physics if reaches(p, p))
     assert not loops, {p: sorted(edges[p]) for p in loops}
+
+
+def test_the_package_face_loads_nothing_heavy_until_asked():
+    # Every workflow job imports the package; its face must not pull in scipy or pyproj (0.7 s
+    # a job before), and every public name must still resolve.
+    import subprocess
+    import sys
+    code = ("import sys, flyover, flyover.model.errors; "
+            "print(sorted(m for m in ('scipy', 'pyproj', 'pandas', 'matplotlib') "
+            "if m in sys.modules))")
+    loaded = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                            check=True).stdout.strip()
+    assert loaded == "[]"
+    for name in flyover.__all__:
+        assert getattr(flyover, name) is not None
