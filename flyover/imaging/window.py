@@ -27,9 +27,9 @@ from flyover.imaging.integration import (SHIFT_DIRECTIONS, region_powers, region
                                          shift_changes_db, shift_distances_m)
 from flyover.imaging.planning import HALF_POWER
 from flyover.model.campaign import Region
+from flyover.model.constants import TOTAL  # the key of all regions together in region_power
 from flyover.model.timebase import ArrayClock
 
-TOTAL = "total"  # the key of all regions together in WindowMaps.region_power
 
 
 @dataclass(frozen=True)

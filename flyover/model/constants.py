@@ -8,3 +8,7 @@ MIN_OVERALL_BANDS = 3
 FUNCTIONAL_EXPONENT = 8.0
 CLEAN_LOOP_GAIN = 0.3
 CLEAN_MAX_SOURCES = 200
+
+# The region name of all regions together (levels, tables and figures): a word of the results'
+# vocabulary, kept here so that stages reading results need not load the imaging engine.
+TOTAL = "total"

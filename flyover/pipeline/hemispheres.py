@@ -15,13 +15,13 @@ import pandas as pd
 
 from flyover.acoustics.bands import third_octave_bands
 from flyover.acoustics.hemisphere import band_range_cells, fit_cells, hemisphere_cells
-from flyover.imaging.window import TOTAL
 from flyover.io.figures import coverage_figure, hemisphere_figure, save_figure
 from flyover.io.results.hemisphere import (FOLDER, HEMISPHERE, hemisphere_cube, label_folders,
                                            write_cube)
 from flyover.io.results.levels import LEVELS
 from flyover.io.results.signoff import signoff_statuses
 from flyover.model.campaign import Campaign
+from flyover.model.constants import TOTAL
 from flyover.model.reads import guarded
 from flyover.pipeline._overall import label_band_ranges
 

@@ -15,7 +15,6 @@ from flyover.acoustics.uncertainty import (Z90, InputUncertainty, band_level_unc
 from flyover.geometry.frames import attitude_rotation, enu_from_body_matrix
 from flyover.geometry.propagation import air_angles
 from flyover.geometry.windows import emission_angles_deg
-from flyover.imaging.window import TOTAL
 from flyover.io.figures import directivity_figure, save_figure, spectra_figure
 from flyover.io.results.directivity import DIRECTIVITY
 from flyover.io.results.alignment import clock_uncertainty_s, pass_atmosphere, read_alignment
@@ -24,6 +23,7 @@ from flyover.io.results.region_power import REGION_POWER
 from flyover.io.results.spectra import SPECTRA
 from flyover.io.results.windows import read_analysed
 from flyover.model.campaign import ArraySpec, Campaign, pass_array
+from flyover.model.constants import TOTAL
 from flyover.model.errors import FlyoverInputError
 from flyover.model.reads import guarded
 

@@ -14,12 +14,12 @@ from flyover.acoustics.metrics import (EventMetrics, a_weighted, band_level_hist
                                       event_metrics, lae_shortfall_db, metrics_of_mean_square)
 from flyover.acoustics.reconstruct import (RAISED_MICROPHONE_M, Directivity, energy_sum,
                                           received_history, reference_flight)
-from flyover.imaging.window import TOTAL
 from flyover.io.figures import level_history_figure, save_figure
 from flyover.io.results.event_metrics import (BAND_HISTORY, EVENT_METRICS, LEVEL_HISTORY,
                                              RECONSTRUCTED)
 from flyover.io.results.levels import LEVELS
 from flyover.model.campaign import PASS_INPUTS, Campaign
+from flyover.model.constants import TOTAL
 from flyover.model.errors import FlyoverInputError
 from flyover.model.reads import guarded
 from flyover.pipeline.context import PassInputs, load_aligned_pass, pass_summary

@@ -13,12 +13,12 @@ import pandas as pd
 from flyover.acoustics.bands import third_octave_bands
 from flyover.acoustics.orders import SEPARATION_CORRELATION, OrderTrack, fit_orders, refine_speeds
 from flyover.forward.moving_source import ShaftSpeed
-from flyover.imaging.window import TOTAL
 from flyover.io.figures import rotor_tones_figure, save_figure
 from flyover.io.results.levels import LEVELS
 from flyover.io.results.rotor_tones import BAND_PARTS, ROTOR_TONES
 from flyover.io.results.windows import read_analysed
 from flyover.model.campaign import PASS_INPUTS, Campaign
+from flyover.model.constants import TOTAL
 from flyover.model.reads import guarded
 from flyover.pipeline._span import dedopplerize_span
 from flyover.pipeline.context import PassInputs, load_aligned_pass
