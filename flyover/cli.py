@@ -208,7 +208,8 @@ def _dispatch(args) -> int:
         return 0
     if args.command == "report":
         from flyover.io.config import load_campaign
-        path = load_campaign(args.campaign).output / "report.html"
+        from flyover.io.results import report as report_file
+        path = load_campaign(args.campaign).output / report_file.NAME
         if not path.exists():
             print(f"no report yet: run `flyover run {args.campaign}` first", file=sys.stderr)
             return 1

@@ -9,6 +9,7 @@ from conftest import edit_campaign
 
 from flyover.cli import main
 from flyover.io.config import load_campaign
+from flyover.io.results.steps import pass_files
 from flyover.model.reads import UndeclaredRead, guarded, read_values
 from flyover.pipeline import align, image, levels
 from flyover.workflow.plan import CampaignPlan, JobSizes, job_memory_mb, job_runtime_min
@@ -149,7 +150,7 @@ def test_live_status_shows_the_windows_of_a_running_imaging(tmp_path):
     # p1's results appear and its imaging finishes: done; its metrics step then starts and the
     # count stays (it only goes forward). Six steps of eleven in 60 s: about 50 s left.
     (tmp_path / "p1").mkdir()
-    for name in ("levels.csv", "qc_track.png"):
+    for name in pass_files():
         (tmp_path / "p1" / name).write_text("x")
     for line in ("Finished jobid: 4 (Rule: image)", "6 of 11 steps (55%) done"):
         state.feed(line)

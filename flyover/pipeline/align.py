@@ -8,7 +8,7 @@ from pathlib import Path
 from flyover.acoustics.bands import third_octave_bands
 from flyover.geometry.windows import plan_windows
 from flyover.io.figures import save_figure, track_figure
-from flyover.io.results.alignment import write_alignment
+from flyover.io.results.alignment import TRACK_FIGURE, write_alignment
 from flyover.model.campaign import PASS_INPUTS, Campaign
 from flyover.model.errors import FlyoverInputError
 from flyover.model.reads import guarded
@@ -71,7 +71,7 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> dict:
         summary["clock_scan_offsets_s"] = [round(float(v), 6) for v in estimate.scan_offsets_s]
         summary["clock_scan_power"] = [round(float(v), 6) for v in estimate.scan_power]
     fig = track_figure(inputs, summary)
-    save_figure(fig, Path(out_dir) / "track.png")
+    save_figure(fig, TRACK_FIGURE.path(out_dir))
     write_alignment(out_dir, summary)
     return summary
 

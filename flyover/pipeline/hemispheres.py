@@ -16,7 +16,8 @@ import pandas as pd
 from flyover.acoustics.bands import third_octave_bands
 from flyover.acoustics.hemisphere import band_range_cells, fit_cells, hemisphere_cells
 from flyover.io.figures import coverage_figure, hemisphere_figure, save_figure
-from flyover.io.results.hemisphere import (FOLDER, HEMISPHERE, hemisphere_cube, label_folders,
+from flyover.io.results.hemisphere import (COVERAGE_FIGURE, FOLDER, HEMISPHERE,
+                                           HEMISPHERE_FIGURE, hemisphere_cube, label_folders,
                                            write_cube)
 from flyover.io.results.levels import LEVELS
 from flyover.io.results.signoff import signoff_statuses
@@ -65,10 +66,10 @@ def run(campaign: Campaign, out_dir: Path) -> None:
                               "extrapolated"}))
         panels = range_panels(table, label_ranges(campaign, tables, regions), grid.fit_degree)
         save_figure(hemisphere_figure(panels, grid.polar_deg, grid.azimuth_deg, label),
-                    dest / "hemisphere.png")
+                    HEMISPHERE_FIGURE.path(dest))
         counts, traces = coverage(levels, grid)
         save_figure(coverage_figure(counts, traces, grid.polar_deg, grid.azimuth_deg, label),
-                    dest / "coverage.png")
+                    COVERAGE_FIGURE.path(dest))
 
 
 def label_table(levels: pd.DataFrame, grid, label: str) -> pd.DataFrame:

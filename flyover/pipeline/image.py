@@ -18,7 +18,7 @@ from flyover.imaging.methods import method_named
 from flyover.imaging.resolution import main_lobe_width_m
 from flyover.imaging.window import TOTAL, image_window, window_context
 from flyover.io.figures import map_figure, save_figure
-from flyover.io.results.maps import write_maps
+from flyover.io.results.maps import FIGURE_FOLDER, window_figure_name, write_maps
 from flyover.io.results.region_power import REGION_POWER
 from flyover.io.results.windows import NO_WINDOW, WINDOWS
 from flyover.model.campaign import PASS_INPUTS, Campaign
@@ -111,19 +111,20 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path, *, threads: int = 1,
         done.append(w)
         fig = map_figure(res.diagonal_removed if an.diagonal_removal else res.full, campaign,
                          bands, pass_name, row, an.map_dynamic_range_db, res.verdicts)
-        save_figure(fig, out_dir / "maps" / f"window-{w.index:03d}.png")
+        save_figure(fig, out_dir / FIGURE_FOLDER / window_figure_name(w.index))
         if len(methods) > 1 and w.index == _nearest_overhead(windows):
             for method, other in zip(methods[1:], results[1:]):
                 fig = map_figure(other.diagonal_removed if an.diagonal_removal else other.full,
                                  campaign, bands, f"{pass_name} ({method.name})", row,
                                  an.map_dynamic_range_db, other.verdicts)
-                save_figure(fig, out_dir / "maps" / f"window-{w.index:03d}-{method.name}.png")
+                save_figure(fig, out_dir / FIGURE_FOLDER / window_figure_name(w.index,
+                                                                            method.name))
         progress.step(f"window {w.index} at {w.polar_angle_deg:.0f} deg")
     progress.close()
     if not windows:
         print(f"{pass_name}: {NO_WINDOW}", file=sys.stderr)
     # The figures' folder exists even when no window could be analysed: the step still succeeded.
-    (out_dir / "maps").mkdir(parents=True, exist_ok=True)
+    (out_dir / FIGURE_FOLDER).mkdir(parents=True, exist_ok=True)
     WINDOWS.write(out_dir, pd.DataFrame(rows))
     REGION_POWER.write(out_dir, pd.DataFrame(region_rows, columns=REGION_POWER.column_names))
     shape = (len(done), len(bands)) + campaign.grid.shape

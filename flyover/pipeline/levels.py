@@ -16,11 +16,11 @@ from flyover.geometry.frames import attitude_rotation, enu_from_body_matrix
 from flyover.geometry.propagation import air_angles
 from flyover.geometry.windows import emission_angles_deg
 from flyover.io.figures import directivity_figure, save_figure, spectra_figure
-from flyover.io.results.directivity import DIRECTIVITY
+from flyover.io.results.directivity import DIRECTIVITY, DIRECTIVITY_FIGURE
 from flyover.io.results.alignment import clock_uncertainty_s, pass_atmosphere, read_alignment
 from flyover.io.results.levels import LEVELS, LEVELS_BY_METHOD
 from flyover.io.results.region_power import REGION_POWER
-from flyover.io.results.spectra import SPECTRA
+from flyover.io.results.spectra import SPECTRA, SPECTRA_FIGURE
 from flyover.io.results.windows import read_analysed
 from flyover.model.campaign import ArraySpec, Campaign, pass_array
 from flyover.model.constants import TOTAL
@@ -60,8 +60,8 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> None:
     spectra = spectra_table(levels, campaign.analysis.spectra_polar_deg)
     SPECTRA.write(out_dir, spectra)
     DIRECTIVITY.write(out_dir, directivity_table(levels))
-    save_figure(spectra_figure(spectra, pass_name), out_dir / "spectra.png")
-    save_figure(directivity_figure(levels, pass_name), out_dir / "directivity.png")
+    save_figure(spectra_figure(spectra, pass_name), SPECTRA_FIGURE.path(out_dir))
+    save_figure(directivity_figure(levels, pass_name), DIRECTIVITY_FIGURE.path(out_dir))
 
 
 def level_table(powers: pd.DataFrame, windows: pd.DataFrame, campaign: Campaign,
@@ -87,7 +87,7 @@ def level_table(powers: pd.DataFrame, windows: pd.DataFrame, campaign: Campaign,
     unknown = sorted(set(p["region"]) - set(campaign.regions) - {TOTAL})
     if unknown:
         raise FlyoverInputError("region powers name regions the campaign does not have",
-                                "region_power.csv", f"regions {sorted(campaign.regions)}",
+                                REGION_POWER.name, f"regions {sorted(campaign.regions)}",
                                 f"{unknown}", "the imaging is stale: re-run the workflow")
     w = windows.loc[p["window"]]
     for c in ("time_utc", "polar_angle_deg", "height_m", "speed_m_s", "distance_m"):

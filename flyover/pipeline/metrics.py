@@ -16,7 +16,7 @@ from flyover.acoustics.reconstruct import (RAISED_MICROPHONE_M, Directivity, ene
                                           received_history, reference_flight)
 from flyover.io.figures import level_history_figure, save_figure
 from flyover.io.results.event_metrics import (BAND_HISTORY, EVENT_METRICS, LEVEL_HISTORY,
-                                             RECONSTRUCTED)
+                                              LEVEL_HISTORY_FIGURE, RECONSTRUCTED)
 from flyover.io.results.levels import LEVELS
 from flyover.model.campaign import PASS_INPUTS, Campaign
 from flyover.model.constants import TOTAL
@@ -101,7 +101,7 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> None:
     figure_row = dict(row, ten_db_down_start_s=t0 + metrics.ten_db_down_s[0],
                       ten_db_down_end_s=t0 + metrics.ten_db_down_s[1])
     save_figure(level_history_figure(level_history, band_history, figure_row, pass_name),
-                out_dir / "level_history.png")
+                LEVEL_HISTORY_FIGURE.path(out_dir))
     RECONSTRUCTED.write(out_dir, reconstruction_table(
         campaign, inputs, summary, LEVELS.read(out_dir), pressure, fs, mic, (t0, t0 + n / fs),
         (metrics, row["lae_shortfall_db"])))

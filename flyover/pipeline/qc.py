@@ -9,6 +9,7 @@ import numpy as np
 from scipy.signal import spectrogram
 
 from flyover.io.figures import save_figure, spectrogram_figure, track_figure
+from flyover.io.results.qc import SPECTROGRAM_FIGURE, TRACK_FIGURE
 from flyover.io.results.windows import read_analysed
 from flyover.model.campaign import PASS_INPUTS, Campaign
 from flyover.model.reads import guarded
@@ -28,7 +29,7 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> None:
     summary = pass_summary(inputs)
     done = read_analysed(out_dir)
     save_figure(track_figure(inputs, summary, done["center_s"].to_numpy()),
-                out_dir / "qc_track.png")
+                TRACK_FIGURE.path(out_dir))
     fs = inputs.sample_rate_hz
     main = next(iter(campaign.regions.values()))
     a = None
@@ -38,8 +39,8 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> None:
         # None when the span runs past the recording for the region centre.
         a = dedopplerize_span(campaign, inputs, start, n, main.center_m)
     if a is None:
-        save_figure(spectrogram_figure(None, None, pass_name, "", 1.0), out_dir /
-                    "qc_spectrogram.png")
+        save_figure(spectrogram_figure(None, None, pass_name, "", 1.0),
+                    SPECTROGRAM_FIGURE.path(out_dir))
         return
     used = inputs.weights > 0
     beam = np.average(a[used], axis=0, weights=inputs.weights[used])
@@ -54,4 +55,4 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> None:
     fig = spectrogram_figure(raw, dd, pass_name,
                              f"channel {inputs.layout.channel[mic]} (as received)",
                              campaign.analysis.band_max_hz * 1.2, main.name)
-    save_figure(fig, out_dir / "qc_spectrogram.png")
+    save_figure(fig, SPECTROGRAM_FIGURE.path(out_dir))

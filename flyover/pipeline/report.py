@@ -20,12 +20,19 @@ from PIL import Image
 from flyover import __version__
 from flyover.io.atomic import write_text
 from flyover.io.results.alignment import clock_uncertainty_s, pass_atmosphere, read_alignment
-from flyover.io.results.campaign_tables import CAMPAIGN_LEVELS, CAMPAIGN_OVERALL
+from flyover.io.results import FigureFile, qc
+from flyover.io.results import report as report_file
+from flyover.io.results.campaign_tables import CAMPAIGN_FIGURE, CAMPAIGN_LEVELS, CAMPAIGN_OVERALL
+from flyover.io.results.directivity import DIRECTIVITY_FIGURE
 from flyover.acoustics.orders import SEPARATION_CORRELATION
 from flyover.acoustics.uncertainty import Z90
-from flyover.io.results.event_metrics import EVENT_METRICS, RECONSTRUCTED
-from flyover.io.results.rotor_tones import ROTOR_TONES
-from flyover.io.results.hemisphere import FOLDER as HEMISPHERE_FOLDER, HEMISPHERE, label_folders
+from flyover.io.results.event_metrics import EVENT_METRICS, LEVEL_HISTORY_FIGURE, RECONSTRUCTED
+from flyover.io.results.maps import FIGURE_FOLDER, method_figures, window_figure_name
+from flyover.io.results.rotor_tones import ROTOR_TONES, ROTOR_TONES_FIGURE
+from flyover.io.results.spectra import SPECTRA_FIGURE
+from flyover.io.results.hemisphere import (COVERAGE_FIGURE, HEMISPHERE, HEMISPHERE_FIGURE,
+                                           label_folders)
+from flyover.io.results.hemisphere import FOLDER as HEMISPHERE_FOLDER
 from flyover.io.results.levels_overall import LEVELS_OVERALL
 from flyover.io.results.signoff import SIGNOFF
 from flyover.io.results.windows import WINDOWS
@@ -92,6 +99,11 @@ def _img(path: Path, alt: str) -> str:
     flat.save(buffer, "WEBP", quality=REPORT_IMAGE_QUALITY, method=6)
     data = base64.b64encode(buffer.getvalue()).decode("ascii")
     return f'<img alt="{html.escape(alt)}" src="data:image/webp;base64,{data}">'
+
+
+def _figure(folder: Path, figure: FigureFile) -> str:
+    """A declared figure of a results folder, with its caption (:func:`_img`)."""
+    return _img(figure.path(folder), figure.caption)
 
 
 def _num(value, fmt: str = ".1f", missing: str = "missing") -> str:
@@ -269,15 +281,16 @@ def _pass_section(campaign: Campaign, name: str, out: Path, signed: dict) -> str
         for target in (60.0, 90.0, 120.0):
             k = int((done["polar_angle_deg"] - target).abs().idxmin())
             w = int(done.loc[k, "window"])
-            maps.append(_img(d / "maps" / f"window-{w:03d}.png", f"maps of window {w}"))
+            maps.append(_img(d / FIGURE_FOLDER / window_figure_name(w), f"maps of window {w}"))
     maps = list(dict.fromkeys(maps))
-    compared = sorted((d / "maps").glob("window-*-*.png"))
+    compared = method_figures(d)
     if compared:
         # The window nearest overhead by every method: the headline's maps, then the others'.
-        first = compared[0].name[:10]
+        w = compared[0][0]
         maps.append("<h4>Methods side by side</h4>" + _img(
-            d / "maps" / f"{first}.png", f"{first} by {campaign.analysis.method}") + "".join(
-            _img(p, f"{first} by {p.stem[11:]}") for p in compared))
+            d / FIGURE_FOLDER / window_figure_name(w),
+            f"window {w} by {campaign.analysis.method}") + "".join(
+            _img(p, f"window {w} by {method}") for _, method, p in compared))
     warnings = [r for r in str(mine["reasons"]).split("; ") if r] + warnings
     warn_html = ("<ul>" + "".join(f'<li class="warn">{html.escape(w)}</li>' for w in warnings)
                  + "</ul>") if warnings else "<p>No data-quality warnings.</p>"
@@ -293,14 +306,14 @@ rebuilt on the measured path (the check against the measurement in the analysed 
 the reference flight; beside them, the measured levels with the certification-style height and
 speed adjustments. Incomplete means the 10 dB-down interval runs past the angles or the recording
 available.</p>{_table(_reconstruction_table(d))}
-{_img(d / "level_history.png", "A-weighted level and band levels against time")}
+{_figure(d, LEVEL_HISTORY_FIGURE)}
 <h3>Data quality</h3>{warn_html}
-<h3>Track</h3>{_img(d / "qc_track.png", "track over the array")}
-<h3>Spectrograms</h3>{_img(d / "qc_spectrogram.png", "spectrograms")}
+<h3>Track</h3>{_figure(d, qc.TRACK_FIGURE)}
+<h3>Spectrograms</h3>{_figure(d, qc.SPECTROGRAM_FIGURE)}
 <h3>Source maps</h3><p class="muted">Windows nearest to polar angles 60, 90 and 120 deg; each
 panel in dB re its own peak over {campaign.analysis.map_dynamic_range_db:g} dB.</p>{''.join(maps)}
-<h3>Region spectra</h3>{_img(d / "spectra.png", "region spectra")}
-<h3>Directivity</h3>{_img(d / "directivity.png", "directivity")}
+<h3>Region spectra</h3>{_figure(d, SPECTRA_FIGURE)}
+<h3>Directivity</h3>{_figure(d, DIRECTIVITY_FIGURE)}
 <h3>Rotor tones</h3><p class="muted">Each rotor's blade-passing harmonics, fitted along its own
 shaft angle from the logged speed (all rotors jointly, so rotors the map cannot tell apart are
 told apart by their speeds); levels at 1 m, free field, with the noise's bias taken off and a
@@ -310,7 +323,7 @@ window) is not separable and has no level; over raised microphones no tone has a
 ground reflection at its frequency is not taken off). Band levels split into the tonal part of
 the rotors whose hub lies in the region and the broadband rest: band_parts.csv.</p>
 {_table(_rotor_table(d))}
-{_img(d / "rotor_tones.png", "rotor harmonics against polar angle")}
+{_figure(d, ROTOR_TONES_FIGURE)}
 </section>"""
 
 
@@ -503,8 +516,8 @@ def _hemisphere_section(campaign: Campaign, out: Path) -> str:
 CF-style units); cells of {grid.polar_step_deg:g}&deg; polar &times; {grid.azimuth_step_deg:g}&deg;
 azimuth out of {len(grid.polar_deg) * len(grid.azimuth_deg)}.</p>
 {_table(summary)}
-{_img(dest / "hemisphere.png", f"hemispheres of {label}")}
-{_img(dest / "coverage.png", f"coverage of {label}")}""")
+{_img(HEMISPHERE_FIGURE.path(dest), f"{HEMISPHERE_FIGURE.caption} of {label}")}
+{_img(COVERAGE_FIGURE.path(dest), f"{COVERAGE_FIGURE.caption} of {label}")}""")
     return "".join(parts)
 
 
@@ -582,7 +595,7 @@ one-third-octave band and 10&deg; polar-angle bin: the mean over passes, its sta
 deviation, the number of passes and the 90&nbsp;% interval of the mean (the Student-t interval
 of the pass-to-pass scatter and the passes' stated uncertainties, combined).
 Means whose interval is wider than &plusmn;1.5&nbsp;dB are shaded ({n_flags} band cells here).</p>
-{_img(out / "campaign_overall.png", "campaign A-weighted levels")}
+{_figure(out, CAMPAIGN_FIGURE)}
 <h3>Overall and A-weighted levels</h3>
 <p class="muted">Mean level (dB) per polar bin; shaded: interval wider than &plusmn;1.5&nbsp;dB;
 italics: one pass only. Each region sums one band range per label (the column band_range_hz of
@@ -618,7 +631,7 @@ each pass's line across the hemisphere: the empty rows are the offsets to fly ne
 </section>
 </body></html>
 """
-    write_text(out / "report.html", body)
+    write_text(out / report_file.NAME, body)
 
 
 def runtime_dependencies(distribution: str = "flyover-noise") -> list[str]:

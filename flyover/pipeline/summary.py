@@ -10,7 +10,7 @@ import pandas as pd
 from flyover.acoustics.statistics import (WIDE_INTERVAL_DB, energetic_mean_db, mean_and_interval,
                                           polar_bin_deg)
 from flyover.io.figures import campaign_figure, save_figure
-from flyover.io.results.campaign_tables import CAMPAIGN_LEVELS, CAMPAIGN_OVERALL
+from flyover.io.results.campaign_tables import CAMPAIGN_FIGURE, CAMPAIGN_LEVELS, CAMPAIGN_OVERALL
 from flyover.io.results.levels import LEVELS
 from flyover.io.results.levels_overall import LEVELS_OVERALL
 from flyover.io.results.signoff import signoff_statuses
@@ -106,4 +106,4 @@ def run(campaign: Campaign, out_dir: Path) -> None:
         parts.append(s)
     overall_summary = pd.concat(parts, ignore_index=True)
     CAMPAIGN_OVERALL.write(out_dir, overall_summary)
-    save_figure(campaign_figure(overall_summary), out_dir / "campaign_overall.png")
+    save_figure(campaign_figure(overall_summary), CAMPAIGN_FIGURE.path(out_dir))

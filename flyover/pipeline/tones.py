@@ -15,7 +15,7 @@ from flyover.acoustics.orders import SEPARATION_CORRELATION, OrderTrack, fit_ord
 from flyover.forward.moving_source import ShaftSpeed
 from flyover.io.figures import rotor_tones_figure, save_figure
 from flyover.io.results.levels import LEVELS
-from flyover.io.results.rotor_tones import BAND_PARTS, ROTOR_TONES
+from flyover.io.results.rotor_tones import BAND_PARTS, ROTOR_TONES, ROTOR_TONES_FIGURE
 from flyover.io.results.windows import read_analysed
 from flyover.model.campaign import PASS_INPUTS, Campaign
 from flyover.model.constants import TOTAL
@@ -42,7 +42,7 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> None:
     ROTOR_TONES.write(out_dir, tones)
     BAND_PARTS.write(out_dir, band_parts(LEVELS.read(out_dir), tones, campaign))
     save_figure(rotor_tones_figure(tones, pass_name, NO_SPEEDS if not inputs.rotors else ""),
-                out_dir / "rotor_tones.png")
+                ROTOR_TONES_FIGURE.path(out_dir))
 
 
 def window_speed(rotor, start_s: float, end_s: float) -> ShaftSpeed:

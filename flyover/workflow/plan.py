@@ -18,7 +18,8 @@ from flyover.acoustics.bands import third_octave_bands
 from flyover.imaging.dedoppler import ChainSettings, window_memory_bytes
 from flyover.io.config import load_campaign
 from flyover.io.readers import read
-from flyover.io.results import hemisphere
+from flyover.io.results import file_name, hemisphere, steps
+from flyover.io.results.campaign_tables import CAMPAIGN_LEVELS
 from flyover.io.scenario import load_scenario
 from flyover.model.campaign import Campaign, pass_array
 from flyover.model.errors import FlyoverInputError
@@ -194,17 +195,36 @@ class CampaignPlan:
     def _fingerprint(self, stage: str, pass_name: str | None) -> str:
         return json.dumps(stage_settings(self.campaign, stage, pass_name), sort_keys=True)
 
+    @property
+    def output_pattern(self) -> str:
+        """The output folder as a Snakemake pattern (braces doubled: they mark wildcards)."""
+        return self.output.replace("{", "{{").replace("}", "}}")
+
+    def step_outputs(self, step: str) -> dict[str, str]:
+        """A step's result files as patterns, by output key (:mod:`flyover.io.results.steps`):
+        a pass step's under the ``{pass_name}`` wildcard."""
+        where = (f"{self.output_pattern}/{{pass_name}}" if step in steps.PASS_STEPS
+                 else self.output_pattern)
+        return {key: f"{where}/{name}" for key, name in steps.step_files(step).items()}
+
     def pass_results(self, files) -> list[str]:
-        return [f"{self.output}/{p}/{f}" for p in self.passes for f in files]
+        """Some result files (names or descriptors) of every pass, as patterns."""
+        return [f"{self.output_pattern}/{p}/{file_name(f)}" for p in self.passes for f in files]
+
+    def pass_step_results(self, *names: str) -> list[str]:
+        """Everything some pass steps write, for every pass, as patterns."""
+        return self.pass_results([f for n in names for f in steps.step_files(n).values()])
 
     def hemisphere_files(self) -> list[str]:
         """Every label's hemisphere files (:mod:`flyover.io.results.hemisphere`)."""
         labels = (p.label for p in self.campaign.passes.values())
-        return [f"{self.output}/{hemisphere.FOLDER}/{folder}/{f}"
+        return [f"{self.output_pattern}/{hemisphere.FOLDER}/{folder}/{f}"
                 for folder in hemisphere.label_folders(labels).values()
                 for f in hemisphere.FILES]
 
     def targets(self) -> list[str]:
-        return [f"{self.output}/report.html", f"{self.output}/campaign_levels.csv"]
+        """The whole campaign: the report and the campaign tables."""
+        return list(self.step_outputs("report").values()) + [
+            f"{self.output_pattern}/{CAMPAIGN_LEVELS.name}"]
 
 

@@ -26,6 +26,8 @@ from flyover.io.results.alignment import read_alignment
 from flyover.io.results.levels import LEVELS
 from flyover.io.results.signoff import SIGNOFF
 from flyover.io.results.windows import NO_WINDOW, WINDOWS
+from flyover.io.results import report as report_file
+from flyover.io.results.steps import pass_steps_done
 from flyover.model.campaign import Campaign
 from flyover.model.errors import FlyoverInputError
 
@@ -143,8 +145,7 @@ class RunState:
         # A pass once done stays counted: a later step of it (a check, the metrics) does not
         # take the count back.
         self.passes_done |= {p for p in passes if p in finished and p not in busy
-                             and (out / p / "levels.csv").exists()
-                             and (out / p / "qc_track.png").exists()}
+                             and pass_steps_done(out / p)}
         steps = f"{self.done_steps}/{self.total_steps} steps" if self.total_steps else "starting"
         text = (f"{steps} | running: {', '.join(parts) or '-'} | passes done "
                 f"{len(self.passes_done & set(passes))}/{len(passes)}")
@@ -394,7 +395,7 @@ def summary_text(campaign: Campaign, wall_s: float, log_path: Path) -> str:
         signed = None
     for name in campaign.passes:
         folder = out / name
-        complete = (folder / "levels.csv").exists() and (folder / "qc_track.png").exists()
+        complete = pass_steps_done(folder)
         done += complete
         status = ""
         if signed is not None and name in signed.index:
@@ -405,7 +406,7 @@ def summary_text(campaign: Campaign, wall_s: float, log_path: Path) -> str:
         lines.append(f"  {name}: {'done' if complete else 'not complete'}{status}")
         lines += [f"    {w}" for w in reasons]
         lines += [f"    warning: {w}" for w in pass_warnings(folder)]
-    report = out / "report.html"
+    report = out / report_file.NAME
     head = f"passes done: {done} of {len(campaign.passes)}"
     tail = [f"report: {report}" if report.exists() else "report: not written",
             f"workflow log: {log_path}", f"wall time: {_duration(wall_s)}"]

@@ -87,6 +87,30 @@ class TableFile:
         return f"`{self.name}`\n" + "\n".join(rows)
 
 
+@dataclass(frozen=True)
+class FigureFile:
+    """A figure a step writes.
+
+    Attributes
+    ----------
+    name : str
+        File name inside its folder.
+    caption : str
+        What it shows (the report's caption and alternative text).
+    """
+
+    name: str
+    caption: str
+
+    def path(self, folder) -> Path:
+        return Path(folder) / self.name
+
+
+def file_name(result) -> str:
+    """The file name of a result: a :class:`TableFile`'s or :class:`FigureFile`'s, or a name."""
+    return result if isinstance(result, str) else result.name
+
+
 def write_json(folder, name: str, data: dict) -> Path:
     """Write a JSON result file (sorted keys, indented: stable bytes for identical results)."""
     path = Path(folder) / name

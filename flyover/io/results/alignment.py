@@ -9,10 +9,11 @@ from __future__ import annotations
 from pathlib import Path
 
 from flyover.acoustics.atmosphere import Atmosphere
-from flyover.io.results import read_json, write_json
+from flyover.io.results import FigureFile, read_json, write_json
 from flyover.model.errors import FlyoverInputError
 
 NAME = "alignment.json"
+TRACK_FIGURE = FigureFile("track.png", "the track over the array, as aligned")
 REQUIRED_KEYS = {
     "clock_offset_s": "s, the clock offset used (config value or estimate)",
     "epoch_utc_ns": "ns since 1970 UTC of the first sample",

@@ -1,6 +1,6 @@
 """``campaign_levels.csv`` and ``campaign_overall.csv``: means over the passes of each label."""
 
-from flyover.io.results import TableFile
+from flyover.io.results import FigureFile, TableFile
 
 _STATISTICS = (
     ("polar_bin_deg", "deg, centre of the 10 deg polar bin"),
@@ -19,6 +19,7 @@ _STATISTICS = (
     ("passes_flagged", "those of them the sign-off flagged (signoff.csv says why)"),
     ("wide_interval", "interval wider than +-1.5 dB"),
 )
+CAMPAIGN_FIGURE = FigureFile("campaign_overall.png", "campaign A-weighted levels")
 CAMPAIGN_LEVELS = TableFile("campaign_levels.csv", (
     ("label", "configuration label"), ("region", "region name, or 'total'"),
     ("band_hz", "nominal midband")) + _STATISTICS, float_format="%.3f")

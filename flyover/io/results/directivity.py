@@ -1,7 +1,8 @@
 """``directivity.csv``: level against polar angle, one row per region and window."""
 
-from flyover.io.results import TableFile
+from flyover.io.results import FigureFile, TableFile
 
+DIRECTIVITY_FIGURE = FigureFile("directivity.png", "directivity")
 DIRECTIVITY = TableFile("directivity.csv", (
     ("region", "region name, or 'total'"),
     ("window", "index"),

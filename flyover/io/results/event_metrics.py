@@ -4,12 +4,14 @@
 10 ms; ``band_history.csv``: one-third-octave band levels every 0.5 s.
 """
 
-from flyover.io.results import TableFile
+from flyover.io.results import FigureFile, TableFile
 
 SHORTFALL = ("dB, how much LAE may miss where the 10 dB-down interval is cut short: estimated "
              "for a straight flight whose sound falls off by spherical spreading beyond the cut "
              "(0 when complete, inf where the cut may hold the peak)")
 
+LEVEL_HISTORY_FIGURE = FigureFile("level_history.png",
+                                  "A-weighted level and band levels against time")
 EVENT_METRICS = TableFile("event_metrics.csv", (
     ("channel", "layout channel of the reference microphone"),
     ("lafmax_db", "dB(A) re 20 uPa, maximum of the F-weighted level (IEC 61672-1, 125 ms)"),

@@ -15,7 +15,7 @@ import pandas as pd
 import xarray as xr
 
 from flyover.io.atomic import atomic_path
-from flyover.io.results import TableFile
+from flyover.io.results import FigureFile, TableFile
 
 FOLDER = "hemispheres"
 CUBE_NAME = "hemisphere.nc"
@@ -53,7 +53,9 @@ HEMISPHERE = TableFile("hemisphere.csv", (
     ("fit_residual_db", "dB, level_db - fit_db"),
 ), float_format="%.3f")
 
-FILES = (HEMISPHERE.name, CUBE_NAME, "hemisphere.png", "coverage.png")
+HEMISPHERE_FIGURE = FigureFile("hemisphere.png", "hemispheres")
+COVERAGE_FIGURE = FigureFile("coverage.png", "coverage")
+FILES = (HEMISPHERE.name, CUBE_NAME, HEMISPHERE_FIGURE.name, COVERAGE_FIGURE.name)
 _VARIABLES = {
     "level_db": {"long_name": "component band level at 1 m, free field", "units": "dB",
                  "reference": "20 uPa"},

@@ -15,6 +15,25 @@ import numpy as np
 from flyover.io.atomic import atomic_path
 
 NAME = "maps.npz"
+# The per-window map figures: a folder of the pass, one figure per window (and per method
+# compared with the headline one).
+FIGURE_FOLDER = "maps"
+
+
+def window_figure_name(window: int, method: str | None = None) -> str:
+    """The map figure of a window (of another method than the headline one)."""
+    return f"window-{window:03d}.png" if method is None else f"window-{window:03d}-{method}.png"
+
+
+def method_figures(folder) -> list[tuple[int, str, Path]]:
+    """The map figures of other methods than the headline one in a pass's folder: (window,
+    method, path) each, in name order."""
+    found = []
+    for path in sorted((Path(folder) / FIGURE_FOLDER).glob("window-*-*.png")):
+        window, method = path.stem.split("-", 2)[1:]
+        found.append((int(window), method, path))
+    return found
+
 UNITS = ("Pa^2: band power of the source strength at 1 m; axes (window, band, x_m, y_m); body "
          "axes x forward, y starboard")
 

@@ -2,8 +2,9 @@
 levels split into their rotors' tonal part and the broadband rest."""
 
 from flyover.acoustics.orders import SEPARATION_CORRELATION
-from flyover.io.results import TableFile
+from flyover.io.results import FigureFile, TableFile
 
+ROTOR_TONES_FIGURE = FigureFile("rotor_tones.png", "rotor harmonics against polar angle")
 ROTOR_TONES = TableFile("rotor_tones.csv", (
     ("window", "index"),
     ("time_utc", "ISO 8601 UTC, emission time of the window centre"),

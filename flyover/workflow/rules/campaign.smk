@@ -4,11 +4,9 @@
 
 rule signoff:
     input:
-        PLAN.pass_results(("alignment.json", "windows.csv", "event_metrics.csv",
-                           "reconstructed_metrics.csv", "track_check.json")),
+        PLAN.pass_step_results("align", "image", "metrics", "trackcheck"),
     output:
-        table=update(f"{OUTP}/signoff.csv"),
-        record=update(f"{OUTP}/signoff.json"),
+        **outputs("signoff"),
     params:
         fingerprint=PLAN.campaign_fingerprint("signoff"),
     log:
@@ -26,15 +24,13 @@ rule signoff:
 
 rule campaign_summary:
     input:
-        PLAN.pass_results(("levels.csv",)),
-        rules.signoff.output.table,     # rejected passes are left out
+        PLAN.pass_step_results("levels"),
+        rules.signoff.output.signoff_csv,     # rejected passes are left out
     output:
         # Each pass's overall levels sum its label's band range: they follow from all the
         # label's passes, so they are written here.
-        pass_overall=update(PLAN.pass_results(("levels_overall.csv",))),
-        levels=update(f"{OUTP}/campaign_levels.csv"),
-        overall=update(f"{OUTP}/campaign_overall.csv"),
-        figure=update(f"{OUTP}/campaign_overall.png"),
+        pass_overall=update(PLAN.pass_results(SUMMARY_PASS_FILES)),
+        **outputs("summary"),
     params:
         fingerprint=PLAN.campaign_fingerprint("summary"),
     log:
@@ -52,10 +48,10 @@ rule campaign_summary:
 
 rule hemispheres:
     input:
-        PLAN.pass_results(("levels.csv",)),
-        rules.signoff.output.table,
+        PLAN.pass_step_results("levels"),
+        rules.signoff.output.signoff_csv,
     output:
-        update([f.replace("{", "{{").replace("}", "}}") for f in PLAN.hemisphere_files()]),
+        update(PLAN.hemisphere_files()),
     params:
         fingerprint=PLAN.campaign_fingerprint("hemispheres"),
     log:
@@ -76,13 +72,10 @@ rule report:
         rules.campaign_summary.output,
         rules.hemispheres.output,
         rules.signoff.output,
-        PLAN.pass_results(("alignment.json", "windows.csv", "qc_track.png", "qc_spectrogram.png",
-                           "spectra.png", "directivity.png", "event_metrics.csv",
-                           "level_history.png", "reconstructed_metrics.csv",
-                           "rotor_tones.csv", "band_parts.csv", "rotor_tones.png")),
+        PLAN.pass_step_results("align", "image", "qc", "levels", "metrics", "tones"),
         PLAN.input_files(),
     output:
-        update(f"{OUTP}/report.html"),
+        **outputs("report"),
     params:
         fingerprint=PLAN.campaign_fingerprint("report"),
     log:

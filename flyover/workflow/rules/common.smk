@@ -5,6 +5,8 @@ import re
 import sys
 from pathlib import Path
 
+from flyover.io.results.maps import FIGURE_FOLDER as MAP_FIGURES
+from flyover.io.results.steps import SUMMARY_PASS_FILES
 from flyover.model.errors import FlyoverInputError
 from flyover.workflow.plan import CampaignPlan
 
@@ -21,7 +23,19 @@ except FlyoverInputError as exc:
 
 # OUT is a real folder name; OUTP the same as a Snakemake pattern (braces are wildcards there).
 OUT = PLAN.output
-OUTP = OUT.replace("{", "{{").replace("}", "}}")
+OUTP = PLAN.output_pattern
+
+
+def outputs(step):
+    """A step's result files (flyover.io.results.steps) as a rule's named outputs, each
+    flagged update() (see pass.smk)."""
+    return {key: update(path) for key, path in PLAN.step_outputs(step).items()}
+
+
+def results_of(*steps):
+    """The result files of some steps of the same pass, as a rule's named inputs."""
+    return {key: path for step in steps for key, path in PLAN.step_outputs(step).items()}
+
 
 # Snakemake's records and lock live with the results, wherever the run was started from.
 workdir: OUT

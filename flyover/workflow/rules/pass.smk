@@ -11,8 +11,7 @@ rule align:
     input:
         unpack(lambda w: PLAN.pass_inputs(w.pass_name)),
     output:
-        json=update(f"{OUTP}/{{pass_name}}/alignment.json"),
-        png=update(f"{OUTP}/{{pass_name}}/track.png"),
+        **outputs("align"),
     params:
         fingerprint=lambda w: PLAN.fingerprint(w.pass_name, "align"),
     log:
@@ -31,12 +30,10 @@ rule align:
 rule image:
     input:
         unpack(lambda w: PLAN.pass_inputs(w.pass_name)),
-        alignment=f"{OUTP}/{{pass_name}}/alignment.json",
+        **results_of("align"),
     output:
-        maps=update(f"{OUTP}/{{pass_name}}/maps.npz"),
-        windows=update(f"{OUTP}/{{pass_name}}/windows.csv"),
-        regions=update(f"{OUTP}/{{pass_name}}/region_power.csv"),
-        figures=update(directory(f"{OUTP}/{{pass_name}}/maps")),
+        **outputs("image"),
+        figures=update(directory(f"{OUTP}/{{pass_name}}/{MAP_FIGURES}")),
     params:
         fingerprint=lambda w: PLAN.fingerprint(w.pass_name, "image"),
     log:
@@ -55,16 +52,9 @@ rule image:
 
 rule levels:
     input:
-        alignment=f"{OUTP}/{{pass_name}}/alignment.json",
-        windows=f"{OUTP}/{{pass_name}}/windows.csv",
-        regions=f"{OUTP}/{{pass_name}}/region_power.csv",
+        **results_of("align", "image"),
     output:
-        levels=update(f"{OUTP}/{{pass_name}}/levels.csv"),
-        by_method=update(f"{OUTP}/{{pass_name}}/levels_by_method.csv"),
-        spectra=update(f"{OUTP}/{{pass_name}}/spectra.csv"),
-        directivity=update(f"{OUTP}/{{pass_name}}/directivity.csv"),
-        spectra_png=update(f"{OUTP}/{{pass_name}}/spectra.png"),
-        directivity_png=update(f"{OUTP}/{{pass_name}}/directivity.png"),
+        **outputs("levels"),
     params:
         fingerprint=lambda w: PLAN.fingerprint(w.pass_name, "levels"),
     log:
@@ -84,10 +74,9 @@ rule levels:
 
 rule trackcheck:
     input:
-        alignment=f"{OUTP}/{{pass_name}}/alignment.json",
-        levels=f"{OUTP}/{{pass_name}}/levels.csv",
+        **results_of("align", "levels"),
     output:
-        update(f"{OUTP}/{{pass_name}}/track_check.json"),
+        **outputs("trackcheck"),
     params:
         fingerprint=lambda w: PLAN.fingerprint(w.pass_name, "trackcheck"),
     log:
@@ -108,14 +97,9 @@ rule trackcheck:
 rule metrics:
     input:
         unpack(lambda w: PLAN.pass_inputs(w.pass_name)),
-        alignment=f"{OUTP}/{{pass_name}}/alignment.json",
-        levels=f"{OUTP}/{{pass_name}}/levels.csv",
+        **results_of("align", "levels"),
     output:
-        metrics=update(f"{OUTP}/{{pass_name}}/event_metrics.csv"),
-        rebuilt=update(f"{OUTP}/{{pass_name}}/reconstructed_metrics.csv"),
-        history=update(f"{OUTP}/{{pass_name}}/level_history.csv"),
-        bands=update(f"{OUTP}/{{pass_name}}/band_history.csv"),
-        figure=update(f"{OUTP}/{{pass_name}}/level_history.png"),
+        **outputs("metrics"),
     params:
         fingerprint=lambda w: PLAN.fingerprint(w.pass_name, "metrics"),
     log:
@@ -136,13 +120,9 @@ rule metrics:
 rule tones:
     input:
         unpack(lambda w: PLAN.pass_inputs(w.pass_name)),
-        alignment=f"{OUTP}/{{pass_name}}/alignment.json",
-        windows=f"{OUTP}/{{pass_name}}/windows.csv",
-        levels=f"{OUTP}/{{pass_name}}/levels.csv",
+        **results_of("align", "image", "levels"),
     output:
-        tones=update(f"{OUTP}/{{pass_name}}/rotor_tones.csv"),
-        parts=update(f"{OUTP}/{{pass_name}}/band_parts.csv"),
-        figure=update(f"{OUTP}/{{pass_name}}/rotor_tones.png"),
+        **outputs("tones"),
     params:
         fingerprint=lambda w: PLAN.fingerprint(w.pass_name, "tones"),
     log:
@@ -163,11 +143,9 @@ rule tones:
 rule qc:
     input:
         unpack(lambda w: PLAN.pass_inputs(w.pass_name)),
-        alignment=f"{OUTP}/{{pass_name}}/alignment.json",
-        windows=f"{OUTP}/{{pass_name}}/windows.csv",
+        **results_of("align", "image"),
     output:
-        track=update(f"{OUTP}/{{pass_name}}/qc_track.png"),
-        spectrogram=update(f"{OUTP}/{{pass_name}}/qc_spectrogram.png"),
+        **outputs("qc"),
     params:
         fingerprint=lambda w: PLAN.fingerprint(w.pass_name, "qc"),
     log:

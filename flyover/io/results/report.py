@@ -1,0 +1,3 @@
+"""``report.html``: the campaign's self-contained report."""
+
+NAME = "report.html"

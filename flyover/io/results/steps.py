@@ -1,0 +1,69 @@
+"""Which result files each workflow step writes: the one list that the workflow's rules, the
+run's progress and the report take the names from (the files themselves are described in the
+modules of this package).
+
+A pass step writes into the pass's folder, a campaign step into the campaign's; the summary
+also writes one file into every pass's folder (``SUMMARY_PASS_FILES``), the image step a
+folder of map figures (:data:`flyover.io.results.maps.FIGURE_FOLDER`) and the hemispheres step
+a folder per label (:mod:`flyover.io.results.hemisphere`).
+"""
+
+from __future__ import annotations
+
+import re
+from pathlib import Path
+
+from flyover.io.results import alignment, file_name, maps, qc, report, track_check
+from flyover.io.results.campaign_tables import CAMPAIGN_FIGURE, CAMPAIGN_LEVELS, CAMPAIGN_OVERALL
+from flyover.io.results.directivity import DIRECTIVITY, DIRECTIVITY_FIGURE
+from flyover.io.results.event_metrics import (BAND_HISTORY, EVENT_METRICS, LEVEL_HISTORY,
+                                              LEVEL_HISTORY_FIGURE, RECONSTRUCTED)
+from flyover.io.results.levels import LEVELS, LEVELS_BY_METHOD
+from flyover.io.results.levels_overall import LEVELS_OVERALL
+from flyover.io.results.region_power import REGION_POWER
+from flyover.io.results.rotor_tones import BAND_PARTS, ROTOR_TONES, ROTOR_TONES_FIGURE
+from flyover.io.results.signoff import SIGNOFF, SIGNOFF_JSON
+from flyover.io.results.spectra import SPECTRA, SPECTRA_FIGURE
+from flyover.io.results.windows import WINDOWS
+
+PASS_STEPS = {
+    "align": (alignment.NAME, alignment.TRACK_FIGURE),
+    "image": (maps.NAME, WINDOWS, REGION_POWER),
+    "levels": (LEVELS, LEVELS_BY_METHOD, SPECTRA, DIRECTIVITY, SPECTRA_FIGURE,
+               DIRECTIVITY_FIGURE),
+    "trackcheck": (track_check.NAME,),
+    "metrics": (EVENT_METRICS, RECONSTRUCTED, LEVEL_HISTORY, BAND_HISTORY, LEVEL_HISTORY_FIGURE),
+    "tones": (ROTOR_TONES, BAND_PARTS, ROTOR_TONES_FIGURE),
+    "qc": (qc.TRACK_FIGURE, qc.SPECTROGRAM_FIGURE),
+}
+CAMPAIGN_STEPS = {
+    "signoff": (SIGNOFF, SIGNOFF_JSON),
+    "summary": (CAMPAIGN_LEVELS, CAMPAIGN_OVERALL, CAMPAIGN_FIGURE),
+    "report": (report.NAME,),
+}
+SUMMARY_PASS_FILES = (LEVELS_OVERALL,)
+
+
+def output_key(result) -> str:
+    """A Python name for a result file (``levels.csv`` -> ``levels_csv``): the key of a rule's
+    output."""
+    return re.sub(r"\W", "_", file_name(result))
+
+
+def step_files(step: str) -> dict[str, str]:
+    """The files a step writes, by :func:`output_key`: names inside the pass's folder for a
+    pass step, the campaign's folder for a campaign step."""
+    files = PASS_STEPS[step] if step in PASS_STEPS else CAMPAIGN_STEPS[step]
+    return {output_key(f): file_name(f) for f in files}
+
+
+def pass_steps_done(folder) -> bool:
+    """Whether every pass step has written its files into a pass's folder."""
+    return all((Path(folder) / file_name(f)).exists() for files in PASS_STEPS.values()
+               for f in files)
+
+
+def pass_files() -> list[str]:
+    """Every file a finished run leaves in a pass's folder (the map figures' folder apart)."""
+    return [file_name(f) for files in PASS_STEPS.values() for f in files] + [
+        file_name(f) for f in SUMMARY_PASS_FILES]
