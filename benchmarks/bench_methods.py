@@ -38,11 +38,11 @@ from flyover.forward.moving_source import (Broadband, PointSource, Propagator,  
                                            SourceSignal, Tone, received_pressure_pa)
 from flyover.geometry.track import straight_track  # noqa: E402
 from flyover.geometry.windows import plan_windows  # noqa: E402
-from flyover.imaging.dedoppler import ChainSettings  # noqa: E402
+from flyover.imaging.chain import ChainSettings  # noqa: E402
 from flyover.imaging.methods import method_named  # noqa: E402
 from flyover.imaging.window import (blas_on_one_thread, image_window,  # noqa: E402
                                     window_context)
-from flyover.model.campaign import Region, VehicleGrid  # noqa: E402
+from flyover.geometry.vehicle import Region, VehicleGrid  # noqa: E402
 from flyover.sim.scenario import incoherent_noise_pa, spiral_layout  # noqa: E402
 from flyover.model.timebase import ArrayClock, RecordingClock  # noqa: E402
 
@@ -86,8 +86,8 @@ def per_microphone_method():
     per point, unit sources simulated and mapped through the same chain."""
     from dataclasses import replace
 
-    from flyover.imaging.dedoppler import (_per_microphone_band_powers, _UsedChain,
-                                           absorption_gains)
+    from flyover.imaging.dedoppler import _per_microphone_band_powers, _UsedChain
+    from flyover.imaging.reception import absorption_gains
     from flyover.imaging.methods.time_domain import simulated_point_spread
 
     def band_maps(signals, ctx):

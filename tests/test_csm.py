@@ -11,10 +11,10 @@ from test_dedoppler import (CLOCK, MICS, one_source_pass, rows, windows_near_ove
 from flyover.acoustics.bands import third_octave_bands
 from flyover.forward.moving_source import Broadband, PointSource, Tone
 from flyover.imaging.csm import Steering, clean_sc, conventional_maps, functional_maps
-from flyover.imaging.dedoppler import ChainSettings
+from flyover.imaging.chain import ChainSettings
 from flyover.imaging.methods import method_named
 from flyover.imaging.window import image_window, window_context
-from flyover.model.campaign import Region, VehicleGrid
+from flyover.geometry.vehicle import Region, VehicleGrid
 
 GRID = VehicleGrid((-2.6, 2.6), (-1.2, 1.2), 0.2)
 REGIONS = {"front": Region("front", (0.5, 1.9), (-0.7, 0.7)),
@@ -151,7 +151,7 @@ def test_bands_with_too_few_lines_in_the_welch_blocks_are_flagged():
     # a band with fewer than three lines there is flagged (with the reason), not left empty
     # silently. 0.25 s at 12.8 kHz: 16 Hz lines in the blocks, 4 Hz in the window; the 125 Hz
     # band (29 Hz wide) holds 1-2 lines in the blocks, 7 in the window.
-    from flyover.imaging.dedoppler import reception_geometry, valid_bands
+    from flyover.imaging.reception import reception_geometry, valid_bands
     track, atm, _, _ = one_source_pass(PointSource("s", (0, 0, 0), tones=(Tone(500.0, 80.0),)))
     w = windows_near_overhead(track, 10)[0]
     st = ChainSettings(third_octave_bands(125, 1000), np.ones(len(MICS)), 2.0)

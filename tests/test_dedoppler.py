@@ -11,13 +11,14 @@ from flyover.forward.moving_source import (Broadband, PointSource, Propagator, S
                                            received_pressure_pa)
 from flyover.geometry.windows import plan_windows
 from flyover.imaging import _kernels
-from flyover.imaging.dedoppler import (OVERSAMPLING, ChainSettings, dedopplerized_signals,
-                                       oversampled, reception_geometry, required_frames,
-                                       signal_band_power, window_band_powers)
+from flyover.imaging.chain import ChainSettings, signal_band_power
+from flyover.imaging.dedoppler import (OVERSAMPLING, dedopplerized_signals, oversampled,
+                                       window_band_powers)
+from flyover.imaging.reception import reception_geometry, required_frames
 from flyover.imaging.methods import method_named
 from flyover.imaging.resolution import main_lobe_width_m
 from flyover.imaging.window import image_window, window_context
-from flyover.model.campaign import Region, VehicleGrid
+from flyover.geometry.vehicle import Region, VehicleGrid
 from flyover.geometry.track import straight_track
 from flyover.sim.scenario import incoherent_noise_pa, spiral_layout
 from flyover.model.timebase import ArrayClock, RecordingClock
@@ -167,7 +168,7 @@ def test_tabulated_absorption_gains_match_direct_evaluation():
     # The chain's absorption gains are read from a table over M_r and distance; against the
     # band-mean gain evaluated directly (ISO 9613-1 per sub-frequency) for every grid point
     # and microphone of a window 60 degrees before overhead, where both vary most.
-    from flyover.imaging.dedoppler import _band_power_gains, absorption_gains, reception_geometry
+    from flyover.imaging.reception import _band_power_gains, absorption_gains, reception_geometry
     atm = Atmosphere(10.0, 40.0)
     track, *_ = straight_track(30.0, 40.0, 90.0, 2.0, -3.0, 7.0)
     window = plan_windows(track, MICS.mean(0), (0.2, 3.8), 0.25, 0.25, 51200.0)[0]
@@ -417,8 +418,9 @@ def test_summed_chain_matches_every_microphones_spectra(top_hz, wind):
     # gains, autopowers from a time-warped reference point, reduced rate after a low-pass)
     # against the maps from every microphone's own spectrum (the direct definition of the
     # design notes' band powers): two sources and noise, absorption on, in calm air and wind.
-    from flyover.imaging.dedoppler import (_per_microphone_band_powers, _UsedChain,
-                                           absorption_gains, decimation, window_band_powers)
+    from flyover.imaging.dedoppler import (_per_microphone_band_powers, _UsedChain, decimation,
+                                           window_band_powers)
+    from flyover.imaging.reception import absorption_gains
     front = PointSource("front", (1.2, 0.0, 0.0), tones=(Tone(630.0, 88.0),),
                         broadband=Broadband(86.0, -2.0, 100.0, 5000.0), seed=11)
     rear = PointSource("rear", (-1.4, 0.3, 0.0), broadband=Broadband(84.0, 0.0, 100.0, 5000.0),
@@ -453,7 +455,8 @@ def test_gain_terms_are_the_fewest_within_tolerance():
     # gains to 5 kHz, 60 degrees from overhead): every gain within GAIN_TOLERANCE of the
     # largest, one term fewer is not; and no rank-k form of the stacked band profiles does
     # better than the truncated SVD (Eckart-Young), which numpy's SVD gives as the reference.
-    from flyover.imaging.dedoppler import GAIN_TOLERANCE, absorption_gains, gain_terms
+    from flyover.imaging.dedoppler import GAIN_TOLERANCE, gain_terms
+    from flyover.imaging.reception import absorption_gains
     track, atm, _, _ = one_source_pass([PointSource("a", (0.0, 0.0, 0.0), tones=(
         Tone(500.0, 80.0),))], noise_spl_db=40.0)
     st = ChainSettings(third_octave_bands(200, 5000), np.ones(len(MICS)), 2.0)
@@ -494,7 +497,8 @@ def test_sinc_oversampling_is_done_once_a_window(monkeypatch):
     # per chunk of grid points, in both time-domain chains.
     from flyover.imaging import dedoppler
     from flyover.imaging.dedoppler import (_per_microphone_band_powers, _summed_band_powers,
-                                           _UsedChain, absorption_gains)
+                                           _UsedChain)
+    from flyover.imaging.reception import absorption_gains
     src = PointSource("s", (0.5, 0.0, 0.0), broadband=Broadband(86.0, 0.0, 100.0, 3000.0),
                       seed=4)
     track, atm, _, p = one_source_pass([src])

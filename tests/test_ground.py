@@ -17,13 +17,14 @@ from flyover.forward.moving_source import (Broadband, PointSource, Propagator, S
                                            received_pressure_pa)
 from flyover.geometry.track import straight_track
 from flyover.geometry.windows import plan_windows
-from flyover.imaging.dedoppler import (ChainSettings, reception_geometry, required_frames,
-                                       signal_band_power, window_band_powers)
+from flyover.imaging.chain import ChainSettings, signal_band_power
+from flyover.imaging.dedoppler import window_band_powers
+from flyover.imaging.reception import reception_geometry, required_frames
 from flyover.imaging.methods import method_named
 from flyover.imaging.window import image_window, window_context
 from flyover.io.config import load_campaign
 from flyover.io.results.alignment import read_alignment
-from flyover.model.campaign import Region, VehicleGrid
+from flyover.geometry.vehicle import Region, VehicleGrid
 from flyover.pipeline import align, image, levels
 from flyover.sim.scenario import incoherent_noise_pa, spiral_layout
 from flyover.model.timebase import ArrayClock, RecordingClock

@@ -11,7 +11,9 @@ from flyover.io.readers import KINDS, reader_for, readers
 
 PACKAGE = Path(flyover.__file__).resolve().parent
 CORE = ("model", "geometry", "acoustics", "forward", "imaging", "sync")
-EDGES = ("flyover.io", "flyover.pipeline", "flyover.workflow", "flyover.cli", "flyover.sim")
+# The campaign record (flyover.campaign) sits above the physics: it holds their types.
+EDGES = ("flyover.io", "flyover.pipeline", "flyover.workflow", "flyover.cli", "flyover.sim",
+         "flyover.campaign")
 
 
 def imported_modules(path: Path) -> set[str]:
@@ -33,6 +35,16 @@ def test_core_never_imports_the_edges():
             assert "from ." not in path.read_text(), f"{path}: use absolute imports"
             bad = [m for m in imported_modules(path) if m.startswith(EDGES)]
             offenders += [f"{path.relative_to(PACKAGE)} imports {m}" for m in bad]
+    assert offenders == []
+
+
+def test_the_ground_floor_stands_on_nothing():
+    # model holds what every layer uses (errors, constants, plugins, the time base, the read
+    # guard): it imports no other part of flyover.
+    offenders = [f"{path.relative_to(PACKAGE)} imports {m}"
+                 for path in (PACKAGE / "model").rglob("*.py")
+                 for m in imported_modules(path)
+                 if m.startswith("flyover.") and not m.startswith("flyover.model")]
     assert offenders == []
 
 
@@ -123,3 +135,12 @@ def test_the_package_face_loads_nothing_heavy_until_asked():
     assert loaded == "[]"
     for name in flyover.__all__:
         assert getattr(flyover, name) is not None
+
+
+def test_the_result_files_reference_is_current():
+    # docs/result-files.md is written from the files' own descriptions; a column added to a
+    # TableFile without regenerating it fails here.
+    from flyover.io.results.steps import describe_all
+    written = (PACKAGE.parent / "docs" / "result-files.md").read_text(encoding="utf-8")
+    assert written == describe_all(), ("docs/result-files.md is stale: run `python -m "
+                                       "flyover.io.results.steps > docs/result-files.md`")

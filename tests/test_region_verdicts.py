@@ -10,14 +10,14 @@ from test_dedoppler import CLOCK, FS, MICS, one_source_pass, rows, windows_near_
 
 from flyover.acoustics.bands import third_octave_bands
 from flyover.forward.moving_source import Broadband, PointSource, Tone
-from flyover.imaging.dedoppler import ChainSettings, signal_band_power
+from flyover.imaging.chain import ChainSettings, signal_band_power
 from flyover.imaging.integration import (DOMINANT_NOTE, SHIFT_LOBE_LEVEL, SHIFT_TOLERANCE_DB,
                                          region_verdicts, shift_changes_db, shift_distances_m)
 from flyover.imaging.methods import method_named
 from flyover.imaging.methods.time_domain import modelled_point_spread, simulated_point_spread
 from flyover.imaging.planning import main_lobe_m
 from flyover.imaging.window import image_window, window_context
-from flyover.model.campaign import Region, VehicleGrid
+from flyover.geometry.vehicle import Region, VehicleGrid
 
 GRID = VehicleGrid((-2.0, 2.0), (-1.2, 1.2), 0.1)
 BANDS = third_octave_bands(500, 1600)

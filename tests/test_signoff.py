@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from flyover.model.campaign import SignoffLimits, WeatherLimits
+from flyover.campaign import SignoffLimits, WeatherLimits
 from flyover.model.signoff import ACCEPTED, FLAGGED, REJECTED, status_of
 from flyover.model.signoff import label_findings
 from flyover.pipeline.signoff import pass_findings

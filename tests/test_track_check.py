@@ -15,7 +15,7 @@ from conftest import TINY_SCENARIO
 from flyover.acoustics.bands import third_octave_bands
 from flyover.geometry.windows import plan_windows
 from flyover.io.config import load_campaign
-from flyover.model.campaign import SignoffLimits
+from flyover.campaign import SignoffLimits
 from flyover.pipeline.context import chain_settings, load_pass
 from flyover.pipeline.signoff import track_findings
 from flyover.pipeline.trackcheck import CHECK_POLAR_OFFSET_DEG

@@ -197,7 +197,7 @@ def test_lever_arm_moves_a_pitched_and_rolled_track_to_the_body_origin(tiny_copy
 
     from flyover.geometry.frames import attitude_rotation, enu_from_body_matrix
     from flyover.io.config import load_campaign
-    from flyover.io.scenario import load_scenario
+    from flyover.sim.scenario_file import load_scenario
     from flyover.model.timebase import iso_utc
     from flyover.pipeline.context import load_pass
     from flyover.sim.scenario import pass_truth_track
@@ -240,7 +240,7 @@ def test_a_pass_flown_with_an_autopilot_log_and_its_rotor_speeds(tiny_copy, caps
 
     from flyover.cli import main
     from flyover.io.config import load_campaign
-    from flyover.io.scenario import load_scenario
+    from flyover.sim.scenario_file import load_scenario
     from flyover.pipeline.context import load_pass
     from flyover.sim.scenario import pass_truth_track
 

@@ -8,7 +8,7 @@ import pytest
 import yaml
 
 from flyover.acoustics.weather import WeatherSamples, mean_wind, weather_flags, weather_over
-from flyover.model.campaign import WeatherLimits
+from flyover.campaign import WeatherLimits
 from flyover.model.errors import FlyoverInputError
 
 T0 = int(np.datetime64("2026-06-01T10:00:00", "ns").astype(np.int64))

@@ -52,7 +52,7 @@ Z90 = 1.6449                                  # two-sided 90 % of the normal dis
 
 @dataclass(frozen=True)
 class InputUncertainty:
-    """Standard uncertainties of the inputs (defaults stated in the README).
+    """Standard uncertainties of the inputs (defaults stated in docs/campaign-file.md).
 
     Attributes
     ----------

@@ -106,7 +106,7 @@ def weather_findings(summary: dict, limits, track_heading_deg: float) -> list[tu
     """Each weather limit a pass is held to, with its measured value:
     ``(name, value, limit, unit)``, broken where value > limit.
 
-    ``limits`` is a :class:`flyover.model.campaign.WeatherLimits`; the crosswind is the mean
+    ``limits`` is a :class:`flyover.campaign.WeatherLimits`; the crosswind is the mean
     wind's component across the pass's ground track. A typed atmosphere has no spreads: only
     the mean wind and crosswind are held to their limits.
     """

@@ -36,9 +36,9 @@ from scipy.optimize import nnls
 
 from flyover.acoustics.atmosphere import Atmosphere
 from flyover.imaging import _kernels
-from flyover.imaging.dedoppler import (BandPowers, ChainSettings, ReceptionGeometry, band_bins,
-                                       dedopplerized_signals,
-                                       reception_geometry, subset)
+from flyover.imaging.chain import band_bins, BandPowers, ChainSettings
+from flyover.imaging.dedoppler import dedopplerized_signals
+from flyover.imaging.reception import reception_geometry, ReceptionGeometry, subset
 
 # Welch blocks of the CSM: Hann-windowed, 50 % overlap.
 BLOCK_OVERLAP = 0.5

@@ -33,299 +33,27 @@ samples) are linear: with a reception-time curvature V^2 / (c r) of 0.1 1/s the 
 
 from __future__ import annotations
 
-from dataclasses import dataclass, fields
+from dataclasses import dataclass
 
 import numpy as np
 import scipy.fft
 from scipy.signal import firwin, resample_poly
 
 from flyover.acoustics.atmosphere import Atmosphere
-from flyover.acoustics.ground import GroundSurface, reflection_transfer
-from flyover.acoustics.bands import ThirdOctaveBands
-from flyover.geometry.propagation import paths_between
-from flyover.geometry.track import TrackModel
 from flyover.geometry.windows import Window
 from flyover.imaging import _kernels
-from flyover.model.constants import CLEAN_LOOP_GAIN, CLEAN_MAX_SOURCES, FUNCTIONAL_EXPONENT
 from flyover.model.timebase import ArrayClock
+from flyover.imaging.chain import BandPowers, ChainSettings, band_bins, spectral_weights
+from flyover.imaging.ground_gains import ground_gains, ground_q
+from flyover.imaging.reception import ReceptionGeometry, absorption_gains, subset
+
 
 OVERSAMPLING = 4
+
+
 # Anti-imaging filter of the 4x oversampling: cut-off at the original Nyquist frequency (0.25 of
 # the new one); 257 taps with Kaiser beta 9 put the transition between 0.45 and 0.55 fs.
 _OVERSAMPLING_TAPS = firwin(257, 1.0 / OVERSAMPLING, window=("kaiser", 9.0))
-_SUBBAND_POINTS = 8
-ACCURATE_FRACTION = {"cubic": 0.135, "sinc": 0.4}  # of fs: worst-case interpolation loss 0.1 dB
-MIN_LINES_PER_BAND = 3  # spectral lines a band needs in the window's spectrum
-
-
-@dataclass(frozen=True)
-class ChainSettings:
-    """How a window is processed (the same for the measurement and its unit point source).
-
-    Attributes
-    ----------
-    bands : ThirdOctaveBands
-    weights : ndarray, shape (n_mics,)
-        Microphone weights (0 excludes a microphone).
-    pressure_gain : float
-        G: 2 for ground-plate microphones, 1 in free field.
-    interpolation : {'cubic', 'sinc'}
-    absorption : bool
-        Compensate the measured path's ISO 9613-1 absorption.
-    node_step : int
-        Emission samples between the nodes where delays are computed exactly.
-    chunk_points : int
-        Grid points processed together (memory: chunk x n_mics x n_samples float32).
-    image_mic_enu_m : ndarray, shape (n_mics, 3), or None
-        Raised microphones: the microphones mirrored in the ground, whose reflection the chain
-        removes per frequency line (:func:`ground_inverse`); None otherwise.
-    ground : GroundSurface or None
-        The ground under raised microphones (None: hard).
-    csm_block_samples : int or None
-        Samples per Welch block of the frequency-domain methods (None: a quarter window).
-    functional_exponent : float
-        nu of functional beamforming.
-    clean_loop_gain : float
-        Share of each found source CLEAN-SC removes per iteration (small, so that sources a
-        main-lobe width apart are told apart: at 0.6 one of two took 1.4 dB of the other's
-        power, at 0.3 0.7 dB, at 0.1 0.4 dB for three times the iterations).
-    clean_max_sources : int
-        Iterations of CLEAN-SC per frequency line at most.
-    """
-
-    bands: ThirdOctaveBands
-    weights: np.ndarray
-    pressure_gain: float
-    interpolation: str = "cubic"
-    absorption: bool = True
-    node_step: int = 128
-    chunk_points: int = 32
-    image_mic_enu_m: np.ndarray | None = None
-    ground: GroundSurface | None = None
-    csm_block_samples: int | None = None
-    functional_exponent: float = FUNCTIONAL_EXPONENT
-    clean_loop_gain: float = CLEAN_LOOP_GAIN
-    clean_max_sources: int = CLEAN_MAX_SOURCES
-
-
-@dataclass(frozen=True)
-class ReceptionGeometry:
-    """Reception times and amplitude factors of a window, per grid point and microphone.
-
-    Attributes
-    ----------
-    node_times_s : ndarray, shape (n_nodes,)
-        Emission times of the nodes (seconds after the epoch).
-    reception_s : ndarray, shape (n_grid, n_mics, n_nodes)
-    amplitude : ndarray, shape (n_grid, n_mics, n_nodes)
-        r (1 - M_r)^2 / G.
-    doppler_center : ndarray, shape (n_grid, n_mics)
-        dt/dtau at the window centre (received frequency = emitted frequency / dt/dtau).
-    mach_r_center : ndarray, shape (n_grid, n_mics)
-        M_r at the window centre (frequency in the air = emitted frequency / (1 - M_r)).
-    distance_center_m : ndarray, shape (n_grid, n_mics)
-        Emission distance r at the window centre.
-    reception_center_s, amplitude_center : ndarray, shape (n_grid, n_mics)
-        Reception time and amplitude factor of sound emitted at the window centre.
-    image : ImagePaths or None
-        The ground reflection's paths at the window centre (raised microphones).
-    """
-
-    node_times_s: np.ndarray
-    reception_s: np.ndarray
-    amplitude: np.ndarray
-    doppler_center: np.ndarray
-    distance_center_m: np.ndarray
-    mach_r_center: np.ndarray
-    reception_center_s: np.ndarray
-    amplitude_center: np.ndarray
-    image: ImagePaths | None = None
-
-
-@dataclass(frozen=True)
-class ImagePaths:
-    """The reflected path of raised microphones relative to the direct one, at the window
-    centre, as it appears in a de-Dopplerized signal: a copy delayed by ``delay_s`` in emission
-    time, scaled by ``ratio`` and filtered by the ground's Q. Arrays (n_grid, n_mics).
-
-    Attributes
-    ----------
-    delay_s : ndarray
-        (T_image - T_direct) / (dt/dtau of the image path).
-    ratio : ndarray
-        r (1 - M_r)^2 of the direct path over that of the image path.
-    doppler : ndarray
-        dt/dtau of the image path (Q is taken at the received frequency f / doppler).
-    cos_incidence : ndarray
-        Cosine of the image path's angle from the ground normal.
-    path_m : ndarray
-        Straight length of the image path.
-    delay_rate : ndarray
-        d(delay)/dtau over the window: the delay changes as the elevation does.
-    """
-
-    delay_s: np.ndarray
-    ratio: np.ndarray
-    doppler: np.ndarray
-    cos_incidence: np.ndarray
-    path_m: np.ndarray
-    delay_rate: np.ndarray
-
-    def take(self, points) -> "ImagePaths":
-        return ImagePaths(*(getattr(self, f.name)[points] for f in fields(self)))
-
-
-def reception_geometry(track: TrackModel, window: Window, points_body_m, mic_enu_m,
-                       atmosphere: Atmosphere, pressure_gain: float, *, node_step: int = 128,
-                       image_mic_enu_m=None, ends_only: bool = False) -> ReceptionGeometry:
-    """Forward travel times from every grid point to every microphone at the window's nodes
-    and centre (and, for raised microphones, the reflected paths to their images at the
-    centre).
-
-    ``ends_only`` keeps the first and the last node alone (where the full geometry has them):
-    the frames a window reads and the values at its centre, which is all the
-    frequency-domain methods need.
-    """
-    n_nodes = int(np.ceil((window.n_samples - 1) / node_step)) + 1
-    nodes = window.start_s + np.arange(n_nodes) * node_step / window.sample_rate_hz
-    if ends_only:
-        nodes, n_nodes = nodes[[0, -1]], 2
-    times = np.append(nodes, window.center_s)
-    pts = np.asarray(points_body_m, float)
-    mics = np.asarray(mic_enu_m, float)
-    n_g, n_m = len(pts), len(mics)
-    # The nodes, then the centre, along the last axis; the geometry holds views of them.
-    reception, amp = (np.empty((n_g, n_m, len(times))) for _ in range(2))
-    distance, mach, doppler = (np.empty((n_g, n_m)) for _ in range(3))
-    pos = track.body_points_enu(pts, times)          # (n_t, n_g, 3)
-    vel = track.body_points_velocity(pts, times)
-    _kernels.paths_on_grid(pos, vel, mics, np.asarray(atmosphere.wind_enu_m_s, float),
-                           float(atmosphere.c_m_s), times, float(pressure_gain), reception, amp,
-                           distance, mach, doppler)
-    image = None
-    if image_mic_enu_m is not None:
-        # At the first node, the last node and the centre (times[0], [-2], [-1]).
-        at = [0, -2, -1]
-        images = np.asarray(image_mic_enu_m, float)
-        img = paths_between(pos[at][:, :, None, :], vel[at][:, :, None, :], images[None, None],
-                            atmosphere.wind_enu_m_s, atmosphere.c_m_s)
-        direct = (reception[..., at] - times[at]).transpose(2, 0, 1)
-        delay = (img.travel_time_s - direct) / img.doppler_factor
-        line = images[None] - pos[-1][:, None, :]
-        length = np.linalg.norm(line, axis=-1)
-        image = ImagePaths(delay[2], distance * (1 - mach) ** 2
-                           / (img.distance_m[2] * (1 - img.mach_r[2]) ** 2),
-                           img.doppler_factor[2], -line[..., 2] / length, length,
-                           (delay[1] - delay[0]) / (nodes[-1] - nodes[0]))
-    return ReceptionGeometry(nodes, reception[..., :-1], amp[..., :-1], doppler, distance, mach,
-                             reception[..., -1], amp[..., -1], image)
-
-
-def subset(geometry: ReceptionGeometry, points) -> ReceptionGeometry:
-    """The geometry of some grid points only (rows), e.g. a region's, or of some microphones
-    (``(slice(None), mics)``)."""
-    return ReceptionGeometry(geometry.node_times_s, *(
-        getattr(geometry, f.name)[points] for f in fields(ReceptionGeometry)[1:-1]),
-        None if geometry.image is None else geometry.image.take(points))
-
-
-def values_at(geometry: ReceptionGeometry, time_s: float):
-    """Reception time and amplitude factor (n_points, n_mics) of sound emitted at an instant
-    of the window, from the nodes (linear, as the kernel reads them)."""
-    nodes = geometry.node_times_s
-    k = int(np.clip(np.searchsorted(nodes, time_s) - 1, 0, len(nodes) - 2))
-    u = (time_s - nodes[k]) / (nodes[k + 1] - nodes[k])
-    rx = geometry.reception_s[..., k] * (1 - u) + geometry.reception_s[..., k + 1] * u
-    amp = geometry.amplitude[..., k] * (1 - u) + geometry.amplitude[..., k + 1] * u
-    return rx, amp
-
-
-def required_frames(geometry: ReceptionGeometry, clock: ArrayClock,
-                    interpolation: str) -> tuple[np.ndarray, int]:
-    """The frames a window reads: per microphone the first frame of its recorder (int array
-    (n_mics,), the same for all microphones of one recorder), and one frame count for all."""
-    pad = 4 if interpolation == "cubic" else 64
-    # Reception time grows with emission time (subsonic: dt/dtau > 0), so the first and last
-    # nodes bound every read.
-    idx = clock.sample_index(geometry.reception_s[..., [0, -1]])
-    first = clock.first_frames(idx) - pad
-    last = np.ceil(idx.max(axis=(0, 2))) + pad
-    return first, int(np.max(last - first)) + 1
-
-
-def valid_bands(geometry: ReceptionGeometry, window: Window, settings: ChainSettings, *,
-                spectrum_samples: int | None = None) -> tuple[np.ndarray, list[str]]:
-    """Which bands a window can measure, and why not where it cannot.
-
-    A band is invalid when its upper edge, Doppler-shifted as received, passes the
-    interpolation's accurate range (``ACCURATE_FRACTION``), or when the method's spectra
-    (``spectrum_samples`` long: the window, or a frequency-domain method's Welch block) have
-    fewer than ``MIN_LINES_PER_BAND`` lines in it.
-    """
-    b = settings.bands
-    f_max = b.upper_hz / float(np.min(geometry.doppler_center))
-    limit = ACCURATE_FRACTION[settings.interpolation] * window.sample_rate_hz
-    lines = np.array([s.stop - s.start for s in band_bins(
-        b, spectrum_samples or window.n_samples, window.sample_rate_hz)])
-    reasons = []
-    for k in range(len(b)):
-        if f_max[k] > limit:
-            reasons.append(f"received up to {f_max[k]:.0f} Hz, beyond the {settings.interpolation} "
-                           f"interpolation's accurate range ({limit:.0f} Hz)")
-        elif lines[k] < MIN_LINES_PER_BAND:
-            reasons.append(f"{lines[k]} spectral lines in the window's spectra: use a longer "
-                           "window_s")
-        else:
-            reasons.append("")
-    return np.array([r == "" for r in reasons]), reasons
-
-
-def absorption_gains(settings: ChainSettings, atmosphere: Atmosphere,
-                     geometry: ReceptionGeometry) -> np.ndarray:
-    """Amplitude factors (n_grid, n_mics, n_bands) that undo the measured path's absorption.
-
-    Per band, the power gain is averaged over frequencies across the band, each evaluated at the
-    frequency the sound has in the air, f / (1 - M_r), over the centre emission distance. The
-    log of that mean is smooth in M_r and in the distance, so it is tabulated on
-    ``_GAIN_TABLE_NODES`` of each over the geometry's range and read bilinearly (within 1e-5
-    dB of the direct evaluation, at a small share of its cost).
-    """
-    b = settings.bands
-    if not settings.absorption:
-        return np.ones(geometry.doppler_center.shape + (len(b),), dtype=np.float32)
-    mach, distance = geometry.mach_r_center, geometry.distance_center_m
-    m_nodes = np.linspace(mach.min(), mach.max(), _GAIN_TABLE_NODES)
-    d_nodes = np.linspace(distance.min(), distance.max(), _GAIN_TABLE_NODES)
-    log_gain = np.log(_band_power_gains(atmosphere, b, m_nodes[:, None], d_nodes[None, :]))
-    i, u = _table_position(mach, m_nodes)
-    j, v = _table_position(distance, d_nodes)
-    u, v = u[..., None], v[..., None]
-    table = ((1 - u) * ((1 - v) * log_gain[i, j] + v * log_gain[i, j + 1])
-             + u * ((1 - v) * log_gain[i + 1, j] + v * log_gain[i + 1, j + 1]))
-    return np.exp(0.5 * table).astype(np.float32)
-
-
-_GAIN_TABLE_NODES = 33
-
-
-def _band_power_gains(atmosphere: Atmosphere, bands: ThirdOctaveBands, mach_r, distance_m):
-    """The band-mean power gain undoing absorption (..., n_bands) at M_r and distances that
-    broadcast together: the definition :func:`absorption_gains` tabulates."""
-    sub = np.geomspace(bands.lower_hz, bands.upper_hz, _SUBBAND_POINTS, axis=-1)   # (n_b, k)
-    m = np.asarray(mach_r, float)[..., None, None]
-    alpha = atmosphere.absorption_db_per_m(sub / (1.0 - m))
-    return np.mean(10.0 ** (alpha * np.asarray(distance_m, float)[..., None, None] / 10.0),
-                   axis=-1)
-
-
-def _table_position(x, nodes) -> tuple[np.ndarray, np.ndarray]:
-    """Cell index and fraction of values in evenly spaced nodes (a single node: fraction 0)."""
-    step = nodes[-1] - nodes[0]
-    if step <= 0:
-        return np.zeros(np.shape(x), int), np.zeros(np.shape(x))
-    t = (x - nodes[0]) / step * (len(nodes) - 1)
-    i = np.clip(np.floor(t).astype(int), 0, len(nodes) - 2)
-    return i, t - i
 
 
 # Fractional read positions and weights of the mean over them: Gauss-Legendre on [0, 1].
@@ -423,129 +151,6 @@ def _check_reads(rx_ends, sig) -> None:
     """Reading positions (any shape, first and last nodes suffice) inside the signals."""
     if rx_ends.min() < 1 or rx_ends.max() > sig.shape[1] - 3:
         raise ValueError("reception positions outside the span read for the window")
-
-
-def window_memory_bytes(n_grid: int, n_mics: int, n_samples: int, n_bands: int,
-                        settings: ChainSettings) -> int:
-    """Peak memory (bytes) the chain needs for one window: geometry of every grid point and
-    microphone at the nodes, one chunk of de-Dopplerized signals and spectra, and the maps.
-
-    This prices the per-microphone chain (:func:`_per_microphone_band_powers`, used over
-    raised microphones): an upper bound for the summed chain, whose chunks hold a few sums per
-    point instead of every microphone's signal (0.5 GB at most on the benchmark geometry).
-    The workflow's memory requests are calibrated against it (:mod:`flyover.workflow.plan`)."""
-    n_nodes = int(np.ceil((n_samples - 1) / settings.node_step)) + 1
-    geometry = n_grid * n_mics * (n_nodes * 2 + 2) * 8
-    chunk = min(settings.chunk_points, n_grid) * n_mics * n_samples * (4 + 8)
-    maps = n_grid * n_bands * 8 * 2
-    return int(geometry + chunk + maps)
-
-
-@dataclass(frozen=True)
-class BandPowers:
-    """Band powers of a window on grid points (source strength at 1 m, Pa^2).
-
-    Attributes
-    ----------
-    full : ndarray, shape (n_points, n_bands)
-        Delay-and-sum with the whole cross-power (autopowers included).
-    diagonal_removed : ndarray, shape (n_points, n_bands)
-        With the autopowers removed and the normalisation (sum w)^2 - sum w^2; may be negative.
-    residual : ndarray, shape (n_points, n_bands), or None
-        A deconvolving method's diagonal-removed residual map (what it left unexplained), in
-        the units of conventional beamforming; for a unit source, its conventional map. Source
-        power integration adds the residual's integral to the region levels.
-    variant : BandPowers or None
-        The same maps by a variant of the method that is as defensible (CLEAN-SC's maps before
-        its power re-fit): a region level that differs between the two by more than the
-        tolerance of :mod:`flyover.imaging.integration` is not given.
-    """
-
-    full: np.ndarray
-    diagonal_removed: np.ndarray
-    residual: np.ndarray | None = None
-    variant: "BandPowers | None" = None
-
-
-def spectral_weights(n: int) -> tuple[np.ndarray, float]:
-    """Hann window (float32) and the factor turning |X_k|^2 into one-sided power per bin."""
-    win = np.hanning(n + 1)[:n].astype(np.float32)  # periodic Hann
-    return win, 2.0 / (n * float(np.sum(win.astype(float) ** 2)))
-
-
-def band_bins(bands: ThirdOctaveBands, n: int, sample_rate_hz: float) -> list[slice]:
-    """FFT bins [k1, k2) whose frequencies fall in each band (lower edge inclusive)."""
-    f = np.fft.rfftfreq(n, 1.0 / sample_rate_hz)
-    return [slice(int(np.searchsorted(f, lo)), int(np.searchsorted(f, hi)))
-            for lo, hi in zip(bands.lower_hz, bands.upper_hz)]
-
-
-def signal_band_power(signal, bands: ThirdOctaveBands, sample_rate_hz: float) -> np.ndarray:
-    """Band powers (mean square per band) of signals (..., n), as the chain forms them."""
-    x = np.asarray(signal)
-    win, norm = spectral_weights(x.shape[-1])
-    spec = np.abs(np.fft.rfft(x * win, axis=-1)) ** 2 * norm
-    return np.stack([spec[..., s].sum(-1) for s in band_bins(bands, x.shape[-1], sample_rate_hz)],
-                    axis=-1)
-
-
-# Floor of the expected map power relative to free field in the ground correction: at most
-# +15 dB on a line in a notch of the two-path comb, where the reflection cancels the direct
-# sound at every microphone (overhead, at low frequency).
-GROUND_POWER_FLOOR = 0.03
-
-
-def ground_q(image: ImagePaths, frequency_hz, c_m_s: float,
-             ground: GroundSurface | None) -> np.ndarray:
-    """Q of each microphone's image path (FFT convention) at source frequencies,
-    (n_mics, n_freqs): taken at the grid's mean incidence and path length (Q changes little
-    across a vehicle grid) and at the received frequency f / (dt/dtau)."""
-    surface = ground if ground is not None else GroundSurface("hard")
-    f = np.asarray(frequency_hz, float)
-    if surface.surface == "hard":
-        return np.ones((image.delay_s.shape[1], len(f)), complex)
-    received = f[None, :] / image.doppler.mean(axis=0)[:, None]
-    return reflection_transfer(received, image.cos_incidence.mean(axis=0)[:, None],
-                               image.path_m.mean(axis=0)[:, None], c_m_s, surface)
-
-
-def _hann_squared_mean(x) -> np.ndarray:
-    """Mean of e^(-i 2 pi x u / T) over a window of length T weighted by the square of the
-    periodic Hann window (the weight of a windowed band power): real, 1 at x = 0.
-    cos^4 = 3/8 + cos(2 pi u / T) / 2 + cos(4 pi u / T) / 8, each term a sinc."""
-    return (np.sinc(x) + (2 / 3) * (np.sinc(x - 1) + np.sinc(x + 1))
-            + (1 / 6) * (np.sinc(x - 2) + np.sinc(x + 2)))
-
-
-def ground_gains(image: ImagePaths, q, frequency_hz, duration_s: float,
-                 weights) -> tuple[np.ndarray, np.ndarray]:
-    """What the reflection of raised microphones does to the maps of a source at the grid
-    point: expected power of the full and the diagonal-removed map per frequency line, relative
-    to free field, each (n_points, n_freqs).
-
-    Microphone m receives the reflection as a copy of the de-Dopplerized signal delayed by
-    ``delay + rate u`` (u from the window centre) and scaled by ``z_m = ratio Q
-    e^(-i 2 pi f delay)``. Over a window (Hann squared weights for power) the expected
-    cross-power of microphones m and n is ``1 + z_m W_m + conj(z_n W_n) + z_m conj(z_n)``,
-    W the window's mean of the delay's sweep (1 where the delay holds still, near 0 where it
-    sweeps many cycles: high frequencies away from overhead); the last term treats m and n as
-    sweeping alike (neighbours on the array). Summed with the weights this gives the beam's and
-    the diagonal's expected power in O(n_mics) per line. Dividing the maps by them leaves the
-    free-field source power for tonal and broadband content alike; the image source's leakage
-    into other grid points cancels in source power integration (the unit sources carry it too).
-    """
-    f = np.asarray(frequency_hz, float)
-    w = np.asarray(weights, float)[None, :, None]
-    z = image.ratio[..., None] * q[None] * np.exp(
-        -2j * np.pi * f[None, None, :] * image.delay_s[..., None])
-    sweep = _hann_squared_mean(f[None, None, :] * image.delay_rate[..., None] * duration_s)
-    s1, s2 = float(w.sum()), float((w ** 2).sum())
-    zw = np.sum(w * z * sweep, axis=1)
-    beam = s1 ** 2 + 2.0 * s1 * zw.real + np.abs(np.sum(w * z, axis=1)) ** 2
-    auto = np.sum(w ** 2 * (1.0 + np.abs(z) ** 2 + 2.0 * (z * sweep).real), axis=1)
-    full = beam / s1 ** 2
-    removed = (beam - auto) / (s1 ** 2 - s2)
-    return (np.maximum(full, GROUND_POWER_FLOOR), np.maximum(removed, GROUND_POWER_FLOOR))
 
 
 def window_band_powers(signals_pa, first_frame, geometry: ReceptionGeometry,
@@ -706,8 +311,12 @@ def _dedopplerized_sums(reading, geo: ReceptionGeometry, settings: ChainSettings
 
 # Rate reductions of the summed chain, largest first (each must divide the node step).
 DECIMATIONS = (4, 2)
+
+
 # Margins: dt/dtau over the window beyond its centre values, and the low-pass's transition.
 _DOPPLER_MARGIN = 0.03
+
+
 _MIN_TRANSITION = 1.1
 
 

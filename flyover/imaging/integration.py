@@ -158,7 +158,7 @@ class RegionVerdict:
     stability_db : float array
         How far its level moves when a unit source moves within its half-power main lobe and
         region (:func:`shift_distances_m`), or with the
-        method's variant, :class:`flyover.imaging.dedoppler.BandPowers`).
+        method's variant, :class:`flyover.imaging.chain.BandPowers`).
     valid : bool array
         The level is given: finite, within ``SHIFT_TOLERANCE_DB`` of its moved solves, and
         resolved or dominant.

@@ -21,12 +21,12 @@ from threadpoolctl import ThreadpoolController
 from flyover.acoustics.atmosphere import Atmosphere
 from flyover.geometry.track import TrackModel
 from flyover.geometry.windows import Window
-from flyover.imaging.dedoppler import (BandPowers, ChainSettings, ReceptionGeometry,
-                                       reception_geometry, required_frames)
+from flyover.imaging.chain import BandPowers, ChainSettings
+from flyover.imaging.reception import reception_geometry, ReceptionGeometry, required_frames
 from flyover.imaging.integration import (SHIFT_DIRECTIONS, region_powers, region_verdicts,
                                          shift_changes_db, shift_distances_m)
 from flyover.imaging.planning import HALF_POWER
-from flyover.model.campaign import Region
+from flyover.geometry.vehicle import Region
 from flyover.model.constants import TOTAL  # the key of all regions together in region_power
 from flyover.model.timebase import ArrayClock
 

@@ -20,10 +20,10 @@ from flyover.acoustics.hemisphere import HemisphereSettings
 from flyover.acoustics.uncertainty import InputUncertainty
 from flyover.imaging.methods import DEFAULT_METHOD, methods
 from flyover.io.timestamps import parse_utc_ns
-from flyover.model.campaign import (AnalysisSettings, ArraySpec, Campaign, MethodTuning,
-                                    PassSpec, RotorSpec, SignoffLimits, WeatherLimits,
-                                    WeatherSpec, RecorderSpec, ReferenceFlight, Region,
-                                    VehicleGrid)
+from flyover.campaign import (AnalysisSettings, ArraySpec, Campaign, MethodTuning, PassSpec,
+                              RecorderSpec, ReferenceFlight, RotorSpec, SignoffLimits,
+                              WeatherLimits, WeatherSpec)
+from flyover.geometry.vehicle import Region, VehicleGrid
 from flyover.model.constants import MIN_OVERALL_BANDS
 from flyover.model.errors import FlyoverInputError, suggest
 

@@ -1,7 +1,7 @@
 """What a stage reads of a campaign: declared, enforced, and fingerprinted from the same list.
 
 Each workflow stage declares the parts of the campaign it reads as dotted attribute paths of
-:class:`flyover.model.campaign.Campaign` (``"analysis.window_s"``, ``"passes.{pass}.atmosphere"``,
+:class:`flyover.campaign.Campaign` (``"analysis.window_s"``, ``"passes.{pass}.atmosphere"``,
 ``"regions"``). The stage then works on :func:`guarded`, a read-only view that refuses any
 other read, so a declaration cannot fall behind the code; and the workflow re-runs a stage
 exactly when the values at its paths change (:func:`read_values`), whatever the campaign file is

@@ -52,7 +52,7 @@ def label_findings(heights: dict, speeds: dict, labels: dict, limits) -> dict[st
     """Passes whose height or speed is off their label's median by more than the tolerances
     (labels of two passes or more): ``{pass: [Finding, ...]}``. ``heights`` and ``speeds`` map
     pass names to metres and m/s, ``labels`` to labels; ``limits`` is a
-    :class:`flyover.model.campaign.SignoffLimits`. `flyover check` prints the same as warnings,
+    :class:`flyover.campaign.SignoffLimits`. `flyover check` prints the same as warnings,
     the sign-off flags them."""
     out: dict[str, list] = {n: [] for n in heights}
     for label in set(labels.values()):

@@ -8,11 +8,11 @@ import pandas as pd
 from flyover.acoustics.bands import a_weighting_db, third_octave_bands
 from flyover.acoustics.reference import overall_db
 from flyover.io.results.levels_overall import LEVELS_OVERALL
-from flyover.model.campaign import Campaign
+from flyover.campaign import Campaign
 from flyover.model.constants import MIN_OVERALL_BANDS
 
 
-# The default band range of a label's overall levels (stated in the README): the windows within
+# The default band range of a label's overall levels (stated in docs/outputs.md): the windows within
 # NEAR_OVERHEAD_DEG of overhead decide, where the array resolves the vehicle best and every pass
 # has windows; a band counts where a region has a level in at least SUPPORT_FRACTION of them in
 # every pass; the widest run of such bands is the range, and a run of fewer than

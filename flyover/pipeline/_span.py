@@ -6,9 +6,9 @@ import numpy as np
 
 from flyover.acoustics.bands import third_octave_bands
 from flyover.geometry.windows import Window
-from flyover.imaging.dedoppler import (dedopplerized_signals, reception_geometry,
-                                       required_frames)
-from flyover.model.campaign import Campaign
+from flyover.imaging.dedoppler import dedopplerized_signals
+from flyover.imaging.reception import reception_geometry, required_frames
+from flyover.campaign import Campaign
 from flyover.pipeline.context import PassInputs, chain_settings
 
 

@@ -9,7 +9,7 @@ from flyover.acoustics.bands import third_octave_bands
 from flyover.geometry.windows import plan_windows
 from flyover.io.figures import save_figure, track_figure
 from flyover.io.results.alignment import TRACK_FIGURE, write_alignment
-from flyover.model.campaign import PASS_INPUTS, Campaign
+from flyover.campaign import PASS_INPUTS, Campaign
 from flyover.model.errors import FlyoverInputError
 from flyover.model.reads import guarded
 from flyover.pipeline._span import dedopplerize_span

@@ -9,9 +9,9 @@ from pathlib import Path
 import numpy as np
 
 from flyover.acoustics.bands import third_octave_bands
-from flyover.imaging.dedoppler import ACCURATE_FRACTION
+from flyover.imaging.reception import ACCURATE_FRACTION
 from flyover.imaging.planning import band_resolution, separable_from_hz
-from flyover.model.campaign import Campaign
+from flyover.campaign import Campaign
 from flyover.model.errors import FlyoverInputError
 from flyover.model.signoff import label_findings
 from flyover.pipeline.context import (PassInputs, check_memory, load_pass, output_bytes,

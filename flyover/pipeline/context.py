@@ -15,13 +15,13 @@ from flyover.acoustics.weather import weather_flags, weather_over
 from flyover.geometry.track import (TrackModel, antenna_to_origin, fit_track,
                                     heading_through_air)
 from flyover.geometry.windows import polar_angle_deg
-from flyover.imaging.dedoppler import ChainSettings, window_memory_bytes
+from flyover.imaging.chain import ChainSettings, window_memory_bytes
 from flyover.io.readers import read
 from flyover.io.recorders import JoinedRecording, join_files
 from flyover.io.readers.layout_csv import ArrayLayout
 from flyover.io.results import pass_output_bytes
 from flyover.io.results.alignment import read_alignment
-from flyover.model.campaign import (ArraySpec, Campaign, PassSpec, RecorderSpec, RotorSpec,
+from flyover.campaign import (ArraySpec, Campaign, PassSpec, RecorderSpec, RotorSpec,
                                    pass_array)
 from flyover.model.flightdata import TrackSamples
 from flyover.model.errors import FlyoverInputError, suggest

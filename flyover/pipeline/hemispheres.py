@@ -21,7 +21,7 @@ from flyover.io.results.hemisphere import (COVERAGE_FIGURE, FOLDER, HEMISPHERE,
                                            write_cube)
 from flyover.io.results.levels import LEVELS
 from flyover.io.results.signoff import signoff_statuses
-from flyover.model.campaign import Campaign
+from flyover.campaign import Campaign
 from flyover.model.constants import TOTAL
 from flyover.model.reads import guarded
 from flyover.pipeline._overall import label_band_ranges

@@ -13,7 +13,8 @@ import pandas as pd
 
 from flyover.acoustics.bands import third_octave_bands
 from flyover.geometry.windows import plan_windows
-from flyover.imaging.dedoppler import ChainSettings, valid_bands
+from flyover.imaging.chain import ChainSettings
+from flyover.imaging.reception import valid_bands
 from flyover.imaging.methods import method_named
 from flyover.imaging.resolution import main_lobe_width_m
 from flyover.imaging.window import TOTAL, image_window, window_context
@@ -21,7 +22,7 @@ from flyover.io.figures import map_figure, save_figure
 from flyover.io.results.maps import FIGURE_FOLDER, window_figure_name, write_maps
 from flyover.io.results.region_power import REGION_POWER
 from flyover.io.results.windows import NO_WINDOW, WINDOWS
-from flyover.model.campaign import PASS_INPUTS, Campaign
+from flyover.campaign import PASS_INPUTS, Campaign
 from flyover.model.reads import guarded
 from flyover.model.timebase import iso_utc
 from flyover.pipeline.context import chain_settings, check_memory, load_aligned_pass

@@ -22,7 +22,7 @@ from flyover.io.results.levels import LEVELS, LEVELS_BY_METHOD
 from flyover.io.results.region_power import REGION_POWER
 from flyover.io.results.spectra import SPECTRA, SPECTRA_FIGURE
 from flyover.io.results.windows import read_analysed
-from flyover.model.campaign import ArraySpec, Campaign, pass_array
+from flyover.campaign import ArraySpec, Campaign, pass_array
 from flyover.model.constants import TOTAL
 from flyover.model.errors import FlyoverInputError
 from flyover.model.reads import guarded

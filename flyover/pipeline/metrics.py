@@ -18,7 +18,7 @@ from flyover.io.figures import level_history_figure, save_figure
 from flyover.io.results.event_metrics import (BAND_HISTORY, EVENT_METRICS, LEVEL_HISTORY,
                                               LEVEL_HISTORY_FIGURE, RECONSTRUCTED)
 from flyover.io.results.levels import LEVELS
-from flyover.model.campaign import PASS_INPUTS, Campaign
+from flyover.campaign import PASS_INPUTS, Campaign
 from flyover.model.constants import TOTAL
 from flyover.model.errors import FlyoverInputError
 from flyover.model.reads import guarded

@@ -11,7 +11,7 @@ from scipy.signal import spectrogram
 from flyover.io.figures import save_figure, spectrogram_figure, track_figure
 from flyover.io.results.qc import SPECTROGRAM_FIGURE, TRACK_FIGURE
 from flyover.io.results.windows import read_analysed
-from flyover.model.campaign import PASS_INPUTS, Campaign
+from flyover.campaign import PASS_INPUTS, Campaign
 from flyover.model.reads import guarded
 from flyover.pipeline._span import dedopplerize_span
 from flyover.pipeline.context import load_aligned_pass, pass_summary

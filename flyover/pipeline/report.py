@@ -36,7 +36,7 @@ from flyover.io.results.hemisphere import FOLDER as HEMISPHERE_FOLDER
 from flyover.io.results.levels_overall import LEVELS_OVERALL
 from flyover.io.results.signoff import SIGNOFF
 from flyover.io.results.windows import WINDOWS
-from flyover.model.campaign import Campaign
+from flyover.campaign import Campaign
 from flyover.model.reads import guarded
 
 CAUTION = ("Outdoor flight tests and their measurements must follow the applicable "
@@ -574,7 +574,7 @@ are relative to the campaign file's folder</p>
 <section id="signoff-table">
 <p class="muted">Each pass is accepted, flagged (a limit broken: its numbers stand, with the
 reasons) or rejected (no number of it should be signed): the rules, their limits and sources are
-in the README (weather_limits and signoff_limits in the campaign file set them). signoff.csv and
+in docs/signoff.md (weather_limits and signoff_limits in the campaign file set them). signoff.csv and
 signoff.json hold the same with every rule's measured value and limit.</p>
 {_table(_signoff_table(signed), flag_column="_flag")}
 </section>

@@ -1,8 +1,8 @@
 """Stage: the sign-off of every pass: a status (accepted, flagged, rejected), every rule it
 breaks with the measured value and the limit, and its headline numbers.
 
-The rules and their sources are stated in the README; the limits are the campaign's
-``signoff_limits`` and ``weather_limits`` (:class:`flyover.model.campaign.SignoffLimits`).
+The rules and their sources are stated in docs/signoff.md; the limits are the campaign's
+``signoff_limits`` and ``weather_limits`` (:class:`flyover.campaign.SignoffLimits`).
 """
 
 from __future__ import annotations
@@ -18,7 +18,7 @@ from flyover.io.results.event_metrics import EVENT_METRICS, RECONSTRUCTED
 from flyover.io.results.signoff import SIGNOFF, write_signoff_json
 from flyover.io.results.track_check import read_track_check
 from flyover.io.results.windows import WINDOWS
-from flyover.model.campaign import Campaign
+from flyover.campaign import Campaign
 from flyover.model.reads import guarded
 from flyover.model.signoff import FLAG, REJECT, Finding, label_findings, status_of
 

@@ -14,7 +14,7 @@ from flyover.io.results.campaign_tables import CAMPAIGN_FIGURE, CAMPAIGN_LEVELS,
 from flyover.io.results.levels import LEVELS
 from flyover.io.results.levels_overall import LEVELS_OVERALL
 from flyover.io.results.signoff import signoff_statuses
-from flyover.model.campaign import Campaign
+from flyover.campaign import Campaign
 from flyover.model.reads import guarded
 from flyover.pipeline._overall import label_band_ranges, overall_table
 

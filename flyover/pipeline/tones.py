@@ -17,7 +17,7 @@ from flyover.io.figures import rotor_tones_figure, save_figure
 from flyover.io.results.levels import LEVELS
 from flyover.io.results.rotor_tones import BAND_PARTS, ROTOR_TONES, ROTOR_TONES_FIGURE
 from flyover.io.results.windows import read_analysed
-from flyover.model.campaign import PASS_INPUTS, Campaign
+from flyover.campaign import PASS_INPUTS, Campaign
 from flyover.model.constants import TOTAL
 from flyover.model.reads import guarded
 from flyover.pipeline._span import dedopplerize_span

@@ -12,7 +12,7 @@ from flyover.geometry.windows import plan_windows
 from flyover.io.results import write_json
 from flyover.io.results.levels import LEVELS
 from flyover.io.results.track_check import NAME as TRACK_CHECK
-from flyover.model.campaign import PASS_INPUTS, Campaign
+from flyover.campaign import PASS_INPUTS, Campaign
 from flyover.model.reads import guarded
 from flyover.pipeline.context import chain_settings, load_aligned_pass
 from flyover.sync.track_check import scan_track_offset

@@ -14,7 +14,7 @@ from flyover.io.atomic import write_text
 from flyover.io.csvtable import write_csv
 from flyover.io.readers.soundfile_recording import write_recording
 from flyover.io.readers.tdms_recording import write_tdms
-from flyover.io.scenario import load_scenario
+from flyover.sim.scenario_file import load_scenario
 from flyover.model.errors import FlyoverInputError
 from flyover.sim.flightlogs import ESC_REPORT, px4_topics, write_ulog
 from flyover.sim.scenario import pass_microphones, PassScenario, pass_source, simulate_pass

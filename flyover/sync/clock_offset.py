@@ -27,7 +27,8 @@ import numpy as np
 from flyover.acoustics.atmosphere import Atmosphere
 from flyover.geometry.track import TrackModel
 from flyover.geometry.windows import Window
-from flyover.imaging.dedoppler import ChainSettings, reception_geometry
+from flyover.imaging.chain import ChainSettings
+from flyover.imaging.reception import reception_geometry
 from flyover.model.timebase import ArrayClock
 from flyover.sync.track_check import anchor_coherence
 

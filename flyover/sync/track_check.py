@@ -24,7 +24,9 @@ import numpy as np
 from flyover.acoustics.atmosphere import Atmosphere
 from flyover.geometry.track import TrackModel
 from flyover.geometry.windows import Window
-from flyover.imaging.dedoppler import ChainSettings, reception_geometry, window_band_powers
+from flyover.imaging.chain import ChainSettings
+from flyover.imaging.dedoppler import window_band_powers
+from flyover.imaging.reception import reception_geometry
 from flyover.model.timebase import ArrayClock
 
 

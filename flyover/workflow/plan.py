@@ -15,13 +15,13 @@ from pathlib import Path
 import numpy as np
 
 from flyover.acoustics.bands import third_octave_bands
-from flyover.imaging.dedoppler import ChainSettings, window_memory_bytes
+from flyover.imaging.chain import ChainSettings, window_memory_bytes
 from flyover.io.config import load_campaign
 from flyover.io.readers import read
 from flyover.io.results import file_name, hemisphere, steps
 from flyover.io.results.campaign_tables import CAMPAIGN_LEVELS
-from flyover.io.scenario import load_scenario
-from flyover.model.campaign import Campaign, pass_array
+from flyover.sim.scenario_file import load_scenario
+from flyover.campaign import Campaign, pass_array
 from flyover.model.errors import FlyoverInputError
 from flyover.sim.demo import WEATHER_FILE, pass_files
 from flyover.workflow.settings_record import stage_settings

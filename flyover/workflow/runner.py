@@ -28,7 +28,7 @@ from flyover.io.results.signoff import SIGNOFF
 from flyover.io.results.windows import NO_WINDOW, WINDOWS
 from flyover.io.results import report as report_file
 from flyover.io.results.steps import pass_steps_done
-from flyover.model.campaign import Campaign
+from flyover.campaign import Campaign
 from flyover.model.errors import FlyoverInputError
 
 RULES = Path(__file__).resolve().parent / "rules" / "main.smk"

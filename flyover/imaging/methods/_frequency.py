@@ -6,7 +6,7 @@ from __future__ import annotations
 import numpy as np
 
 from flyover.imaging.csm import Focus, Steering, window_csm, window_focus
-from flyover.imaging.dedoppler import reception_geometry, subset
+from flyover.imaging.reception import reception_geometry, subset
 from flyover.imaging.window import WindowContext
 
 # Every channel is de-Dopplerized toward the body origin.

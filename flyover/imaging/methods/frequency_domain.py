@@ -5,7 +5,7 @@ from the steering vectors, without simulating it."""
 from __future__ import annotations
 
 from flyover.imaging.csm import block_samples, conventional_maps, conventional_point_spread
-from flyover.imaging.dedoppler import BandPowers
+from flyover.imaging.chain import BandPowers
 from flyover.imaging.methods import register
 from flyover.imaging.methods._frequency import csm_and_steering, unit_steering
 from flyover.imaging.window import ImagingMethod, PointSpread, WindowContext

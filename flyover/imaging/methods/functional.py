@@ -7,7 +7,7 @@ from __future__ import annotations
 import numpy as np
 
 from flyover.imaging.csm import block_samples, functional_maps, functional_point_spread
-from flyover.imaging.dedoppler import BandPowers
+from flyover.imaging.chain import BandPowers
 from flyover.imaging.methods import register
 from flyover.imaging.methods._frequency import csm_and_steering, unit_steering
 from flyover.imaging.window import ImagingMethod, PointSpread, WindowContext

@@ -17,9 +17,9 @@ import numpy as np
 from flyover.forward.moving_source import (Broadband, PointSource, Propagator, SourceSignal,
                                            received_pressure_pa)
 from flyover.imaging import _kernels
-from flyover.imaging.dedoppler import (BandPowers, absorption_gains, band_bins, values_at,
-                                       interpolation_response, reception_geometry,
-                                       signal_band_power, subset, window_band_powers)
+from flyover.imaging.chain import band_bins, BandPowers, signal_band_power
+from flyover.imaging.dedoppler import interpolation_response, window_band_powers
+from flyover.imaging.reception import absorption_gains, reception_geometry, subset, values_at
 from flyover.imaging.methods import register
 from flyover.imaging.window import ImagingMethod, PointSpread, WindowContext
 

@@ -57,6 +57,38 @@ def step_files(step: str) -> dict[str, str]:
     return {output_key(f): file_name(f) for f in files}
 
 
+def describe_all() -> str:
+    """Markdown: every step's result files, tables with their columns and units
+    (:meth:`TableFile.describe`), figures with what they show. ``docs/result-files.md`` is this
+    text (a test keeps it so; ``python -m flyover.io.results.steps > docs/result-files.md``
+    writes it)."""
+    out = ["# Result files", "",
+           "Written by `python -m flyover.io.results.steps` from the files' own descriptions "
+           "(`flyover/io/results/`); do not edit by hand.", ""]
+
+    # Files that are not tables: their module's first paragraph says what they hold.
+    about = {m.NAME: " ".join(m.__doc__.split("\n\n")[0].split(": ", 1)[1].split())
+             for m in (alignment, maps, track_check, report)}
+    about[SIGNOFF_JSON] = "each pass's status with every rule's measured value and limit"
+
+    def describe(result, where):
+        if isinstance(result, str):
+            return f"`{where}{result}`: {about[result]}"
+        if hasattr(result, "describe"):
+            return result.describe().replace(f"`{result.name}`", f"`{where}{result.name}`", 1)
+        return f"`{where}{result.name}`: {result.caption}"
+
+    for title, steps, where in (("Per pass", PASS_STEPS, "PASS/"),
+                                ("Per campaign", CAMPAIGN_STEPS, "")):
+        out += [f"## {title}", ""]
+        for step, files in steps.items():
+            out += [f"### Step `{step}`", ""]
+            out += [describe(f, where) + "\n" for f in files]
+            if step == "summary":
+                out += [describe(f, "PASS/") + "\n" for f in SUMMARY_PASS_FILES]
+    return "\n".join(out).rstrip("\n") + "\n"
+
+
 def pass_steps_done(folder) -> bool:
     """Whether every pass step has written its files into a pass's folder."""
     return all((Path(folder) / file_name(f)).exists() for files in PASS_STEPS.values()
@@ -67,3 +99,7 @@ def pass_files() -> list[str]:
     """Every file a finished run leaves in a pass's folder (the map figures' folder apart)."""
     return [file_name(f) for files in PASS_STEPS.values() for f in files] + [
         file_name(f) for f in SUMMARY_PASS_FILES]
+
+
+if __name__ == "__main__":
+    print(describe_all(), end="")

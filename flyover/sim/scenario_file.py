@@ -14,7 +14,7 @@ from flyover.geometry.frames import SiteFrame
 from flyover.io.config import read_schema, read_yaml
 from flyover.io.timestamps import parse_utc_ns
 from flyover.acoustics.ground import GroundSurface
-from flyover.model.campaign import MOUNTING_GAIN
+from flyover.campaign import MOUNTING_GAIN
 from flyover.model.errors import FlyoverInputError, suggest
 from flyover.sim.scenario import PassScenario, RecorderScenario, Scenario, spiral_layout
 

@@ -1,0 +1,70 @@
+"""What the ground reflection of raised microphones does to the maps, per frequency line: the
+expected power of a source's full and diagonal-removed map relative to free field, by which the
+chain divides (:func:`flyover.imaging.dedoppler.window_band_powers`)."""
+
+from __future__ import annotations
+
+
+import numpy as np
+
+from flyover.acoustics.ground import GroundSurface, reflection_transfer
+from flyover.imaging.reception import ImagePaths
+
+
+# Floor of the expected map power relative to free field in the ground correction: at most
+# +15 dB on a line in a notch of the two-path comb, where the reflection cancels the direct
+# sound at every microphone (overhead, at low frequency).
+GROUND_POWER_FLOOR = 0.03
+
+
+def ground_q(image: ImagePaths, frequency_hz, c_m_s: float,
+             ground: GroundSurface | None) -> np.ndarray:
+    """Q of each microphone's image path (FFT convention) at source frequencies,
+    (n_mics, n_freqs): taken at the grid's mean incidence and path length (Q changes little
+    across a vehicle grid) and at the received frequency f / (dt/dtau)."""
+    surface = ground if ground is not None else GroundSurface("hard")
+    f = np.asarray(frequency_hz, float)
+    if surface.surface == "hard":
+        return np.ones((image.delay_s.shape[1], len(f)), complex)
+    received = f[None, :] / image.doppler.mean(axis=0)[:, None]
+    return reflection_transfer(received, image.cos_incidence.mean(axis=0)[:, None],
+                               image.path_m.mean(axis=0)[:, None], c_m_s, surface)
+
+
+def _hann_squared_mean(x) -> np.ndarray:
+    """Mean of e^(-i 2 pi x u / T) over a window of length T weighted by the square of the
+    periodic Hann window (the weight of a windowed band power): real, 1 at x = 0.
+    cos^4 = 3/8 + cos(2 pi u / T) / 2 + cos(4 pi u / T) / 8, each term a sinc."""
+    return (np.sinc(x) + (2 / 3) * (np.sinc(x - 1) + np.sinc(x + 1))
+            + (1 / 6) * (np.sinc(x - 2) + np.sinc(x + 2)))
+
+
+def ground_gains(image: ImagePaths, q, frequency_hz, duration_s: float,
+                 weights) -> tuple[np.ndarray, np.ndarray]:
+    """What the reflection of raised microphones does to the maps of a source at the grid
+    point: expected power of the full and the diagonal-removed map per frequency line, relative
+    to free field, each (n_points, n_freqs).
+
+    Microphone m receives the reflection as a copy of the de-Dopplerized signal delayed by
+    ``delay + rate u`` (u from the window centre) and scaled by ``z_m = ratio Q
+    e^(-i 2 pi f delay)``. Over a window (Hann squared weights for power) the expected
+    cross-power of microphones m and n is ``1 + z_m W_m + conj(z_n W_n) + z_m conj(z_n)``,
+    W the window's mean of the delay's sweep (1 where the delay holds still, near 0 where it
+    sweeps many cycles: high frequencies away from overhead); the last term treats m and n as
+    sweeping alike (neighbours on the array). Summed with the weights this gives the beam's and
+    the diagonal's expected power in O(n_mics) per line. Dividing the maps by them leaves the
+    free-field source power for tonal and broadband content alike; the image source's leakage
+    into other grid points cancels in source power integration (the unit sources carry it too).
+    """
+    f = np.asarray(frequency_hz, float)
+    w = np.asarray(weights, float)[None, :, None]
+    z = image.ratio[..., None] * q[None] * np.exp(
+        -2j * np.pi * f[None, None, :] * image.delay_s[..., None])
+    sweep = _hann_squared_mean(f[None, None, :] * image.delay_rate[..., None] * duration_s)
+    s1, s2 = float(w.sum()), float((w ** 2).sum())
+    zw = np.sum(w * z * sweep, axis=1)
+    beam = s1 ** 2 + 2.0 * s1 * zw.real + np.abs(np.sum(w * z, axis=1)) ** 2
+    auto = np.sum(w ** 2 * (1.0 + np.abs(z) ** 2 + 2.0 * (z * sweep).real), axis=1)
+    full = beam / s1 ** 2
+    removed = (beam - auto) / (s1 ** 2 - s2)
+    return (np.maximum(full, GROUND_POWER_FLOOR), np.maximum(removed, GROUND_POWER_FLOOR))
