@@ -215,3 +215,15 @@ def test_method_tunables_come_from_the_campaign(tiny_copy, capsys):
         "clean_loop_gain": 0.0}))
     assert main(["check", str(path)]) == 2
     assert "clean_loop_gain" in capsys.readouterr().err
+
+
+def test_region_grid_points_counted_on_the_axes():
+    # The region checks count grid points from the axes (a 400 m grid at 5 cm would otherwise
+    # build 64 million points before refusing itself); naive reference: the points themselves.
+    from flyover.geometry.vehicle import Region, VehicleGrid
+    grid = VehicleGrid((-2.0, 2.0), (-1.2, 1.2), 0.1)
+    points = grid.points_m()
+    for region in (Region("a", (0.5, 1.9), (-0.7, 0.7)), Region("b", (-0.05, 0.05), (0.3, 0.3)),
+                   Region("c", (0.52, 0.58), (0.0, 1.0)), Region("d", (-2.0, 2.0), (-1.2, 1.2))):
+        mx, my = grid.axis_masks(region)
+        assert mx.sum() * my.sum() == region.contains(points).sum(), region.name

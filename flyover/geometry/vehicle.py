@@ -75,6 +75,13 @@ class VehicleGrid:
         """(n_x, n_y)."""
         return len(self.x_axis_m), len(self.y_axis_m)
 
+    def axis_masks(self, region: Region) -> tuple[np.ndarray, np.ndarray]:
+        """Which points of the x and the y axis lie in a region (as :meth:`Region.contains`):
+        the region's grid points are their outer product, counted without building the grid."""
+        x, y = self.x_axis_m, self.y_axis_m
+        return ((x >= region.x_m[0] - 1e-9) & (x <= region.x_m[1] + 1e-9),
+                (y >= region.y_m[0] - 1e-9) & (y <= region.y_m[1] + 1e-9))
+
     def points_m(self) -> np.ndarray:
         """Grid points in body axes, shape (n_x * n_y, 3), x varying slowest."""
         gx, gy = np.meshgrid(self.x_axis_m, self.y_axis_m, indexing="ij")

@@ -250,11 +250,11 @@ def _check_methods_for_raised(analysis: AnalysisSettings, arrays, source: str) -
 def _check_regions_apart(regions: dict[str, Region], grid: VehicleGrid, source: str) -> None:
     """Refuse regions that share grid points: source power integration gives each grid point to
     one region, and a shared point would count the same sound in both."""
-    points = grid.points_m()
+    masks = {name: grid.axis_masks(r) for name, r in regions.items()}
     names = list(regions)
     for i, a in enumerate(names):
         for b in names[i + 1:]:
-            shared = int(np.sum(regions[a].contains(points) & regions[b].contains(points)))
+            shared = int(np.sum(masks[a][0] & masks[b][0]) * np.sum(masks[a][1] & masks[b][1]))
             if shared:
                 raise FlyoverInputError(
                     f"regions '{a}' and '{b}' overlap", f"{source}, key vehicle.regions",
@@ -484,7 +484,6 @@ def campaign_from_mapping(data: dict, path: Path) -> Campaign:
     regions = {name: Region(name, _range(r["x_m"]), _range(r["y_m"]), grid.z_m,
                             float(r.get("convective_exponent", 2.0)))
                for name, r in veh["regions"].items()}
-    points = grid.points_m()
     for r in regions.values():
         c = r.center_m
         if not (grid.x_m[0] <= c[0] <= grid.x_m[1] and grid.y_m[0] <= c[1] <= grid.y_m[1]):
@@ -492,7 +491,7 @@ def campaign_from_mapping(data: dict, path: Path) -> Campaign:
                                     f"{source}, key vehicle.regions.{r.name}",
                                     f"x within {list(grid.x_m)} and y within {list(grid.y_m)}",
                                     f"centre at x = {c[0]}, y = {c[1]}")
-        if not np.any(r.contains(points)):
+        if not all(m.any() for m in grid.axis_masks(r)):
             raise FlyoverInputError(f"region '{r.name}' holds no grid point",
                                     f"{source}, key vehicle.regions.{r.name}",
                                     f"a rectangle at least one grid spacing "
