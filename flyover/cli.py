@@ -239,7 +239,8 @@ def _dispatch(args) -> int:
     try:
         stage.run(campaign, args.pass_name, out, **options)
     except OSError as exc:
-        from flyover.pipeline.context import load_pass, output_bytes
+        from flyover.pipeline._resources import output_bytes
+        from flyover.pipeline.context import load_pass
         print(file_system_message(exc, output_bytes(campaign, load_pass(campaign,
                                                                         args.pass_name))),
               file=sys.stderr)

@@ -181,7 +181,8 @@ def two_recorder_dir(tmp_path_factory):
 
 
 def test_two_recorders_are_put_on_one_time_base(two_recorder_dir):
-    from flyover.pipeline.context import load_pass, pass_summary
+    from flyover.pipeline._facts import pass_summary
+    from flyover.pipeline.context import load_pass
     campaign = load_campaign(two_recorder_dir / "campaign.yaml")
     spec = campaign.passes["p1"]
     assert all(r.start_utc_ns is None for r in spec.recorders)   # no typed start anywhere

@@ -16,7 +16,8 @@ from flyover.acoustics.bands import third_octave_bands
 from flyover.geometry.windows import plan_windows
 from flyover.io.config import load_campaign
 from flyover.campaign import SignoffLimits
-from flyover.pipeline.context import chain_settings, load_pass
+from flyover.pipeline._resources import chain_settings
+from flyover.pipeline.context import load_pass
 from flyover.pipeline.signoff import track_findings
 from flyover.pipeline.trackcheck import CHECK_POLAR_OFFSET_DEG
 from flyover.sync.track_check import scan_track_offset

@@ -9,7 +9,8 @@ from flyover.geometry.windows import Window
 from flyover.imaging.dedoppler import dedopplerized_signals
 from flyover.imaging.reception import reception_geometry, required_frames
 from flyover.campaign import Campaign
-from flyover.pipeline.context import PassInputs, chain_settings
+from flyover.pipeline._resources import chain_settings
+from flyover.pipeline.context import PassInputs
 
 
 def dedopplerize_span(campaign: Campaign, inputs: PassInputs, start_s: float, n_samples: int,

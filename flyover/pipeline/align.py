@@ -13,7 +13,9 @@ from flyover.campaign import PASS_INPUTS, Campaign
 from flyover.model.errors import FlyoverInputError
 from flyover.model.reads import guarded
 from flyover.pipeline._span import dedopplerize_span
-from flyover.pipeline.context import chain_settings, load_pass, pass_summary
+from flyover.pipeline._facts import pass_summary
+from flyover.pipeline._resources import chain_settings
+from flyover.pipeline.context import load_pass
 from flyover.sync.clock_offset import estimate_clock_offset
 from flyover.sync.quality import (ChannelAccumulator, channel_quality, neighbour_coherence,
                                   track_quality)

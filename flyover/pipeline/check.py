@@ -14,8 +14,9 @@ from flyover.imaging.planning import band_resolution, separable_from_hz
 from flyover.campaign import Campaign
 from flyover.model.errors import FlyoverInputError
 from flyover.model.signoff import label_findings
-from flyover.pipeline.context import (PassInputs, check_memory, load_pass, output_bytes,
-                                      pass_summary)
+from flyover.pipeline._facts import pass_summary
+from flyover.pipeline._resources import check_memory, output_bytes
+from flyover.pipeline.context import PassInputs, load_pass
 
 def check_campaign(campaign: Campaign) -> list[dict]:
     """Check everything a run will need and summarise each pass.

@@ -2,31 +2,28 @@
 
 from __future__ import annotations
 
-import os
 import dataclasses
 from dataclasses import dataclass
 
 import numpy as np
 
-from flyover.acoustics.bands import third_octave_bands
 from flyover.geometry.overview import pass_geometry
 from flyover.acoustics.atmosphere import Atmosphere
 from flyover.acoustics.weather import weather_flags, weather_over
 from flyover.geometry.track import (TrackModel, antenna_to_origin, fit_track,
                                     heading_through_air)
 from flyover.geometry.windows import polar_angle_deg
-from flyover.imaging.chain import ChainSettings, window_memory_bytes
 from flyover.io.readers import read
 from flyover.io.recorders import JoinedRecording, join_files
 from flyover.io.readers.layout_csv import ArrayLayout
-from flyover.io.results import pass_output_bytes
 from flyover.io.results.alignment import read_alignment
 from flyover.campaign import (ArraySpec, Campaign, PassSpec, RecorderSpec, RotorSpec,
-                                   pass_array)
+                              pass_array)
 from flyover.model.flightdata import TrackSamples
-from flyover.model.errors import FlyoverInputError, suggest
+from flyover.model.errors import FlyoverInputError
 from flyover.model.timebase import ArrayClock, RecordingClock, iso_utc
-from flyover.sync.timecode import TimingFit, measure_clock
+from flyover.pipeline._channels import channel_maps, recorder_clock
+from flyover.sync.timecode import TimingFit
 
 
 @dataclass(frozen=True)
@@ -226,7 +223,11 @@ class RotorSpeeds:
 # The track is cut to the recording and this margin before it is fitted: a whole flight's log
 # may hold gaps (no fix on the ground) that have nothing to do with the pass.
 TRACK_MARGIN_S = 10.0
+
+
 MAX_HEIGHT_ABOVE_ARRAY_M = 600.0
+
+
 MIN_TRACK_MOVEMENT_M = 1.0
 
 
@@ -269,7 +270,7 @@ def load_pass(campaign: Campaign, name: str, clock_offset_s: float | None = None
     array = pass_array(campaign, name)
     where = f"{campaign.config_path}, key passes.{name}.recording"
     streams = [join_files(r.files, where=f"{where}, recorder '{r.name}'") for r in spec.recorders]
-    maps = _channel_maps(array, spec, layout, streams, where)
+    maps = channel_maps(array, spec, layout, streams, where)
     rates = {r.name: s.sample_rate_hz for r, s in zip(spec.recorders, streams)}
     if len(set(rates.values())) > 1:
         raise FlyoverInputError(
@@ -287,7 +288,7 @@ def load_pass(campaign: Campaign, name: str, clock_offset_s: float | None = None
         offset = 0.0  # the alignment stage estimates it; until then the recorders' times are used
     recorders = []
     for r, stream, (mics, chans, timing) in zip(spec.recorders, streams, maps):
-        clock, fit, source = _recorder_clock(r, stream, timing, float(offset),
+        clock, fit, source = recorder_clock(r, stream, timing, float(offset),
                                              (measured_clocks or {}).get(r.name),
                                              f"{where}, recorder '{r.name}'")
         recorders.append(RecorderInputs(r, stream, mics, chans, clock, fit, source))
@@ -398,119 +399,6 @@ def _weather_atmosphere(campaign: Campaign, inputs: PassInputs) -> tuple[Atmosph
     return atm, summary
 
 
-def _recorder_channel(value, stream: JoinedRecording, where: str) -> int:
-    """0-based channel of a recording from a 1-based index or a channel name."""
-    if isinstance(value, str):
-        names = list(stream.channel_names)
-        matches = [k for k, n in enumerate(names) if n == value or n.split("/")[-1] == value]
-        if len(matches) != 1:
-            raise FlyoverInputError(
-                f"no channel named '{value}' in the recording" if not matches else
-                f"several channels named '{value}' in the recording", where,
-                "one of " + ", ".join(repr(n) for n in names) if names else
-                "a channel number (this file has no channel names)",
-                f"'{value}' in {stream.path.name}", suggest(value, names))
-        return matches[0]
-    if not 1 <= int(value) <= stream.n_channels:
-        raise FlyoverInputError("recorder channel out of range", where,
-                                f"a channel from 1 to {stream.n_channels} of {stream.path.name}",
-                                f"{value}")
-    return int(value) - 1
-
-
-def _channel_maps(array: ArraySpec, spec: PassSpec, layout: ArrayLayout,
-                  streams: list[JoinedRecording], where: str):
-    """Per recorder: layout rows of its microphones, their 0-based recording channels, and its
-    timing channels by name (0-based). Every microphone is on exactly one recorder channel."""
-    row_of = {int(c): k for k, c in enumerate(layout.channel)}
-    owner: dict[int, str] = {}
-    out = []
-    for r, stream in zip(spec.recorders, streams):
-        at = f"{where}, recorder '{r.name}'"
-        timing = {str(t): _recorder_channel(t, stream, f"{at}, timing_channel")
-                  for t in r.timing_channels}
-        if r.channels is None:  # one recorder: recording channel k is layout channel k
-            extra = set(array.extra_channels) | {t + 1 for t in timing.values()}
-            expected = set(layout.channel.tolist()) | extra
-            if expected != set(range(1, stream.n_channels + 1)) or extra & set(row_of):
-                raise FlyoverInputError(
-                    "layout and recording disagree on the channels", str(stream.path),
-                    f"{len(layout.channel)} microphone channels as in {array.layout}"
-                    + (f" plus extra channels {sorted(extra)}" if extra else ""),
-                    f"{stream.n_channels} channels in the recording",
-                    "give one layout row per microphone channel, and list channels that are "
-                    "not microphones (a PPS or timecode track) in array.extra_channels")
-            pairs = [(int(c), int(c)) for c in layout.channel]
-        else:
-            pairs = list(r.channels)
-        mics, chans, used = [], [], {}
-        for lay, rec in pairs:
-            if lay not in row_of:
-                raise FlyoverInputError("a mapped channel is not in the layout",
-                                        f"{at}, channels", f"channels of {array.layout}",
-                                        f"layout channel {lay}")
-            if lay in owner:
-                raise FlyoverInputError(
-                    f"layout channel {lay} is mapped twice", f"{at}, channels",
-                    "each microphone on exactly one recorder channel",
-                    f"also on recorder '{owner[lay]}'" if owner[lay] != r.name else
-                    "twice on this recorder")
-            ch = _recorder_channel(rec, stream, f"{at}, channels.{lay}")
-            if ch in used or ch in timing.values():
-                raise FlyoverInputError(
-                    f"recorder channel {rec} is mapped twice", f"{at}, channels",
-                    "each recorder channel used once",
-                    f"layout channel {lay} and " + (f"layout channel {used[ch]}" if ch in used
-                                                    else "the timing channel"))
-            owner[lay], used[ch] = r.name, lay
-            mics.append(row_of[lay])
-            chans.append(ch)
-        if not mics:
-            raise FlyoverInputError("a recorder records no microphone", f"{at}, channels",
-                                    "at least one layout channel")
-        order = np.argsort(mics)
-        out.append((np.asarray(mics)[order], np.asarray(chans)[order], timing))
-    missing = sorted(set(row_of) - set(owner))
-    if missing:
-        raise FlyoverInputError("layout channels mapped to no recorder", where,
-                                "every microphone of the layout on one recorder channel",
-                                f"no recorder channel for layout channel(s) {missing}",
-                                "add them to a recorder's channels, or remove them from the "
-                                "layout")
-    return out
-
-
-def _recorder_clock(r: RecorderSpec, stream: JoinedRecording, timing: dict[str, int],
-                    common_offset_s: float, measured, where: str):
-    """A recorder's clock: measured from its timing channels, or its start time (typed, else
-    from its files) with its offset and rate error; plus the pass's common offset.
-
-    ``measured`` is a :class:`TimingFit` or a mapping with ``start_utc_ns`` and ``drift_ppm``
-    from an earlier measurement, or None to decode the timing channels here.
-    """
-    fs = stream.sample_rate_hz
-    typed = r.start_utc_ns
-    own = typed if typed is not None else stream.start_utc_ns
-    if timing:
-        fit = measured if isinstance(measured, TimingFit) else None
-        if measured is None:
-            fit = measure_clock(
-                {name: (lambda first, n, ch=ch: stream.read(first, n, [ch])[0])
-                 for name, ch in timing.items()},
-                stream.n_frames, fs, own, where=where)
-        start, drift = ((fit.start_utc_ns, fit.drift_ppm) if fit is not None else
-                        (int(measured["start_utc_ns"]), float(measured["drift_ppm"])))
-        return RecordingClock(start, common_offset_s, fs, drift), fit, "timing channel"
-    if own is None:
-        raise FlyoverInputError(
-            "no start time for the recorder", where,
-            "recording_start_utc (or start_utc), a file with a time reference (Broadcast WAV, "
-            "TDMS), or an IRIG-B timing channel", f"none in {stream.path.name}")
-    source = "typed start" if typed is not None else stream.time_reference
-    return (RecordingClock(own, r.clock_offset_s + common_offset_s, fs, r.rate_error_ppm),
-            None, source)
-
-
 def _check_coverage(inputs: PassInputs) -> None:
     track, clock, spec, layout = inputs.track, inputs.clock, inputs.spec, inputs.layout
     rec_start, rec_end = inputs.recording_span_s
@@ -519,16 +407,16 @@ def _check_coverage(inputs: PassInputs) -> None:
             "the recorders of the pass never record at the same time",
             f"{spec.name}: recorders " + ", ".join(r.spec.name for r in inputs.recorders),
             "recorders whose spans overlap", "spans " + "; ".join(
-                f"{r.spec.name} {_utc(clock, a)} to {_utc(clock, b)}"
+                f"{r.spec.name} {utc_at(clock, a)} to {utc_at(clock, b)}"
                 for r in inputs.recorders for a, b in [inputs.recorder_span_s(r)]),
             "check the recorders' start times and files")
     lo, hi = max(track.start_s, rec_start), min(track.end_s, rec_end)
     if hi <= lo:
         raise FlyoverInputError(
             "the track does not cover the recording", str(spec.track),
-            f"track times overlapping the recording ({_utc(clock, rec_start)} to "
-            f"{_utc(clock, rec_end)})",
-            f"track from {_utc(clock, track.start_s)} to {_utc(clock, track.end_s)}",
+            f"track times overlapping the recording ({utc_at(clock, rec_start)} to "
+            f"{utc_at(clock, rec_end)})",
+            f"track from {utc_at(clock, track.start_s)} to {utc_at(clock, track.end_s)}",
             "check the recording start time, the clock offset and the track's time scale "
             "(GPS time is 18 s ahead of UTC)")
     t = np.linspace(lo, hi, 400)
@@ -538,7 +426,7 @@ def _check_coverage(inputs: PassInputs) -> None:
         raise FlyoverInputError(
             "the track never moves while recording", str(spec.track),
             f"a vehicle passing over the array (at least {MIN_TRACK_MOVEMENT_M:g} m of travel)",
-            f"{moved:.2f} m of travel from {_utc(clock, lo)} to {_utc(clock, hi)}",
+            f"{moved:.2f} m of travel from {utc_at(clock, lo)} to {utc_at(clock, hi)}",
             "is this the log of a hover, or of another flight?")
     height = rel[:, 2]
     if np.max(height) < 1.0:
@@ -561,175 +449,14 @@ def _check_coverage(inputs: PassInputs) -> None:
                                 f"closest {closest:.0f} m")
 
 
-def _utc(clock: ArrayClock, t_s: float) -> str:
+def utc_at(clock: ArrayClock, t_s: float) -> str:
     return iso_utc(int(clock.utc_ns(t_s)))
-
-
-def pass_summary(inputs: PassInputs) -> dict:
-    """The facts `flyover check` prints and the alignment stage records for one pass."""
-    geo = pass_geometry(inputs.track, inputs.layout.center_enu_m, inputs.recording_span_s)
-    clock = inputs.clock
-    atm = inputs.atmosphere
-    return {
-        "pass": inputs.spec.name,
-        "channels": int(inputs.n_channels),
-        "microphones": len(inputs.layout.channel),
-        "channels_used": int(inputs.weights.sum()),
-        "sample_rate_hz": inputs.sample_rate_hz,
-        "duration_s": inputs.duration_s,
-        "epoch_utc": iso_utc(clock.epoch_utc_ns),
-        "clock_offset_s": inputs.common_offset_s,
-        "clock_offset_auto": inputs.spec.clock_offset_s == "auto",
-        "recorders": [recorder_summary(inputs, r) for r in inputs.recorders],
-        "track_start_utc": iso_utc(int(clock.utc_ns(inputs.track.start_s))),
-        "track_end_utc": iso_utc(int(clock.utc_ns(inputs.track.end_s))),
-        "covered_s": [geo.covered_s[0], geo.covered_s[1]],
-        "overhead_utc": iso_utc(int(clock.utc_ns(geo.closest_s))),
-        "overhead_s": geo.closest_s,
-        "reaches_overhead": geo.reaches_overhead,
-        "closest_distance_m": geo.closest_m,
-        "height_above_array_m": geo.height_m,
-        "speed_m_s": geo.speed_m_s,
-        "course_deg": course_deg(inputs.track, geo.closest_s),
-        "track_noise_estimate_m": inputs.track.residual_rms_m(),
-        "speed_of_sound_m_s": atm.c_m_s,
-        "array_aperture_m": inputs.layout.aperture_m,
-        "array_center_enu_m": [float(v) for v in inputs.layout.center_enu_m],
-        "array": mounting_summary(inputs),
-        "atmosphere": {"temperature_c": atm.temperature_c,
-                       "relative_humidity_pct": atm.relative_humidity_pct,
-                       "pressure_kpa": atm.pressure_kpa, "wind_speed_m_s": atm.wind_speed_m_s,
-                       "wind_from_deg": atm.wind_from_deg,
-                       "speed_of_sound_m_s": atm.speed_of_sound_m_s,
-                       "source": "typed" if inputs.weather is None else "weather file",
-                       "profile_layers": len(atm.profile),
-                       "profile_span_m": list(atm.span_m) if atm.span_m else None},
-        "weather": inputs.weather,
-        "track": track_summary(inputs),
-        "rotors": [r.summary() for r in inputs.rotors],
-    }
-
-
-def mounting_summary(inputs: PassInputs) -> dict:
-    """The array the pass was flown over: its layout file, mounting and the ground."""
-    array, layout = inputs.array, inputs.layout
-    out = {"layout": array.layout.name, "mounting": array.mounting,
-           "own_array": inputs.spec.array is not None}
-    if array.mounting == "raised":
-        out["ground"] = array.ground.describe()
-        out["mic_height_m"] = [float(layout.mic_height_m.min()), float(layout.mic_height_m.max())]
-    if array.plate_correction_db:
-        out["plate_correction_db"] = {f"{k:g}": v for k, v in array.plate_correction_db.items()}
-    return out
-
-
-def track_summary(inputs: PassInputs) -> dict:
-    """The track file's source, rate, span over the pass, what it holds and what was dropped."""
-    s = inputs.track_samples
-    return {"file": inputs.spec.track.name, "source": s.source, "rate_hz": s.rate_hz(),
-            "start_utc": iso_utc(int(s.utc_ns[0])), "end_utc": iso_utc(int(s.utc_ns[-1])),
-            "samples": len(s.utc_ns), "holds": s.holds, "notes": list(s.notes),
-            "antenna_offset_m": (list(inputs.spec.track_antenna_offset_m)
-                                 if inputs.spec.track_antenna_offset_m is not None else None),
-            "position_noise_estimate_m": inputs.track.residual_rms_m(),
-            "heading_source": inputs.track.heading_source,
-            "crab_angle_deg": crab_angle_deg(inputs.track, pass_geometry(
-                inputs.track, inputs.layout.center_enu_m, inputs.recording_span_s).closest_s)}
 
 
 def course_deg(track, time_s: float) -> float:
     """The ground track's direction at a time, degrees clockwise from north (0-360)."""
     v = track.velocity(np.array([time_s]))[0]
     return float(np.rad2deg(np.arctan2(v[0], v[1])) % 360.0)
-
-
-def crab_angle_deg(track, time_s: float) -> float:
-    """Yaw minus the ground track's direction at a time, in degrees from -180 to 180."""
-    course = course_deg(track, time_s)
-    return float((track.attitude_deg(np.array([time_s]))[0, 0] - course + 180.0) % 360.0 - 180.0)
-
-
-def recorder_summary(inputs: PassInputs, r: RecorderInputs) -> dict:
-    """One recorder's facts: files, channels, span on the pass epoch, and its clock."""
-    span = inputs.recorder_span_s(r)
-    lay = inputs.layout.channel[r.mics]
-    out = {
-        "name": r.spec.name,
-        "files": [p.name for p in r.recording.paths],
-        "format": r.recording.format,
-        "channels": int(r.recording.n_channels),
-        "microphones": len(r.mics),
-        "layout_channels": _ranges(lay),
-        "sample_rate_hz": r.recording.sample_rate_hz,
-        "duration_s": r.recording.duration_s,
-        "start_utc": iso_utc(int(inputs.clock.utc_ns(span[0]))),
-        "span_s": [span[0], span[1]],
-        "clock_method": ("timing channel" if r.spec.timing_channels else
-                         "acoustic" if inputs.spec.clock_offset_s == "auto" else "given"),
-        "start_source": r.start_source,
-        "start_utc_ns": int(r.clock.start_utc_ns),
-        "drift_ppm": r.clock.rate_error_ppm,
-        # Given clocks: the stated offset, uncertainty unknown (the acoustic estimate and the
-        # timing channels give theirs).
-        "offset_uncertainty_s": None,
-    }
-    own = r.spec.start_utc_ns if r.spec.start_utc_ns is not None else r.recording.start_utc_ns
-    # The correction that the recorder's own time of its first sample needed (None for a
-    # recorder with no time of its own, timed by IRIG-B alone).
-    out["offset_s"] = None if own is None else (r.clock.epoch_utc_ns - own) / 1e9
-    if r.timing is not None:
-        out["offset_uncertainty_s"] = r.timing.start_uncertainty_s
-        t = r.timing
-        out.update(timing_kind=t.kind, timing_edges=t.n_edges,
-                   timing_residual_rms_us=t.residual_rms_s * 1e6,
-                   timing_residual_max_us=t.residual_max_s * 1e6,
-                   start_uncertainty_us=t.start_uncertainty_s * 1e6,
-                   drift_uncertainty_ppm=t.drift_uncertainty_ppm, timing_events=list(t.events))
-    return out
-
-
-def _ranges(channels) -> str:
-    """'1-24, 30' from a list of channel numbers."""
-    c = sorted(int(v) for v in channels)
-    parts, lo = [], c[0]
-    for a, b in zip(c, c[1:] + [None]):
-        if b != a + 1:
-            parts.append(f"{lo}-{a}" if a > lo else f"{a}")
-            lo = b
-    return ", ".join(parts)
-
-
-def chain_settings(inputs: PassInputs, bands, interpolation: str, *, weights=None,
-                   absorption: bool = True) -> ChainSettings:
-    """How the pass's array is imaged: its mounting's G and, for raised microphones, their
-    images in the ground and the ground's surface."""
-    array = inputs.array
-    raised = array.mounting == "raised"
-    return ChainSettings(bands, inputs.weights if weights is None else weights,
-                         array.pressure_gain, interpolation, absorption,
-                         image_mic_enu_m=inputs.layout.image_enu_m if raised else None,
-                         ground=array.ground)
-
-
-def check_memory(campaign: Campaign, inputs: PassInputs, share: float = 0.5) -> None:
-    """Refuse a window or grid whose processing would need more than ``share`` of the memory."""
-    an = campaign.analysis
-    settings = chain_settings(inputs, third_octave_bands(an.band_min_hz, an.band_max_hz),
-                              an.interpolation)
-    fs = inputs.sample_rate_hz
-    n_grid = int(np.prod(campaign.grid.shape))
-    need = window_memory_bytes(n_grid, len(inputs.layout.channel), int(an.window_s * fs),
-                               len(settings.bands), settings)
-    have = os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_PHYS_PAGES")
-    if need > share * have:
-        raise FlyoverInputError(
-            "window or vehicle grid too large for the memory available",
-            f"{campaign.config_path}, keys vehicle.grid and analysis.window_s",
-            f"at most {share * have / 2 ** 30:.1f} GiB per window ({share:.0%} of this machine)",
-            f"about {need / 2 ** 30:.1f} GiB for {campaign.grid.shape[0]} x "
-            f"{campaign.grid.shape[1]} grid points, {len(inputs.layout.channel)} microphones and "
-            f"{an.window_s} s windows",
-            "use a coarser spacing_m, a smaller grid or a shorter window_s")
 
 
 def load_aligned_pass(campaign: Campaign, name: str, out_dir) -> tuple[PassInputs, dict]:
@@ -740,11 +467,3 @@ def load_aligned_pass(campaign: Campaign, name: str, out_dir) -> tuple[PassInput
     inputs = load_pass(campaign, name, float(alignment["clock_offset_s"]),
                        alignment.get("quality_excluded_channels", []), measured)
     return inputs, alignment
-
-
-def output_bytes(campaign: Campaign, inputs: PassInputs) -> int:
-    """About how many bytes the results of a pass will take."""
-    an = campaign.analysis
-    n_windows = an.window_count_bound(inputs.duration_s)
-    return pass_output_bytes(n_windows, len(third_octave_bands(an.band_min_hz, an.band_max_hz)),
-                             int(np.prod(campaign.grid.shape)))

@@ -25,7 +25,8 @@ from flyover.io.results.windows import NO_WINDOW, WINDOWS
 from flyover.campaign import PASS_INPUTS, Campaign
 from flyover.model.reads import guarded
 from flyover.model.timebase import iso_utc
-from flyover.pipeline.context import chain_settings, check_memory, load_aligned_pass
+from flyover.pipeline._resources import chain_settings, check_memory
+from flyover.pipeline.context import load_aligned_pass
 from flyover.pipeline.progress import Progress
 
 # What this stage reads of the campaign (flyover.model.reads): its re-run fingerprint too.

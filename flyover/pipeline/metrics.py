@@ -22,7 +22,8 @@ from flyover.campaign import PASS_INPUTS, Campaign
 from flyover.model.constants import TOTAL
 from flyover.model.errors import FlyoverInputError
 from flyover.model.reads import guarded
-from flyover.pipeline.context import PassInputs, load_aligned_pass, pass_summary
+from flyover.pipeline._facts import pass_summary
+from flyover.pipeline.context import PassInputs, load_aligned_pass
 from flyover.model.timebase import iso_utc
 
 # What this stage reads of the campaign (flyover.model.reads): its re-run fingerprint too.

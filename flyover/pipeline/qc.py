@@ -14,7 +14,8 @@ from flyover.io.results.windows import read_analysed
 from flyover.campaign import PASS_INPUTS, Campaign
 from flyover.model.reads import guarded
 from flyover.pipeline._span import dedopplerize_span
-from flyover.pipeline.context import load_aligned_pass, pass_summary
+from flyover.pipeline._facts import pass_summary
+from flyover.pipeline.context import load_aligned_pass
 
 # What this stage reads of the campaign (flyover.model.reads): its re-run fingerprint too.
 READS = PASS_INPUTS + ("regions", "analysis.band_min_hz", "analysis.band_max_hz")

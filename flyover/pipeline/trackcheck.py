@@ -14,7 +14,8 @@ from flyover.io.results.levels import LEVELS
 from flyover.io.results.track_check import NAME as TRACK_CHECK
 from flyover.campaign import PASS_INPUTS, Campaign
 from flyover.model.reads import guarded
-from flyover.pipeline.context import chain_settings, load_aligned_pass
+from flyover.pipeline._resources import chain_settings
+from flyover.pipeline.context import load_aligned_pass
 from flyover.sync.track_check import scan_track_offset
 
 # What this stage reads of the campaign (flyover.model.reads): its re-run fingerprint too.
