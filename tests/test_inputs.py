@@ -258,3 +258,26 @@ def test_rf64_and_w64_headers_are_read(tmp_path):
         p.write_bytes(p.read_bytes()[:-900])
         with pytest.raises(FlyoverInputError, match="truncated"):
             recording_info(p)
+
+
+@pytest.mark.parametrize("change, words", [
+    (lambda s: s["array"].update(armz=4), ["unknown key 'array.armz'", "arms"]),
+    (lambda s: s["array"].pop("arms"), ["missing key 'array.arms'"]),
+])
+def test_a_bad_scenario_file_is_worded_like_a_bad_campaign_file(tmp_path, change, words):
+    # The simulator's scenario file goes through the same checked reader as the campaign file:
+    # the key, what was expected, a suggestion; no jsonschema message.
+    import copy
+
+    import yaml
+    from conftest import TINY_SCENARIO
+
+    from flyover.sim.scenario_file import load_scenario
+    s = copy.deepcopy(TINY_SCENARIO)
+    change(s)
+    (tmp_path / "scenario.yaml").write_text(yaml.safe_dump(s))
+    with pytest.raises(FlyoverInputError) as info:
+        load_scenario(tmp_path / "scenario.yaml")
+    text = str(info.value)
+    for w in words:
+        assert w in text, text

@@ -5,33 +5,17 @@ from __future__ import annotations
 from pathlib import Path
 
 import numpy as np
-from jsonschema import Draft202012Validator
 
 from flyover.acoustics.atmosphere import Atmosphere, AtmosphereLayer
 from flyover.forward.moving_source import (Broadband, DipoleLike, PointSource, RotorTones,
                                            ShaftSpeed, Tone)
 from flyover.geometry.frames import SiteFrame
-from flyover.io.config import read_schema, read_yaml
+from flyover.io.yamlfile import read_yaml, validate_mapping
 from flyover.io.timestamps import parse_utc_ns
 from flyover.acoustics.ground import GroundSurface
 from flyover.campaign import MOUNTING_GAIN
 from flyover.model.errors import FlyoverInputError, suggest
 from flyover.sim.scenario import PassScenario, RecorderScenario, Scenario, spiral_layout
-
-
-def _validate(data: dict, source: str) -> None:
-    schema = read_schema("scenario")
-    errors = sorted(Draft202012Validator(schema).iter_errors(data),
-                    key=lambda e: len(e.absolute_path))
-    if errors:
-        err = errors[0]
-        where = ".".join(str(p) for p in err.absolute_path)
-        hint = ""
-        if err.validator == "additionalProperties":
-            bad = err.message.split("'")[1] if "'" in err.message else ""
-            hint = suggest(bad, (err.schema.get("properties") or {}).keys())
-        raise FlyoverInputError(err.message, f"{source}, key {where}" if where else source,
-                                hint=hint)
 
 
 def shaft_speed(value) -> ShaftSpeed:
@@ -53,7 +37,7 @@ def load_scenario(path) -> tuple[Scenario, SiteFrame, dict]:
     """
     path = Path(path).resolve()
     data = read_yaml(path)
-    _validate(data, str(path))
+    validate_mapping(data, "scenario", str(path))
     s = data["site"]
     site = SiteFrame(s["origin_lat_deg"], s["origin_lon_deg"], s["origin_height_m"])
     a = data["array"]
