@@ -3,7 +3,8 @@
 import numpy as np
 import pytest
 
-from flyover.acoustics.statistics import energetic_mean_db, mean_and_interval, polar_bin_deg
+from flyover.acoustics.statistics import (difference_interval, energetic_mean_db,
+                                          mean_and_interval, polar_bin_deg)
 
 
 def test_student_t_interval():
@@ -73,3 +74,43 @@ def test_campaign_rows_name_the_flagged_passes_they_include():
                       ["region", "band_range_hz"])
     assert campaign_figure(clean.assign(quantity="A-weighted")).axes[0].get_title() == \
         "cruise (3 passes)"
+
+
+def test_difference_interval_is_welchs_t_interval():
+    # Without stated uncertainties the interval is the unequal-variance t interval of
+    # scipy.stats.ttest_ind(equal_var=False) (a general-purpose reference), with its
+    # Welch-Satterthwaite degrees of freedom.
+    from scipy import stats
+    rng = np.random.default_rng(7)
+    for n_a, n_b, sd_a, sd_b in ((5, 4, 0.5, 1.5), (3, 8, 1.0, 0.3), (6, 6, 0.8, 0.8)):
+        a = 70 + rng.normal(0, sd_a, n_a)
+        b = 68 + rng.normal(0, sd_b, n_b)
+        ref = stats.ttest_ind(b, a, equal_var=False)
+        ci = ref.confidence_interval(0.90)
+        d = difference_interval(a, b, 0.90)
+        assert d["difference_db"] == pytest.approx(b.mean() - a.mean())
+        assert d["ci_low_db"] == pytest.approx(ci.low, rel=1e-9)
+        assert d["ci_high_db"] == pytest.approx(ci.high, rel=1e-9)
+        assert d["dof"] == pytest.approx(ref.df, rel=1e-9)
+        assert d["differs"] == (ci.low > 0 or ci.high < 0)
+
+
+def test_difference_interval_shared_terms_and_the_undecidable_case():
+    # Two labels of one campaign share the calibrator: its part cancels in the difference.
+    # Two campaigns do not: it counts once per group, so the interval is wider.
+    a, b = np.array([70.0, 70.4, 69.8]), np.array([68.1, 68.5, 67.9, 68.3])
+    ua, ub = np.full(3, 0.5), np.full(4, 0.5)
+    one = difference_interval(a, b, ua_db=ua, ub_db=ub, shared_db=0.3)
+    two = difference_interval(a, b, ua_db=ua, ub_db=ub, shared_db=0.3, shared_cancels=False)
+    plain = difference_interval(a, b)
+    independent = (0.5 ** 2 - 0.3 ** 2) * (1 / 3 + 1 / 4)
+    z = 1.6449
+    assert one["ci_half_width_db"] == pytest.approx(
+        np.hypot(plain["ci_half_width_db"], z * np.sqrt(independent)), rel=1e-4)
+    assert two["ci_half_width_db"] == pytest.approx(
+        np.hypot(plain["ci_half_width_db"], z * np.sqrt(independent + 2 * 0.3 ** 2)), rel=1e-4)
+    assert one["differs"] and two["differs"]
+    # One pass in a label: the scatter is unknown, so no interval and no verdict.
+    lone = difference_interval(a[:1], b, ua_db=ua[:1], ub_db=ub)
+    assert np.isnan(lone["ci_half_width_db"]) and not lone["differs"]
+    assert lone["difference_db"] == pytest.approx(b.mean() - 70.0)

@@ -59,3 +59,56 @@ def mean_and_interval(values_db, confidence: float = 0.90, uncertainty_db=None, 
     return {"mean_db": mean, "std_db": std, "n": n, "ci_half_width_db": half,
             "ci_low_db": mean - half, "ci_high_db": mean + half + np.nan_to_num(bias),
             "uncertainty_db": own}
+
+
+def difference_interval(a_db, b_db, confidence: float = 0.90, *, ua_db=None, ub_db=None,
+                        shared_db: float = 0.0, shared_cancels: bool = True) -> dict:
+    """The difference of two groups' means, ``mean(b) - mean(a)``, with its two-sided interval.
+
+    The pass-to-pass scatter gives the unequal-variance (Welch) t interval, standard error
+    ``sqrt(s_a^2 / n_a + s_b^2 / n_b)`` on the Welch-Satterthwaite degrees of freedom. With the
+    values' own standard uncertainties the independent parts (rms less ``shared_db``) add as a
+    normal term, ``u_a^2 / n_a + u_b^2 / n_b``, in quadrature, as :func:`mean_and_interval`
+    does for one mean. ``shared_db`` is the part every value of both groups has in common (one
+    campaign's calibrator and capsule type): it cancels in the difference when
+    ``shared_cancels`` (the groups share it), and counts once per group otherwise (two
+    campaigns with their own calibrations).
+
+    With fewer than two values in a group the scatter cannot be estimated: no interval (NaN),
+    never a tight one from the stated uncertainties alone.
+
+    Returns a dict with ``difference_db``, ``mean_a_db``, ``mean_b_db``, ``n_a``, ``n_b``,
+    ``dof`` (Welch-Satterthwaite), ``ci_half_width_db``, ``ci_low_db``, ``ci_high_db`` and
+    ``differs`` (the interval excludes zero).
+    """
+    a = np.asarray(a_db, float)
+    b = np.asarray(b_db, float)
+    keep_a, keep_b = np.isfinite(a), np.isfinite(b)
+    a, b = a[keep_a], b[keep_b]
+    n_a, n_b = int(a.size), int(b.size)
+    out = {"mean_a_db": float(np.mean(a)) if n_a else np.nan,
+           "mean_b_db": float(np.mean(b)) if n_b else np.nan, "n_a": n_a, "n_b": n_b,
+           "dof": np.nan, "ci_half_width_db": np.nan}
+    out["difference_db"] = out["mean_b_db"] - out["mean_a_db"]
+    if n_a >= 2 and n_b >= 2:
+        va, vb = np.var(a, ddof=1) / n_a, np.var(b, ddof=1) / n_b
+        se = float(np.sqrt(va + vb))
+        dof = float((va + vb) ** 2 / (va ** 2 / (n_a - 1) + vb ** 2 / (n_b - 1))) if se > 0 \
+            else float(n_a + n_b - 2)
+        half = float(stats.t.ppf(0.5 + confidence / 2, dof) * se)
+        if ua_db is not None and ub_db is not None:
+            ua = np.asarray(ua_db, float)[keep_a]
+            ub = np.asarray(ub_db, float)[keep_b]
+            if np.all(np.isfinite(ua)) and np.all(np.isfinite(ub)):
+                own = (max(float(np.mean(ua ** 2)) - shared_db ** 2, 0.0) / n_a
+                       + max(float(np.mean(ub ** 2)) - shared_db ** 2, 0.0) / n_b)
+                if not shared_cancels:
+                    own += 2 * shared_db ** 2
+                half = float(np.hypot(half, stats.norm.ppf(0.5 + confidence / 2)
+                                      * np.sqrt(own)))
+        out.update(dof=dof, ci_half_width_db=half)
+    half = out["ci_half_width_db"]
+    out["ci_low_db"] = out["difference_db"] - half
+    out["ci_high_db"] = out["difference_db"] + half
+    out["differs"] = bool(np.isfinite(half) and (out["ci_low_db"] > 0 or out["ci_high_db"] < 0))
+    return out
