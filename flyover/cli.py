@@ -7,6 +7,7 @@ from __future__ import annotations
 
 import argparse
 import importlib
+import math
 import os
 import subprocess
 import sys
@@ -26,6 +27,8 @@ EXAMPLES = {
     "array-plan": "flyover array-plan demo/data/layout.csv --height-m 35 --bands 200 3150 "
                   "--points 1.1 0 -1.5 0 --figure psf.png",
     "report": "flyover report my-campaign.yaml --open",
+    "compare": ("flyover compare demo/campaign.yaml --labels cruise-60 cruise-80\n"
+                "  flyover compare spring.yaml autumn.yaml --labels cruise-60 cruise-60"),
     "stage": "flyover stage align --campaign demo/campaign.yaml --pass pass-1 --out results/pass-1",
     "stage-campaign": "flyover stage-campaign summary --campaign demo/campaign.yaml",
 }
@@ -99,6 +102,13 @@ def _parser() -> argparse.ArgumentParser:
     n = add("plan", "show what a run would redo, pass by pass, and why")
     n.add_argument("campaign", type=Path, help="the campaign file (YAML)")
 
+    m = add("compare", "compare one label with another (of one campaign or of two): "
+                       "differences of the mean levels with their 90 % intervals")
+    m.add_argument("campaigns", type=Path, nargs="+", metavar="campaign",
+                   help="the campaign file of both labels, or of label A then of label B")
+    m.add_argument("--labels", nargs=2, required=True, metavar=("A", "B"),
+                   help="the labels compared: the tables give B minus A")
+
     o = add("report", "print the path of a campaign's report (or open it)")
     o.add_argument("campaign", type=Path, help="the campaign file (YAML)")
     o.add_argument("--open", action="store_true",
@@ -120,6 +130,37 @@ def _parser() -> argparse.ArgumentParser:
     h.add_argument("--campaign", type=Path, default=_campaign_from_environment(),
                    help="campaign file (default: $FLYOVER_CAMPAIGN, set by the workflow)")
     return p
+
+
+def _compare(args) -> int:
+    """B against A, written beside the (first) campaign's results; the tables' paths printed
+    with the differences whose interval excludes zero."""
+    from flyover.io.config import load_campaign
+    from flyover.pipeline._compare import label_side, write_comparison
+    if len(args.campaigns) > 2:
+        raise FlyoverInputError("too many campaign files", "flyover compare",
+                                "one campaign file, or two (label A's, then label B's)",
+                                f"{len(args.campaigns)}")
+    first = load_campaign(args.campaigns[0])
+    second = load_campaign(args.campaigns[-1]) if len(args.campaigns) == 2 else first
+    two = second is not first
+    label_a, label_b = args.labels
+    a = label_side(first, label_a, name=f"{args.campaigns[0].stem}.{label_a}" if two else None)
+    b = label_side(second, label_b, name=f"{args.campaigns[-1].stem}.{label_b}" if two else None)
+    folder = write_comparison(first.output, a, b)
+    from flyover.io.results.comparison import COMPARED_OVERALL
+    overall = COMPARED_OVERALL.read(folder)
+    near = overall[(overall["quantity"] == "A-weighted")
+                   & ((overall["polar_bin_deg"] - 90.0).abs() <= 10.0)]
+    for _, r in near.iterrows():
+        verdict = "differs" if r["differs"] else "no difference shown"
+        interval = (f"90 % interval [{r['ci90_low_db']:+.1f}, {r['ci90_high_db']:+.1f}] dB"
+                    if math.isfinite(r["ci90_low_db"]) else
+                    "no interval (fewer than two passes a side)")
+        print(f"{r['region']} A-weighted at {r['polar_bin_deg']:g} deg: "
+              f"{r['difference_db']:+.1f} dB, {interval}: {verdict}")
+    print(f"tables and figure: {folder}")
+    return 0
 
 
 def _campaign_from_environment() -> Path | None:
@@ -206,6 +247,8 @@ def _dispatch(args) -> int:
         jobs = parse_dry_run(res.stdout + res.stderr)
         print(format_plan(jobs, _changed_settings(load_campaign(args.campaign), jobs)))
         return 0
+    if args.command == "compare":
+        return _compare(args)
     if args.command == "report":
         from flyover.io.config import load_campaign
         from flyover.io.results import report as report_file

@@ -446,3 +446,27 @@ def test_job_over_its_memory_limit_is_reported_as_such(slurm_cluster, finished_r
     assert re.search(r"step image of pass p[12] was stopped by the scheduler: it needed more "
                      r"than its memory limit of 60 MiB", res.stderr), res.stderr[-2000:]
     assert "set-resources: image: mem_mb" in res.stderr and "Traceback" not in res.stderr
+
+
+@pytest.mark.slow
+def test_compare_command_on_a_finished_run(finished_run, tmp_path):
+    # The command end to end: label 'a' of the finished run against itself named through a
+    # second campaign file. Every difference is zero and no interval excludes it; the tables
+    # and the figure are where the command says.
+    from flyover.io.results.comparison import COMPARED_LEVELS, COMPARED_OVERALL
+    other = finished_run / "same-again.yaml"
+    shutil.copy(finished_run / "campaign.yaml", other)
+    try:
+        res = subprocess.run([sys.executable, "-m", "flyover", "compare", "campaign.yaml",
+                              other.name, "--labels", "a", "a"], cwd=finished_run,
+                             capture_output=True, text=True)
+    finally:
+        other.unlink()
+    assert res.returncode == 0, res.stderr[-2000:]
+    folder = Path(res.stdout.strip().splitlines()[-1].split(": ", 1)[1])
+    assert folder.parent.name == "comparisons"
+    for table in (COMPARED_LEVELS.read(folder), COMPARED_OVERALL.read(folder)):
+        given = table[np.isfinite(table["difference_db"])]
+        assert len(given) and np.allclose(given["difference_db"], 0.0, atol=1e-9)
+        assert not table["differs"].any()
+    assert "A-weighted at 90 deg: +0.0 dB" in res.stdout

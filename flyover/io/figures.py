@@ -383,6 +383,52 @@ def campaign_figure(overall, quantity: str = "A-weighted"):
 
 
 @_styled
+def comparison_figure(overall, name_a: str, name_b: str):
+    """B minus A against polar angle, per region (columns): the overall and the A-weighted
+    difference with their 90 % intervals, filled where the interval excludes zero.
+
+    ``overall`` is a comparison's overall table (columns region, quantity, band_range_hz,
+    polar_bin_deg, difference_db, ci90_low_db, ci90_high_db, differs).
+    """
+    regions = list(dict.fromkeys(overall["region"])) if len(overall) else []
+    fig, axes = plt.subplots(1, max(1, len(regions)), figsize=(4.6 * max(1, len(regions)), 3.6),
+                             squeeze=False, sharey=True)
+    for ax, region in zip(axes[0], regions):
+        part = overall[overall["region"] == region]
+        for quantity, colour in (("A-weighted", INK), ("overall", ACCENT)):
+            q = part[part["quantity"] == quantity].sort_values("polar_bin_deg")
+            if not len(q):
+                continue
+            d = q["difference_db"].to_numpy(float)
+            low = np.nan_to_num(d - q["ci90_low_db"].to_numpy(float), nan=0.0)
+            high = np.nan_to_num(q["ci90_high_db"].to_numpy(float) - d, nan=0.0)
+            ax.errorbar(q["polar_bin_deg"], d, yerr=[low, high], fmt="none", ecolor=colour,
+                        capsize=2.5, lw=1.1)
+            differs = q["differs"].astype(bool).to_numpy()
+            label = f"{quantity} ({q['band_range_hz'].iloc[0]} Hz)"
+            ax.plot(q["polar_bin_deg"][differs], d[differs], "o", color=colour, ms=5,
+                    label=label if differs.any() else None)
+            ax.plot(q["polar_bin_deg"][~differs], d[~differs], "o", mfc="white", color=colour,
+                    ms=5, label=None if differs.any() else label)
+        ax.axhline(0.0, color="#6b7380", lw=0.8)
+        ax.set_title(region)
+        ax.set_xlabel("polar emission angle (deg, 90 = overhead)")
+        ax.legend(fontsize=8, frameon=False)
+    axes[0][0].set_ylabel(f"{name_b} minus {name_a} (dB)")
+    if not regions:
+        axes[0][0].text(0.5, 0.5, "nothing to compare", ha="center",
+                        transform=axes[0][0].transAxes)
+    fig.suptitle(f"{name_b} against {name_a}: difference of the means with its 90 % interval "
+                 "(filled: the interval excludes zero)", fontsize=11)
+    if len(overall) and overall["ci90_low_db"].isna().any():
+        fig.text(0.5, -0.02, "Points without a bar have no interval: a label with fewer than "
+                 "two passes there has no pass-to-pass scatter to judge by.", ha="center",
+                 fontsize=8, color="#6b7380")
+    fig.tight_layout()
+    return fig
+
+
+@_styled
 def level_history_figure(history, bands, metrics_row: dict, pass_name: str):
     """The A-weighted F and S levels against time with LAFmax, LASmax and the 10 dB-down
     interval marked, above the one-third-octave band levels every 0.5 s.

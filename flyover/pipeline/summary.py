@@ -7,8 +7,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from flyover.acoustics.statistics import (WIDE_INTERVAL_DB, energetic_mean_db, mean_and_interval,
-                                          polar_bin_deg)
+from flyover.acoustics.statistics import WIDE_INTERVAL_DB, mean_and_interval
 from flyover.io.figures import campaign_figure, save_figure
 from flyover.io.results.campaign_tables import CAMPAIGN_FIGURE, CAMPAIGN_LEVELS, CAMPAIGN_OVERALL
 from flyover.io.results.levels import LEVELS
@@ -16,31 +15,12 @@ from flyover.io.results.levels_overall import LEVELS_OVERALL
 from flyover.io.results.signoff import signoff_statuses
 from flyover.campaign import Campaign
 from flyover.model.reads import guarded
+from flyover.pipeline._bins import pass_bins
 from flyover.pipeline._overall import label_band_ranges, overall_table
 
-POLAR_BIN_DEG = 10.0
 
 # What this stage reads of the campaign (flyover.model.reads): its re-run fingerprint too.
 READS = ("passes", "analysis.overall_band_range_hz", "analysis.uncertainty")
-
-
-
-def pass_bins(levels: pd.DataFrame, value: str, keys: list[str]) -> pd.DataFrame:
-    """Energetic mean of a pass's windows within each polar bin, the rms of their stated
-    uncertainties where the table has them (``uncertainty_db``, else NaN) and the mean of their
-    one-sided position bias (``position_bias_db``, else 0)."""
-    if len(levels) == 0:
-        return pd.DataFrame(columns=keys + ["polar_bin_deg", value, "uncertainty_db",
-                                            "position_bias_db"])
-    d = levels.assign(polar_bin_deg=polar_bin_deg(levels["polar_angle_deg"], POLAR_BIN_DEG))
-    if "uncertainty_db" not in d:
-        d["uncertainty_db"] = np.nan
-    if "position_bias_db" not in d:
-        d["position_bias_db"] = 0.0
-    g = d.groupby(keys + ["polar_bin_deg"])
-    return pd.concat([g[value].apply(energetic_mean_db),
-                      g["uncertainty_db"].apply(lambda u: float(np.sqrt(np.mean(u ** 2)))),
-                      g["position_bias_db"].mean()], axis=1).reset_index()
 
 
 def summarise(per_pass: dict[str, pd.DataFrame], labels: dict[str, str], value: str,

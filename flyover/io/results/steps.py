@@ -13,7 +13,8 @@ from __future__ import annotations
 import re
 from pathlib import Path
 
-from flyover.io.results import alignment, file_name, maps, qc, report, track_check
+from flyover.io.results import (alignment, comparison, file_name, maps, qc, report,
+                                track_check)
 from flyover.io.results.campaign_tables import CAMPAIGN_FIGURE, CAMPAIGN_LEVELS, CAMPAIGN_OVERALL
 from flyover.io.results.directivity import DIRECTIVITY, DIRECTIVITY_FIGURE
 from flyover.io.results.event_metrics import (BAND_HISTORY, EVENT_METRICS, LEVEL_HISTORY,
@@ -42,6 +43,9 @@ CAMPAIGN_STEPS = {
     "report": (report.NAME,),
 }
 SUMMARY_PASS_FILES = (LEVELS_OVERALL,)
+# Written by `flyover compare`, not by a workflow step.
+COMPARISON_FILES = (comparison.COMPARED_LEVELS, comparison.COMPARED_OVERALL,
+                    comparison.COMPARISON_FIGURE)
 
 
 def output_key(result) -> str:
@@ -86,6 +90,8 @@ def describe_all() -> str:
             out += [describe(f, where) + "\n" for f in files]
             if step == "summary":
                 out += [describe(f, "PASS/") + "\n" for f in SUMMARY_PASS_FILES]
+    out += ["## `flyover compare`", ""]
+    out += [describe(f, f"{comparison.FOLDER}/A--B/") + "\n" for f in COMPARISON_FILES]
     return "\n".join(out).rstrip("\n") + "\n"
 
 

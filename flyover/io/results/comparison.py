@@ -1,0 +1,37 @@
+"""``comparisons/A--B/``: one label against another (of the same campaign or of two), per
+region, band and polar bin (``levels.csv``) and for the overall and A-weighted levels over a band
+range common to both (``overall.csv``)."""
+
+from flyover.io.results import FigureFile, TableFile
+
+FOLDER = "comparisons"
+
+_DIFFERENCE = (
+    ("polar_bin_deg", "deg, centre of the 10 deg polar bin (90 = overhead)"),
+    ("mean_a_db", "dB, mean over the passes of A (each pass's energetic mean in the bin)"),
+    ("mean_b_db", "dB, the same for B"),
+    ("n_a", "passes of A with a level"),
+    ("n_b", "passes of B with a level"),
+    ("difference_db", "dB, mean_b_db - mean_a_db"),
+    ("ci90_low_db", "dB, 90 % interval of the difference: the unequal-variance (Welch) t "
+                    "interval of the pass-to-pass scatter with the levels' stated "
+                    "uncertainties (shared calibration cancelling within one campaign only); "
+                    "empty with fewer than two passes a side"),
+    ("ci90_high_db", "dB"),
+    ("dof", "Welch-Satterthwaite degrees of freedom"),
+    ("differs", "the interval excludes zero: B differs from A"),
+    ("passes_a", "the passes of A used (rejected ones are left out)"),
+    ("passes_b", "the passes of B used"),
+)
+COMPARED_LEVELS = TableFile("levels.csv", (
+    ("region", "region name, or 'total'"),
+    ("band_hz", "nominal one-third-octave midband"),
+    *_DIFFERENCE), float_format="%.3f", flags=("differs",))
+COMPARED_OVERALL = TableFile("overall.csv", (
+    ("region", "region name, or 'total'"),
+    ("quantity", "'overall' or 'A-weighted'"),
+    ("band_range_hz", "the bands summed on both sides: the widest run every pass of A and of B "
+                      "supports near overhead"),
+    *_DIFFERENCE), float_format="%.3f", flags=("differs",))
+COMPARISON_FIGURE = FigureFile("comparison.png", "B minus A against polar angle, per region: "
+                                                 "overall and A-weighted, with 90 % intervals")

@@ -1,0 +1,85 @@
+"""One label against another: the difference tables and the command, on levels made by hand
+(the statistics are checked against scipy in test_stats.py)."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+from scipy import stats
+
+from flyover.io.results.comparison import COMPARED_LEVELS, COMPARED_OVERALL, COMPARISON_FIGURE
+from flyover.io.results.levels import LEVELS
+from flyover.pipeline._compare import Side, compare, write_comparison
+
+BANDS = (500.0, 630.0, 800.0, 1000.0)
+
+
+def levels(offset_db: float, *, region_db=None, polar=(86.0, 90.0, 94.0)) -> pd.DataFrame:
+    """A pass's levels.csv: one bin near overhead, every band at 70 dB plus an offset (the
+    windows equal, so each pass's bin mean is the offset itself)."""
+    rows = []
+    for w, angle in enumerate(polar):
+        for region in ("propulsion", "total"):
+            for band in BANDS:
+                level = 70.0 + offset_db + (0.0 if region == "total" else -3.0)
+                if region_db is not None and region == "propulsion" and band == 800.0:
+                    level = region_db
+                rows.append(dict(window=w, time_utc="", polar_angle_deg=angle, band_hz=band,
+                                 region=region, level_db=level, level_1m_db=level,
+                                 uncertainty_db=np.nan))
+    return pd.DataFrame(rows).reindex(columns=LEVELS.column_names)
+
+
+def side(name, offsets, **kw) -> Side:
+    return Side(name, {f"{name}-{k}": levels(o, **kw) for k, o in enumerate(offsets)}, 0.15,
+                Path("/campaign/results"))
+
+
+def test_band_and_overall_differences_match_welchs_interval():
+    # B is about 2 dB quieter than A in every band. Per region and band the difference and its
+    # interval are Welch's on the passes' offsets (scipy.stats.ttest_ind, equal_var=False);
+    # the overall and A-weighted levels over the bands both support move by the same offsets.
+    a_off, b_off = [0.0, 0.6, -0.4, 0.2], [-2.1, -1.7, -2.4]
+    a, b = side("A", a_off), side("B", b_off)
+    bands, overall = compare(a, b)
+    ref = stats.ttest_ind(b_off, a_off, equal_var=False)
+    ci = ref.confidence_interval(0.90)
+    total = bands[(bands["region"] == "total") & (bands["polar_bin_deg"] == 90.0)]
+    assert len(total) == len(BANDS)
+    np.testing.assert_allclose(total["difference_db"], np.mean(b_off) - np.mean(a_off))
+    np.testing.assert_allclose(total["ci90_low_db"], ci.low, rtol=1e-9)
+    np.testing.assert_allclose(total["ci90_high_db"], ci.high, rtol=1e-9)
+    assert total["differs"].all() and (total["n_a"] == 4).all() and (total["n_b"] == 3).all()
+    assert total["passes_a"].iloc[0] == "A-0 A-1 A-2 A-3"
+    for quantity in ("overall", "A-weighted"):
+        row = overall[(overall["region"] == "total") & (overall["quantity"] == quantity)]
+        assert len(row) == 1 and row["band_range_hz"].iloc[0] == "500-1000"
+        assert row["difference_db"].iloc[0] == pytest.approx(np.mean(b_off) - np.mean(a_off))
+        assert row["ci90_low_db"].iloc[0] == pytest.approx(ci.low, rel=1e-9)
+
+
+def test_a_label_with_one_pass_gets_no_interval_and_the_files_are_written(tmp_path):
+    # The undecidable case says so: one pass of B, no interval and no 'differs'. The tables
+    # and the figure land in comparisons/A--B with their declared columns.
+    a, b = side("A", [0.0, 0.5, -0.3]), side("B", [-4.0])
+    bands, overall = compare(a, b)
+    assert bands["ci90_low_db"].isna().all() and not bands["differs"].any()
+    assert (bands["difference_db"].dropna() < -3.0).all()
+    folder = write_comparison(tmp_path, a, b)
+    assert folder == tmp_path / "comparisons" / "A--B"
+    assert list(COMPARED_LEVELS.read(folder).columns) == COMPARED_LEVELS.column_names
+    assert len(COMPARED_OVERALL.read(folder)) == len(overall)
+    assert COMPARISON_FIGURE.path(folder).stat().st_size > 10_000
+
+
+def test_overall_levels_compare_only_bands_both_labels_support():
+    # B has no propulsion level at 800 Hz: the propulsion overall of both labels is summed
+    # over the run both support (here none of three bands: 500-630 is too short), so it is
+    # left out rather than compared over different bands.
+    a = side("A", [0.0, 0.4])
+    b = side("B", [-1.0, -1.2], region_db=np.nan)
+    _, overall = compare(a, b)
+    assert set(overall["region"]) == {"total"}
