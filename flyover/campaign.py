@@ -101,6 +101,8 @@ class AnalysisSettings:
         Blade-passing harmonics fitted per rotor (k = 1..K).
     method_tuning : MethodTuning
         The imaging methods' tunables.
+    comparisons : tuple of (str, str)
+        Label pairs (A, B) the workflow compares, B minus A (:mod:`flyover.pipeline.compare`).
     """
 
     window_s: float
@@ -125,6 +127,7 @@ class AnalysisSettings:
     rotor_harmonics: int = 4
     window_polar_step_deg: float | None = None
     method_tuning: MethodTuning = MethodTuning()
+    comparisons: tuple[tuple[str, str], ...] = ()
 
     def __post_init__(self):
         require((self.hop_s is None) != (self.window_polar_step_deg is None),

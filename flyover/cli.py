@@ -145,8 +145,10 @@ def _compare(args) -> int:
     second = load_campaign(args.campaigns[-1]) if len(args.campaigns) == 2 else first
     two = second is not first
     label_a, label_b = args.labels
-    a = label_side(first, label_a, name=f"{args.campaigns[0].stem}.{label_a}" if two else None)
-    b = label_side(second, label_b, name=f"{args.campaigns[-1].stem}.{label_b}" if two else None)
+    a = label_side(first, label_a, first.output, source=str(args.campaigns[0]),
+                   name=f"{args.campaigns[0].stem}.{label_a}" if two else None)
+    b = label_side(second, label_b, second.output, source=str(args.campaigns[-1]),
+                   name=f"{args.campaigns[-1].stem}.{label_b}" if two else None)
     folder = write_comparison(first.output, a, b)
     from flyover.io.results.comparison import COMPARED_OVERALL
     overall = COMPARED_OVERALL.read(folder)

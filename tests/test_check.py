@@ -96,6 +96,9 @@ def test_a_stray_microphone_and_a_layout_in_millimetres(tiny_copy, capsys):
     (lambda d: d["analysis"].pop("hop_s"), ["exactly one of the two", "neither"]),
     (lambda d: d["vehicle"]["regions"].update(mid={"x_m": [0.0, 1.0], "y_m": [-0.5, 0.5]}),
      ["overlap", "count their sound twice"]),
+    (lambda d: d["analysis"].update(comparisons=[["a", "b"]]),
+     ["no pass is labelled 'b'", "analysis.comparisons[0]"]),
+    (lambda d: d["analysis"].update(comparisons=[["a", "a"]]), ["a label compared with itself"]),
 ])
 def test_set_up_that_does_not_fit_together(tiny_copy, capsys, change, fragments):
     refused(edit_campaign(tiny_copy, change), capsys, *fragments)

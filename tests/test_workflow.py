@@ -470,3 +470,25 @@ def test_compare_command_on_a_finished_run(finished_run, tmp_path):
         assert len(given) and np.allclose(given["difference_db"], 0.0, atol=1e-9)
         assert not table["differs"].any()
     assert "A-weighted at 90 deg: +0.0 dB" in res.stdout
+
+
+@pytest.mark.slow
+def test_a_requested_comparison_runs_as_its_own_step(finished_run):
+    # p2 relabelled 'b' and 'b' against 'a' asked for: the comparison step runs, then what
+    # groups passes by label and the report; no pass is re-imaged. The step's files land
+    # under comparisons/a--b with one pass a side, so differences without intervals.
+    from flyover.io.results.comparison import COMPARED_OVERALL
+
+    def ask(d):
+        d["passes"]["p2"]["label"] = "b"
+        d["analysis"]["comparisons"] = [["a", "b"]]
+    with edited_config(finished_run, ask):
+        assert planned(finished_run) == {("compare", ""), ("campaign_summary", ""),
+                                         ("hemispheres", ""), ("signoff", ""), ("report", "")}
+        res = subprocess.run([sys.executable, "-m", "flyover", "stage-campaign", "compare",
+                              "--campaign", "campaign.yaml"], cwd=finished_run,
+                             capture_output=True, text=True)
+        assert res.returncode == 0, res.stderr[-2000:]
+    table = COMPARED_OVERALL.read(finished_run / "results" / "comparisons" / "a--b")
+    assert len(table) and table["ci90_low_db"].isna().all() and not table["differs"].any()
+    assert (table["passes_a"] == "p1").all() and (table["passes_b"] == "p2").all()

@@ -81,6 +81,22 @@ def _check_methods_for_raised(analysis: AnalysisSettings, arrays, source: str) -
                                 analysis.method)
 
 
+def _check_compared_labels(pairs, passes: dict, source: str) -> None:
+    """Refuse a comparison naming a label no pass has, or a label against itself."""
+    labels = sorted({p.label for p in passes.values()})
+    for k, pair in enumerate(pairs):
+        for label in pair:
+            if label not in labels:
+                raise FlyoverInputError(f"no pass is labelled '{label}'",
+                                        f"{source}, key analysis.comparisons[{k}]",
+                                        "labels of the campaign: " + ", ".join(labels),
+                                        f"'{label}'", suggest(label, labels))
+        if pair[0] == pair[1]:
+            raise FlyoverInputError("a label compared with itself",
+                                    f"{source}, key analysis.comparisons[{k}]",
+                                    "two different labels [A, B]", f"{list(pair)}")
+
+
 def _check_regions_apart(regions: dict[str, Region], grid: VehicleGrid, source: str) -> None:
     """Refuse regions that share grid points: source power integration gives each grid point to
     one region, and a shared point would count the same sound in both."""
@@ -362,6 +378,7 @@ def campaign_from_mapping(data: dict, path: Path) -> Campaign:
         hemisphere=_hemisphere(an.get("hemisphere", {})),
         rotor_harmonics=int(an.get("rotor_harmonics", 4)),
         method_tuning=MethodTuning(**an.get("method_tuning", {})),
+        comparisons=tuple((str(a), str(b)) for a, b in an.get("comparisons", ())),
     )
     if analysis.band_min_hz > analysis.band_max_hz:
         raise FlyoverInputError("band range inverted", f"{source}, key analysis.band_min_hz",
@@ -385,6 +402,7 @@ def campaign_from_mapping(data: dict, path: Path) -> Campaign:
                                 f"{len(third_octave_bands(*chosen))} band(s)",
                                 "leave it out to take each label's range from the levels "
                                 "near overhead")
+    _check_compared_labels(analysis.comparisons, passes, source)
     _check_regions_apart(regions, grid, source)
     _check_methods_for_raised(analysis, [array] + [p.array for p in passes.values() if p.array],
                               source)

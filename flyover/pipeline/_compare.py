@@ -18,7 +18,7 @@ from flyover.acoustics.statistics import difference_interval
 from flyover.campaign import Campaign
 from flyover.io.figures import comparison_figure, save_figure
 from flyover.io.results.comparison import (COMPARED_LEVELS, COMPARED_OVERALL, COMPARISON_FIGURE,
-                                           FOLDER)
+                                           FOLDER, pair_folder)
 from flyover.io.results.levels import LEVELS
 from flyover.io.results.signoff import SIGNOFF, signoff_statuses
 from flyover.model.errors import FlyoverInputError, suggest
@@ -49,15 +49,17 @@ class Side:
     results: Path
 
 
-def label_side(campaign: Campaign, label: str, *, name: str | None = None) -> Side:
-    """The passes of ``label`` in a campaign's results (rejected ones left out)."""
+def label_side(campaign: Campaign, label: str, results, *, name: str | None = None,
+               source: str = "") -> Side:
+    """The passes of ``label`` in a campaign's results folder (rejected ones left out);
+    ``source`` names the campaign file in the error when no pass has the label."""
     labels = sorted({p.label for p in campaign.passes.values()})
     names = [n for n, p in campaign.passes.items() if p.label == label]
     if not names:
-        raise FlyoverInputError(f"no pass is labelled '{label}'", str(campaign.config_path),
+        raise FlyoverInputError(f"no pass is labelled '{label}'", source,
                                 "a label of the campaign: " + ", ".join(labels),
                                 hint=suggest(label, labels))
-    out = Path(campaign.output)
+    out = Path(results)
     statuses = signoff_statuses(out) if SIGNOFF.path(out).exists() else {}
     used = [n for n in names if statuses.get(n) != "rejected"]
     return Side(name or label, {n: LEVELS.read(out / n) for n in used},
@@ -118,8 +120,7 @@ def compare(a: Side, b: Side) -> tuple[pd.DataFrame, pd.DataFrame]:
 
 def comparison_folder(out_dir: Path, a: Side, b: Side) -> Path:
     """Where a comparison's files go: ``OUT/comparisons/A--B``."""
-    safe = [s.name.replace("/", "_").replace("\\", "_") for s in (a, b)]
-    return Path(out_dir) / FOLDER / f"{safe[0]}--{safe[1]}"
+    return Path(out_dir) / FOLDER / pair_folder(a.name, b.name)
 
 
 def write_comparison(out_dir: Path, a: Side, b: Side) -> Path:

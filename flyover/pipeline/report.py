@@ -23,6 +23,8 @@ from flyover.io.results.alignment import clock_uncertainty_s, pass_atmosphere, r
 from flyover.io.results import FigureFile, qc
 from flyover.io.results import report as report_file
 from flyover.io.results.campaign_tables import CAMPAIGN_FIGURE, CAMPAIGN_LEVELS, CAMPAIGN_OVERALL
+from flyover.io.results.comparison import COMPARED_OVERALL, COMPARISON_FIGURE, pair_folder
+from flyover.io.results.comparison import FOLDER as COMPARISON_FOLDER
 from flyover.io.results.directivity import DIRECTIVITY_FIGURE
 from flyover.acoustics.orders import SEPARATION_CORRELATION
 from flyover.acoustics.uncertainty import Z90
@@ -521,6 +523,34 @@ azimuth out of {len(grid.polar_deg) * len(grid.azimuth_deg)}.</p>
     return "".join(parts)
 
 
+def _comparison_section(campaign: Campaign, out: Path) -> str:
+    """Per comparison of ``analysis.comparisons``: B minus A near overhead, overall and
+    A-weighted, with the 90 % intervals, and the figure over all angles."""
+    if not campaign.analysis.comparisons:
+        return ""
+    parts = ["""<h3 id="comparisons">Comparisons</h3>
+<p class="muted">B minus A per region and polar bin: the difference of the labels' mean levels
+over a band range both support, with its 90 % interval (the unequal-variance t interval of the
+pass-to-pass scatter with the stated uncertainties; the shared calibration cancels within the
+campaign). Marked *: the interval excludes zero. No interval: fewer than two passes a side.
+Band by band in comparisons/A--B/levels.csv.</p>"""]
+    for label_a, label_b in campaign.analysis.comparisons:
+        folder = out / COMPARISON_FOLDER / pair_folder(label_a, label_b)
+        table = COMPARED_OVERALL.read(folder)
+        near = table[(table["polar_bin_deg"] - 90.0).abs() <= 30.0].copy()
+        near["cell"] = [
+            f"{r.difference_db:+.1f}" + ("" if not np.isfinite(r.ci90_low_db) else
+                                         f" [{r.ci90_low_db:+.1f}, {r.ci90_high_db:+.1f}]")
+            + (" *" if r.differs else "") for r in near.itertuples()]
+        grid = (near.pivot_table(index=["region", "quantity", "band_range_hz"],
+                                 columns="polar_bin_deg", values="cell", aggfunc="first")
+                .rename(columns=lambda b: f"{b:g} deg").reset_index()) if len(near) else near
+        parts.append(f"""<h4>{html.escape(label_b)} against {html.escape(label_a)}</h4>
+{_table(grid)}
+{_figure(folder, COMPARISON_FIGURE)}""")
+    return "".join(parts)
+
+
 def _processing_time_s(out: Path) -> float:
     """Sum of the wall times in the workflow's benchmark files (0 when there are none)."""
     total = 0.0
@@ -619,6 +649,7 @@ marked FIT is a low-order spherical-harmonic fit at the covered cells, drawn bes
 with its residual: a smoothing of the measurement, not a measurement. The coverage map shows
 each pass's line across the hemisphere: the empty rows are the offsets to fly next.</p>
 {_hemisphere_section(campaign, out)}
+{_comparison_section(campaign, out)}
 </section>
 {''.join(_pass_section(campaign, n, out, signed) for n in campaign.passes)}
 <h2 id="provenance">Provenance</h2>

@@ -18,7 +18,7 @@ from flyover.acoustics.bands import third_octave_bands
 from flyover.imaging.chain import ChainSettings, window_memory_bytes
 from flyover.io.config import load_campaign
 from flyover.io.readers import read
-from flyover.io.results import file_name, hemisphere, steps
+from flyover.io.results import comparison, file_name, hemisphere, steps
 from flyover.io.results.campaign_tables import CAMPAIGN_LEVELS
 from flyover.sim.scenario_file import load_scenario
 from flyover.campaign import Campaign, pass_array
@@ -222,9 +222,15 @@ class CampaignPlan:
                 for folder in hemisphere.label_folders(labels).values()
                 for f in hemisphere.FILES]
 
+    def comparison_files(self) -> list[str]:
+        """Every comparison's files (``analysis.comparisons``; :mod:`flyover.io.results.steps`)."""
+        return [f"{self.output_pattern}/{comparison.FOLDER}/{comparison.pair_folder(a, b)}/"
+                f"{file_name(f)}" for a, b in self.campaign.analysis.comparisons
+                for f in steps.COMPARISON_FILES]
+
     def targets(self) -> list[str]:
         """The whole campaign: the report and the campaign tables."""
         return list(self.step_outputs("report").values()) + [
-            f"{self.output_pattern}/{CAMPAIGN_LEVELS.name}"]
+            f"{self.output_pattern}/{CAMPAIGN_LEVELS.name}"] + self.comparison_files()
 
 

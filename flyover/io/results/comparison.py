@@ -33,5 +33,11 @@ COMPARED_OVERALL = TableFile("overall.csv", (
     ("band_range_hz", "the bands summed on both sides: the widest run every pass of A and of B "
                       "supports near overhead"),
     *_DIFFERENCE), float_format="%.3f", flags=("differs",))
+def pair_folder(name_a: str, name_b: str) -> str:
+    """The folder of one comparison inside ``FOLDER``: ``A--B`` (path separators replaced)."""
+    safe = [n.replace("/", "_").replace("\\", "_") for n in (name_a, name_b)]
+    return f"{safe[0]}--{safe[1]}"
+
+
 COMPARISON_FIGURE = FigureFile("comparison.png", "B minus A against polar angle, per region: "
                                                  "overall and A-weighted, with 90 % intervals")

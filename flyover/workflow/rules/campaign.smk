@@ -67,12 +67,37 @@ rule hemispheres:
         '"$FLYOVER_PYTHON" -m flyover stage-campaign hemispheres > {log:q} 2>&1'
 
 
+# The label comparisons the campaign asks for (analysis.comparisons); none, no rule.
+if PLAN.comparison_files():
+
+    rule compare:
+        input:
+            PLAN.pass_step_results("levels"),
+            rules.signoff.output.signoff_csv,
+        output:
+            update(PLAN.comparison_files()),
+        params:
+            fingerprint=PLAN.campaign_fingerprint("compare"),
+        log:
+            f"{OUTP}/logs/compare.log",
+        benchmark:
+            f"{OUTP}/benchmarks/compare.tsv"
+        resources:
+            mem_mb=PLAN.memory_mb(None, "compare"),
+            runtime=PLAN.runtime_min(None, "compare"),
+        conda:
+            CONDA_ENV,
+        shell:
+            '"$FLYOVER_PYTHON" -m flyover stage-campaign compare > {log:q} 2>&1'
+
+
 rule report:
     input:
         rules.campaign_summary.output,
         rules.hemispheres.output,
         rules.signoff.output,
         PLAN.pass_step_results("align", "image", "qc", "levels", "metrics", "tones"),
+        PLAN.comparison_files(),
         PLAN.input_files(),
     output:
         **outputs("report"),
