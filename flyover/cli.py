@@ -155,12 +155,13 @@ def _compare(args) -> int:
     near = overall[(overall["quantity"] == "A-weighted")
                    & ((overall["polar_bin_deg"] - 90.0).abs() <= 10.0)]
     for _, r in near.iterrows():
-        verdict = "differs" if r["differs"] else "no difference shown"
-        interval = (f"90 % interval [{r['ci90_low_db']:+.1f}, {r['ci90_high_db']:+.1f}] dB"
-                    if math.isfinite(r["ci90_low_db"]) else
-                    "no interval (fewer than two passes a side)")
+        if math.isfinite(r["ci90_low_db"]):
+            verdict = (f"90 % interval [{r['ci90_low_db']:+.1f}, {r['ci90_high_db']:+.1f}] dB: "
+                       + ("differs" if r["differs"] else "no difference shown"))
+        else:
+            verdict = "cannot tell: no interval with fewer than two passes a side"
         print(f"{r['region']} A-weighted at {r['polar_bin_deg']:g} deg: "
-              f"{r['difference_db']:+.1f} dB, {interval}: {verdict}")
+              f"{r['difference_db']:+.1f} dB, {verdict}")
     print(f"tables and figure: {folder}")
     return 0
 

@@ -143,7 +143,7 @@ def test_revised_track_reruns_that_pass_only(run_copy):
     track.write_text("\n".join([head] + revised) + "\n")
     assert planned(run_copy) == {("align", "p1"), ("image", "p1"), ("levels", "p1"),
                                  ("qc", "p1"), ("metrics", "p1"), ("tones", "p1"),
-                                 ("trackcheck", "p1"),
+                                 ("trackcheck", "p1"), ("narrowband", "p1"),
                                  ("campaign_summary", ""),
                                  ("hemispheres", ""), ("signoff", ""), ("report", "")}
 
@@ -156,6 +156,8 @@ def test_reference_distance_reruns_levels_not_imaging(finished_run):
         assert planned(finished_run) == {("levels", "p1"), ("levels", "p2"), ("metrics", "p1"),
                                          ("metrics", "p2"), ("tones", "p1"), ("tones", "p2"),
                                          ("trackcheck", "p1"), ("trackcheck", "p2"),
+                                         # its figure marks the tones' frequencies
+                                         ("narrowband", "p1"), ("narrowband", "p2"),
                                          ("campaign_summary", ""),
                                          ("hemispheres", ""), ("signoff", ""), ("report", "")}
 
@@ -166,7 +168,7 @@ def test_one_pass_atmosphere_reruns_that_pass(finished_run):
                        lambda d: d["passes"]["p2"]["atmosphere"].update(temperature_c=16.0)):
         assert planned(finished_run) == {("align", "p2"), ("image", "p2"), ("levels", "p2"),
                                          ("qc", "p2"), ("metrics", "p2"), ("tones", "p2"),
-                                         ("trackcheck", "p2"),
+                                         ("trackcheck", "p2"), ("narrowband", "p2"),
                                          ("campaign_summary", ""),
                                          ("hemispheres", ""), ("signoff", ""), ("report", "")}
 
@@ -177,7 +179,7 @@ def test_added_pass_runs_alone_then_summary(finished_run):
                        lambda d: d["passes"].update(p3=dict(d["passes"]["p2"], label="b"))):
         assert planned(finished_run) == {("align", "p3"), ("image", "p3"), ("levels", "p3"),
                                          ("qc", "p3"), ("metrics", "p3"), ("tones", "p3"),
-                                         ("trackcheck", "p3"),
+                                         ("trackcheck", "p3"), ("narrowband", "p3"),
                                          ("campaign_summary", ""),
                                          ("hemispheres", ""), ("signoff", ""), ("report", "")}
 

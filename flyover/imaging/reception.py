@@ -228,6 +228,19 @@ def absorption_gains(settings: ChainSettings, atmosphere: Atmosphere,
 _GAIN_TABLE_NODES = 33
 
 
+def absorption_line_gains(atmosphere: Atmosphere, frequency_hz,
+                          geometry: ReceptionGeometry, point: int = 0) -> np.ndarray:
+    """Amplitude factors (n_mics, n_lines) that undo the measured path's absorption at single
+    frequencies (source time) for one grid point: each line at the frequency the sound has in
+    the air, f / (1 - M_r), over the centre emission distance (the narrowband counterpart of
+    :func:`absorption_gains`)."""
+    f = np.asarray(frequency_hz, float)
+    mach = geometry.mach_r_center[point][:, None]
+    distance = geometry.distance_center_m[point][:, None]
+    alpha = atmosphere.absorption_db_per_m(f[None, :] / (1.0 - mach))
+    return 10.0 ** (alpha * distance / 20.0)
+
+
 def _band_power_gains(atmosphere: Atmosphere, bands: ThirdOctaveBands, mach_r, distance_m):
     """The band-mean power gain undoing absorption (..., n_bands) at M_r and distances that
     broadcast together: the definition :func:`absorption_gains` tabulates."""

@@ -564,6 +564,42 @@ def coverage_figure(counts, traces, polar_deg, azimuth_deg, label: str):
 
 
 @_styled
+def narrowband_figure(table, tones, pass_name: str):
+    """The narrowband density of each region in the window nearest overhead (one panel a
+    region), the rotors' blade-passing harmonics of that window marked (``tones``:
+    rotor_tones.csv, possibly empty)."""
+    regions = list(dict.fromkeys(table["region"])) if len(table) else []
+    fig, axes = plt.subplots(len(regions) or 1, 1, figsize=(9.0, 2.4 * max(1, len(regions))),
+                             squeeze=False, sharex=True)
+    if regions:
+        window = int(table.loc[(table["polar_angle_deg"] - 90.0).abs().idxmin(), "window"])
+        here = table[table["window"] == window]
+        marks = tones[tones["window"] == window] if len(tones) else tones
+        for ax, region in zip(axes[:, 0], regions):
+            r = here[here["region"] == region]
+            ax.plot(r["frequency_hz"], r["psd_full_db"], color="#b8bec7", lw=0.8,
+                    label="every term")
+            ax.plot(r["frequency_hz"], r["psd_db"], color=INK, lw=1.0,
+                    label="diagonal removed")
+            for k, (_, t) in enumerate(marks.iterrows()):
+                ax.axvline(t["frequency_hz"], color=ACCENT, lw=0.7, ls=":",
+                           label="blade-passing harmonics" if k == 0 else None)
+            ax.set_ylabel("dB re (20 uPa)^2/Hz")
+            ax.set_title(region, fontsize=10, loc="left")
+            ax.legend(fontsize=7, frameon=False, loc="upper right")
+        angle = float(here["polar_angle_deg"].iloc[0])
+        resolution = float(here["resolution_hz"].iloc[0])
+        fig.suptitle(f"{pass_name}: narrowband spectra at 1 m in source time, window {window} "
+                     f"({angle:.0f} deg), {resolution:g} Hz lines", fontsize=11)
+    else:
+        axes[0, 0].text(0.5, 0.5, "no window analysed", ha="center",
+                        transform=axes[0, 0].transAxes)
+    axes[-1, 0].set_xlabel("frequency in source time (Hz)")
+    fig.tight_layout()
+    return fig
+
+
+@_styled
 def rotor_tones_figure(tones, pass_name: str, note: str = ""):
     """Each rotor's blade-passing harmonics at 1 m against polar angle (one panel a rotor)."""
     rotors = list(dict.fromkeys(tones["rotor"])) if len(tones) else []

@@ -14,13 +14,14 @@ from flyover.pipeline.context import PassInputs
 
 
 def dedopplerize_span(campaign: Campaign, inputs: PassInputs, start_s: float, n_samples: int,
-                      body_m) -> np.ndarray | None:
+                      body_m, *, with_geometry: bool = False):
     """The channels de-Dopplerized to a body point over ``n_samples`` of emission time.
 
     Returns
     -------
     float32 array (n_mics, n_samples), or None when the track or the recording does not hold
-    the span (no absorption compensation: for checks and spectrograms, not for levels).
+    the span (no absorption compensation: a caller that needs it takes the span's
+    :class:`ReceptionGeometry` too, ``with_geometry``, and compensates per line).
     """
     fs = inputs.sample_rate_hz
     track = inputs.track
@@ -37,4 +38,5 @@ def dedopplerize_span(campaign: Campaign, inputs: PassInputs, start_s: float, n_
     if not inputs.holds(first, count):
         return None
     signals = inputs.read_pressure_pa(first, count)
-    return dedopplerized_signals(signals, first, geo, inputs.clock, span, settings)[0]
+    out = dedopplerized_signals(signals, first, geo, inputs.clock, span, settings)[0]
+    return (out, geo) if with_geometry else out

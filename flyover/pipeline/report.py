@@ -30,6 +30,7 @@ from flyover.acoustics.orders import SEPARATION_CORRELATION
 from flyover.acoustics.uncertainty import Z90
 from flyover.io.results.event_metrics import EVENT_METRICS, LEVEL_HISTORY_FIGURE, RECONSTRUCTED
 from flyover.io.results.maps import FIGURE_FOLDER, method_figures, window_figure_name
+from flyover.io.results.narrowband import NARROWBAND_FIGURE
 from flyover.io.results.rotor_tones import ROTOR_TONES, ROTOR_TONES_FIGURE
 from flyover.io.results.spectra import SPECTRA_FIGURE
 from flyover.io.results.hemisphere import (COVERAGE_FIGURE, HEMISPHERE, HEMISPHERE_FIGURE,
@@ -326,6 +327,11 @@ ground reflection at its frequency is not taken off). Band levels split into the
 the rotors whose hub lies in the region and the broadband rest: band_parts.csv.</p>
 {_table(_rotor_table(d))}
 {_figure(d, ROTOR_TONES_FIGURE)}
+<h3>Narrowband spectra</h3><p class="muted">The array focused on each region's centre, in source
+time, at 1 m: Welch densities of every window in narrowband.csv (the line spacing in its
+resolution_hz column), with the microphones' own noise taken out; the grey line keeps every
+term. Tones the maps spread over a band stand out here.</p>
+{_figure(d, NARROWBAND_FIGURE)}
 </section>"""
 
 

@@ -21,6 +21,7 @@ from flyover.io.results.event_metrics import (BAND_HISTORY, EVENT_METRICS, LEVEL
                                               LEVEL_HISTORY_FIGURE, RECONSTRUCTED)
 from flyover.io.results.levels import LEVELS, LEVELS_BY_METHOD
 from flyover.io.results.levels_overall import LEVELS_OVERALL
+from flyover.io.results.narrowband import NARROWBAND, NARROWBAND_FIGURE
 from flyover.io.results.region_power import REGION_POWER
 from flyover.io.results.rotor_tones import BAND_PARTS, ROTOR_TONES, ROTOR_TONES_FIGURE
 from flyover.io.results.signoff import SIGNOFF, SIGNOFF_JSON
@@ -35,6 +36,7 @@ PASS_STEPS = {
     "trackcheck": (track_check.NAME,),
     "metrics": (EVENT_METRICS, RECONSTRUCTED, LEVEL_HISTORY, BAND_HISTORY, LEVEL_HISTORY_FIGURE),
     "tones": (ROTOR_TONES, BAND_PARTS, ROTOR_TONES_FIGURE),
+    "narrowband": (NARROWBAND, NARROWBAND_FIGURE),
     "qc": (qc.TRACK_FIGURE, qc.SPECTROGRAM_FIGURE),
 }
 CAMPAIGN_STEPS = {

@@ -96,7 +96,8 @@ rule report:
         rules.campaign_summary.output,
         rules.hemispheres.output,
         rules.signoff.output,
-        PLAN.pass_step_results("align", "image", "qc", "levels", "metrics", "tones"),
+        PLAN.pass_step_results("align", "image", "qc", "levels", "metrics", "tones",
+                               "narrowband"),
         PLAN.comparison_files(),
         PLAN.input_files(),
     output:

@@ -140,6 +140,29 @@ rule tones:
         f"{STAGE} tones --pass {{wildcards.pass_name:q}} > {{log:q}} 2>&1"
 
 
+rule narrowband:
+    input:
+        unpack(lambda w: PLAN.pass_inputs(w.pass_name)),
+        **results_of("align", "image", "tones"),
+    output:
+        **outputs("narrowband"),
+    params:
+        fingerprint=lambda w: PLAN.fingerprint(w.pass_name, "narrowband"),
+    log:
+        f"{OUTP}/logs/{{pass_name}}/narrowband.log",
+    benchmark:
+        f"{OUTP}/benchmarks/{{pass_name}}/narrowband.tsv"
+    group:
+        "pass_light"
+    resources:
+        mem_mb=lambda w: PLAN.memory_mb(w.pass_name, "narrowband"),
+        runtime=lambda w: PLAN.runtime_min(w.pass_name, "narrowband"),
+    conda:
+        CONDA_ENV,
+    shell:
+        f"{STAGE} narrowband --pass {{wildcards.pass_name:q}} > {{log:q}} 2>&1"
+
+
 rule qc:
     input:
         unpack(lambda w: PLAN.pass_inputs(w.pass_name)),
