@@ -581,9 +581,11 @@ def narrowband_figure(table, tones, pass_name: str):
                     label="every term")
             ax.plot(r["frequency_hz"], r["psd_db"], color=INK, lw=1.0,
                     label="diagonal removed")
-            for k, (_, t) in enumerate(marks.iterrows()):
-                ax.axvline(t["frequency_hz"], color=ACCENT, lw=0.7, ls=":",
-                           label="blade-passing harmonics" if k == 0 else None)
+            rotors = list(dict.fromkeys(marks["rotor"])) if len(marks) else []
+            for rotor, colour in zip(rotors, [ACCENT, ARRAY, "#7a4e9e", "#b03a2e"] * 4):
+                for k, f in enumerate(marks.loc[marks["rotor"] == rotor, "frequency_hz"]):
+                    ax.axvline(f, color=colour, lw=0.7, ls=":",
+                               label=f"{rotor}: blade-passing harmonics" if k == 0 else None)
             ax.set_ylabel("dB re (20 uPa)^2/Hz")
             ax.set_title(region, fontsize=10, loc="left")
             ax.legend(fontsize=7, frameon=False, loc="upper right")
