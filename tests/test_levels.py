@@ -14,7 +14,7 @@ from flyover.imaging.integration import MAX_CONDITION, region_powers
 from flyover.imaging.resolution import main_lobe_width_m
 from flyover.io.config import load_campaign
 from flyover.io.results.maps import read_maps
-from flyover.pipeline import align, image, levels, metrics, qc
+from flyover.pipeline import align, image, levels, metrics, narrowband, qc, tones
 
 
 def test_reference_level_spreading_and_absorption():
@@ -152,6 +152,8 @@ def test_stages_on_the_tiny_campaign(tiny_copy):
     levels.run(campaign, "p1", out)
     qc.run(campaign, "p1", out)  # every per-pass stage, each through its guarded campaign view
     metrics.run(campaign, "p1", out)
+    tones.run(campaign, "p1", out)
+    narrowband.run(campaign, "p1", out)
     table = pd.read_csv(out / "levels.csv")
     assert list(table.columns[:6]) == ["window", "time_utc", "polar_angle_deg", "band_hz",
                                        "region", "level_db"]
@@ -195,6 +197,17 @@ def test_stages_on_the_tiny_campaign(tiny_copy):
         assert (out / name).exists(), name
     maps = read_maps(out)
     assert maps["diagonal_removed"].shape[1:] == (len(maps["band_hz"]),) + campaign.grid.shape
+    # The narrowband step: a density for every analysed window and region over the analysed
+    # bands, its line spacing stated, the figure drawn.
+    from flyover.io.results.narrowband import NARROWBAND, NARROWBAND_FIGURE
+    dense = NARROWBAND.read(out)
+    assert set(dense["window"]) == set(pd.read_csv(out / "windows.csv").query(
+        "status == 'analysed'")["window"])
+    assert set(dense["region"]) == set(campaign.regions)
+    assert (dense["resolution_hz"] == narrowband.RESOLUTION_HZ).all()
+    assert dense["frequency_hz"].max() <= campaign.analysis.band_max_hz * 2 ** (1 / 6)
+    assert np.isfinite(dense["psd_full_db"]).all()
+    assert NARROWBAND_FIGURE.path(out).stat().st_size > 10_000
     # No certification-style adjustment by default: no adjusted rows.
     rec = pd.read_csv(out / "reconstructed_metrics.csv")
     assert not rec["route"].str.startswith("adjusted").any()

@@ -75,27 +75,3 @@ def test_band_integrals_match_the_band_levels_on_a_simulated_pass(segment_s):
             truth = signal_band_power(sig(w.emission_times_s), bands, FS)
             tonal = np.isin(bands.nominal_hz, [630.0, 1000.0, 1600.0])
             assert np.max(np.abs(10 * np.log10(power / truth))[tonal]) < 0.2
-
-
-def test_the_stage_writes_every_window_and_region(tiny_copy):
-    # The per-pass step on the tiny campaign: a density for every analysed window and region
-    # over the analysed bands, its line spacing stated, the figure drawn.
-    from flyover.io.config import load_campaign
-    from flyover.io.results.narrowband import NARROWBAND, NARROWBAND_FIGURE
-    from flyover.io.results.windows import read_analysed
-    from flyover.pipeline import align, image, levels, narrowband, tones
-    campaign = load_campaign(tiny_copy / "campaign.yaml")
-    out = tiny_copy / "results" / "p1"
-    align.run(campaign, "p1", out)
-    image.run(campaign, "p1", out, threads=2, quiet=True)
-    levels.run(campaign, "p1", out)
-    tones.run(campaign, "p1", out)
-    narrowband.run(campaign, "p1", out)
-    table = NARROWBAND.read(out)
-    windows = read_analysed(out)
-    assert set(table["window"]) == set(windows["window"])
-    assert set(table["region"]) == set(campaign.regions)
-    assert (table["resolution_hz"] == narrowband.RESOLUTION_HZ).all()
-    assert table["frequency_hz"].max() <= campaign.analysis.band_max_hz * 2 ** (1 / 6)
-    assert np.isfinite(table["psd_full_db"]).all()
-    assert NARROWBAND_FIGURE.path(out).stat().st_size > 10_000
