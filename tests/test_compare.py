@@ -83,3 +83,19 @@ def test_overall_levels_compare_only_bands_both_labels_support():
     b = side("B", [-1.0, -1.2], region_db=np.nan)
     _, overall = compare(a, b)
     assert set(overall["region"]) == {"total"}
+
+
+def test_the_command_says_when_it_cannot_tell(tiny_copy, capsys):
+    # One pass a side: the command prints the difference and that it cannot tell, never a
+    # verdict; the tables land beside the campaign's results.
+    from conftest import edit_campaign
+
+    from flyover.cli import main
+    edit_campaign(tiny_copy, lambda d: d["passes"]["p2"].update(label="b"))
+    for name, offset in (("p1", 0.0), ("p2", -2.5)):
+        LEVELS.write(tiny_copy / "results" / name, levels(offset))
+    assert main(["compare", str(tiny_copy / "campaign.yaml"), "--labels", "a", "b"]) == 0
+    out = capsys.readouterr().out
+    assert "total A-weighted at 90 deg: -2.5 dB, cannot tell" in out
+    assert "differs" not in out
+    assert (tiny_copy / "results" / "comparisons" / "a--b" / "overall.csv").exists()
