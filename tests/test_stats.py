@@ -110,6 +110,12 @@ def test_difference_interval_shared_terms_and_the_undecidable_case():
     assert two["ci_half_width_db"] == pytest.approx(
         np.hypot(plain["ci_half_width_db"], z * np.sqrt(independent + 2 * 0.3 ** 2)), rel=1e-4)
     assert one["differs"] and two["differs"]
+    # Two campaigns with their own calibrators: each side's shared term, once.
+    own = difference_interval(a, b, ua_db=ua, ub_db=ub, shared_db=0.3, shared_b_db=0.1,
+                              shared_cancels=False)
+    mixed = (0.5 ** 2 - 0.3 ** 2) / 3 + (0.5 ** 2 - 0.1 ** 2) / 4 + 0.3 ** 2 + 0.1 ** 2
+    assert own["ci_half_width_db"] == pytest.approx(
+        np.hypot(plain["ci_half_width_db"], z * np.sqrt(mixed)), rel=1e-4)
     # One pass in a label: the scatter is unknown, so no interval and no verdict.
     lone = difference_interval(a[:1], b, ua_db=ua[:1], ub_db=ub)
     assert np.isnan(lone["ci_half_width_db"]) and not lone["differs"]

@@ -62,7 +62,8 @@ def mean_and_interval(values_db, confidence: float = 0.90, uncertainty_db=None, 
 
 
 def difference_interval(a_db, b_db, confidence: float = 0.90, *, ua_db=None, ub_db=None,
-                        shared_db: float = 0.0, shared_cancels: bool = True) -> dict:
+                        shared_db: float = 0.0, shared_cancels: bool = True,
+                        shared_b_db: float | None = None) -> dict:
     """The difference of two groups' means, ``mean(b) - mean(a)``, with its two-sided interval.
 
     The pass-to-pass scatter gives the unequal-variance (Welch) t interval, standard error
@@ -72,7 +73,7 @@ def difference_interval(a_db, b_db, confidence: float = 0.90, *, ua_db=None, ub_
     does for one mean. ``shared_db`` is the part every value of both groups has in common (one
     campaign's calibrator and capsule type): it cancels in the difference when
     ``shared_cancels`` (the groups share it), and counts once per group otherwise (two
-    campaigns with their own calibrations).
+    campaigns with their own calibrations: ``shared_b_db``, default ``shared_db``, is B's).
 
     With fewer than two values in a group the scatter cannot be estimated: no interval (NaN),
     never a tight one from the stated uncertainties alone.
@@ -100,10 +101,11 @@ def difference_interval(a_db, b_db, confidence: float = 0.90, *, ua_db=None, ub_
             ua = np.asarray(ua_db, float)[keep_a]
             ub = np.asarray(ub_db, float)[keep_b]
             if np.all(np.isfinite(ua)) and np.all(np.isfinite(ub)):
+                shared_b = shared_db if shared_b_db is None else shared_b_db
                 own = (max(float(np.mean(ua ** 2)) - shared_db ** 2, 0.0) / n_a
-                       + max(float(np.mean(ub ** 2)) - shared_db ** 2, 0.0) / n_b)
+                       + max(float(np.mean(ub ** 2)) - shared_b ** 2, 0.0) / n_b)
                 if not shared_cancels:
-                    own += 2 * shared_db ** 2
+                    own += shared_db ** 2 + shared_b ** 2
                 half = float(np.hypot(half, stats.norm.ppf(0.5 + confidence / 2)
                                       * np.sqrt(own)))
         out.update(dof=dof, ci_half_width_db=half)

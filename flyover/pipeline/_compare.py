@@ -66,7 +66,7 @@ def label_side(campaign: Campaign, label: str, results, *, name: str | None = No
                 campaign.analysis.uncertainty.calibration_shared_db, out)
 
 
-def _difference_rows(a: dict, b: dict, value: str, keys: list[str], *, shared_db: float,
+def _difference_rows(a: dict, b: dict, value: str, keys: list[str], *, shared: tuple,
                      shared_cancels: bool) -> list[dict]:
     """Per key and polar bin, the difference of B's and A's per-pass bin means."""
     def stacked(tables):
@@ -80,8 +80,8 @@ def _difference_rows(a: dict, b: dict, value: str, keys: list[str], *, shared_db
         ga = sa[(sa[by] == pd.Series(key, index=by)).all(axis=1)]
         gb = sb[(sb[by] == pd.Series(key, index=by)).all(axis=1)]
         d = difference_interval(ga[value], gb[value], 0.90, ua_db=ga["uncertainty_db"],
-                                ub_db=gb["uncertainty_db"], shared_db=shared_db,
-                                shared_cancels=shared_cancels)
+                                ub_db=gb["uncertainty_db"], shared_db=shared[0],
+                                shared_b_db=shared[1], shared_cancels=shared_cancels)
         row = dict(zip(by, key))
         row.update({k: d[k] for k in ("mean_a_db", "mean_b_db", "n_a", "n_b",
                                       "difference_db", "dof", "differs")})
@@ -97,11 +97,10 @@ def _difference_rows(a: dict, b: dict, value: str, keys: list[str], *, shared_db
 def compare(a: Side, b: Side) -> tuple[pd.DataFrame, pd.DataFrame]:
     """The band and the overall comparison tables of B against A."""
     same = a.results == b.results
-    # Within one campaign the shared calibration cancels; across two, each side's counts
-    # (difference_interval adds it once per side: the larger is used for both).
-    shared = a.shared_db if same else max(a.shared_db, b.shared_db)
+    # Within one campaign the shared calibration cancels; across two, each side's counts.
+    shared = (a.shared_db, b.shared_db)
     bands = pd.DataFrame(_difference_rows(a.levels, b.levels, "level_db",
-                                          ["region", "band_hz"], shared_db=shared,
+                                          ["region", "band_hz"], shared=shared,
                                           shared_cancels=same),
                          columns=COMPARED_LEVELS.column_names)
     # Overall levels over one band range both labels support, so that like is compared with
@@ -109,9 +108,9 @@ def compare(a: Side, b: Side) -> tuple[pd.DataFrame, pd.DataFrame]:
     ranges = common_band_range(list(a.levels.values()) + list(b.levels.values()))
     parts = []
     for value, quantity in (("overall_db", "overall"), ("a_weighted_db", "A-weighted")):
-        sides = [{n: overall_table(t, ranges, shared_db=shared) for n, t in s.levels.items()}
-                 for s in (a, b)]
-        rows = _difference_rows(*sides, value, ["region", "band_range_hz"], shared_db=shared,
+        sides = [{n: overall_table(t, ranges, shared_db=s.shared_db)
+                  for n, t in s.levels.items()} for s in (a, b)]
+        rows = _difference_rows(*sides, value, ["region", "band_range_hz"], shared=shared,
                                 shared_cancels=same)
         parts += [dict(r, quantity=quantity) for r in rows if r["band_range_hz"]]
     overall = pd.DataFrame(parts, columns=COMPARED_OVERALL.column_names)
