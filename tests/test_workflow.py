@@ -92,12 +92,12 @@ def test_user_campaign_runs_alone(finished_run):
     assert "pass-1" not in log and "simulate_demo" not in log
     # Every pass folder holds exactly the files the steps declare (flyover.io.results.steps):
     # the rules, the run's progress and the report take their names from that one list.
-    from flyover.io.results.maps import FIGURE_FOLDER
+    from flyover.io.results import listen, maps
     from flyover.io.results.steps import pass_files
+    expected = set(pass_files()) | {maps.FIGURE_FOLDER, listen.FOLDER}
     for p in ("p1", "p2"):
         held = {f.name for f in (finished_run / "results" / p).iterdir()}
-        assert held == set(pass_files()) | {FIGURE_FOLDER}, held ^ (set(pass_files())
-                                                                     | {FIGURE_FOLDER})
+        assert held == expected, held ^ expected
         assert (finished_run / "results" / "logs" / p / "image.log").exists()
         assert (finished_run / "results" / "benchmarks" / p / "image.tsv").exists()
     assert (finished_run / "results" / "report.html").exists()
@@ -144,6 +144,7 @@ def test_revised_track_reruns_that_pass_only(run_copy):
     assert planned(run_copy) == {("align", "p1"), ("image", "p1"), ("levels", "p1"),
                                  ("qc", "p1"), ("metrics", "p1"), ("tones", "p1"),
                                  ("trackcheck", "p1"), ("narrowband", "p1"),
+                                 ("listen", "p1"),
                                  ("campaign_summary", ""),
                                  ("hemispheres", ""), ("signoff", ""), ("report", "")}
 
@@ -169,6 +170,7 @@ def test_one_pass_atmosphere_reruns_that_pass(finished_run):
         assert planned(finished_run) == {("align", "p2"), ("image", "p2"), ("levels", "p2"),
                                          ("qc", "p2"), ("metrics", "p2"), ("tones", "p2"),
                                          ("trackcheck", "p2"), ("narrowband", "p2"),
+                                         ("listen", "p2"),
                                          ("campaign_summary", ""),
                                          ("hemispheres", ""), ("signoff", ""), ("report", "")}
 
@@ -180,6 +182,7 @@ def test_added_pass_runs_alone_then_summary(finished_run):
         assert planned(finished_run) == {("align", "p3"), ("image", "p3"), ("levels", "p3"),
                                          ("qc", "p3"), ("metrics", "p3"), ("tones", "p3"),
                                          ("trackcheck", "p3"), ("narrowband", "p3"),
+                                         ("listen", "p3"),
                                          ("campaign_summary", ""),
                                          ("hemispheres", ""), ("signoff", ""), ("report", "")}
 

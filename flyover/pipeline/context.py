@@ -108,6 +108,12 @@ class PassInputs:
     def n_channels(self) -> int:
         return sum(r.recording.n_channels for r in self.recorders)
 
+    @property
+    def center_microphone(self) -> int:
+        """The used microphone nearest the array's centre (layout row)."""
+        distance = np.linalg.norm(self.layout.enu_m - self.layout.center_enu_m, axis=1)
+        return int(np.argmin(np.where(self.weights > 0, distance, np.inf)))
+
     def holds(self, first_frame, n_frames: int) -> bool:
         """Whether every recorder holds its frames [first, first + n)."""
         return all(0 <= first_frame[r.mics[0]] and first_frame[r.mics[0]] + n_frames

@@ -49,7 +49,7 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> None:
     delay_s = summary["closest_distance_m"] / inputs.atmosphere.c_m_s
     first, held = inputs.covered_frames((start + delay_s, start + delay_s + n / fs))
     signals = inputs.read_pressure_pa(first, min(n, held))
-    mic = int(np.argmin(np.linalg.norm(inputs.layout.enu_m - inputs.layout.center_enu_m, axis=1)))
+    mic = inputs.center_microphone
     nper = int(2 ** np.round(np.log2(0.08 * fs)))
     raw = spectrogram(signals[mic].astype(float), fs, nperseg=nper, noverlap=nper * 3 // 4)
     dd = spectrogram(beam.astype(float), fs, nperseg=nper, noverlap=nper * 3 // 4)

@@ -4,8 +4,9 @@ modules of this package).
 
 A pass step writes into the pass's folder, a campaign step into the campaign's; the summary
 also writes one file into every pass's folder (``SUMMARY_PASS_FILES``), the image step a
-folder of map figures (:data:`flyover.io.results.maps.FIGURE_FOLDER`) and the hemispheres step
-a folder per label (:mod:`flyover.io.results.hemisphere`).
+folder of map figures (:data:`flyover.io.results.maps.FIGURE_FOLDER`), the listen step a folder
+of sound files (:data:`flyover.io.results.listen.FOLDER`) and the hemispheres step a folder per
+label (:mod:`flyover.io.results.hemisphere`).
 """
 
 from __future__ import annotations
@@ -21,6 +22,7 @@ from flyover.io.results.event_metrics import (BAND_HISTORY, EVENT_METRICS, LEVEL
                                               LEVEL_HISTORY_FIGURE, RECONSTRUCTED)
 from flyover.io.results.levels import LEVELS, LEVELS_BY_METHOD
 from flyover.io.results.levels_overall import LEVELS_OVERALL
+from flyover.io.results.listen import LISTEN
 from flyover.io.results.narrowband import NARROWBAND, NARROWBAND_FIGURE
 from flyover.io.results.region_power import REGION_POWER
 from flyover.io.results.rotor_tones import BAND_PARTS, ROTOR_TONES, ROTOR_TONES_FIGURE
@@ -37,6 +39,7 @@ PASS_STEPS = {
     "metrics": (EVENT_METRICS, RECONSTRUCTED, LEVEL_HISTORY, BAND_HISTORY, LEVEL_HISTORY_FIGURE),
     "tones": (ROTOR_TONES, BAND_PARTS, ROTOR_TONES_FIGURE),
     "narrowband": (NARROWBAND, NARROWBAND_FIGURE),
+    "listen": (LISTEN,),
     "qc": (qc.TRACK_FIGURE, qc.SPECTROGRAM_FIGURE),
 }
 CAMPAIGN_STEPS = {

@@ -97,7 +97,7 @@ rule report:
         rules.hemispheres.output,
         rules.signoff.output,
         PLAN.pass_step_results("align", "image", "qc", "levels", "metrics", "tones",
-                               "narrowband"),
+                               "narrowband", "listen"),
         PLAN.comparison_files(),
         PLAN.input_files(),
     output:

@@ -163,6 +163,29 @@ rule narrowband:
         f"{STAGE} narrowband --pass {{wildcards.pass_name:q}} > {{log:q}} 2>&1"
 
 
+rule listen:
+    input:
+        unpack(lambda w: PLAN.pass_inputs(w.pass_name)),
+        **results_of("align", "image"),
+    output:
+        **outputs("listen"),
+    params:
+        fingerprint=lambda w: PLAN.fingerprint(w.pass_name, "listen"),
+    log:
+        f"{OUTP}/logs/{{pass_name}}/listen.log",
+    benchmark:
+        f"{OUTP}/benchmarks/{{pass_name}}/listen.tsv"
+    group:
+        "pass_light"
+    resources:
+        mem_mb=lambda w: PLAN.memory_mb(w.pass_name, "listen"),
+        runtime=lambda w: PLAN.runtime_min(w.pass_name, "listen"),
+    conda:
+        CONDA_ENV,
+    shell:
+        f"{STAGE} listen --pass {{wildcards.pass_name:q}} > {{log:q}} 2>&1"
+
+
 rule qc:
     input:
         unpack(lambda w: PLAN.pass_inputs(w.pass_name)),
