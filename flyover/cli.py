@@ -27,6 +27,7 @@ EXAMPLES = {
     "array-plan": "flyover array-plan demo/data/layout.csv --height-m 35 --bands 200 3150 "
                   "--points 1.1 0 -1.5 0 --figure psf.png",
     "report": "flyover report my-campaign.yaml --open",
+    "view": "flyover view my-campaign.yaml",
     "compare": ("flyover compare demo/campaign.yaml --labels cruise-60 cruise-80\n"
                 "  flyover compare spring.yaml autumn.yaml --labels cruise-60 cruise-60"),
     "stage": "flyover stage align --campaign demo/campaign.yaml --pass pass-1 --out results/pass-1",
@@ -114,6 +115,12 @@ def _parser() -> argparse.ArgumentParser:
     o.add_argument("--open", action="store_true",
                    help="open it in the default browser (default: print its path)")
 
+    v = add("view", "open a campaign's interactive results viewer in the browser (a file of "
+                    "the results folder: no server, nothing fetched from outside it)")
+    v.add_argument("campaign", type=Path, help="the campaign file (YAML)")
+    v.add_argument("--print", dest="print_only", action="store_true",
+                   help="print the page's path only (default: also open it)")
+
     g = add("stage", "run one per-pass workflow step (called by the workflow)", internal=True)
     g.add_argument("name", help="the step (a per-pass stage of flyover.pipeline)")
     g.add_argument("--campaign", type=Path, default=_campaign_from_environment(),
@@ -130,6 +137,29 @@ def _parser() -> argparse.ArgumentParser:
     h.add_argument("--campaign", type=Path, default=_campaign_from_environment(),
                    help="campaign file (default: $FLYOVER_CAMPAIGN, set by the workflow)")
     return p
+
+
+def _page(args) -> int:
+    """Print the path of the report or the viewer, and open it in the browser when asked (the
+    viewer by default). A viewer missing from results made before it existed is written from
+    them first."""
+    from flyover.io.config import load_campaign
+    from flyover.io.results import report, viewer
+    campaign = load_campaign(args.campaign)
+    page = report if args.command == "report" else viewer
+    path = campaign.output / page.NAME
+    if not path.exists() and page is viewer and (campaign.output / report.NAME).exists():
+        from flyover.pipeline import viewer as viewer_step
+        viewer_step.run(campaign, campaign.output)
+    if not path.exists():
+        print(f"no {args.command} page yet: run `flyover run {args.campaign}` first",
+              file=sys.stderr)
+        return 1
+    print(path)
+    if getattr(args, "open", False) or (page is viewer and not args.print_only):
+        import webbrowser
+        webbrowser.open(path.as_uri())
+    return 0
 
 
 def _compare(args) -> int:
@@ -252,18 +282,8 @@ def _dispatch(args) -> int:
         return 0
     if args.command == "compare":
         return _compare(args)
-    if args.command == "report":
-        from flyover.io.config import load_campaign
-        from flyover.io.results import report as report_file
-        path = load_campaign(args.campaign).output / report_file.NAME
-        if not path.exists():
-            print(f"no report yet: run `flyover run {args.campaign}` first", file=sys.stderr)
-            return 1
-        print(path)
-        if args.open:
-            import webbrowser
-            webbrowser.open(path.as_uri())
-        return 0
+    if args.command in ("report", "view"):
+        return _page(args)
     from flyover.io.config import load_campaign
     if args.campaign is None:
         raise FlyoverInputError("no campaign file", f"flyover {args.command}",

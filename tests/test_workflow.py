@@ -146,7 +146,8 @@ def test_revised_track_reruns_that_pass_only(run_copy):
                                  ("trackcheck", "p1"), ("narrowband", "p1"),
                                  ("listen", "p1"),
                                  ("campaign_summary", ""),
-                                 ("hemispheres", ""), ("signoff", ""), ("report", "")}
+                                 ("hemispheres", ""), ("signoff", ""), ("viewer", ""),
+                                 ("report", "")}
 
 
 @pytest.mark.slow
@@ -160,7 +161,8 @@ def test_reference_distance_reruns_levels_not_imaging(finished_run):
                                          # its figure marks the tones' frequencies
                                          ("narrowband", "p1"), ("narrowband", "p2"),
                                          ("campaign_summary", ""),
-                                         ("hemispheres", ""), ("signoff", ""), ("report", "")}
+                                         ("hemispheres", ""), ("signoff", ""), ("viewer", ""),
+                                         ("report", "")}
 
 
 @pytest.mark.slow
@@ -172,7 +174,8 @@ def test_one_pass_atmosphere_reruns_that_pass(finished_run):
                                          ("trackcheck", "p2"), ("narrowband", "p2"),
                                          ("listen", "p2"),
                                          ("campaign_summary", ""),
-                                         ("hemispheres", ""), ("signoff", ""), ("report", "")}
+                                         ("hemispheres", ""), ("signoff", ""), ("viewer", ""),
+                                         ("report", "")}
 
 
 @pytest.mark.slow
@@ -184,7 +187,8 @@ def test_added_pass_runs_alone_then_summary(finished_run):
                                          ("trackcheck", "p3"), ("narrowband", "p3"),
                                          ("listen", "p3"),
                                          ("campaign_summary", ""),
-                                         ("hemispheres", ""), ("signoff", ""), ("report", "")}
+                                         ("hemispheres", ""), ("signoff", ""), ("viewer", ""),
+                                         ("report", "")}
 
 
 @pytest.mark.slow
@@ -272,19 +276,80 @@ def test_report_is_self_contained(finished_run):
     assert set(signed["status"]) <= {"accepted", "flagged", "rejected"} and len(signed) == 2
 
 
+# Without the background services, Chromium's connections are refused by a closed network.
+CHROMIUM_FLAGS = ["--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
+                  "--disable-background-networking", "--disable-component-update",
+                  "--disable-sync"]
+
+
 @pytest.mark.slow
 def test_report_opens_in_headless_chromium(finished_run, tmp_path):
     browser = shutil.which("chromium") or shutil.which("chromium-browser")
     if browser is None:
         pytest.skip("Chromium is not installed (Debian package 'chromium'; .ci/run installs it)")
     report = finished_run / "results" / "report.html"
-    res = subprocess.run([browser, "--headless", "--no-sandbox", "--disable-gpu",
-                          "--disable-quic", "--no-first-run", "--disable-background-networking",
-                          "--disable-component-update", "--disable-sync",
+    res = subprocess.run([browser, "--headless", *CHROMIUM_FLAGS,
                           f"--user-data-dir={tmp_path / 'profile'}", "--dump-dom",
                           report.as_uri()], capture_output=True, text=True, timeout=120)
     assert res.returncode == 0, res.stderr[-2000:]
     assert "Campaign summary" in res.stdout and 'data-pass="p2"' in res.stdout
+
+
+
+@pytest.mark.slow
+def test_viewer_in_headless_chromium(finished_run, tmp_path):
+    # The results viewer in a real browser: it loads without a console error, asks for
+    # nothing outside the results folder, the window slider changes the map, and a click on a
+    # region shows its spectrum, its directivity and its sound.
+    browser = shutil.which("chromium") or shutil.which("chromium-browser")
+    if browser is None:
+        pytest.skip("Chromium is not installed (Debian package 'chromium'; .ci/run installs it)")
+    from playwright.sync_api import sync_playwright
+    results = finished_run / "results"
+    errors, requests = [], []
+    with sync_playwright() as play:
+        chromium = play.chromium.launch(executable_path=browser, args=CHROMIUM_FLAGS)
+        page = chromium.new_page(viewport={"width": 1100, "height": 1000})
+        page.on("console", lambda m: errors.append(m.text) if m.type == "error" else None)
+        page.on("pageerror", lambda e: errors.append(str(e)))
+        page.on("request", lambda r: requests.append(r.url))
+        page.goto((results / "viewer.html").as_uri())
+        page.wait_for_function("() => window.Bokeh && Bokeh.documents.length > 0")
+        model = "name => Bokeh.documents[0].get_model_by_name(name)"
+        page.wait_for_function(f"() => ({model})('window_slider').title.includes('polar')")
+        before = page.evaluate(f"() => Array.from(({model})('map_source').data.image[0])")
+        title = page.evaluate(f"() => ({model})('window_slider').title")
+        # Step one window on with the keyboard, as a user would.
+        page.locator(".noUi-handle").first.focus()
+        page.keyboard.press("ArrowRight")
+        page.wait_for_function(f"t => ({model})('window_slider').title !== t", arg=title)
+        after = page.evaluate(f"() => Array.from(({model})('map_source').data.image[0])")
+        assert after != before
+        # Click the front region's centre on the map.
+        x, y = page.evaluate(f"""() => {{
+            const view = Bokeh.index.find_one(({model})('map_plot'));
+            const box = view.canvas_view.el.getBoundingClientRect();
+            return [box.left + view.frame.x_scale.compute(1.0),
+                    box.top + view.frame.y_scale.compute(0.0)];
+        }}""")
+        page.mouse.click(x, y)
+        page.wait_for_function(f"() => ({model})('spectrum_plot').title.text.startsWith('front')")
+        spectrum = page.evaluate(f"() => ({model})('spectrum').data.level_db.length")
+        directivity = page.evaluate(f"() => ({model})('directivity').data.level_db.length")
+        sounds = page.evaluate(f"() => ({model})('audio').text")
+        # The region's sound plays from the page's folder (the browser decodes the WAV file).
+        duration_s = page.locator("audio").first.evaluate(
+            "el => new Promise(done => { el.onloadedmetadata = () => done(el.duration); "
+            "el.load(); })")
+        page.screenshot(path=str(tmp_path / "viewer.png"), full_page=True)
+        chromium.close()
+    assert spectrum >= 1 and directivity >= 2
+    assert "listen/region-01-front.wav" in sounds and "center-microphone.wav" in sounds
+    listened = pd.read_csv(results / "p1" / "listen.csv").set_index("region")
+    assert duration_s == pytest.approx(listened.loc["front", "duration_s"], abs=1e-3)
+    assert not errors, errors
+    outside = [u for u in requests if not u.startswith(results.as_uri() + "/")]
+    assert not outside, outside
 
 
 def _tables(folder):
@@ -489,7 +554,8 @@ def test_a_requested_comparison_runs_as_its_own_step(finished_run):
         d["analysis"]["comparisons"] = [["a", "b"]]
     with edited_config(finished_run, ask):
         assert planned(finished_run) == {("compare", ""), ("campaign_summary", ""),
-                                         ("hemispheres", ""), ("signoff", ""), ("report", "")}
+                                         ("hemispheres", ""), ("signoff", ""), ("viewer", ""),
+                                         ("report", "")}
         res = subprocess.run([sys.executable, "-m", "flyover", "stage-campaign", "compare",
                               "--campaign", "campaign.yaml"], cwd=finished_run,
                              capture_output=True, text=True)

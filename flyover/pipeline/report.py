@@ -20,8 +20,9 @@ from PIL import Image
 from flyover import __version__
 from flyover.io.atomic import write_text
 from flyover.io.results.alignment import clock_uncertainty_s, pass_atmosphere, read_alignment
-from flyover.io.results import FigureFile, qc
+from flyover.io.results import FigureFile, qc, viewer
 from flyover.io.results import report as report_file
+from flyover.io.results.report import CAUTION
 from flyover.io.results.campaign_tables import CAMPAIGN_FIGURE, CAMPAIGN_LEVELS, CAMPAIGN_OVERALL
 from flyover.io.results.comparison import COMPARED_OVERALL, COMPARISON_FIGURE, pair_folder
 from flyover.io.results.comparison import FOLDER as COMPARISON_FOLDER
@@ -42,10 +43,6 @@ from flyover.io.results.windows import WINDOWS
 from flyover.campaign import Campaign
 from flyover.model.reads import guarded
 
-CAUTION = ("Outdoor flight tests and their measurements must follow the applicable "
-           "noise-certification standards, aviation rules and local regulations; flyover defers "
-           "to them and is no substitute for them. Flying near people and microphones needs the "
-           "operator's own risk assessment.")
 REPORT_IMAGE_QUALITY = 60  # WebP quality of the embedded figures (the PNGs keep full detail)
 REPORT_IMAGE_WIDTH = 1600  # pixels at most: wider figures are scaled down for the page
 FULL_DIGEST_BYTES = 1 << 30  # files above this get a partial digest (head, tail and size)
@@ -605,7 +602,7 @@ def run(campaign: Campaign, out_dir: Path) -> None:
 <p class="muted">{html.escape(campaign.config_path.name)} &middot; generated {now}; file paths
 are relative to the campaign file's folder</p>
 <p class="caution"><strong>Caution.</strong> {html.escape(CAUTION)}</p>
-<nav><a href="#signoff">sign-off</a><a href="#summary">summary</a>{nav}<a href="#provenance">provenance</a></nav>
+<nav><a href="{viewer.NAME}">interactive viewer</a><a href="#signoff">sign-off</a><a href="#summary">summary</a>{nav}<a href="#provenance">provenance</a></nav>
 <h2 id="signoff">Sign-off</h2>
 <section id="signoff-table">
 <p class="muted">Each pass is accepted, flagged (a limit broken: its numbers stand, with the

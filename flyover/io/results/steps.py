@@ -15,7 +15,7 @@ import re
 from pathlib import Path
 
 from flyover.io.results import (alignment, comparison, file_name, maps, qc, report,
-                                track_check)
+                                track_check, viewer)
 from flyover.io.results.campaign_tables import CAMPAIGN_FIGURE, CAMPAIGN_LEVELS, CAMPAIGN_OVERALL
 from flyover.io.results.directivity import DIRECTIVITY, DIRECTIVITY_FIGURE
 from flyover.io.results.event_metrics import (BAND_HISTORY, EVENT_METRICS, LEVEL_HISTORY,
@@ -45,6 +45,7 @@ PASS_STEPS = {
 CAMPAIGN_STEPS = {
     "signoff": (SIGNOFF, SIGNOFF_JSON),
     "summary": (CAMPAIGN_LEVELS, CAMPAIGN_OVERALL, CAMPAIGN_FIGURE),
+    "viewer": (viewer.NAME,),
     "report": (report.NAME,),
 }
 SUMMARY_PASS_FILES = (LEVELS_OVERALL,)
@@ -77,7 +78,7 @@ def describe_all() -> str:
 
     # Files that are not tables: their module's first paragraph says what they hold.
     about = {m.NAME: " ".join(m.__doc__.split("\n\n")[0].split(": ", 1)[1].split())
-             for m in (alignment, maps, track_check, report)}
+             for m in (alignment, maps, track_check, report, viewer)}
     about[SIGNOFF_JSON] = "each pass's status with every rule's measured value and limit"
 
     def describe(result, where):

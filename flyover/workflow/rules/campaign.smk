@@ -91,11 +91,34 @@ if PLAN.comparison_files():
             '"$FLYOVER_PYTHON" -m flyover stage-campaign compare > {log:q} 2>&1'
 
 
+rule viewer:
+    input:
+        PLAN.pass_step_results("align", "image", "levels", "listen"),
+        rules.signoff.output.signoff_csv,
+        PLAN.input_files(),
+    output:
+        **outputs("viewer"),
+    params:
+        fingerprint=PLAN.campaign_fingerprint("viewer"),
+    log:
+        f"{OUTP}/logs/viewer.log",
+    benchmark:
+        f"{OUTP}/benchmarks/viewer.tsv"
+    resources:
+        mem_mb=PLAN.memory_mb(None, "viewer"),
+        runtime=PLAN.runtime_min(None, "viewer"),
+    conda:
+        CONDA_ENV,
+    shell:
+        '"$FLYOVER_PYTHON" -m flyover stage-campaign viewer > {log:q} 2>&1'
+
+
 rule report:
     input:
         rules.campaign_summary.output,
         rules.hemispheres.output,
         rules.signoff.output,
+        rules.viewer.output,
         PLAN.pass_step_results("align", "image", "qc", "levels", "metrics", "tones",
                                "narrowband", "listen"),
         PLAN.comparison_files(),
