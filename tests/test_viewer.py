@@ -56,7 +56,12 @@ def test_page_needs_nothing_from_the_network():
         regions=pd.DataFrame({"region": ["r"], "x0": [0.0], "x1": [1.0], "y0": [0.0],
                               "y1": [1.0]}),
         microphones=pd.DataFrame({"pass": ["a"], "east_m": [0.0], "north_m": [0.0]}),
-        listening=pd.DataFrame({"pass": ["a"], "region": ["r"], "file": ["a/listen/r.wav"]}))
+        listening=pd.DataFrame({"pass": ["a"], "region": ["r"], "file": ["a/listen/r.wav"]}),
+        narrowband=pd.DataFrame({"pass": ["a"], "window": [0], "region": ["r"],
+                                 "frequency_hz": [np.arange(8.0, 100.0, 8.0, dtype=np.float32)],
+                                 "psd_db": [np.full(12, 40.0, np.float32)]}),
+        harmonics=pd.DataFrame({"pass": ["a"], "window": [0], "rotor": ["nose"],
+                                "frequency_hz": [64.0]}))
     html = viewer_html(data)
     assert "<script" in html and "Bokeh" in html
     assert not re.search(r"""<(script|link|img)\b[^>]*(src|href)=["']?https?://""", html)

@@ -336,6 +336,7 @@ def test_viewer_in_headless_chromium(finished_run, tmp_path):
         page.wait_for_function(f"() => ({model})('spectrum_plot').title.text.startsWith('front')")
         spectrum = page.evaluate(f"() => ({model})('spectrum').data.level_db.length")
         directivity = page.evaluate(f"() => ({model})('directivity').data.level_db.length")
+        dense = page.evaluate(f"() => ({model})('dense_line').data.psd_db.length")
         sounds = page.evaluate(f"() => ({model})('audio').text")
         # The region's sound plays from the page's folder (the browser decodes the WAV file).
         duration_s = page.locator("audio").first.evaluate(
@@ -344,6 +345,8 @@ def test_viewer_in_headless_chromium(finished_run, tmp_path):
         page.screenshot(path=str(tmp_path / "viewer.png"), full_page=True)
         chromium.close()
     assert spectrum >= 1 and directivity >= 2
+    narrowband = pd.read_csv(results / "p1" / "narrowband.csv")
+    assert dense == len(narrowband) // narrowband.groupby(["window", "region"]).ngroups
     assert "listen/region-01-front.wav" in sounds and "center-microphone.wav" in sounds
     listened = pd.read_csv(results / "p1" / "listen.csv").set_index("region")
     assert duration_s == pytest.approx(listened.loc["front", "duration_s"], abs=1e-3)

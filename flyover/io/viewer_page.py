@@ -53,6 +53,11 @@ class ViewerData:
     listening : DataFrame
         pass, region ('' for the microphone), file (relative to the page).
     bands_hz : list of float
+    narrowband : DataFrame
+        pass, window, region, frequency_hz and psd_db (float32 arrays: dB re (20 uPa)^2/Hz at
+        1 m, diagonal removed).
+    harmonics : DataFrame
+        pass, window, rotor, frequency_hz: the rotors' blade-passing harmonics (may be empty).
     """
 
     title: str
@@ -65,6 +70,8 @@ class ViewerData:
     microphones: pd.DataFrame
     listening: pd.DataFrame
     bands_hz: list
+    narrowband: pd.DataFrame
+    harmonics: pd.DataFrame
 
 
 def stored_map(power_pa2) -> tuple[np.ndarray, float]:
@@ -165,6 +172,24 @@ for (let i = 0; region !== null && i < L.pass.length; i++) {
 }
 spectrum.data = spec;
 directivity.data = dir;
+const N = narrowband.data, H = harmonics.data;
+let dense = {frequency_hz: [], psd_db: []};
+for (let i = 0; region !== null && i < N.pass.length; i++)
+  if (N.pass[i] === p && N.window[i] === win && N.region[i] === region)
+    dense = {frequency_hz: N.frequency_hz[i], psd_db: N.psd_db[i]};
+dense_line.data = dense;
+const finite = Array.from(dense.psd_db).filter(Number.isFinite);
+const top = finite.length ? Math.max(...finite) : 0, bottom = top - 50;
+const marks = {x0: [], y0: [], y1: [], rotor: []};
+for (let i = 0; i < H.pass.length; i++)
+  if (H.pass[i] === p && H.window[i] === win && finite.length) {
+    marks.x0.push(H.frequency_hz[i]); marks.y0.push(bottom); marks.y1.push(top + 3);
+    marks.rotor.push(H.rotor[i]);
+  }
+harmonic_marks.data = marks;
+narrowband_plot.title.text = region === null ? "click a region for its narrowband spectrum"
+  : `${region}, window ${win}: narrowband density at 1 m in source time, diagonal removed` +
+    (marks.x0.length ? "; blade-passing harmonics dotted" : "");
 const names = Object.keys(others).sort();
 label_passes.data = {xs: names.map((q) => others[q].sort((a, b) => a[0] - b[0]).map((v) => v[0])),
                      ys: names.map((q) => others[q].sort((a, b) => a[0] - b[0]).map((v) => v[1])),
@@ -277,6 +302,21 @@ def viewer_html(data: ViewerData) -> str:
     directivity_plot.scatter("polar", "level_db", source=directivity, size=7, color="#542788")
     now_line = Span(location=90.0, dimension="height", line_dash="dashed", line_color="#999999")
     directivity_plot.add_layout(now_line)
+    dense_line = ColumnDataSource({"frequency_hz": [], "psd_db": []}, name="dense_line")
+    harmonic_marks = ColumnDataSource({"x0": [], "y0": [], "y1": [], "rotor": []},
+                                      name="harmonic_marks")
+    narrowband_plot = figure(name="narrowband_plot", width=1000, height=280,
+                             x_axis_label="frequency in source time (Hz)",
+                             y_axis_label="dB re (20 uPa)^2/Hz", tools="pan,wheel_zoom,reset,save")
+    narrowband_plot.line("frequency_hz", "psd_db", source=dense_line, color="#222222")
+    narrowband_plot.segment("x0", "y0", "x0", "y1", source=harmonic_marks, color="#b35806",
+                            line_dash="dotted", line_width=1.5)
+    narrowband = ColumnDataSource({
+        "pass": list(data.narrowband["pass"]), "window": data.narrowband["window"].to_numpy(),
+        "region": list(data.narrowband["region"]),
+        "frequency_hz": list(data.narrowband["frequency_hz"]),
+        "psd_db": list(data.narrowband["psd_db"])}, name="narrowband")
+    harmonics = source(data.harmonics, "harmonics")
 
     options = [(p, text) for p, text in zip(data.passes["pass"], data.passes["option"])]
     picker = Select(title="pass", options=options, value=options[0][0] if options else "",
@@ -285,7 +325,7 @@ def viewer_html(data: ViewerData) -> str:
     band_picker = Select(title="band (Hz)", value=bands[len(bands) // 2] if bands else "",
                          options=[(b, f"{float(b):g}") for b in bands], name="band_picker")
     slider = Slider(start=0, end=1, value=0, step=1, title="polar angle", width=520,
-                    name="window_slider")
+                    show_value=False, name="window_slider")
     status = Div(text="", width=1000, name="status")
     audio = Div(text="", width=440, name="audio")
     listening = source(data.listening, "listening")
@@ -298,6 +338,8 @@ def viewer_html(data: ViewerData) -> str:
         directivity=directivity, label_passes=label_passes, now_line=now_line,
         spectrum_plot=spectrum_plot, directivity_plot=directivity_plot, listening=listening,
         audio=audio, status=status, colours=VERDICT_COLOURS, state=state,
+        narrowband=narrowband, harmonics=harmonics, dense_line=dense_line,
+        harmonic_marks=harmonic_marks, narrowband_plot=narrowband_plot,
         picker_labels=dict(zip(data.passes["pass"], data.passes["label"])),
         picker_status=dict(zip(data.passes["pass"], data.passes["status"]))))
     picker.js_on_change("value", refresh)
@@ -313,7 +355,7 @@ def viewer_html(data: ViewerData) -> str:
         + html.escape(CAUTION), width=1000)
     layout = column(Div(text=f"<h2>{data.title}</h2>"), row(picker, band_picker, slider),
                     status, legend, row(map_plot, track_plot),
-                    row(spectrum_plot, directivity_plot, audio))
+                    row(spectrum_plot, directivity_plot, audio), narrowband_plot)
     doc = Document()
     doc.add_root(layout)
     doc.js_on_event(DocumentReady, refresh)

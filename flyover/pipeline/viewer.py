@@ -1,5 +1,6 @@
 """Stage: the interactive view of a campaign (``viewer.html``), gathered from the result files
-of every pass (maps, windows, levels, listening files) and the sign-off; the page itself is
+of every pass (maps, windows, levels, narrowband spectra, rotor tones, listening files) and the
+sign-off; the page itself is
 :mod:`flyover.io.viewer_page`."""
 
 from __future__ import annotations
@@ -15,6 +16,8 @@ from flyover.io.results import viewer
 from flyover.io.results.levels import LEVELS
 from flyover.io.results.listen import LISTEN
 from flyover.io.results.maps import read_maps
+from flyover.io.results.narrowband import NARROWBAND
+from flyover.io.results.rotor_tones import ROTOR_TONES
 from flyover.io.results.signoff import SIGNOFF
 from flyover.io.results.windows import WINDOWS
 from flyover.io.viewer_page import ViewerData, stored_map, viewer_html
@@ -58,11 +61,23 @@ def _pass_tables(campaign: Campaign, name: str, folder: Path) -> dict[str, pd.Da
         "verdict": verdicts(levels), "note": levels["note"].fillna("").astype(str)})
     enu = load_layout(campaign, name).enu_m
     microphones = pd.DataFrame({"pass": name, "east_m": enu[:, 0], "north_m": enu[:, 1]})
+    dense = NARROWBAND.read(folder)
+    narrowband = pd.DataFrame([
+        {"pass": name, "window": int(w), "region": str(r),
+         "frequency_hz": g["frequency_hz"].to_numpy(np.float32),
+         "psd_db": g["psd_db"].to_numpy(np.float32)}
+        for (w, r), g in dense.groupby(["window", "region"], sort=False)],
+        columns=["pass", "window", "region", "frequency_hz", "psd_db"])
+    tones = ROTOR_TONES.read(folder)
+    harmonics = pd.DataFrame({"pass": name, "window": tones["window"].astype(int),
+                              "rotor": tones["rotor"].astype(str),
+                              "frequency_hz": tones["frequency_hz"].astype(float)})
     files = LISTEN.read(folder)
     listening = pd.DataFrame({"pass": name, "region": files["region"].fillna("").astype(str),
                               "file": [f"{name}/{f}" for f in files["file"]]})
     return {"windows": windows, "maps": map_rows, "levels": levels,
             "microphones": microphones, "listening": listening,
+            "narrowband": narrowband, "harmonics": harmonics,
             "grid": {"x_m": maps["x_m"], "y_m": maps["y_m"]},
             "bands_hz": list(maps["band_hz"])}
 
@@ -84,7 +99,8 @@ def viewer_data(campaign: Campaign, out_dir: Path) -> ViewerData:
         passes=passes, regions=regions,
         grid=first["grid"], bands_hz=first["bands_hz"],
         **{k: pd.concat([t[k] for t in per_pass.values()], ignore_index=True)
-           for k in ("windows", "maps", "levels", "microphones", "listening")})
+           for k in ("windows", "maps", "levels", "microphones", "listening", "narrowband",
+                     "harmonics")})
 
 
 def run(campaign: Campaign, out_dir: Path) -> None:

@@ -93,7 +93,7 @@ if PLAN.comparison_files():
 
 rule viewer:
     input:
-        PLAN.pass_step_results("align", "image", "levels", "listen"),
+        PLAN.pass_step_results("align", "image", "levels", "tones", "narrowband", "listen"),
         rules.signoff.output.signoff_csv,
         PLAN.input_files(),
     output:
