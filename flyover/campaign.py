@@ -275,6 +275,14 @@ class WeatherLimits:
 
 
 @dataclass(frozen=True)
+class StoreSpec:
+    """The campaign's place in a columnar store: ``folder / name / *.parquet``."""
+
+    folder: Path
+    name: str
+
+
+@dataclass(frozen=True)
 class SignoffLimits:
     """What a pass is held to before it is accepted (``signoff_limits`` in the campaign file;
     docs/signoff.md states each rule and its source). Breaking one flags the pass; a pass without a
@@ -357,6 +365,7 @@ class Campaign:
     weather: WeatherSpec | None = None
     weather_limits: WeatherLimits = WeatherLimits()
     signoff_limits: SignoffLimits = SignoffLimits()
+    store: StoreSpec | None = None
 
     def input_files(self) -> list[Path]:
         """Every input file the campaign names: config, layout, weather, recordings,

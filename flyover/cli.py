@@ -29,7 +29,9 @@ EXAMPLES = {
     "report": "flyover report my-campaign.yaml --open",
     "view": "flyover view my-campaign.yaml",
     "compare": ("flyover compare demo/campaign.yaml --labels cruise-60 cruise-80\n"
-                "  flyover compare spring.yaml autumn.yaml --labels cruise-60 cruise-60"),
+                "  flyover compare spring.yaml autumn.yaml --labels cruise-60 cruise-60\n"
+                "  flyover compare demo/campaign.yaml --truth\n"
+                "  flyover compare team-store --labels spring:cruise-60 autumn:cruise-60"),
     "stage": "flyover stage align --campaign demo/campaign.yaml --pass pass-1 --out results/pass-1",
     "stage-campaign": "flyover stage-campaign summary --campaign demo/campaign.yaml",
 }
@@ -103,12 +105,18 @@ def _parser() -> argparse.ArgumentParser:
     n = add("plan", "show what a run would redo, pass by pass, and why")
     n.add_argument("campaign", type=Path, help="the campaign file (YAML)")
 
-    m = add("compare", "compare one label with another (of one campaign or of two): "
-                       "differences of the mean levels with their 90 % intervals")
-    m.add_argument("campaigns", type=Path, nargs="+", metavar="campaign",
-                   help="the campaign file of both labels, or of label A then of label B")
-    m.add_argument("--labels", nargs=2, required=True, metavar=("A", "B"),
+    m = add("compare", "compare one label with another (of one campaign or of several): "
+                       "differences of the mean levels and metrics with their 90 % intervals")
+    m.add_argument("campaigns", type=Path, nargs="+", metavar="source",
+                   help="the campaign file of both labels, or of label A then of label B; or "
+                        "any number of results folders and stores, labels then given as "
+                        "CAMPAIGN:LABEL")
+    m.add_argument("--labels", nargs=2, metavar=("A", "B"),
                    help="the labels compared: the tables give B minus A")
+    m.add_argument("--truth", nargs="?", const="", type=str, metavar="SCENARIO",
+                   help="instead of labels, a simulated campaign against its truth: every "
+                        "level at 1 m minus what the scenario's sources emit (default "
+                        "scenario: the campaign file's 'scenario' key)")
 
     o = add("report", "print the path of a campaign's report (or open it)")
     o.add_argument("campaign", type=Path, help="the campaign file (YAML)")
@@ -166,21 +174,16 @@ def _compare(args) -> int:
     """B against A, written beside the (first) campaign's results; the tables' paths printed
     with the differences whose interval excludes zero."""
     from flyover.io.config import load_campaign
-    from flyover.pipeline._compare import label_side, write_comparison
-    if len(args.campaigns) > 2:
-        raise FlyoverInputError("too many campaign files", "flyover compare",
-                                "one campaign file, or two (label A's, then label B's)",
-                                f"{len(args.campaigns)}")
-    first = load_campaign(args.campaigns[0])
-    second = load_campaign(args.campaigns[-1]) if len(args.campaigns) == 2 else first
-    two = second is not first
-    label_a, label_b = args.labels
-    a = label_side(first, label_a, first.output, source=str(args.campaigns[0]),
-                   name=f"{args.campaigns[0].stem}.{label_a}" if two else None)
-    b = label_side(second, label_b, second.output, source=str(args.campaigns[-1]),
-                   name=f"{args.campaigns[-1].stem}.{label_b}" if two else None)
-    folder = write_comparison(first.output, a, b)
-    from flyover.io.results.comparison import COMPARED_OVERALL
+    from flyover.pipeline._compare import sides_from_sources, write_comparison
+    if args.truth is not None:
+        return _compare_with_truth(args)
+    if args.labels is None:
+        raise FlyoverInputError("nothing to compare", "flyover compare",
+                                "--labels A B, or --truth for a simulated campaign", "neither")
+    a, b, out = sides_from_sources(args.campaigns, args.labels, load_campaign=load_campaign)
+    folder = write_comparison(out, a, b)
+    from flyover.io.results.comparison import (COMPARED_METRIC_NAMES, COMPARED_METRICS,
+                                               COMPARED_OVERALL)
     overall = COMPARED_OVERALL.read(folder)
     near = overall[(overall["quantity"] == "A-weighted")
                    & ((overall["polar_bin_deg"] - 90.0).abs() <= 10.0)]
@@ -192,7 +195,38 @@ def _compare(args) -> int:
             verdict = "cannot tell: no interval with fewer than two passes a side"
         print(f"{r['region']} A-weighted at {r['polar_bin_deg']:g} deg: "
               f"{r['difference_db']:+.1f} dB, {verdict}")
+    for _, r in COMPARED_METRICS.read(folder).iterrows():
+        print(f"{COMPARED_METRIC_NAMES[r['metric']]}: {r['difference_db']:+.1f} dB, "
+              + (f"90 % interval [{r['ci90_low_db']:+.1f}, {r['ci90_high_db']:+.1f}] dB"
+                 if math.isfinite(r["ci90_low_db"]) else "no interval"))
     print(f"tables and figure: {folder}")
+    return 0
+
+
+def _compare_with_truth(args) -> int:
+    """A simulated campaign's levels against its scenario's truth; the summary printed."""
+    from flyover.io.config import load_campaign
+    from flyover.io.results.comparison import MEASURED_MINUS_TRUE
+    from flyover.pipeline._truth import truth_summary, write_truth_comparison
+    if len(args.campaigns) != 1 or args.labels is not None:
+        raise FlyoverInputError("--truth compares one campaign with its own scenario",
+                                "flyover compare", "one campaign file and no --labels",
+                                f"{len(args.campaigns)} campaign files"
+                                + (", --labels" if args.labels else ""))
+    campaign = load_campaign(args.campaigns[0])
+    scenario = Path(args.truth) if args.truth else campaign.scenario
+    if scenario is None:
+        raise FlyoverInputError("no scenario to take the truth from", str(args.campaigns[0]),
+                                "a 'scenario' key, or --truth SCENARIO", "neither")
+    path = write_truth_comparison(campaign, campaign.output, scenario)
+    s = truth_summary(MEASURED_MINUS_TRUE.read(path.parent))
+    if s["n"]:
+        print(f"resolved levels: {s['n']}; measured minus true {s['mean_db']:+.2f} dB on "
+              f"average (standard deviation {s['std_db']:.2f} dB); the 90 % interval holds "
+              f"the truth for {100 * s['within']:.1f} %")
+    else:
+        print("no resolved level has a simulated source in its region")
+    print(f"table: {path}")
     return 0
 
 

@@ -10,7 +10,9 @@ import pandas as pd
 import pytest
 from scipy import stats
 
-from flyover.io.results.comparison import COMPARED_LEVELS, COMPARED_OVERALL, COMPARISON_FIGURE
+from flyover.io.results.comparison import (COMPARED_LEVELS, COMPARED_METRICS, COMPARED_OVERALL,
+                                           COMPARISON_FIGURE)
+from flyover.io.results.event_metrics import EVENT_METRICS
 from flyover.io.results.levels import LEVELS
 from flyover.pipeline._compare import Side, compare, write_comparison
 
@@ -33,9 +35,17 @@ def levels(offset_db: float, *, region_db=None, polar=(86.0, 90.0, 94.0)) -> pd.
     return pd.DataFrame(rows).reindex(columns=LEVELS.column_names)
 
 
-def side(name, offsets, **kw) -> Side:
-    return Side(name, {f"{name}-{k}": levels(o, **kw) for k, o in enumerate(offsets)}, 0.15,
-                Path("/campaign/results"))
+def metrics(offset_db: float) -> pd.DataFrame:
+    """A pass's event_metrics.csv: every metric at 80 dB plus an offset."""
+    return pd.DataFrame([{c: (80.0 + offset_db if c.endswith("_db") else "")
+                          for c in EVENT_METRICS.column_names}])
+
+
+def side(name, offsets, results="/campaign/results", **kw) -> Side:
+    passes = [f"{name}-{k}" for k in range(len(offsets))]
+    return Side(name, {p: levels(o, **kw) for p, o in zip(passes, offsets)}, 0.15,
+                Path(results), pd.concat([metrics(o).assign(**{"pass": p})
+                                          for p, o in zip(passes, offsets)], ignore_index=True))
 
 
 def test_band_and_overall_differences_match_welchs_interval():
@@ -44,7 +54,7 @@ def test_band_and_overall_differences_match_welchs_interval():
     # the overall and A-weighted levels over the bands both support move by the same offsets.
     a_off, b_off = [0.0, 0.6, -0.4, 0.2], [-2.1, -1.7, -2.4]
     a, b = side("A", a_off), side("B", b_off)
-    bands, overall = compare(a, b)
+    bands, overall, compared_metrics = compare(a, b)
     ref = stats.ttest_ind(b_off, a_off, equal_var=False)
     ci = ref.confidence_interval(0.90)
     total = bands[(bands["region"] == "total") & (bands["polar_bin_deg"] == 90.0)]
@@ -59,19 +69,32 @@ def test_band_and_overall_differences_match_welchs_interval():
         assert len(row) == 1 and row["band_range_hz"].iloc[0] == "500-1000"
         assert row["difference_db"].iloc[0] == pytest.approx(np.mean(b_off) - np.mean(a_off))
         assert row["ci90_low_db"].iloc[0] == pytest.approx(ci.low, rel=1e-9)
+    # The single-event metrics likewise (their only stated uncertainty, the shared
+    # calibration, cancels within one campaign); across two campaigns it counts once a side,
+    # so the interval widens about the same difference.
+    lae = compared_metrics.set_index("metric").loc["lae_db"]
+    assert lae["difference_db"] == pytest.approx(np.mean(b_off) - np.mean(a_off))
+    assert (lae["ci90_low_db"], lae["ci90_high_db"]) == pytest.approx((ci.low, ci.high),
+                                                                      rel=1e-9)
+    assert lae["differs"] and lae["passes_b"] == "B-0 B-1 B-2"
+    across = compare(a, side("B", b_off, results="/other/results"))[2].set_index("metric")
+    assert across.loc["lae_db", "ci90_low_db"] < ci.low
+    assert across.loc["lae_db", "ci90_high_db"] > ci.high
 
 
 def test_a_label_with_one_pass_gets_no_interval_and_the_files_are_written(tmp_path):
     # The undecidable case says so: one pass of B, no interval and no 'differs'. The tables
     # and the figure land in comparisons/A--B with their declared columns.
     a, b = side("A", [0.0, 0.5, -0.3]), side("B", [-4.0])
-    bands, overall = compare(a, b)
+    bands, overall, compared_metrics = compare(a, b)
+    assert compared_metrics["ci90_low_db"].isna().all() and not compared_metrics["differs"].any()
     assert bands["ci90_low_db"].isna().all() and not bands["differs"].any()
     assert (bands["difference_db"].dropna() < -3.0).all()
     folder = write_comparison(tmp_path, a, b)
     assert folder == tmp_path / "comparisons" / "A--B"
     assert list(COMPARED_LEVELS.read(folder).columns) == COMPARED_LEVELS.column_names
     assert len(COMPARED_OVERALL.read(folder)) == len(overall)
+    assert list(COMPARED_METRICS.read(folder)["metric"]) == list(compared_metrics["metric"])
     assert COMPARISON_FIGURE.path(folder).stat().st_size > 10_000
 
 
@@ -81,7 +104,7 @@ def test_overall_levels_compare_only_bands_both_labels_support():
     # left out rather than compared over different bands.
     a = side("A", [0.0, 0.4])
     b = side("B", [-1.0, -1.2], region_db=np.nan)
-    _, overall = compare(a, b)
+    _, overall, _ = compare(a, b)
     assert set(overall["region"]) == {"total"}
 
 
@@ -94,6 +117,7 @@ def test_the_command_says_when_it_cannot_tell(tiny_copy, capsys):
     edit_campaign(tiny_copy, lambda d: d["passes"]["p2"].update(label="b"))
     for name, offset in (("p1", 0.0), ("p2", -2.5)):
         LEVELS.write(tiny_copy / "results" / name, levels(offset))
+        EVENT_METRICS.write(tiny_copy / "results" / name, metrics(offset))
     assert main(["compare", str(tiny_copy / "campaign.yaml"), "--labels", "a", "b"]) == 0
     out = capsys.readouterr().out
     assert "total A-weighted at 90 deg: -2.5 dB, cannot tell" in out

@@ -220,7 +220,7 @@ def test_grid_too_large_for_memory(tiny_copy):
 
 
 def test_inputs_are_never_modified(tiny_copy):
-    from flyover.pipeline.report import file_digest
+    from flyover.io.digest import file_digest
     campaign = load_campaign(tiny_copy / "campaign.yaml")
     before = {f: file_digest(f) for f in campaign.input_files()}
     out = tiny_copy / "results" / "p1"

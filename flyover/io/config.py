@@ -17,7 +17,7 @@ from flyover.imaging.methods import DEFAULT_METHOD, methods
 from flyover.io.timestamps import parse_utc_ns
 from flyover.io.yamlfile import read_yaml, validate_mapping
 from flyover.campaign import (AnalysisSettings, ArraySpec, Campaign, MethodTuning, PassSpec,
-                              RecorderSpec, ReferenceFlight, RotorSpec, SignoffLimits,
+                              RecorderSpec, ReferenceFlight, RotorSpec, SignoffLimits, StoreSpec,
                               WeatherLimits, WeatherSpec)
 from flyover.geometry.vehicle import Region, VehicleGrid
 from flyover.model.constants import MIN_OVERALL_BANDS
@@ -410,7 +410,13 @@ def campaign_from_mapping(data: dict, path: Path) -> Campaign:
     scenario = _resolve_path(base, data["scenario"]) if "scenario" in data else None
     rotors = {n: RotorSpec(n, tuple(float(v) for v in r["body_m"]), int(r["blades"]),
                            int(r["motor"])) for n, r in veh.get("rotors", {}).items()}
+    output = _resolve_path(base, data["output"])
+    store = data.get("store", {})
+    # The default name is the campaign file's, made safe for a folder name.
+    name = store.get("name") or re.sub(r"[^A-Za-z0-9._-]+", "_", path.stem).lstrip("._-") \
+        or "campaign"
+    folder = _resolve_path(base, store["folder"]) if "folder" in store else output / "store"
     return Campaign(path, site, None if geoid is None else float(geoid), array, passes, grid,
-                    regions, analysis, _resolve_path(base, data["output"]), outline, scenario,
-                    rotors, weather, weather_limits,
-                    SignoffLimits(**data.get("signoff_limits", {})))
+                    regions, analysis, output, outline, scenario, rotors, weather,
+                    weather_limits, SignoffLimits(**data.get("signoff_limits", {})),
+                    StoreSpec(folder, name))

@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import base64
-import hashlib
 import html
 import re
 import io
@@ -22,6 +21,7 @@ from flyover.io.atomic import write_text
 from flyover.io.results.alignment import clock_uncertainty_s, pass_atmosphere, read_alignment
 from flyover.io.results import FigureFile, qc, viewer
 from flyover.io.results import report as report_file
+from flyover.io.digest import file_digest
 from flyover.io.results.report import CAUTION
 from flyover.io.results.campaign_tables import CAMPAIGN_FIGURE, CAMPAIGN_LEVELS, CAMPAIGN_OVERALL
 from flyover.io.results.comparison import COMPARED_OVERALL, COMPARISON_FIGURE, pair_folder
@@ -45,7 +45,6 @@ from flyover.model.reads import guarded
 
 REPORT_IMAGE_QUALITY = 60  # WebP quality of the embedded figures (the PNGs keep full detail)
 REPORT_IMAGE_WIDTH = 1600  # pixels at most: wider figures are scaled down for the page
-FULL_DIGEST_BYTES = 1 << 30  # files above this get a partial digest (head, tail and size)
 
 _STYLE = """
 body{font-family:system-ui,-apple-system,"Segoe UI",sans-serif;color:#2b3440;background:#faf8f4;
@@ -62,23 +61,6 @@ nav a{margin-right:14px;color:#1f7a78}
 # What this stage reads of the campaign (flyover.model.reads): everything it reports.
 READS = ("",)
 
-
-
-def file_digest(path: Path) -> str:
-    """SHA-256 of a file; for files over 1 GiB, of its size, first and last 16 MiB ('partial')."""
-    path = Path(path)
-    h = hashlib.sha256()
-    size = path.stat().st_size
-    with open(path, "rb") as fh:
-        if size <= FULL_DIGEST_BYTES:
-            for chunk in iter(lambda: fh.read(1 << 20), b""):
-                h.update(chunk)
-            return h.hexdigest()
-        h.update(str(size).encode())
-        h.update(fh.read(16 << 20))
-        fh.seek(-(16 << 20), 2)
-        h.update(fh.read())
-    return "partial:" + h.hexdigest()
 
 
 def _img(path: Path, alt: str) -> str:

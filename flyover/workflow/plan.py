@@ -18,7 +18,7 @@ from flyover.acoustics.bands import third_octave_bands
 from flyover.imaging.chain import ChainSettings, window_memory_bytes
 from flyover.io.config import load_campaign
 from flyover.io.readers import read
-from flyover.io.results import comparison, file_name, hemisphere, steps
+from flyover.io.results import comparison, file_name, hemisphere, steps, store
 from flyover.io.results.campaign_tables import CAMPAIGN_LEVELS
 from flyover.sim.scenario_file import load_scenario
 from flyover.campaign import Campaign, pass_array
@@ -228,9 +228,16 @@ class CampaignPlan:
                 f"{file_name(f)}" for a, b in self.campaign.analysis.comparisons
                 for f in steps.COMPARISON_FILES]
 
+    def store_files(self) -> list[str]:
+        """The campaign's files in the columnar store (:mod:`flyover.io.results.store`)."""
+        spec = self.campaign.store
+        return [str(p).replace("{", "{{").replace("}", "}}")
+                for p in store.campaign_files(spec.folder, spec.name)]
+
     def targets(self) -> list[str]:
-        """The whole campaign: the report and the campaign tables."""
+        """The whole campaign: the report, the campaign tables and the store's files."""
         return list(self.step_outputs("report").values()) + [
-            f"{self.output_pattern}/{CAMPAIGN_LEVELS.name}"] + self.comparison_files()
+            f"{self.output_pattern}/{CAMPAIGN_LEVELS.name}"] + self.comparison_files() + \
+            self.store_files()
 
 

@@ -14,7 +14,7 @@ from __future__ import annotations
 import re
 from pathlib import Path
 
-from flyover.io.results import (alignment, comparison, file_name, maps, qc, report,
+from flyover.io.results import (alignment, comparison, file_name, maps, qc, report, store,
                                 track_check, viewer)
 from flyover.io.results.campaign_tables import CAMPAIGN_FIGURE, CAMPAIGN_LEVELS, CAMPAIGN_OVERALL
 from flyover.io.results.directivity import DIRECTIVITY, DIRECTIVITY_FIGURE
@@ -51,7 +51,7 @@ CAMPAIGN_STEPS = {
 SUMMARY_PASS_FILES = (LEVELS_OVERALL,)
 # Written by `flyover compare`, not by a workflow step.
 COMPARISON_FILES = (comparison.COMPARED_LEVELS, comparison.COMPARED_OVERALL,
-                    comparison.COMPARISON_FIGURE)
+                    comparison.COMPARED_METRICS, comparison.COMPARISON_FIGURE)
 
 
 def output_key(result) -> str:
@@ -98,6 +98,13 @@ def describe_all() -> str:
                 out += [describe(f, "PASS/") + "\n" for f in SUMMARY_PASS_FILES]
     out += ["## `flyover compare`", ""]
     out += [describe(f, f"{comparison.FOLDER}/A--B/") + "\n" for f in COMPARISON_FILES]
+    out += [describe(comparison.MEASURED_MINUS_TRUE,
+                     f"{comparison.FOLDER}/{comparison.TRUTH_FOLDER}/") + "\n"]
+    out += ["## The columnar store (step `store`)", "",
+            " ".join(store.__doc__.split("\n\n")[0].split()).rstrip(":") + ", for example:",
+            "", "```sql", store.__doc__.split("\n\n")[1].strip(), "```", ""]
+    out += [f"- `STORE/NAME/{t}.parquet`: {what}" for t, what in store.TABLES.items()]
+    out += [f"- `STORE/NAME/{store.PROVENANCE}.parquet`: the provenance as rows", ""]
     return "\n".join(out).rstrip("\n") + "\n"
 
 

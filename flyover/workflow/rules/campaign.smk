@@ -72,7 +72,7 @@ if PLAN.comparison_files():
 
     rule compare:
         input:
-            PLAN.pass_step_results("levels"),
+            PLAN.pass_step_results("levels", "metrics"),
             rules.signoff.output.signoff_csv,
         output:
             update(PLAN.comparison_files()),
@@ -89,6 +89,29 @@ if PLAN.comparison_files():
             CONDA_ENV,
         shell:
             '"$FLYOVER_PYTHON" -m flyover stage-campaign compare > {log:q} 2>&1'
+
+
+rule store:
+    input:
+        PLAN.pass_step_results("levels", "metrics"),
+        PLAN.pass_results(SUMMARY_PASS_FILES),
+        rules.signoff.output.signoff_csv,
+        PLAN.input_files(),
+    output:
+        update(PLAN.store_files()),
+    params:
+        fingerprint=PLAN.campaign_fingerprint("store"),
+    log:
+        f"{OUTP}/logs/store.log",
+    benchmark:
+        f"{OUTP}/benchmarks/store.tsv"
+    resources:
+        mem_mb=PLAN.memory_mb(None, "store"),
+        runtime=PLAN.runtime_min(None, "store"),
+    conda:
+        CONDA_ENV,
+    shell:
+        '"$FLYOVER_PYTHON" -m flyover stage-campaign store > {log:q} 2>&1'
 
 
 rule viewer:
