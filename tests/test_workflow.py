@@ -370,7 +370,8 @@ def test_compare_against_the_scenarios_truth(finished_run):
     assert res.returncode == 0, res.stderr
     assert "the 90 % interval holds the truth for" in res.stdout
     table = MEASURED_MINUS_TRUE.read(finished_run / "results" / "comparisons" / "truth")
-    assert set(table["region"]) == {"front", "rear", "total"}
+    # The rear region has a source but no level given in this campaign: no row of it.
+    assert set(table["region"]) == {"front", "total"}
     summary = truth_summary(table)
     assert summary["n"] >= 100
     assert abs(summary["mean_db"]) < 0.5 and summary["within"] >= 0.8, summary

@@ -23,6 +23,9 @@ from flyover.geometry.vehicle import Region, VehicleGrid
 from flyover.model.constants import MIN_OVERALL_BANDS
 from flyover.model.errors import FlyoverInputError, suggest
 
+# The campaign's folder in its store when the campaign file names none.
+DEFAULT_STORE_NAME = "campaign"
+
 
 def _resolve_path(base: Path, value: str) -> Path:
     p = Path(value).expanduser()
@@ -412,10 +415,9 @@ def campaign_from_mapping(data: dict, path: Path) -> Campaign:
                            int(r["motor"])) for n, r in veh.get("rotors", {}).items()}
     output = _resolve_path(base, data["output"])
     store = data.get("store", {})
-    # The default name is the campaign file's, made safe for a folder name.
-    name = store.get("name") or re.sub(r"[^A-Za-z0-9._-]+", "_", path.stem).lstrip("._-") \
-        or "campaign"
+    # A fixed default name: results must not depend on the campaign file's own name.
     folder = _resolve_path(base, store["folder"]) if "folder" in store else output / "store"
+    name = store.get("name", DEFAULT_STORE_NAME)
     return Campaign(path, site, None if geoid is None else float(geoid), array, passes, grid,
                     regions, analysis, output, outline, scenario, rotors, weather,
                     weather_limits, SignoffLimits(**data.get("signoff_limits", {})),

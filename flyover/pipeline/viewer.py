@@ -50,7 +50,8 @@ def _pass_tables(campaign: Campaign, name: str, folder: Path) -> dict[str, pd.Da
     stored = [(int(w), float(b)) + stored_map(maps["diagonal_removed"][i, k])
               for i, w in enumerate(maps["window"]) for k, b in enumerate(maps["band_hz"])]
     map_rows = pd.DataFrame([{"pass": name, "window": w, "band_hz": b, "image": img,
-                              "peak_db": peak} for w, b, img, peak in stored])
+                              "peak_db": peak} for w, b, img, peak in stored],
+                            columns=["pass", "window", "band_hz", "image", "peak_db"])
     levels = LEVELS.read(folder)
     levels = levels[levels["region"].isin(list(campaign.regions))]
     levels = pd.DataFrame({
