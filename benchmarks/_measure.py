@@ -26,3 +26,14 @@ def measured_stage(name: str, campaign: Path, pass_name: str, out: Path,
         raise SystemExit(res.stderr[-3000:])
     peak = [int(line.split()[1]) for line in res.stdout.splitlines() if line.startswith("peak_kb")]
     return time.perf_counter() - t0, peak[-1] / 1024
+
+
+def measured_campaign_stage(name: str, campaign: Path) -> tuple[float, float]:
+    """(wall time in s, peak resident memory in MB) of `flyover stage-campaign NAME`."""
+    t0 = time.perf_counter()
+    res = subprocess.run([sys.executable, "-c", PROBE, "stage-campaign", name, "--campaign",
+                          str(campaign)], capture_output=True, text=True, cwd=ROOT)
+    if res.returncode != 0:
+        raise SystemExit(res.stderr[-3000:])
+    peak = [int(line.split()[1]) for line in res.stdout.splitlines() if line.startswith("peak_kb")]
+    return time.perf_counter() - t0, peak[-1] / 1024
