@@ -198,7 +198,8 @@ class PassSpec:
     (None: the track is the body origin's); ``array`` its own array (None: the campaign's);
     ``atmosphere_profile`` the air by height above the array (empty: uniform); ``partial``
     says the track is meant not to pass overhead (no 90 deg window), which `flyover check`
-    otherwise refuses.
+    otherwise refuses; ``span_utc_ns`` the pass's stretch (start, end; UTC ns) of a recording
+    and track that hold more (None: all of it).
     """
 
     name: str
@@ -219,6 +220,7 @@ class PassSpec:
     array: ArraySpec | None = None
     atmosphere_profile: tuple[AtmosphereLayer, ...] = ()
     partial: bool = False
+    span_utc_ns: tuple[int, int] | None = None
 
     def input_files(self) -> list[Path]:
         """Every file of the pass: recordings, calibrations, the track and its own layout."""

@@ -14,7 +14,7 @@ from flyover.geometry.frames import SiteFrame
 from flyover.acoustics.hemisphere import HemisphereSettings
 from flyover.acoustics.uncertainty import InputUncertainty
 from flyover.imaging.methods import DEFAULT_METHOD, methods
-from flyover.io.timestamps import parse_utc_ns
+from flyover.io.timestamps import parse_utc_ns, parse_utc_ns_array
 from flyover.io.yamlfile import read_yaml, validate_mapping
 from flyover.campaign import (AnalysisSettings, ArraySpec, Campaign, MethodTuning, PassSpec,
                               RecorderSpec, ReferenceFlight, RotorSpec, SignoffLimits, StoreSpec,
@@ -22,9 +22,49 @@ from flyover.campaign import (AnalysisSettings, ArraySpec, Campaign, MethodTunin
 from flyover.geometry.vehicle import Region, VehicleGrid
 from flyover.model.constants import MIN_OVERALL_BANDS
 from flyover.model.errors import FlyoverInputError, suggest
+from flyover.model.timebase import iso_utc
 
 # The campaign's folder in its store when the campaign file names none.
 DEFAULT_STORE_NAME = "campaign"
+
+
+def _span(p: dict, where: str) -> tuple[int, int] | None:
+    """A pass's ``span_utc`` as UTC ns (start before end), or None."""
+    if "span_utc" not in p:
+        return None
+    start, end = (int(v) for v in parse_utc_ns_array(p["span_utc"], where))
+    if end <= start:
+        raise FlyoverInputError("a span that ends before it starts", where,
+                                "[start, end] with the start first", f"{p['span_utc']}")
+    return start, end
+
+
+def _check_shared_recordings(passes: dict, source: str) -> None:
+    """Passes cut from one recording each need a span, and their spans must not overlap."""
+    owners: dict[Path, list] = {}
+    for spec in passes.values():
+        for f in dict.fromkeys(spec.recording_files):
+            owners.setdefault(f, []).append(spec)
+    for f, specs in owners.items():
+        for i, a in enumerate(specs):
+            for b in specs[i + 1:]:
+                if a.span_utc_ns is None or b.span_utc_ns is None:
+                    raise FlyoverInputError(
+                        f"passes {a.name} and {b.name} share a recording without spans",
+                        f"{source}, key passes.{(b if b.span_utc_ns is None else a).name}",
+                        "a span_utc for every pass cut from a longer recording",
+                        f"{f.name} in both", "give each its [start, end]")
+                if a.span_utc_ns[0] < b.span_utc_ns[1] and b.span_utc_ns[0] < a.span_utc_ns[1]:
+                    raise FlyoverInputError(
+                        f"passes {a.name} and {b.name} overlap in one recording",
+                        f"{source}, key passes.{b.name}.span_utc",
+                        f"spans of {f.name} apart",
+                        f"{a.name} {_span_text(a.span_utc_ns)}, "
+                        f"{b.name} {_span_text(b.span_utc_ns)}")
+
+
+def _span_text(span_ns) -> str:
+    return "[" + ", ".join(iso_utc(int(v)) for v in span_ns) + "]"
 
 
 def _resolve_path(base: Path, value: str) -> Path:
@@ -320,7 +360,9 @@ def campaign_from_mapping(data: dict, path: Path) -> Campaign:
             array=_array(p["array"], base, source, f"{where}.array") if "array" in p else None,
             atmosphere_profile=tuple(AtmosphereLayer(**k) for k in p.get(
                 "atmosphere_profile", data.get("atmosphere_profile", ()))),
+            span_utc_ns=_span(p, f"{source}, key {where}.span_utc"),
         )
+    _check_shared_recordings(passes, source)
     geoid = site_cfg.get("geoid_undulation_m")
     needs_geoid = array.height_datum == "msl" or any(
         ps.track_height_datum == "msl" for ps in passes.values())

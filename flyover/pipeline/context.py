@@ -168,8 +168,9 @@ class PassInputs:
 
     @property
     def recording_span_s(self) -> tuple[float, float]:
-        """First and last times (s after the epoch) at which every recorder records."""
-        return common_span_s(self.clock, self.recorders)
+        """First and last times (s after the epoch) at which every recorder records, within
+        the pass's own span of a longer recording."""
+        return common_span_s(self.clock, self.recorders, self.spec.span_utc_ns)
 
     def recorder_span_s(self, r: RecorderInputs) -> tuple[float, float]:
         return recorder_span_s(self.clock, r)
@@ -193,9 +194,12 @@ def recorder_span_s(clock: ArrayClock, r: RecorderInputs) -> tuple[float, float]
             float(clock.start_s[m] + (r.recording.n_frames - 1) / clock.rate_hz[m]))
 
 
-def common_span_s(clock: ArrayClock, recorders) -> tuple[float, float]:
-    """First and last times (s after the epoch) at which every recorder records."""
+def common_span_s(clock: ArrayClock, recorders, limit_utc_ns=None) -> tuple[float, float]:
+    """First and last times (s after the epoch) at which every recorder records, within
+    ``limit_utc_ns`` (start, end) when given."""
     spans = [recorder_span_s(clock, r) for r in recorders]
+    if limit_utc_ns is not None:
+        spans.append(tuple(float(t) for t in clock.seconds_since_epoch(limit_utc_ns)))
     return max(s[0] for s in spans), min(s[1] for s in spans)
 
 
@@ -302,7 +306,15 @@ def load_pass(campaign: Campaign, name: str, clock_offset_s: float | None = None
     for k, (mics, _, _) in enumerate(maps):
         mic_recorder[mics] = k
     clock = ArrayClock.of_recorders([r.clock for r in recorders], mic_recorder)
-    span = common_span_s(clock, recorders)
+    span = common_span_s(clock, recorders, spec.span_utc_ns)
+    if spec.span_utc_ns is not None and span[1] - span[0] <= 0:
+        whole = common_span_s(clock, recorders)
+        raise FlyoverInputError(
+            f"pass {name}'s span lies outside its recording",
+            f"{campaign.config_path}, key passes.{name}.span_utc",
+            "a span inside the recording, "
+            + "[" + ", ".join(iso_utc(int(t)) for t in clock.utc_ns(np.array(whole))) + "]",
+            "[" + ", ".join(iso_utc(int(t)) for t in spec.span_utc_ns) + "]")
     samples = _track_samples(campaign, spec, clock, span)
     track = _fit_track(spec, samples, clock, np.zeros(3))
     rotors = _rotor_speeds(campaign, spec, samples, clock)
