@@ -196,10 +196,9 @@ label_passes.data = {xs: names.map((q) => others[q].sort((a, b) => a[0] - b[0]).
                      pass: names};
 now_line.location = polar;
 spectrum_plot.title.text = region === null ? "click a region on the map for its spectrum"
-  : `${region}, ${p}, window ${win} (polar ${polar.toFixed(0)} deg): ` +
-    "level at the reference distance, 90 % interval";
+  : `${region}, window ${win} (${polar.toFixed(0)} deg): levels, 90 % intervals`;
 directivity_plot.title.text = region === null ? "click a region on the map for its directivity"
-  : `${region}, ${band} Hz: ${p} (dots, 90 % interval) and the other passes of ${label} (grey)`;
+  : `${region}, ${band} Hz: ${p} (dots) and the label's other passes (grey)`;
 const files = listening.data, sounds = [];
 for (let i = 0; i < files.pass.length; i++)
   if (files.pass[i] === p && (files.region[i] === "" || files.region[i] === region))
