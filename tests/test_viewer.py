@@ -30,7 +30,7 @@ def test_stored_map_is_db_under_the_peak_in_steps():
 def test_verdicts_follow_the_level_columns():
     from flyover.pipeline.viewer import verdicts
     levels = pd.DataFrame({"level_db": [60.0, 58.0, np.nan],
-                           "resolved": ["True", "False", "False"]})
+                           "resolved": [True, False, False]})
     assert list(verdicts(levels)) == ["resolved", "dominant, not resolved", "no level"]
 
 

@@ -1,4 +1,5 @@
-"""Shared by stages: every microphone de-Dopplerized to one body point over a span."""
+"""Shared by stages: every microphone de-Dopplerized to one body point over a span, and what
+one microphone received of a span."""
 
 from __future__ import annotations
 
@@ -40,3 +41,14 @@ def dedopplerize_span(campaign: Campaign, inputs: PassInputs, start_s: float, n_
     signals = inputs.read_pressure_pa(first, count)
     out = dedopplerized_signals(signals, first, geo, inputs.clock, span, settings)[0]
     return (out, geo) if with_geometry else out
+
+
+def received_stretch(inputs: PassInputs, mic: int, span_s) -> tuple[float, np.ndarray]:
+    """What a microphone received of an emission span: its reception start (s after the
+    epoch) and signal (Pa). The span's ends are carried to the microphone along the straight
+    path at the speed of sound (wind apart: a few milliseconds, nothing to a listener)."""
+    times = np.asarray(span_s, float)
+    distance = np.linalg.norm(inputs.track.position(times) - inputs.layout.enu_m[mic], axis=1)
+    received = times + distance / inputs.atmosphere.c_m_s
+    first, held = inputs.covered_frames(tuple(received))
+    return float(received[0]), inputs.read_microphone_pa(mic, int(first[mic]), held)

@@ -48,7 +48,7 @@ def measured_minus_true(campaign: Campaign, results, scenario_path) -> pd.DataFr
             "sources": [" ".join(inside.get(r, [])) for r in levels["region"]],
             "measured_1m_db": measured, "true_1m_db": true, "difference_db": measured - true,
             "ci90_low_db": low, "ci90_high_db": high, "within_interval": (low <= 0) & (high >= 0),
-            "resolved": levels["resolved"].astype(str).str.lower().eq("true").to_numpy()}))
+            "resolved": levels["resolved"].to_numpy(bool)}))
     table = pd.concat(frames, ignore_index=True) if frames else pd.DataFrame(
         columns=MEASURED_MINUS_TRUE.column_names)
     # A region without a simulated source has no truth to be measured against.

@@ -19,7 +19,7 @@ from flyover.io.results.listen import (CENTER_MICROPHONE, FOLDER, LISTEN, full_s
 from flyover.io.results.windows import read_analysed
 from flyover.model.constants import P0_PA
 from flyover.model.reads import guarded
-from flyover.pipeline._span import dedopplerize_span
+from flyover.pipeline._span import dedopplerize_span, received_stretch
 from flyover.pipeline.context import PassInputs, load_aligned_pass, utc_at
 
 # What this stage reads of the campaign (flyover.model.reads): its re-run fingerprint too.
@@ -64,17 +64,6 @@ def focused_waveform(campaign: Campaign, inputs: PassInputs, body_m, start_s: fl
 
     whole = overlap_add((one(k) for k in range(n_blocks)), hop, n_samples + hop)
     return whole[hop:]
-
-
-def received_stretch(inputs: PassInputs, mic: int, span_s) -> tuple[float, np.ndarray]:
-    """What a microphone received of an emission span: its reception start (s after the
-    epoch) and signal (Pa). The span's ends are carried to the microphone along the straight
-    path at the speed of sound (wind apart: a few milliseconds, nothing to a listener)."""
-    times = np.asarray(span_s, float)
-    distance = np.linalg.norm(inputs.track.position(times) - inputs.layout.enu_m[mic], axis=1)
-    received = times + distance / inputs.atmosphere.c_m_s
-    first, held = inputs.covered_frames(tuple(received))
-    return float(received[0]), inputs.read_microphone_pa(mic, int(first[mic]), held)
 
 
 def run(campaign: Campaign, pass_name: str, out_dir: Path) -> None:

@@ -13,7 +13,7 @@ from flyover.io.results.qc import SPECTROGRAM_FIGURE, TRACK_FIGURE
 from flyover.io.results.windows import read_analysed
 from flyover.campaign import PASS_INPUTS, Campaign
 from flyover.model.reads import guarded
-from flyover.pipeline._span import dedopplerize_span
+from flyover.pipeline._span import dedopplerize_span, received_stretch
 from flyover.pipeline._facts import pass_summary
 from flyover.pipeline.context import load_aligned_pass
 
@@ -45,13 +45,11 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> None:
         return
     used = inputs.weights > 0
     beam = np.average(a[used], axis=0, weights=inputs.weights[used])
-    # The same stretch as received: emission times plus about the closest travel time.
-    delay_s = summary["closest_distance_m"] / inputs.atmosphere.c_m_s
-    first, held = inputs.covered_frames((start + delay_s, start + delay_s + n / fs))
-    signals = inputs.read_pressure_pa(first, min(n, held))
+    # The same stretch as the centre microphone received it.
     mic = inputs.center_microphone
+    heard = received_stretch(inputs, mic, (start, start + n / fs))[1]
     nper = int(2 ** np.round(np.log2(0.08 * fs)))
-    raw = spectrogram(signals[mic].astype(float), fs, nperseg=nper, noverlap=nper * 3 // 4)
+    raw = spectrogram(heard, fs, nperseg=nper, noverlap=nper * 3 // 4)
     dd = spectrogram(beam.astype(float), fs, nperseg=nper, noverlap=nper * 3 // 4)
     fig = spectrogram_figure(raw, dd, pass_name,
                              f"channel {inputs.layout.channel[mic]} (as received)",

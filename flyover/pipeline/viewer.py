@@ -32,7 +32,7 @@ def verdicts(levels: pd.DataFrame) -> pd.Series:
     """Per level row: 'resolved' (given, resolved from every other region), 'dominant, not
     resolved' (given as the dominant one), or 'no level' (its note says why)."""
     given = np.isfinite(levels["level_db"].to_numpy(float))
-    resolved = levels["resolved"].astype(str).str.lower().eq("true").to_numpy()
+    resolved = levels["resolved"].to_numpy(bool)
     return pd.Series(np.where(~given, "no level", np.where(resolved, "resolved",
                                                            "dominant, not resolved")),
                      index=levels.index)

@@ -55,9 +55,9 @@ LEVELS = TableFile("levels.csv", (
                                       "says which the levels use"),
     ("plate_correction_db", "dB, the ground plate's measured response minus +6.02 dB in this "
                             "band (array.plate_correction_db), subtracted from the levels"),
-), float_format="%.3f")
+), float_format="%.3f", flags=("resolved", "band_valid"))
 
 # Every method the campaign runs (analysis.method and other_methods), for comparison: the same
 # columns after the method's name. levels.csv holds the headline method's alone.
 LEVELS_BY_METHOD = TableFile("levels_by_method.csv", (
-    ("method", "the imaging method"), *LEVELS.columns), float_format="%.3f")
+    ("method", "the imaging method"), *LEVELS.columns), float_format="%.3f", flags=LEVELS.flags)
