@@ -34,34 +34,69 @@ def test_verdicts_follow_the_level_columns():
     assert list(verdicts(levels)) == ["resolved", "dominant, not resolved", "no level"]
 
 
-def test_page_needs_nothing_from_the_network():
-    # One pass, one window, one band: the page inlines its plotting library and data, so no
-    # script, style or image element points to a server (the browser test checks the
-    # requests themselves).
-    from flyover.io.viewer_page import ViewerData, viewer_html
+def one_window(pass_name="a", region="r"):
+    """The data of a page with one pass, one window, one band and one region."""
+    from flyover.io.viewer_page import ViewerData
     image, peak = stored_map(np.ones((3, 2)))
-    data = ViewerData(
+    return ViewerData(
         title="check", bands_hz=[500.0], grid={"x_m": [0.0, 1.0, 2.0], "y_m": [0.0, 1.0]},
-        passes=pd.DataFrame({"pass": ["a"], "label": ["l"], "status": ["accepted"],
-                             "option": ["a (l, accepted)"]}),
-        windows=pd.DataFrame({"pass": ["a"], "window": [0], "polar_angle_deg": [90.0],
+        passes=pd.DataFrame({"pass": [pass_name], "label": ["l"], "status": ["accepted"],
+                             "option": [f"{pass_name} (l, accepted)"]}),
+        windows=pd.DataFrame({"pass": [pass_name], "window": [0], "polar_angle_deg": [90.0],
                               "time_utc": ["t"], "east_m": [0.0], "north_m": [0.0],
                               "analysed": [True]}),
-        maps=pd.DataFrame({"pass": ["a"], "window": [0], "band_hz": [500.0],
+        maps=pd.DataFrame({"pass": [pass_name], "window": [0], "band_hz": [500.0],
                            "image": [image], "peak_db": [peak]}),
-        levels=pd.DataFrame({"pass": ["a"], "window": [0], "polar_angle_deg": [90.0],
-                             "band_hz": [500.0], "region": ["r"], "level_db": [60.0],
+        levels=pd.DataFrame({"pass": [pass_name], "window": [0], "polar_angle_deg": [90.0],
+                             "band_hz": [500.0], "region": [region], "level_db": [60.0],
                              "ci90_low_db": [59.0], "ci90_high_db": [61.0],
                              "verdict": ["resolved"], "note": [""]}),
-        regions=pd.DataFrame({"region": ["r"], "x0": [0.0], "x1": [1.0], "y0": [0.0],
+        regions=pd.DataFrame({"region": [region], "x0": [0.0], "x1": [1.0], "y0": [0.0],
                               "y1": [1.0]}),
-        microphones=pd.DataFrame({"pass": ["a"], "east_m": [0.0], "north_m": [0.0]}),
-        listening=pd.DataFrame({"pass": ["a"], "region": ["r"], "file": ["a/listen/r.wav"]}),
-        narrowband=pd.DataFrame({"pass": ["a"], "window": [0], "region": ["r"],
+        microphones=pd.DataFrame({"pass": [pass_name], "east_m": [0.0], "north_m": [0.0]}),
+        listening=pd.DataFrame({"pass": [pass_name], "region": [region],
+                                "file": [f"{pass_name}/listen/r.wav"]}),
+        narrowband=pd.DataFrame({"pass": [pass_name], "window": [0], "region": [region],
                                  "frequency_hz": [np.arange(8.0, 100.0, 8.0, dtype=np.float32)],
                                  "psd_db": [np.full(12, 40.0, np.float32)]}),
-        harmonics=pd.DataFrame({"pass": ["a"], "window": [0], "rotor": ["nose"],
+        harmonics=pd.DataFrame({"pass": [pass_name], "window": [0], "rotor": ["nose"],
                                 "frequency_hz": [64.0]}))
-    html = viewer_html(data)
+
+
+def test_page_needs_nothing_from_the_network():
+    # The page inlines its plotting library and data, so no script, style or image element
+    # points to a server (the workflow's browser test checks the requests themselves).
+    from flyover.io.viewer_page import viewer_html
+    html = viewer_html(one_window())
     assert "<script" in html and "Bokeh" in html
     assert not re.search(r"""<(script|link|img)\b[^>]*(src|href)=["']?https?://""", html)
+
+
+def test_names_from_the_campaign_file_stay_text_in_the_browser(tmp_path):
+    # A region and a pass named with HTML and URL characters: the page shows the names as
+    # written, creates no element from them, and links the listening file by its real path.
+    import shutil
+    browser = shutil.which("chromium") or shutil.which("chromium-browser")
+    if browser is None:
+        pytest.skip("Chromium is not installed (Debian package 'chromium'; .ci/run installs it)")
+    from playwright.sync_api import sync_playwright
+
+    from flyover.io.viewer_page import viewer_html
+    region, pass_name = '<img src=x onerror="window.hit=1">', "pass #1"
+    page_file = tmp_path / "viewer.html"
+    page_file.write_text(viewer_html(one_window(pass_name, region)), encoding="utf-8")
+    with sync_playwright() as play:
+        chromium = play.chromium.launch(executable_path=browser, args=[
+            "--no-sandbox", "--disable-gpu", "--disable-background-networking"])
+        page = chromium.new_page()
+        page.goto(page_file.as_uri())
+        page.wait_for_function("() => window.Bokeh && Bokeh.documents.length > 0")
+        model = "name => Bokeh.documents[0].get_model_by_name(name)"
+        page.evaluate(f"() => {{ ({model})('regions').selected.indices = [0]; }}")
+        page.wait_for_function(f"() => ({model})('audio').text.includes('audio')")
+        status = page.locator("text=region <img").first.inner_text()
+        source = page.evaluate(f"() => ({model})('audio').text")
+        hit = page.evaluate("() => window.hit === 1")
+        chromium.close()
+    assert region in status and not hit
+    assert 'src="pass%20%231/listen/r.wav"' in source

@@ -92,12 +92,15 @@ _REFRESH = """
 // Python dicts arrive as Maps (or plain objects): read and write both alike.
 const get = (m, k) => (m instanceof Map ? m.get(k) : m[k]);
 const put = (m, k, v) => (m instanceof Map ? m.set(k, v) : (m[k] = v));
+// Names from the campaign file go into HTML as text, and into links one path part at a time.
+const esc = (t) => String(t).replace(/[&<>"']/g, (c) => `&#${c.charCodeAt(0)};`);
+const href = (f) => f.split("/").map(encodeURIComponent).join("/");
 const p = picker.value, band = Number(band_picker.value);
 const W = windows.data, M = maps.data, L = levels.data, R = regions.data;
 // The pass's windows in polar-angle order; a new pass starts at its window nearest 90 deg.
 const ws = [];
 for (let i = 0; i < W.pass.length; i++) if (W.pass[i] === p && W.analysed[i]) ws.push(i);
-if (ws.length === 0) { status.text = `<b>${p}</b>: no analysed window`; return; }
+if (ws.length === 0) { status.text = `<b>${esc(p)}</b>: no analysed window`; return; }
 if (get(state, "pass") !== p) {
   let best = 0;
   ws.forEach((i, k) => { if (Math.abs(W.polar_angle_deg[i] - 90) <
@@ -203,12 +206,13 @@ const files = listening.data, sounds = [];
 for (let i = 0; i < files.pass.length; i++)
   if (files.pass[i] === p && (files.region[i] === "" || files.region[i] === region))
     sounds.push(`<div>${files.region[i] === "" ? "centre microphone, as received"
-      : "region " + files.region[i] + ", source time, at 1 m"}<br>` +
-      `<audio controls preload="none" src="${encodeURI(files.file[i])}"></audio></div>`);
+      : "region " + esc(files.region[i]) + ", source time, at 1 m"}<br>` +
+      `<audio controls preload="none" src="${href(files.file[i])}"></audio></div>`);
 audio.text = sounds.length ? sounds.join("") : "no listening files for this pass";
-status.text = `<b>${p}</b> (${label}): ${get(picker_status, p)}` +
-  (region === null ? "" : `; region <b>${region}</b>: ${R.verdict[R.region.indexOf(region)]}` +
-   (R.note[R.region.indexOf(region)] ? ` (${R.note[R.region.indexOf(region)]})` : ""));
+const why = region === null ? "" : R.note[R.region.indexOf(region)];
+status.text = `<b>${esc(p)}</b> (${esc(label)}): ${get(picker_status, p)}` +
+  (region === null ? "" : `; region <b>${esc(region)}</b>: ` +
+   `${R.verdict[R.region.indexOf(region)]}${why ? " (" + esc(why) + ")" : ""}`);
 """
 
 
