@@ -196,6 +196,11 @@ def _compare(args) -> int:
         print(f"{r['region']} A-weighted at {r['polar_bin_deg']:g} deg: "
               f"{r['difference_db']:+.1f} dB, {verdict}")
     for _, r in COMPARED_METRICS.read(folder).iterrows():
+        # A metric neither label measured in any pass has no difference: say so, not 'nan'.
+        if not math.isfinite(r["difference_db"]):
+            print(f"{COMPARED_METRIC_NAMES[r['metric']]}: no value on one side "
+                  f"({int(r['n_a'])} passes of A, {int(r['n_b'])} of B with one)")
+            continue
         print(f"{COMPARED_METRIC_NAMES[r['metric']]}: {r['difference_db']:+.1f} dB, "
               + (f"90 % interval [{r['ci90_low_db']:+.1f}, {r['ci90_high_db']:+.1f}] dB"
                  if math.isfinite(r["ci90_low_db"]) else "no interval"))

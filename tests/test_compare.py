@@ -117,9 +117,36 @@ def test_the_command_says_when_it_cannot_tell(tiny_copy, capsys):
     edit_campaign(tiny_copy, lambda d: d["passes"]["p2"].update(label="b"))
     for name, offset in (("p1", 0.0), ("p2", -2.5)):
         LEVELS.write(tiny_copy / "results" / name, levels(offset))
-        EVENT_METRICS.write(tiny_copy / "results" / name, metrics(offset))
+        # B's pass measured no LAE (its 10 dB-down interval not reached): no difference.
+        EVENT_METRICS.write(tiny_copy / "results" / name, metrics(offset).assign(
+            lae_db=np.nan if name == "p2" else 80.0))
     assert main(["compare", str(tiny_copy / "campaign.yaml"), "--labels", "a", "b"]) == 0
     out = capsys.readouterr().out
     assert "total A-weighted at 90 deg: -2.5 dB, cannot tell" in out
-    assert "differs" not in out
+    assert "LASmax: -2.5 dB, no interval" in out
+    assert "LAE: no value on one side (1 passes of A, 0 of B with one)" in out
+    assert "differs" not in out and "nan" not in out
     assert (tiny_copy / "results" / "comparisons" / "a--b" / "overall.csv").exists()
+
+
+def test_the_reports_comparison_section_never_prints_nan(tiny_copy):
+    # The report's section shows the overall differences near overhead and the metrics; a
+    # difference one side cannot give (B's LAE was not measured) reads 'no value'.
+    import re
+
+    from conftest import edit_campaign
+
+    from flyover.io.config import load_campaign
+    from flyover.pipeline._compare import label_side
+    from flyover.pipeline.report import _comparison_section
+    campaign = load_campaign(edit_campaign(tiny_copy, lambda d: (
+        d["passes"]["p2"].update(label="b"), d["analysis"].update(comparisons=[["a", "b"]]))))
+    out = tiny_copy / "results"
+    for name, offset in (("p1", 0.0), ("p2", -2.5)):
+        LEVELS.write(out / name, levels(offset))
+        EVENT_METRICS.write(out / name, metrics(offset).assign(
+            lae_db=np.nan if name == "p2" else 80.0))
+    write_comparison(out, label_side(campaign, "a", out), label_side(campaign, "b", out))
+    text = _comparison_section(campaign, out)
+    assert "Single-event metrics" in text and "LASmax" in text and "no value" in text
+    assert not re.search(r"\bnan\b", text, re.IGNORECASE)

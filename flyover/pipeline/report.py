@@ -24,7 +24,8 @@ from flyover.io.results import report as report_file
 from flyover.io.digest import file_digest
 from flyover.io.results.report import CAUTION
 from flyover.io.results.campaign_tables import CAMPAIGN_FIGURE, CAMPAIGN_LEVELS, CAMPAIGN_OVERALL
-from flyover.io.results.comparison import COMPARED_OVERALL, COMPARISON_FIGURE, pair_folder
+from flyover.io.results.comparison import (COMPARED_METRIC_NAMES, COMPARED_METRICS,
+                                           COMPARED_OVERALL, COMPARISON_FIGURE, pair_folder)
 from flyover.io.results.comparison import FOLDER as COMPARISON_FOLDER
 from flyover.io.results.directivity import DIRECTIVITY_FIGURE
 from flyover.acoustics.orders import SEPARATION_CORRELATION
@@ -508,9 +509,20 @@ azimuth out of {len(grid.polar_deg) * len(grid.azimuth_deg)}.</p>
     return "".join(parts)
 
 
+def _difference_cell(r) -> str:
+    """B minus A with its 90 % interval and a mark where it excludes zero; a difference
+    neither side can give reads 'no value', never 'nan'."""
+    if not np.isfinite(r.difference_db):
+        return "no value"
+    interval = (f" [{r.ci90_low_db:+.1f}, {r.ci90_high_db:+.1f}]"
+                if np.isfinite(r.ci90_low_db) else "")
+    return f"{r.difference_db:+.1f}{interval}" + (" *" if r.differs else "")
+
+
 def _comparison_section(campaign: Campaign, out: Path) -> str:
     """Per comparison of ``analysis.comparisons``: B minus A near overhead, overall and
-    A-weighted, with the 90 % intervals, and the figure over all angles."""
+    A-weighted, and of the single-event metrics, with the 90 % intervals, and the figure over
+    all angles."""
     if not campaign.analysis.comparisons:
         return ""
     parts = ["""<h3 id="comparisons">Comparisons</h3>
@@ -523,15 +535,19 @@ Band by band in comparisons/A--B/levels.csv.</p>"""]
         folder = out / COMPARISON_FOLDER / pair_folder(label_a, label_b)
         table = COMPARED_OVERALL.read(folder)
         near = table[(table["polar_bin_deg"] - 90.0).abs() <= 30.0].copy()
-        near["cell"] = [
-            f"{r.difference_db:+.1f}" + ("" if not np.isfinite(r.ci90_low_db) else
-                                         f" [{r.ci90_low_db:+.1f}, {r.ci90_high_db:+.1f}]")
-            + (" *" if r.differs else "") for r in near.itertuples()]
+        near["cell"] = [_difference_cell(r) for r in near.itertuples()]
         grid = (near.pivot_table(index=["region", "quantity", "band_range_hz"],
                                  columns="polar_bin_deg", values="cell", aggfunc="first")
                 .rename(columns=lambda b: f"{b:g} deg").reset_index()) if len(near) else near
+        metrics = COMPARED_METRICS.read(folder)
+        metrics = pd.DataFrame({
+            "metric": [COMPARED_METRIC_NAMES[m] for m in metrics["metric"]],
+            "B minus A (dB)": [_difference_cell(r) for r in metrics.itertuples()],
+            "passes A / B": [f"{r.n_a} / {r.n_b}" for r in metrics.itertuples()]})
         parts.append(f"""<h4>{html.escape(label_b)} against {html.escape(label_a)}</h4>
 {_table(grid)}
+<p class="muted">Single-event metrics (comparisons/A--B/metrics.csv):</p>
+{_table(metrics)}
 {_figure(folder, COMPARISON_FIGURE)}""")
     return "".join(parts)
 
