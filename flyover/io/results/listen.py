@@ -35,8 +35,9 @@ LISTEN = TableFile("listen.csv", (
     ("duration_s", "s"),
     ("sample_rate_hz", "Hz"),
     ("full_scale_pa", "Pa of a sample of 1.0"),
-    ("level_db", "dB re 20 uPa, the file's equivalent level over its duration, as decoded "
-                 "(at 1 m for a region)"),
+    ("level_db", "dB re 20 uPa, the file's equivalent level over its duration and every "
+                 "frequency it holds (not only the analysed bands), as decoded; at 1 m for a "
+                 "region; empty for a silent file"),
 ), float_format="%.6g")
 
 
