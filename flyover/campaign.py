@@ -17,7 +17,7 @@ from flyover.acoustics.hemisphere import HemisphereSettings
 from flyover.acoustics.uncertainty import InputUncertainty
 from flyover.geometry.frames import SiteFrame
 from flyover.geometry.vehicle import Region, VehicleGrid
-from flyover.model.constants import CLEAN_LOOP_GAIN, CLEAN_MAX_SOURCES, FUNCTIONAL_EXPONENT
+from flyover.imaging.chain import MethodTuning
 from flyover.model.errors import require
 
 # G of the source model per mounting; raised microphones see the direct path as in free field
@@ -38,17 +38,6 @@ class ReferenceFlight:
     speed_m_s: float | None = None
     observer: str = "ground-plate"
     adjustment: str = "none"
-
-
-@dataclass(frozen=True)
-class MethodTuning:
-    """The imaging methods' tunables (``analysis.method_tuning``): functional beamforming's
-    exponent nu, CLEAN-SC's loop gain (the share of each found source removed per iteration)
-    and its iterations per frequency line at most."""
-
-    functional_exponent: float = FUNCTIONAL_EXPONENT
-    clean_loop_gain: float = CLEAN_LOOP_GAIN
-    clean_max_sources: int = CLEAN_MAX_SOURCES
 
 
 @dataclass(frozen=True)

@@ -212,8 +212,9 @@ def test_method_tunables_come_from_the_campaign(tiny_copy, capsys):
     campaign = load_campaign(path)
     settings = image_chain_settings(campaign, load_pass(campaign, "p1"),
                                     third_octave_bands(200, 800))
-    assert (settings.functional_exponent, settings.clean_loop_gain,
-            settings.clean_max_sources) == (16, 0.1, 50)
+    tuning = settings.tuning
+    assert (tuning.functional_exponent, tuning.clean_loop_gain,
+            tuning.clean_max_sources) == (16, 0.1, 50)
     edit_campaign(tiny_copy, lambda d: d["analysis"].update(method_tuning={
         "clean_loop_gain": 0.0}))
     assert main(["check", str(path)]) == 2

@@ -13,6 +13,27 @@ from flyover.model.constants import CLEAN_LOOP_GAIN, CLEAN_MAX_SOURCES, FUNCTION
 
 
 @dataclass(frozen=True)
+class MethodTuning:
+    """The imaging methods' tunables (``analysis.method_tuning``).
+
+    Attributes
+    ----------
+    functional_exponent : float
+        nu of functional beamforming.
+    clean_loop_gain : float
+        Share of each found source CLEAN-SC removes per iteration (small, so that sources a
+        main-lobe width apart are told apart: at 0.6 one of two took 1.4 dB of the other's
+        power, at 0.3 0.7 dB, at 0.1 0.4 dB for three times the iterations).
+    clean_max_sources : int
+        Iterations of CLEAN-SC per frequency line at most.
+    """
+
+    functional_exponent: float = FUNCTIONAL_EXPONENT
+    clean_loop_gain: float = CLEAN_LOOP_GAIN
+    clean_max_sources: int = CLEAN_MAX_SOURCES
+
+
+@dataclass(frozen=True)
 class ChainSettings:
     """How a window is processed (the same for the measurement and its unit point source).
 
@@ -37,14 +58,8 @@ class ChainSettings:
         The ground under raised microphones (None: hard).
     csm_block_samples : int or None
         Samples per Welch block of the frequency-domain methods (None: a quarter window).
-    functional_exponent : float
-        nu of functional beamforming.
-    clean_loop_gain : float
-        Share of each found source CLEAN-SC removes per iteration (small, so that sources a
-        main-lobe width apart are told apart: at 0.6 one of two took 1.4 dB of the other's
-        power, at 0.3 0.7 dB, at 0.1 0.4 dB for three times the iterations).
-    clean_max_sources : int
-        Iterations of CLEAN-SC per frequency line at most.
+    tuning : MethodTuning
+        The methods' tunables (the campaign's ``analysis.method_tuning``).
     """
 
     bands: ThirdOctaveBands
@@ -57,9 +72,7 @@ class ChainSettings:
     image_mic_enu_m: np.ndarray | None = None
     ground: GroundSurface | None = None
     csm_block_samples: int | None = None
-    functional_exponent: float = FUNCTIONAL_EXPONENT
-    clean_loop_gain: float = CLEAN_LOOP_GAIN
-    clean_max_sources: int = CLEAN_MAX_SOURCES
+    tuning: MethodTuning = MethodTuning()
 
 
 @dataclass(frozen=True)

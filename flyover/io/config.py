@@ -16,10 +16,11 @@ from flyover.acoustics.uncertainty import InputUncertainty
 from flyover.imaging.methods import DEFAULT_METHOD, methods
 from flyover.io.timestamps import parse_utc_ns, parse_utc_ns_array
 from flyover.io.yamlfile import read_yaml, validate_mapping
-from flyover.campaign import (AnalysisSettings, ArraySpec, Campaign, MethodTuning, PassSpec,
+from flyover.campaign import (AnalysisSettings, ArraySpec, Campaign, PassSpec,
                               RecorderSpec, ReferenceFlight, RotorSpec, SignoffLimits, StoreSpec,
                               WeatherLimits, WeatherSpec)
 from flyover.geometry.vehicle import Region, VehicleGrid
+from flyover.imaging.chain import MethodTuning
 from flyover.model.constants import MIN_OVERALL_BANDS
 from flyover.model.errors import FlyoverInputError, suggest
 from flyover.model.timebase import iso_utc

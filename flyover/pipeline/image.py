@@ -41,11 +41,8 @@ READS = PASS_INPUTS + ("grid", "regions", "outline_m", "analysis.window_s", "ana
 
 def image_chain_settings(campaign: Campaign, inputs, bands) -> ChainSettings:
     """The pass's chain with the campaign's interpolation and method tunables."""
-    an, tuning = campaign.analysis, campaign.analysis.method_tuning
-    return replace(chain_settings(inputs, bands, an.interpolation),
-                   functional_exponent=tuning.functional_exponent,
-                   clean_loop_gain=tuning.clean_loop_gain,
-                   clean_max_sources=tuning.clean_max_sources)
+    an = campaign.analysis
+    return replace(chain_settings(inputs, bands, an.interpolation), tuning=an.method_tuning)
 
 
 def run(campaign: Campaign, pass_name: str, out_dir: Path, *, threads: int = 1,

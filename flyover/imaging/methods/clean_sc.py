@@ -22,8 +22,8 @@ from flyover.imaging.window import ImagingMethod, PointSpread, WindowContext
 def band_maps(signals_pa, context: WindowContext) -> BandPowers:
     csm, steering, factor = csm_and_steering(signals_pa, context)
     s = context.settings
-    res = clean_sc(csm, steering, len(s.bands), loop_gain=s.clean_loop_gain,
-                   max_sources=s.clean_max_sources, factor=factor)
+    res = clean_sc(csm, steering, len(s.bands), loop_gain=s.tuning.clean_loop_gain,
+                   max_sources=s.tuning.clean_max_sources, factor=factor)
     as_removed = BandPowers(res.removed_clean + res.removed_residual, res.removed_clean,
                             res.removed_residual)
     return BandPowers(res.clean + res.residual, res.clean, res.residual, as_removed)

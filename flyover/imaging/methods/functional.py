@@ -16,14 +16,14 @@ from flyover.imaging.window import ImagingMethod, PointSpread, WindowContext
 def band_maps(signals_pa, context: WindowContext) -> BandPowers:
     csm, steering, _ = csm_and_steering(signals_pa, context)
     m = functional_maps(csm, steering, len(context.settings.bands),
-                        context.settings.functional_exponent)
+                        context.settings.tuning.functional_exponent)
     return BandPowers(m, m)
 
 
 def point_spread(body_m, points, context: WindowContext, seed: int) -> PointSpread:
     grid, source = unit_steering(body_m, points, context)
     n_bands = len(context.settings.bands)
-    m = functional_point_spread(grid, source, n_bands, context.settings.functional_exponent)
+    m = functional_point_spread(grid, source, n_bands, context.settings.tuning.functional_exponent)
     return PointSpread(BandPowers(m, m),
                        np.bincount(source.band_of_line, minlength=n_bands).astype(float))
 
