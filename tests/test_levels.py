@@ -10,6 +10,7 @@ from conftest import edit_campaign
 from flyover.acoustics.atmosphere import Atmosphere
 from flyover.acoustics.bands import third_octave_bands
 from flyover.acoustics.reference import overall_db, reference_level_db
+from flyover.geometry.windows import region_angles
 from flyover.imaging.integration import MAX_CONDITION, region_powers
 from flyover.imaging.resolution import main_lobe_width_m
 from flyover.io.config import load_campaign
@@ -124,11 +125,14 @@ def test_levels_of_dipole_like_regions_and_plate_correction(tiny_copy, mach, pol
                             "stability_db": 0.0, "region_valid": True, "region_note": "",
                             "band_valid": True, "band_note": ""}
                            for r in ("front", "rear") for b in (400.0, 500.0)])
-    alignment = {"array_center_enu_m": [0.0, 0.0, 0.0], "speed_of_sound_m_s": c,
-                 "atmosphere": {"temperature_c": 15.0, "relative_humidity_pct": 70.0,
-                                "pressure_kpa": 101.325, "wind_speed_m_s": 0.0,
-                                "wind_from_deg": 0.0, "speed_of_sound_m_s": c}}
-    table = levels.level_table(powers, windows, campaign, alignment, "p1").set_index(
+    w = windows.iloc[0]
+    angles = pd.DataFrame([{"window": 0, "region": name, **{k: v[0] for k, v in region_angles(
+        w[["east_m", "north_m", "up_m"]].to_numpy(float)[None],
+        w[["yaw_deg", "pitch_deg", "roll_deg"]].to_numpy(float)[None],
+        w[["velocity_east_m_s", "velocity_north_m_s", "velocity_up_m_s"]].to_numpy(float)[None],
+        campaign.regions[name].center_m, np.zeros(3), wind_enu_m_s=np.zeros(3),
+        c_m_s=c).items()}} for name in ("front", "rear")])
+    table = levels.level_table(powers, windows, angles, campaign, "p1").set_index(
         ["region", "band_hz"])
     plain = 10 * np.log10(4e-4 / 4e-10)
     front = table.loc[("front", 400.0)]

@@ -112,6 +112,33 @@ def test_a_pass_takes_the_mean_over_its_analysed_stretch(tiny_copy, capsys):
     assert "weather file:" in out and "track file track.csv: CSV, 10.0 Hz" in out
 
 
+def test_a_track_without_attitude_is_fitted_once_in_wind(tiny_copy, monkeypatch):
+    # A track of positions only: its yaw follows the velocity through the weather file's
+    # wind. Without a lever arm the positions do not depend on the yaw, so the track is fitted
+    # once and given the wind; naive reference: a fresh fit with that wind.
+    import flyover.pipeline.context as context
+    from flyover.geometry.track import fit_track
+    from flyover.io.config import load_campaign
+    track = pd.read_csv(tiny_copy / "p1" / "track.csv")
+    track.drop(columns=["yaw_deg", "pitch_deg", "roll_deg"]).to_csv(tiny_copy / "p1" / "track.csv",
+                                                                     index=False)
+    start = int(np.datetime64("2026-06-01T09:59:00", "ns").astype(np.int64))
+    write_station(tiny_copy, start, start + 600 * S)
+    campaign = load_campaign(use_weather(tiny_copy))
+    fits = []
+    monkeypatch.setattr(context, "fit_track", lambda *a, **k: fits.append(k) or fit_track(*a, **k))
+    inputs = context.load_pass(campaign, "p1")
+    wind = inputs.atmosphere.wind_enu_m_s
+    assert np.hypot(*wind[:2]) > 0.5 and len(fits) == 1
+    assert "air-relative" in inputs.track.heading_source
+    samples = inputs.track_samples
+    fresh = fit_track(inputs.clock.seconds_since_epoch(samples.utc_ns), samples.enu_m,
+                      campaign.passes["p1"].track_position_noise_m, wind_enu_m_s=wind)
+    t = np.linspace(inputs.track.start_s, inputs.track.end_s, 50)
+    np.testing.assert_array_equal(inputs.track.position(t), fresh.position(t))
+    np.testing.assert_array_equal(inputs.track.attitude_deg(t), fresh.attitude_deg(t))
+
+
 def test_weather_refusals(tiny_copy, capsys):
     from flyover.cli import main
     start = int(np.datetime64("2026-06-01T10:02:00", "ns").astype(np.int64))

@@ -13,6 +13,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from flyover.geometry.frames import attitude_rotation, enu_from_body_matrix
+from flyover.geometry.propagation import air_angles
 from flyover.geometry.track import TrackModel
 
 
@@ -102,6 +103,39 @@ def emission_angles_deg(position_enu_m, attitude_deg, source_body_m, target_enu_
     line = np.einsum("nji,nj->ni", enu_from_body, line_enu)    # transpose: ENU -> body
     polar = np.rad2deg(np.arccos(np.clip(line[:, 0] / np.linalg.norm(line, axis=1), -1, 1)))
     return polar, np.rad2deg(np.arctan2(line[:, 1], line[:, 2]))
+
+
+def region_angles(position_enu_m, attitude_deg, velocity_enu_m_s, source_body_m, target_enu_m,
+                  *, wind_enu_m_s, c_m_s: float) -> dict[str, np.ndarray]:
+    """The angles a body point's sound leaves at towards a target: in body axes
+    (:func:`emission_angles_deg`) and in the moving air, with its M_r
+    (:func:`flyover.geometry.propagation.air_angles`).
+
+    Parameters
+    ----------
+    position_enu_m, attitude_deg, velocity_enu_m_s : ndarray, shape (n, 3)
+        The body origin's position (m), yaw-pitch-roll (deg) and velocity over the ground
+        (m/s) per window, site frame.
+    source_body_m : ndarray, shape (3,)
+        The point (e.g. a region's centre), body axes.
+    target_enu_m : ndarray, shape (3,)
+    wind_enu_m_s : ndarray, shape (3,)
+    c_m_s : float
+
+    Returns
+    -------
+    dict of ndarray, shape (n,)
+        ``emission_polar_deg``, ``emission_azimuth_deg``, ``air_polar_deg``, ``mach_r``.
+    """
+    pos = np.atleast_2d(np.asarray(position_enu_m, float))
+    att = np.atleast_2d(np.asarray(attitude_deg, float))
+    polar, azimuth = emission_angles_deg(pos, att, source_body_m, target_enu_m)
+    # The point moves with the origin (a rigid body turning slowly).
+    source = pos + np.einsum("nij,j->ni", enu_from_body_matrix(attitude_rotation(
+        att[:, 0], att[:, 1], att[:, 2])), np.asarray(source_body_m, float))
+    air_polar, mach_r = air_angles(source, velocity_enu_m_s, target_enu_m, wind_enu_m_s, c_m_s)
+    return {"emission_polar_deg": polar, "emission_azimuth_deg": azimuth,
+            "air_polar_deg": air_polar, "mach_r": mach_r}
 
 
 def overhead_time_s(track: TrackModel, array_center_enu_m, span_s: tuple[float, float],

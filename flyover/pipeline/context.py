@@ -339,11 +339,14 @@ def load_pass(campaign: Campaign, name: str, clock_offset_s: float | None = None
         height = pass_geometry(track, layout.center_enu_m, inputs.recording_span_s).height_m
         inputs = dataclasses.replace(inputs, atmosphere=dataclasses.replace(
             inputs.atmosphere, profile=spec.atmosphere_profile).along(0.0, height))
-    if samples.attitude_deg is None and np.any(inputs.atmosphere.wind_enu_m_s[:2] != 0):
+    wind = inputs.atmosphere.wind_enu_m_s
+    if samples.attitude_deg is None and np.any(wind[:2] != 0):
         # Without attitude the yaw follows the air-relative velocity, which needs the wind
         # (from the weather file, itself averaged over a stretch found from the positions).
-        inputs = dataclasses.replace(inputs, track=_fit_track(
-            spec, samples, clock, inputs.atmosphere.wind_enu_m_s))
+        # Only a lever arm moves the fitted positions with the yaw; without one the fit stands.
+        inputs = dataclasses.replace(inputs, track=(
+            track.with_wind(wind) if spec.track_antenna_offset_m is None
+            else _fit_track(spec, samples, clock, wind)))
     return inputs
 
 

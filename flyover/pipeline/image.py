@@ -12,7 +12,7 @@ import numpy as np
 import pandas as pd
 
 from flyover.acoustics.bands import third_octave_bands
-from flyover.geometry.windows import plan_windows
+from flyover.geometry.windows import plan_windows, region_angles
 from flyover.imaging.chain import ChainSettings
 from flyover.imaging.reception import valid_bands
 from flyover.imaging.methods import method_named
@@ -20,6 +20,7 @@ from flyover.imaging.resolution import main_lobe_width_m
 from flyover.imaging.window import TOTAL, image_window, window_context
 from flyover.io.figures import map_figure, save_figure
 from flyover.io.results.maps import FIGURE_FOLDER, window_figure_name, write_maps
+from flyover.io.results.region_angles import REGION_ANGLES
 from flyover.io.results.region_power import REGION_POWER
 from flyover.io.results.windows import NO_WINDOW, WINDOWS
 from flyover.campaign import PASS_INPUTS, Campaign
@@ -126,6 +127,7 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path, *, threads: int = 1,
     (out_dir / FIGURE_FOLDER).mkdir(parents=True, exist_ok=True)
     WINDOWS.write(out_dir, pd.DataFrame(rows))
     REGION_POWER.write(out_dir, pd.DataFrame(region_rows, columns=REGION_POWER.column_names))
+    REGION_ANGLES.write(out_dir, _angle_rows(done, campaign, inputs))
     shape = (len(done), len(bands)) + campaign.grid.shape
     write_maps(out_dir, x_m=campaign.grid.x_axis_m, y_m=campaign.grid.y_axis_m,
                band_hz=bands.nominal_hz, band_center_hz=bands.center_hz,
@@ -165,6 +167,23 @@ def _region_rows(res, w, method: str, campaign, bands, width, valid, why) -> lis
                 "main_lobe_width_m": width[b],
                 "band_valid": bool(valid[b]), "band_note": why[b]})
     return rows
+
+
+def _angle_rows(windows, campaign, inputs) -> pd.DataFrame:
+    """region_angles.csv: each region's angles (the body origin's for the total) per window,
+    from the windows' exact positions and attitudes."""
+    position = np.array([w.position_enu_m for w in windows], float).reshape(-1, 3)
+    attitude = np.array([w.attitude_deg for w in windows], float).reshape(-1, 3)
+    velocity = np.array([w.velocity_enu_m_s for w in windows], float).reshape(-1, 3)
+    atm = inputs.atmosphere
+    parts = []
+    centres = {name: r.center_m for name, r in campaign.regions.items()} | {TOTAL: np.zeros(3)}
+    for name, centre in centres.items():
+        angles = region_angles(position, attitude, velocity, centre, inputs.layout.center_enu_m,
+                               wind_enu_m_s=atm.wind_enu_m_s, c_m_s=atm.c_m_s)
+        parts.append(pd.DataFrame({"window": [w.index for w in windows], "region": name,
+                                   **angles}))
+    return pd.concat(parts, ignore_index=True)[REGION_ANGLES.column_names]
 
 
 def _window_row(w, clock, array_center) -> dict:

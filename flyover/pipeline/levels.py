@@ -12,13 +12,11 @@ from flyover.acoustics.bands import third_octave_bands
 from flyover.acoustics.reference import level_1m_db, reference_level_db
 from flyover.acoustics.uncertainty import (Z90, InputUncertainty, band_level_uncertainty_db,
                                           ground_correction_spread_db, position_loss_db)
-from flyover.geometry.frames import attitude_rotation, enu_from_body_matrix
-from flyover.geometry.propagation import air_angles
-from flyover.geometry.windows import emission_angles_deg
 from flyover.io.figures import directivity_figure, save_figure, spectra_figure
 from flyover.io.results.directivity import DIRECTIVITY, DIRECTIVITY_FIGURE
-from flyover.io.results.alignment import clock_uncertainty_s, pass_atmosphere, read_alignment
+from flyover.io.results.alignment import clock_uncertainty_s, read_alignment
 from flyover.io.results.levels import LEVELS, LEVELS_BY_METHOD
+from flyover.io.results.region_angles import REGION_ANGLES
 from flyover.io.results.region_power import REGION_POWER
 from flyover.io.results.spectra import SPECTRA, SPECTRA_FIGURE
 from flyover.io.results.windows import read_analysed
@@ -44,11 +42,12 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> None:
     out_dir = Path(out_dir)
     windows = read_analysed(out_dir).set_index("window")
     powers = REGION_POWER.read(out_dir)
+    angles = REGION_ANGLES.read(out_dir)
     alignment = read_alignment(out_dir)
     per_method = {}
     for method in (campaign.analysis.method, *campaign.analysis.other_methods):
         mine = powers[powers["method"].astype(str) == method].drop(columns="method")
-        per_method[method] = with_uncertainty(level_table(mine, windows, campaign, alignment,
+        per_method[method] = with_uncertainty(level_table(mine, windows, angles, campaign,
                                                           pass_name),
                                               alignment, campaign.analysis.uncertainty,
                                               array=pass_array(campaign, pass_name))
@@ -64,10 +63,11 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> None:
     save_figure(directivity_figure(levels, pass_name), DIRECTIVITY_FIGURE.path(out_dir))
 
 
-def level_table(powers: pd.DataFrame, windows: pd.DataFrame, campaign: Campaign,
-                alignment: dict, pass_name: str) -> pd.DataFrame:
+def level_table(powers: pd.DataFrame, windows: pd.DataFrame, angles: pd.DataFrame,
+                campaign: Campaign, pass_name: str) -> pd.DataFrame:
     """One row per window, band and region (plus the 'total' of all regions), with each
-    region's emission angles towards the array centre, in body axes and in the moving air.
+    region's emission angles towards the array centre, in body axes and in the moving air
+    (``angles``: region_angles.csv's rows, as the image step computed them).
 
     The level of a region whose sources are not monopoles (``convective_exponent`` n) is
     corrected by ``20 (n - 2) lg(1 - M_r)`` (the chain assumes n = 2); ``plate_correction_db``
@@ -92,7 +92,7 @@ def level_table(powers: pd.DataFrame, windows: pd.DataFrame, campaign: Campaign,
     w = windows.loc[p["window"]]
     for c in ("time_utc", "polar_angle_deg", "height_m", "speed_m_s", "distance_m"):
         p[c] = w[c].to_numpy()
-    _add_angles(p, windows, campaign, alignment)
+    p = _add_angles(p, angles, campaign)
     bands = third_octave_bands(p["band_hz"].min(), p["band_hz"].max())
     band_index = {b: k for k, b in enumerate(bands.nominal_hz)}
     k = p["band_hz"].map(band_index).to_numpy()
@@ -133,35 +133,16 @@ def level_table(powers: pd.DataFrame, windows: pd.DataFrame, campaign: Campaign,
     return p[cols].reset_index(drop=True)
 
 
-def _add_angles(p: pd.DataFrame, windows: pd.DataFrame, campaign: Campaign,
-                alignment: dict) -> None:
-    """Per row: the emission angles from its region's centre (the body origin for 'total') to
-    the array centre in body axes and in the moving air, M_r, and the region's exponent."""
-    target = np.asarray(alignment["array_center_enu_m"], float)
-    atm = pass_atmosphere(alignment)
-    c = float(alignment["speed_of_sound_m_s"])
-    for name in ("emission_polar_deg", "emission_azimuth_deg", "air_polar_deg", "mach_r"):
-        p[name] = np.nan
-    p["convective_exponent"] = 2.0
-    for region, rows in p.groupby("region").groups.items():
-        r = campaign.regions.get(region)
-        centre = r.center_m if r is not None else np.zeros(3)
-        at = windows.loc[p.loc[rows, "window"]]
-        position = at[["east_m", "north_m", "up_m"]].to_numpy(float)
-        attitude = at[["yaw_deg", "pitch_deg", "roll_deg"]].to_numpy(float)
-        velocity = at[["velocity_east_m_s", "velocity_north_m_s", "velocity_up_m_s"]].to_numpy(
-            float)
-        polar, azimuth = emission_angles_deg(position, attitude, centre, target)
-        # The region's centre moves with the origin (a rigid body turning slowly).
-        source = position + np.einsum("nij,j->ni", enu_from_body_matrix(attitude_rotation(
-            attitude[:, 0], attitude[:, 1], attitude[:, 2])), centre)
-        air_polar, mach_r = air_angles(source, velocity, target, atm.wind_enu_m_s, c)
-        p.loc[rows, "emission_polar_deg"] = polar
-        p.loc[rows, "emission_azimuth_deg"] = azimuth
-        p.loc[rows, "air_polar_deg"] = air_polar
-        p.loc[rows, "mach_r"] = mach_r
-        if r is not None:
-            p.loc[rows, "convective_exponent"] = r.convective_exponent
+def _add_angles(p: pd.DataFrame, angles: pd.DataFrame, campaign: Campaign) -> pd.DataFrame:
+    """Per row: its region's angles in the window (region_angles.csv) and the region's
+    convective exponent."""
+    keyed = angles.assign(window=angles["window"].astype(int)).set_index(["window", "region"])
+    at = keyed.reindex(pd.MultiIndex.from_arrays([p["window"], p["region"]]))
+    for name in keyed.columns:
+        p[name] = at[name].to_numpy(float)
+    p["convective_exponent"] = [float(campaign.regions[r].convective_exponent)
+                                if r in campaign.regions else 2.0 for r in p["region"]]
+    return p
 
 
 # The window scatter of an isolated level in a pass where no level has a neighbour: a stated

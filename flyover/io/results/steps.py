@@ -24,6 +24,7 @@ from flyover.io.results.levels import LEVELS, LEVELS_BY_METHOD
 from flyover.io.results.levels_overall import LEVELS_OVERALL
 from flyover.io.results.listen import LISTEN
 from flyover.io.results.narrowband import NARROWBAND, NARROWBAND_FIGURE
+from flyover.io.results.region_angles import REGION_ANGLES
 from flyover.io.results.region_power import REGION_POWER
 from flyover.io.results.rotor_tones import BAND_PARTS, ROTOR_TONES, ROTOR_TONES_FIGURE
 from flyover.io.results.signoff import SIGNOFF, SIGNOFF_JSON
@@ -32,7 +33,7 @@ from flyover.io.results.windows import WINDOWS
 
 PASS_STEPS = {
     "align": (alignment.NAME, alignment.TRACK_FIGURE),
-    "image": (maps.NAME, WINDOWS, REGION_POWER),
+    "image": (maps.NAME, WINDOWS, REGION_POWER, REGION_ANGLES),
     "levels": (LEVELS, LEVELS_BY_METHOD, SPECTRA, DIRECTIVITY, SPECTRA_FIGURE,
                DIRECTIVITY_FIGURE),
     "trackcheck": (track_check.NAME,),
