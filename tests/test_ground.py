@@ -273,6 +273,7 @@ def test_stages_run_a_pass_flown_over_raised_microphones(tiny_copy):
     assert (given["position_bias_db"] > 0.0).all()
 
 
+@pytest.mark.slow
 def test_raised_microphones_give_the_components_ground_plates_give():
     # The same two components (0.1 m off their region centres) flown over the array on ground
     # plates and on 1.2 m stands over hard ground. Every region band that the plates give in

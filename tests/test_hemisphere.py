@@ -243,6 +243,7 @@ def test_the_netcdf_cube_opens_with_xarray_and_carries_units(hemisphere_run):
         assert (folder / name).stat().st_size > 10_000
 
 
+@pytest.mark.slow
 def test_a_rejected_pass_is_left_out_of_its_labels_hemisphere(hemisphere_run, tmp_path):
     import shutil
     from flyover.pipeline import hemispheres
