@@ -6,7 +6,6 @@ Exit codes: 0 all well, 1 failed, 2 bad input (the message says what and where).
 from __future__ import annotations
 
 import argparse
-import importlib
 import math
 import os
 import subprocess
@@ -327,13 +326,13 @@ def _dispatch(args) -> int:
     if args.campaign is None:
         raise FlyoverInputError("no campaign file", f"flyover {args.command}",
                                 "--campaign FILE (or $FLYOVER_CAMPAIGN)")
-    from flyover.pipeline import stages
-    known = stages("campaign" if args.command == "stage-campaign" else "pass")
-    if args.name not in known:
+    from flyover.pipeline import stage_module, stages
+    scope = "campaign" if args.command == "stage-campaign" else "pass"
+    stage = stage_module(args.name, scope)
+    if stage is None:
         raise FlyoverInputError("no such workflow step", f"flyover {args.command}",
-                                ", ".join(known), args.name)
+                                ", ".join(stages(scope)), args.name)
     campaign = load_campaign(args.campaign)
-    stage = importlib.import_module(f"flyover.pipeline.{args.name}")
     from flyover.workflow.settings_record import write_settings_record
     if args.command == "stage-campaign":
         stage.run(campaign, campaign.output)

@@ -34,7 +34,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.special import wofz
 
 from flyover.model.errors import require
 
@@ -102,6 +101,7 @@ def plane_wave_coefficient(impedance, cos_incidence) -> np.ndarray:
 
 def boundary_loss_factor(w) -> np.ndarray:
     """F(w) = 1 + i sqrt(pi) w e^(-w^2) erfc(-i w), through the Faddeeva function."""
+    from scipy.special import wofz  # scipy.special's import is slow; only raised arrays need it
     w = np.asarray(w, complex)
     return 1.0 + 1j * np.sqrt(np.pi) * w * wofz(w)
 

@@ -19,7 +19,6 @@ from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
-from scipy.special import sph_harm_y
 
 from flyover.acoustics.statistics import energetic_mean_db
 from flyover.model.errors import require
@@ -114,6 +113,7 @@ def hemisphere_cells(levels: pd.DataFrame, grid: HemisphereSettings, *,
 def harmonic_basis(polar_deg, azimuth_deg, degree: int) -> np.ndarray:
     """Real spherical harmonics up to ``degree`` (pole along body x), shape (n, (degree+1)^2):
     for each degree l the order-0 function, then the real and imaginary parts of orders 1..l."""
+    from scipy.special import sph_harm_y  # scipy.special's import is slow; few steps fit
     theta = np.deg2rad(np.asarray(polar_deg, float))
     phi = np.deg2rad(np.asarray(azimuth_deg, float))
     columns = []

@@ -31,8 +31,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.linalg import solve_triangular
-from scipy.optimize import nnls
 
 from flyover.acoustics.atmosphere import Atmosphere
 from flyover.imaging import _kernels
@@ -445,6 +443,8 @@ def _refit(found, start_map, ratio, advance_s, frequency_hz: float,
         lower = np.linalg.cholesky(gram)
     except np.linalg.LinAlgError:
         return None
+    from scipy.linalg import solve_triangular  # scipy.optimize: slow to import, rarely needed
+    from scipy.optimize import nnls
     powers, _ = nnls(lower.T, solve_triangular(lower, rhs, lower=True), maxiter=50 * len(j))
     out = np.zeros_like(found)
     out[j] = powers

@@ -33,11 +33,11 @@ samples) are linear: with a reception-time curvature V^2 / (c r) of 0.1 1/s the 
 
 from __future__ import annotations
 
+import functools
 from dataclasses import dataclass
 
 import numpy as np
 import scipy.fft
-from scipy.signal import firwin, resample_poly
 
 from flyover.acoustics.atmosphere import Atmosphere
 from flyover.geometry.windows import Window
@@ -51,9 +51,14 @@ from flyover.imaging.reception import ReceptionGeometry, absorption_gains, subse
 OVERSAMPLING = 4
 
 
-# Anti-imaging filter of the 4x oversampling: cut-off at the original Nyquist frequency (0.25 of
-# the new one); 257 taps with Kaiser beta 9 put the transition between 0.45 and 0.55 fs.
-_OVERSAMPLING_TAPS = firwin(257, 1.0 / OVERSAMPLING, window=("kaiser", 9.0))
+@functools.cache
+def _oversampling_taps() -> np.ndarray:
+    """Anti-imaging filter of the 4x oversampling: cut-off at the original Nyquist frequency
+    (0.25 of the new one); 257 taps with Kaiser beta 9 put the transition between 0.45 and 0.55
+    fs. Made on first use: scipy.signal's import costs every job that only reads the methods'
+    names 0.4 s."""
+    from scipy.signal import firwin
+    return firwin(257, 1.0 / OVERSAMPLING, window=("kaiser", 9.0))
 
 
 # Fractional read positions and weights of the mean over them: Gauss-Legendre on [0, 1].
@@ -97,8 +102,9 @@ def oversampled(signals) -> np.ndarray:
     """Signals (..., n) at ``OVERSAMPLING`` times their rate (float32, (..., n * OVERSAMPLING)):
     sample k of the input lands on sample ``OVERSAMPLING * k``; content to 0.45 of the input rate
     keeps its amplitude within 0.001 dB."""
+    from scipy.signal import resample_poly
     return resample_poly(np.asarray(signals, np.float32), OVERSAMPLING, 1, axis=-1,
-                         window=_OVERSAMPLING_TAPS).astype(np.float32)
+                         window=_oversampling_taps()).astype(np.float32)
 
 
 def dedopplerized_signals(signals_pa, first_frame, geometry: ReceptionGeometry,

@@ -11,13 +11,17 @@ def stages(scope: str) -> list[str]:
     """The workflow steps that run per pass (``scope='pass'``) or once per campaign
     (``'campaign'``): the modules of this package that declare what they read (``READS``), told
     apart by whether their ``run`` takes a pass name."""
-    names = []
-    for info in pkgutil.iter_modules(__path__):
-        if info.name.startswith("_"):
-            continue
-        module = importlib.import_module(f"{__name__}.{info.name}")
-        if hasattr(module, "READS") and callable(getattr(module, "run", None)):
-            per_pass = "pass_name" in inspect.signature(module.run).parameters
-            if per_pass == (scope == "pass"):
-                names.append(info.name)
-    return sorted(names)
+    return sorted(info.name for info in pkgutil.iter_modules(__path__)
+                  if not info.name.startswith("_") and stage_module(info.name, scope))
+
+
+def stage_module(name: str, scope: str):
+    """The module of one workflow step of that scope, or None: a job imports its own step
+    alone (importing every step cost each job a second)."""
+    if name.startswith("_") or not any(i.name == name for i in pkgutil.iter_modules(__path__)):
+        return None
+    module = importlib.import_module(f"{__name__}.{name}")
+    if not (hasattr(module, "READS") and callable(getattr(module, "run", None))):
+        return None
+    per_pass = "pass_name" in inspect.signature(module.run).parameters
+    return module if per_pass == (scope == "pass") else None
