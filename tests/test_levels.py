@@ -15,7 +15,7 @@ from flyover.imaging.integration import MAX_CONDITION, region_powers
 from flyover.imaging.resolution import main_lobe_width_m
 from flyover.io.config import load_campaign
 from flyover.io.results.maps import read_maps
-from flyover.pipeline import align, image, levels, metrics, narrowband, qc, tones
+from flyover.pipeline import align, image, levels, metrics, narrowband, page, qc, tones
 
 
 def test_reference_level_spreading_and_absorption():
@@ -158,6 +158,7 @@ def test_stages_on_the_tiny_campaign(tiny_copy):
     metrics.run(campaign, "p1", out)
     tones.run(campaign, "p1", out)
     narrowband.run(campaign, "p1", out)
+    page.run(campaign, "p1", out)
     table = pd.read_csv(out / "levels.csv")
     assert list(table.columns[:6]) == ["window", "time_utc", "polar_angle_deg", "band_hz",
                                        "region", "level_db"]
@@ -212,6 +213,11 @@ def test_stages_on_the_tiny_campaign(tiny_copy):
     assert dense["frequency_hz"].max() <= campaign.analysis.band_max_hz * 2 ** (1 / 6)
     assert np.isfinite(dense["psd_full_db"]).all()
     assert NARROWBAND_FIGURE.path(out).stat().st_size > 10_000
+    # The pass's page: every declared figure found, no number reading 'nan', nothing fetched.
+    text = (out / "pass.html").read_text()
+    assert "not available)" not in text and "nan" not in text.lower().split()
+    assert "Recorders and clocks" in text and text.count("<img") >= 8
+    assert "http" not in text.split("Content-Security-Policy")[1].split(">")[1]
     # No certification-style adjustment by default: no adjusted rows.
     rec = pd.read_csv(out / "reconstructed_metrics.csv")
     assert not rec["route"].str.startswith("adjusted").any()

@@ -144,7 +144,7 @@ def test_revised_track_reruns_that_pass_only(run_copy):
     assert planned(run_copy) == {("align", "p1"), ("image", "p1"), ("levels", "p1"),
                                  ("qc", "p1"), ("metrics", "p1"), ("tones", "p1"),
                                  ("trackcheck", "p1"), ("narrowband", "p1"),
-                                 ("listen", "p1"),
+                                 ("listen", "p1"), ("page", "p1"),
                                  ("campaign_summary", ""),
                                  ("hemispheres", ""), ("signoff", ""), ("viewer", ""),
                                  ("store", ""), ("report", "")}
@@ -160,6 +160,7 @@ def test_reference_distance_reruns_levels_not_imaging(finished_run):
                                          ("trackcheck", "p1"), ("trackcheck", "p2"),
                                          # its figure marks the tones' frequencies
                                          ("narrowband", "p1"), ("narrowband", "p2"),
+                                         ("page", "p1"), ("page", "p2"),
                                          ("campaign_summary", ""),
                                          ("hemispheres", ""), ("signoff", ""), ("viewer", ""),
                                          ("store", ""), ("report", "")}
@@ -172,7 +173,7 @@ def test_one_pass_atmosphere_reruns_that_pass(finished_run):
         assert planned(finished_run) == {("align", "p2"), ("image", "p2"), ("levels", "p2"),
                                          ("qc", "p2"), ("metrics", "p2"), ("tones", "p2"),
                                          ("trackcheck", "p2"), ("narrowband", "p2"),
-                                         ("listen", "p2"),
+                                         ("listen", "p2"), ("page", "p2"),
                                          ("campaign_summary", ""),
                                          ("hemispheres", ""), ("signoff", ""), ("viewer", ""),
                                          ("store", ""), ("report", "")}
@@ -185,7 +186,7 @@ def test_added_pass_runs_alone_then_summary(finished_run):
         assert planned(finished_run) == {("align", "p3"), ("image", "p3"), ("levels", "p3"),
                                          ("qc", "p3"), ("metrics", "p3"), ("tones", "p3"),
                                          ("trackcheck", "p3"), ("narrowband", "p3"),
-                                         ("listen", "p3"),
+                                         ("listen", "p3"), ("page", "p3"),
                                          ("campaign_summary", ""),
                                          ("hemispheres", ""), ("signoff", ""), ("viewer", ""),
                                          ("store", ""), ("report", "")}
@@ -253,23 +254,30 @@ def test_slurm_profile_dry_run(finished_run):
 
 @pytest.mark.slow
 def test_report_is_self_contained(finished_run):
-    text = (finished_run / "results" / "report.html").read_text()
-    assert not re.search(r"""(src|href)\s*=\s*["'](https?:|//)""", text)
-    assert "<script" not in text and "<link" not in text
-    assert text.count('class="pass"') == 2
-    assert 'data-pass="p1"' in text and 'data-pass="p2"' in text
+    results = finished_run / "results"
+    text = (results / "report.html").read_text()
+    # The report links to each pass's page; the pages hold the pass's details.
+    pages = {p: (results / p / "pass.html").read_text() for p in ("p1", "p2")}
+    for page in (text, *pages.values()):
+        assert not re.search(r"""(src|href)\s*=\s*["'](https?:|//)""", page)
+        assert "<script" not in page and "<link" not in page
+        assert "certification standards" in page and page.count("aviation rules") == 1
+        assert str(finished_run) not in page
+        # No number reads 'nan'; every declared figure was found under its declared name.
+        assert not re.search(r"\bnan\b", page, re.IGNORECASE)
+        assert "not available)" not in page
+    assert 'href="p1/pass.html"' in text and 'href="p2/pass.html"' in text
     assert 'id="campaign-summary"' in text and "<table>" in text
-    assert "certification standards" in text and text.count("aviation rules") == 1
     # The summary's numbers per pass and label, and file paths relative to the campaign file.
-    for fragment in ("LASmax measured", "reference LASmax / LAE", "overall A at 90 deg",
-                     "Recorders and clocks", "Reconstructed per component"):
+    for fragment in ("LASmax measured", "reference LASmax / LAE", "overall A at 90 deg"):
         assert fragment in text, fragment
-    assert str(finished_run) not in text
-    # Every pass has a status at the top, and no number reads 'nan'.
+    for name, page in pages.items():
+        assert page.count('class="pass"') == 1 and f'data-pass="{name}"' in page
+        for fragment in ("Recorders and clocks", "Reconstructed per component",
+                         "Source maps", "Rotor tones", "../report.html#signoff"):
+            assert fragment in page, fragment
+    # Every pass has a status in the sign-off table and beside its link.
     assert 'id="signoff"' in text and text.count('data-status="') == 2
-    assert not re.search(r"\bnan\b", text, re.IGNORECASE)
-    # Every figure the steps declare was found under the name the report looks for.
-    assert "not available)" not in text
     from flyover.io.results.signoff import read_signoff_json
     assert set(read_signoff_json(finished_run / "results")) == {"p1", "p2"}
     signed = pd.read_csv(finished_run / "results" / "signoff.csv")

@@ -14,8 +14,8 @@ from __future__ import annotations
 import re
 from pathlib import Path
 
-from flyover.io.results import (alignment, comparison, file_name, maps, qc, report, store,
-                                track_check, viewer)
+from flyover.io.results import (alignment, comparison, file_name, maps, pass_page, qc, report,
+                                store, track_check, viewer)
 from flyover.io.results.campaign_tables import CAMPAIGN_FIGURE, CAMPAIGN_LEVELS, CAMPAIGN_OVERALL
 from flyover.io.results.directivity import DIRECTIVITY, DIRECTIVITY_FIGURE
 from flyover.io.results.event_metrics import (BAND_HISTORY, EVENT_METRICS, LEVEL_HISTORY,
@@ -42,6 +42,7 @@ PASS_STEPS = {
     "narrowband": (NARROWBAND, NARROWBAND_FIGURE),
     "listen": (LISTEN,),
     "qc": (qc.TRACK_FIGURE, qc.SPECTROGRAM_FIGURE),
+    "page": (pass_page.NAME,),
 }
 CAMPAIGN_STEPS = {
     "signoff": (SIGNOFF, SIGNOFF_JSON),
@@ -79,7 +80,7 @@ def describe_all() -> str:
 
     # Files that are not tables: their module's first paragraph says what they hold.
     about = {m.NAME: " ".join(m.__doc__.split("\n\n")[0].split(": ", 1)[1].split())
-             for m in (alignment, maps, track_check, report, viewer)}
+             for m in (alignment, maps, track_check, pass_page, report, viewer)}
     about[SIGNOFF_JSON] = "each pass's status with every rule's measured value and limit"
 
     def describe(result, where):

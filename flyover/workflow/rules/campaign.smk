@@ -143,7 +143,7 @@ rule report:
         rules.signoff.output,
         rules.viewer.output,
         PLAN.pass_step_results("align", "image", "qc", "levels", "metrics", "tones",
-                               "narrowband", "listen"),
+                               "narrowband", "listen", "page"),
         PLAN.comparison_files(),
         PLAN.input_files(),
     output:

@@ -207,3 +207,25 @@ rule qc:
         CONDA_ENV,
     shell:
         f"{STAGE} qc --pass {{wildcards.pass_name:q}} > {{log:q}} 2>&1"
+
+
+rule page:
+    input:
+        **results_of("align", "image", "levels", "metrics", "tones", "narrowband", "qc"),
+    output:
+        **outputs("page"),
+    params:
+        fingerprint=lambda w: PLAN.fingerprint(w.pass_name, "page"),
+    log:
+        f"{OUTP}/logs/{{pass_name}}/page.log",
+    benchmark:
+        f"{OUTP}/benchmarks/{{pass_name}}/page.tsv"
+    group:
+        "pass_light"
+    resources:
+        mem_mb=lambda w: PLAN.memory_mb(w.pass_name, "page"),
+        runtime=lambda w: PLAN.runtime_min(w.pass_name, "page"),
+    conda:
+        CONDA_ENV,
+    shell:
+        f"{STAGE} page --pass {{wildcards.pass_name:q}} > {{log:q}} 2>&1"
