@@ -582,7 +582,8 @@ def test_compare_command_on_a_finished_run(finished_run, tmp_path):
 @pytest.mark.slow
 def test_a_requested_comparison_runs_as_its_own_step(finished_run):
     # p2 relabelled 'b' and 'b' against 'a' asked for: the comparison step runs, then what
-    # groups passes by label and the report; no pass is re-imaged. The step's files land
+    # groups passes by label, p2's page (it names its label) and the report; no pass is
+    # re-imaged. The step's files land
     # under comparisons/a--b with one pass a side, so differences without intervals.
     from flyover.io.results.comparison import COMPARED_OVERALL
 
@@ -592,7 +593,7 @@ def test_a_requested_comparison_runs_as_its_own_step(finished_run):
     with edited_config(finished_run, ask):
         assert planned(finished_run) == {("compare", ""), ("campaign_summary", ""),
                                          ("hemispheres", ""), ("signoff", ""), ("viewer", ""),
-                                         ("store", ""), ("report", "")}
+                                         ("store", ""), ("report", ""), ("page", "p2")}
         res = subprocess.run([sys.executable, "-m", "flyover", "stage-campaign", "compare",
                               "--campaign", "campaign.yaml"], cwd=finished_run,
                              capture_output=True, text=True)
