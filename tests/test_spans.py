@@ -77,3 +77,38 @@ def test_a_span_outside_the_recording_is_refused(tiny_copy):
     with pytest.raises(FlyoverInputError, match="p1's span lies outside its recording") as err:
         load_pass(campaign, "p1")
     assert "2026-06-01T10:00:00" in err.value.message
+
+
+def test_passes_take_their_flights_recording_and_track(tiny_copy):
+    # A flight is a recording and log that several passes share: each pass takes its keys
+    # where it gives none of its own, so the passes read exactly as if written out in full.
+    def change(d):
+        flight = {k: v for k, v in d["passes"]["p1"].items() if k != "label"}
+        d["flights"] = {"morning": flight}
+        d["passes"] = {"a": {"flight": "morning", "span_utc": [START, "2026-06-01T10:00:01.500Z"],
+                             "label": "x"},
+                       "b": {"flight": "morning", "span_utc": ["2026-06-01T10:00:01.500Z", END],
+                             "label": "y", "track_position_noise_m": 0.5}}
+    written = load_campaign(tiny_copy / "campaign.yaml").passes["p1"]
+    campaign = load_campaign(edit_campaign(tiny_copy, change))
+    a, b = campaign.passes["a"], campaign.passes["b"]
+    assert (a.recording_files, a.track, a.calibration) == (
+        written.recording_files, written.track, written.calibration)
+    assert a.track_position_noise_m == written.track_position_noise_m
+    assert b.track_position_noise_m == 0.5 and (a.label, b.label) == ("x", "y")
+    # The flights campaign holds the flights as passes over their whole recording and log.
+    from flyover.io.config import flights_campaign
+    whole = flights_campaign(tiny_copy / "campaign.yaml").passes["morning"]
+    assert whole.span_utc_ns is None and whole.recording_files == written.recording_files
+
+
+@pytest.mark.parametrize("change, words", [
+    (lambda d: d["passes"]["p1"].update(flight="evening"), "names no known flight"),
+    (lambda d: d.update(flights={"morning": {**d["passes"]["p1"]}}) or d["passes"]["p2"].update(
+        flight="morning"), "flight morning gives 'label'"),
+    (lambda d: d.update(passes={}), "no pass"),
+])
+def test_flight_refusals(tiny_copy, change, words):
+    with pytest.raises(FlyoverInputError, match=words) as err:
+        load_campaign(edit_campaign(tiny_copy, change))
+    assert "campaign.yaml" in str(err.value)

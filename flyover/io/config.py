@@ -296,6 +296,93 @@ def _plate_correction(pairs, source: str) -> dict[float, float]:
     return table
 
 
+# A flight is its recording and log; what a pass of it adds is its own.
+_PASS_ONLY = ("flight", "label", "partial", "span_utc")
+
+
+def _check_flight(name: str, flight, source: str) -> None:
+    """Refuse a flight that gives a key of each pass (its label, span, ...)."""
+    given = [k for k in _PASS_ONLY if isinstance(flight, dict) and k in flight]
+    if given:
+        raise FlyoverInputError(f"flight {name} gives '{given[0]}', a key of each pass",
+                                f"{source}, key flights.{name}.{given[0]}",
+                                "the flight's recording, track and settings; labels and spans "
+                                "on its passes", given[0])
+
+
+def _with_flight(p: dict, flights: dict, name: str, source: str) -> dict:
+    """A pass's mapping with its flight's keys where it gives none of its own."""
+    if "flight" not in p:
+        return p
+    flight = p["flight"]
+    if flight not in flights:
+        raise FlyoverInputError(f"pass {name} names no known flight", f"{source}, key "
+                                f"passes.{name}.flight", "one of the keys of flights: "
+                                + (", ".join(sorted(flights)) or "(none given)"), flight,
+                                suggest(flight, list(flights)))
+    _check_flight(flight, flights[flight], source)
+    return {**flights[flight], **{k: v for k, v in p.items() if k != "flight"}}
+
+
+def flights_campaign(path) -> Campaign:
+    """The campaign of a file with its flights in place of its passes, each flight a pass over
+    its whole recording and log (for the pass finder): read and checked as passes are. The
+    campaign's comparisons, which name labels of passes, are left out."""
+    path = Path(path).resolve()
+    data = read_yaml(path)
+    if isinstance(data, dict) and not data.get("flights"):
+        raise FlyoverInputError("the campaign has no flight", f"{path}, key flights",
+                                "flights: NAME: {recording: ..., track: ...} (a whole flight's "
+                                "recording and flight log)", "none")
+    for name, flight in data["flights"].items():
+        _check_flight(name, flight, str(path))
+    analysis = {k: v for k, v in data.get("analysis", {}).items() if k != "comparisons"}
+    return campaign_from_mapping({**data, "analysis": analysis}, path, passes_key="flights")
+
+
+def _pass_spec(name: str, p: dict, where: str, *, base: Path, source: str, data: dict,
+               weather, default_atm: dict) -> PassSpec:
+    """One pass (or flight) from its mapping; ``where`` is its key path (``passes.NAME``)."""
+    for key in ("recording", "track"):
+        if key not in p:
+            raise FlyoverInputError(f"missing key '{where}.{key}'", f"{source}, key {where}",
+                                    "recording and track, or flight: NAME (a flight of the "
+                                    "key flights, whose recording and track the pass takes)",
+                                    f"keys {sorted(p)}")
+    recorders = _recorders(p, base, source, where)
+    if weather is not None and "atmosphere" in p:
+        raise FlyoverInputError("a pass types its atmosphere although the campaign has a "
+                                "weather file", f"{source}, key {where}.atmosphere",
+                                "the weather file's means over the pass, or typed numbers "
+                                "without a weather file", "both",
+                                "drop one of them (the campaign-level 'atmosphere' may "
+                                "still give what the station does not measure)")
+    return PassSpec(
+        name=name,
+        recorders=recorders,
+        calibration=_resolve_path(base, p["calibration"]) if "calibration" in p else None,
+        track=_resolve_path(base, p["track"]),
+        clock_offset_s=p.get("clock_offset_s", 0.0),
+        atmosphere=None if weather is not None else _atmosphere(
+            {**default_atm, **p.get("atmosphere", {})}, f"{where}.atmosphere"),
+        label=p.get("label", ""),
+        partial=bool(p.get("partial", False)),
+        track_time_scale=p.get("track_time_scale", "utc"),
+        track_height_datum=p.get("track_height_datum", "ellipsoidal"),
+        track_position_noise_m=float(p.get("track_position_noise_m", 0.05)),
+        exclude_channels=tuple(p.get("exclude_channels", ())),
+        clock_anchor_m=tuple(p["clock_anchor_m"]) if "clock_anchor_m" in p else None,
+        clock_search_s=float(p.get("clock_search_s", 1.0)),
+        keep_channels=tuple(p.get("keep_channels", ())),
+        track_antenna_offset_m=(tuple(float(v) for v in p["track_antenna_offset_m"])
+                                if "track_antenna_offset_m" in p else None),
+        array=_array(p["array"], base, source, f"{where}.array") if "array" in p else None,
+        atmosphere_profile=tuple(AtmosphereLayer(**k) for k in p.get(
+            "atmosphere_profile", data.get("atmosphere_profile", ()))),
+        span_utc_ns=_span(p, f"{source}, key {where}.span_utc"),
+    )
+
+
 def load_campaign(path) -> Campaign:
     """Read, validate and convert a campaign config file.
 
@@ -311,8 +398,9 @@ def load_campaign(path) -> Campaign:
     return campaign_from_mapping(data, path)
 
 
-def campaign_from_mapping(data: dict, path: Path) -> Campaign:
-    """Build a :class:`Campaign` from a parsed mapping (``path`` locates relative files)."""
+def campaign_from_mapping(data: dict, path: Path, *, passes_key: str = "passes") -> Campaign:
+    """Build a :class:`Campaign` from a parsed mapping (``path`` locates relative files;
+    ``passes_key='flights'`` takes the flights as its passes)."""
     source = str(path)
     validate_mapping(data, "campaign", source)
     base = path.parent
@@ -325,41 +413,16 @@ def campaign_from_mapping(data: dict, path: Path) -> Campaign:
     weather_limits = WeatherLimits(**data.get("weather_limits", {}))
     if "weather" in data:
         weather = WeatherSpec(_resolve_path(base, data["weather"]), weather_limits)
-    passes = {}
-    for name, p in data["passes"].items():
-        where = f"passes.{name}"
-        recorders = _recorders(p, base, source, where)
-        if weather is not None and "atmosphere" in p:
-            raise FlyoverInputError("a pass types its atmosphere although the campaign has a "
-                                    "weather file", f"{source}, key {where}.atmosphere",
-                                    "the weather file's means over the pass, or typed numbers "
-                                    "without a weather file", "both",
-                                    "drop one of them (the campaign-level 'atmosphere' may "
-                                    "still give what the station does not measure)")
-        passes[name] = PassSpec(
-            name=name,
-            recorders=recorders,
-            calibration=_resolve_path(base, p["calibration"]) if "calibration" in p else None,
-            track=_resolve_path(base, p["track"]),
-            clock_offset_s=p.get("clock_offset_s", 0.0),
-            atmosphere=None if weather is not None else _atmosphere(
-                {**default_atm, **p.get("atmosphere", {})}, f"{where}.atmosphere"),
-            label=p.get("label", ""),
-            partial=bool(p.get("partial", False)),
-            track_time_scale=p.get("track_time_scale", "utc"),
-            track_height_datum=p.get("track_height_datum", "ellipsoidal"),
-            track_position_noise_m=float(p.get("track_position_noise_m", 0.05)),
-            exclude_channels=tuple(p.get("exclude_channels", ())),
-            clock_anchor_m=tuple(p["clock_anchor_m"]) if "clock_anchor_m" in p else None,
-            clock_search_s=float(p.get("clock_search_s", 1.0)),
-            keep_channels=tuple(p.get("keep_channels", ())),
-            track_antenna_offset_m=(tuple(float(v) for v in p["track_antenna_offset_m"])
-                                    if "track_antenna_offset_m" in p else None),
-            array=_array(p["array"], base, source, f"{where}.array") if "array" in p else None,
-            atmosphere_profile=tuple(AtmosphereLayer(**k) for k in p.get(
-                "atmosphere_profile", data.get("atmosphere_profile", ()))),
-            span_utc_ns=_span(p, f"{source}, key {where}.span_utc"),
-        )
+    flights = data.get("flights", {})
+    passes = {name: _pass_spec(name, _with_flight(p, flights, name, source),
+                               f"{passes_key}.{name}", base=base, source=source, data=data,
+                               weather=weather, default_atm=default_atm)
+              for name, p in data.get(passes_key, {}).items()}
+    if not passes:
+        raise FlyoverInputError("the campaign has no pass", f"{source}, key passes",
+                                "at least one pass", "none",
+                                "with flights given, 'flyover find-passes' lists their passes "
+                                "ready to paste" if flights else "")
     _check_shared_recordings(passes, source)
     geoid = site_cfg.get("geoid_undulation_m")
     needs_geoid = array.height_datum == "msl" or any(
