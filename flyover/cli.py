@@ -12,11 +12,13 @@ import subprocess
 import sys
 from pathlib import Path
 
+from flyover.geometry.flight_passes import PassTolerances
 from flyover.model.errors import FlyoverInputError, file_system_message
 
 EXAMPLES = {
     "template": "flyover template -o my-campaign.yaml",
     "check": "flyover check demo/campaign.yaml",
+    "find-passes": "flyover find-passes flight-day.yaml --flight morning",
     "simulate": "flyover simulate demo/scenario.yaml --out demo/data",
     "calibrate": ("flyover calibrate cal-ch07.wav --channel 7 --level-db 94 --frequency-hz 1000 "
                   "--update calibration.csv"),
@@ -100,6 +102,25 @@ def _parser() -> argparse.ArgumentParser:
                         "workflow.log)")
     r.add_argument("snakemake_args", nargs=argparse.REMAINDER,
                    help="anything after -- goes to snakemake unchanged (default: nothing)")
+
+    f = add("find-passes", "find the passes in whole flights (the campaign file's 'flights'): "
+                           "every flyover of the array, as flown, and the entries to paste")
+    f.add_argument("campaign", type=Path, help="the campaign file (YAML) with its flights")
+    f.add_argument("--flight", action="append", metavar="NAME",
+                   help="search this flight (repeatable; default: every flight)")
+    f.add_argument("--max-offset-m", type=float, default=PassTolerances.max_offset_m,
+                   help="closest approach in plan to the array centre at most "
+                        f"(default {PassTolerances.max_offset_m:g} m)")
+    f.add_argument("--course-tolerance-deg", type=float, default=PassTolerances.course_deg,
+                   help="course within this of its mean over the analysed angles "
+                        f"(default {PassTolerances.course_deg:g} deg)")
+    f.add_argument("--height-tolerance-m", type=float, default=PassTolerances.height_m,
+                   help=f"height within this of its mean (default {PassTolerances.height_m:g} m)")
+    f.add_argument("--speed-tolerance-pct", type=float, default=PassTolerances.speed_pct,
+                   help="speed within this percentage of its mean "
+                        f"(default {PassTolerances.speed_pct:g} %%)")
+    f.add_argument("--out", type=Path, help="folder for found-passes.yaml and found-passes.csv "
+                                            "(default: the campaign's output folder)")
 
     n = add("plan", "show what a run would redo, pass by pass, and why")
     n.add_argument("campaign", type=Path, help="the campaign file (YAML)")
@@ -254,6 +275,27 @@ def main(argv=None) -> int:
         return 1
 
 
+def _find_passes(args) -> int:
+    """Print the flyovers of the flights and write the pass entries."""
+    from flyover.pipeline.find_passes import find_day, flyover_table, write_found
+    tolerances = PassTolerances(max_offset_m=args.max_offset_m,
+                                course_deg=args.course_tolerance_deg,
+                                height_m=args.height_tolerance_m,
+                                speed_pct=args.speed_tolerance_pct)
+    campaign, flyovers, labels = find_day(args.campaign, flights=args.flight,
+                                          tolerances=tolerances)
+    table = flyover_table(flyovers, labels)
+    shown = table[["flight", "pass", "overhead_utc", "course_deg", "height_m", "speed_m_s",
+                   "offset_m", "rotor_rpm", "label", "reasons"]]
+    print(shown.to_string(index=False, float_format=lambda v: f"{v:.1f}") if len(shown)
+          else "no flyover of the array in the flights")
+    entries, csv = write_found(args.out or campaign.output, flyovers, labels,
+                               source=campaign.config_path.name)
+    print(f"{int(table['is_pass'].sum()) if len(table) else 0} passes of {len(table)} flyovers; "
+          f"entries in {entries}, the table in {csv}")
+    return 0
+
+
 def _dispatch(args) -> int:
     if args.command == "template":
         text = (Path(__file__).parent / "template.yaml").read_text()
@@ -320,6 +362,8 @@ def _dispatch(args) -> int:
         return 0
     if args.command == "compare":
         return _compare(args)
+    if args.command == "find-passes":
+        return _find_passes(args)
     if args.command in ("report", "view"):
         return _page(args)
     from flyover.io.config import load_campaign

@@ -3,6 +3,8 @@
 from __future__ import annotations
 
 import shutil
+import subprocess
+import sys
 from pathlib import Path
 
 import pytest
@@ -43,6 +45,27 @@ TINY_SCENARIO = {
         "output": "results",
     },
 }
+
+
+ROOT = Path(__file__).resolve().parents[1]
+
+
+def snakemake_command(*args) -> list[str]:
+    return [sys.executable, "-m", "snakemake", "--snakefile", str(ROOT / "Snakefile"),
+            "--cores", "2", *args]
+
+
+def snakemake(*args, cwd):
+    return subprocess.run(snakemake_command(*args), cwd=cwd, capture_output=True, text=True)
+
+
+def planned(folder) -> set[tuple[str, str]]:
+    """(rule, pass) pairs a dry-run of the workflow would execute."""
+    from flyover.workflow.dryrun import parse_dry_run
+    res = snakemake("--configfile", str(folder / "campaign.yaml"), "-n", cwd=folder)
+    assert res.returncode == 0, res.stderr
+    return {(j["rule"], j["pass"]) for j in parse_dry_run(res.stdout + res.stderr)
+            if j["rule"] != "campaign"}
 
 
 def edit_campaign(folder: Path, change) -> Path:

@@ -14,28 +14,9 @@ import numpy as np
 import pandas as pd
 import pytest
 import yaml
-from conftest import edit_campaign
-
-from flyover.workflow.dryrun import parse_dry_run
-
-ROOT = Path(__file__).resolve().parents[1]
+from conftest import ROOT, edit_campaign, planned, snakemake, snakemake_command
 
 
-def snakemake_command(*args) -> list[str]:
-    return [sys.executable, "-m", "snakemake", "--snakefile", str(ROOT / "Snakefile"),
-            "--cores", "2", *args]
-
-
-def snakemake(*args, cwd):
-    return subprocess.run(snakemake_command(*args), cwd=cwd, capture_output=True, text=True)
-
-
-def planned(folder) -> set[tuple[str, str]]:
-    """(rule, pass) pairs a dry-run would execute."""
-    res = snakemake("--configfile", str(folder / "campaign.yaml"), "-n", cwd=folder)
-    assert res.returncode == 0, res.stderr
-    return {(j["rule"], j["pass"]) for j in parse_dry_run(res.stdout + res.stderr)
-            if j["rule"] != "campaign"}
 
 
 DIGESTS_BEFORE: dict = {}

@@ -255,6 +255,40 @@ def load_layout(campaign: Campaign, pass_name: str) -> ArrayLayout:
     return layout
 
 
+def pass_recorders(campaign: Campaign, name: str, layout: ArrayLayout, offset: float,
+                   measured_clocks: dict | None = None):
+    """A pass's recorders with their clocks, the array's clock over them and each
+    microphone's calibration (Pa per recorded unit)."""
+    spec = campaign.passes[name]
+    array = pass_array(campaign, name)
+    where = f"{campaign.config_path}, key passes.{name}.recording"
+    streams = [join_files(r.files, where=f"{where}, recorder '{r.name}'") for r in spec.recorders]
+    maps = channel_maps(array, spec, layout, streams, where)
+    rates = {r.name: s.sample_rate_hz for r, s in zip(spec.recorders, streams)}
+    if len(set(rates.values())) > 1:
+        raise FlyoverInputError(
+            "the recorders of a pass have different sample rates", where,
+            "one nominal sample rate for all recorders of a pass",
+            ", ".join(f"{n}: {v:g} Hz" for n, v in rates.items()),
+            "set the recorders to one rate (their drifts are measured separately)")
+    pa_per_unit = np.empty(len(layout.channel))
+    for r, (mics, _, _) in zip(spec.recorders, maps):
+        table = r.calibration or spec.calibration
+        cal = read("calibration", table, channels=layout.channel[mics])
+        pa_per_unit[mics] = [cal[int(c)] for c in layout.channel[mics]]
+    recorders = []
+    for r, stream, (mics, chans, timing) in zip(spec.recorders, streams, maps):
+        clock, fit, source = recorder_clock(r, stream, timing, offset,
+                                             (measured_clocks or {}).get(r.name),
+                                             f"{where}, recorder '{r.name}'")
+        recorders.append(RecorderInputs(r, stream, mics, chans, clock, fit, source))
+    mic_recorder = np.empty(len(layout.channel), int)
+    for k, (mics, _, _) in enumerate(maps):
+        mic_recorder[mics] = k
+    clock = ArrayClock.of_recorders([r.clock for r in recorders], mic_recorder)
+    return tuple(recorders), clock, pa_per_unit
+
+
 def load_pass(campaign: Campaign, name: str, clock_offset_s: float | None = None,
               quality_excluded=(), measured_clocks: dict | None = None) -> PassInputs:
     """Read and check the layout, recorders, calibrations, clocks and track of one pass.
@@ -278,34 +312,11 @@ def load_pass(campaign: Campaign, name: str, clock_offset_s: float | None = None
     spec = campaign.passes[name]
     layout = load_layout(campaign, name)
     array = pass_array(campaign, name)
-    where = f"{campaign.config_path}, key passes.{name}.recording"
-    streams = [join_files(r.files, where=f"{where}, recorder '{r.name}'") for r in spec.recorders]
-    maps = channel_maps(array, spec, layout, streams, where)
-    rates = {r.name: s.sample_rate_hz for r, s in zip(spec.recorders, streams)}
-    if len(set(rates.values())) > 1:
-        raise FlyoverInputError(
-            "the recorders of a pass have different sample rates", where,
-            "one nominal sample rate for all recorders of a pass",
-            ", ".join(f"{n}: {v:g} Hz" for n, v in rates.items()),
-            "set the recorders to one rate (their drifts are measured separately)")
-    pa_per_unit = np.empty(len(layout.channel))
-    for r, (mics, _, _) in zip(spec.recorders, maps):
-        table = r.calibration or spec.calibration
-        cal = read("calibration", table, channels=layout.channel[mics])
-        pa_per_unit[mics] = [cal[int(c)] for c in layout.channel[mics]]
     offset = clock_offset_s if clock_offset_s is not None else spec.clock_offset_s
     if offset == "auto":
         offset = 0.0  # the alignment stage estimates it; until then the recorders' times are used
-    recorders = []
-    for r, stream, (mics, chans, timing) in zip(spec.recorders, streams, maps):
-        clock, fit, source = recorder_clock(r, stream, timing, float(offset),
-                                             (measured_clocks or {}).get(r.name),
-                                             f"{where}, recorder '{r.name}'")
-        recorders.append(RecorderInputs(r, stream, mics, chans, clock, fit, source))
-    mic_recorder = np.empty(len(layout.channel), int)
-    for k, (mics, _, _) in enumerate(maps):
-        mic_recorder[mics] = k
-    clock = ArrayClock.of_recorders([r.clock for r in recorders], mic_recorder)
+    recorders, clock, pa_per_unit = pass_recorders(campaign, name, layout, float(offset),
+                                                   measured_clocks)
     span = common_span_s(clock, recorders, spec.span_utc_ns)
     if spec.span_utc_ns is not None and span[1] - span[0] <= 0:
         whole = common_span_s(clock, recorders)
