@@ -112,3 +112,42 @@ def test_flight_refusals(tiny_copy, change, words):
     with pytest.raises(FlyoverInputError, match=words) as err:
         load_campaign(edit_campaign(tiny_copy, change))
     assert "campaign.yaml" in str(err.value)
+
+
+def test_a_pass_cut_from_a_long_recording_reads_its_own_stretch_of_time_code(tmp_path):
+    # A 60 s recording with an IRIG-B channel, a pass spanning 5 s of it from 30 s: the
+    # recorder's clock is decoded from the span and 10 s either side (not the whole file) and
+    # agrees with the whole recording's to 20 us and 0.5 ppm.
+    import soundfile as sf
+
+    from flyover.campaign import RecorderSpec
+    from flyover.io.recorders import join_files
+    from flyover.pipeline._channels import recorder_clock
+    from flyover.sim.timing import irig_b_signal
+    fs, base, start = 8000.0, 1_780_000_000, 0.3
+    t = start + np.arange(int(60 * fs)) / (fs * (1 + 20e-6))
+    code = irig_b_signal(t, base, form="dcls", rise_s=1 / fs)
+    sf.write(tmp_path / "long.wav", np.stack([np.zeros_like(code), code], 1).astype(np.float32),
+             int(fs), subtype="FLOAT")
+    own = int((base + start + 0.05) * 1e9)
+    spec = RecorderSpec("rack", (tmp_path / "long.wav",), start_utc_ns=own)
+    asked = []
+
+    class Logged:   # the recorder's stream, noting every stretch read
+        def __init__(self, stream):
+            self.stream = stream
+
+        def __getattr__(self, name):
+            return getattr(self.stream, name)
+
+        def read(self, first, n, channels=None):
+            asked.append((first, n))
+            return self.stream.read(first, n, channels)
+    stream = Logged(join_files(spec.files))
+    span = (int((base + 30.3) * 1e9), int((base + 35.3) * 1e9))
+    cut, fit, _ = recorder_clock(spec, stream, {"irig": 1}, 0.0, None, "test", span_utc_ns=span)
+    assert min(a for a, _ in asked) >= int(19 * fs) and max(a + n for a, n in asked) <= int(
+        46 * fs)
+    whole, whole_fit, _ = recorder_clock(spec, stream, {"irig": 1}, 0.0, None, "test")
+    assert abs(fit.start_utc_ns - whole_fit.start_utc_ns) < 20_000
+    assert abs(fit.drift_ppm - whole_fit.drift_ppm) < 0.5 and abs(fit.drift_ppm - 20) < 0.5

@@ -10,7 +10,7 @@ from flyover.io.readers.layout_csv import ArrayLayout
 from flyover.campaign import ArraySpec, PassSpec, RecorderSpec
 from flyover.model.errors import FlyoverInputError, suggest
 from flyover.model.timebase import RecordingClock
-from flyover.sync.timecode import TimingFit, measure_clock
+from flyover.sync.timecode import TimingFit, measure_clock, measure_clock_over
 
 
 def recorder_channel(value, stream: JoinedRecording, where: str) -> int:
@@ -96,12 +96,14 @@ def channel_maps(array: ArraySpec, spec: PassSpec, layout: ArrayLayout,
 
 
 def recorder_clock(r: RecorderSpec, stream: JoinedRecording, timing: dict[str, int],
-                    common_offset_s: float, measured, where: str):
+                    common_offset_s: float, measured, where: str, *, span_utc_ns=None):
     """A recorder's clock: measured from its timing channels, or its start time (typed, else
     from its files) with its offset and rate error; plus the pass's common offset.
 
     ``measured`` is a :class:`TimingFit` or a mapping with ``start_utc_ns`` and ``drift_ppm``
-    from an earlier measurement, or None to decode the timing channels here.
+    from an earlier measurement, or None to decode the timing channels here: over the pass's
+    span (``span_utc_ns``, with a margin) when the recorder's own start places it, else over the
+    whole recording.
     """
     fs = stream.sample_rate_hz
     typed = r.start_utc_ns
@@ -109,10 +111,12 @@ def recorder_clock(r: RecorderSpec, stream: JoinedRecording, timing: dict[str, i
     if timing:
         fit = measured if isinstance(measured, TimingFit) else None
         if measured is None:
-            fit = measure_clock(
-                {name: (lambda first, n, ch=ch: stream.read(first, n, [ch])[0])
-                 for name, ch in timing.items()},
-                stream.n_frames, fs, own, where=where)
+            channels = {name: (lambda first, n, ch=ch: stream.read(first, n, [ch])[0])
+                        for name, ch in timing.items()}
+            stretch = _timing_stretch(stream, own, span_utc_ns)
+            fit = (measure_clock(channels, stream.n_frames, fs, own, where=where)
+                   if stretch is None else
+                   measure_clock_over(channels, *stretch, fs, own, where=where))
         start, drift = ((fit.start_utc_ns, fit.drift_ppm) if fit is not None else
                         (int(measured["start_utc_ns"]), float(measured["drift_ppm"])))
         return RecordingClock(start, common_offset_s, fs, drift), fit, "timing channel"
@@ -124,3 +128,21 @@ def recorder_clock(r: RecorderSpec, stream: JoinedRecording, timing: dict[str, i
     source = "typed start" if typed is not None else stream.time_reference
     return (RecordingClock(own, r.clock_offset_s + common_offset_s, fs, r.rate_error_ppm),
             None, source)
+
+
+# The timing channels of a pass cut from a long recording are decoded over its span and this
+# much either side: room for a recorder's own clock being seconds off, and for the fit.
+TIMING_MARGIN_S = 10.0
+
+
+def _timing_stretch(stream: JoinedRecording, own_ns, span_utc_ns) -> tuple[int, int] | None:
+    """The frames (first, count) of a span by the recorder's own clock, with the margin; None
+    for the whole recording (no span, no own start, or a span that reaches past both ends)."""
+    if span_utc_ns is None or own_ns is None:
+        return None
+    fs = stream.sample_rate_hz
+    lo = max(0, int((span_utc_ns[0] - own_ns) / 1e9 * fs - TIMING_MARGIN_S * fs))
+    hi = min(stream.n_frames, int((span_utc_ns[1] - own_ns) / 1e9 * fs + TIMING_MARGIN_S * fs))
+    if hi - lo < 2 * TIMING_MARGIN_S * fs or (lo == 0 and hi == stream.n_frames):
+        return None
+    return lo, hi - lo

@@ -280,7 +280,8 @@ def pass_recorders(campaign: Campaign, name: str, layout: ArrayLayout, offset: f
     for r, stream, (mics, chans, timing) in zip(spec.recorders, streams, maps):
         clock, fit, source = recorder_clock(r, stream, timing, offset,
                                              (measured_clocks or {}).get(r.name),
-                                             f"{where}, recorder '{r.name}'")
+                                             f"{where}, recorder '{r.name}'",
+                                             span_utc_ns=spec.span_utc_ns)
         recorders.append(RecorderInputs(r, stream, mics, chans, clock, fit, source))
     mic_recorder = np.empty(len(layout.channel), int)
     for k, (mics, _, _) in enumerate(maps):

@@ -35,7 +35,7 @@ from __future__ import annotations
 
 import datetime as dt
 from collections.abc import Callable
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 from scipy.signal import hilbert
@@ -443,3 +443,23 @@ def measure_clock(channels: dict[str, Callable[[int, int], np.ndarray]], n_frame
         kinds.append(kind)
     return fit_clock(np.concatenate(positions), np.concatenate(utc), np.concatenate(fraction),
                      sample_rate_hz, " + ".join(kinds), events, where=where)
+
+
+def measure_clock_over(channels: dict[str, Callable[[int, int], np.ndarray]], first_frame: int,
+                       n_frames: int, sample_rate_hz: float, nominal_start_utc_ns: int | None, *,
+                       where: str) -> TimingFit:
+    """:func:`measure_clock` from a stretch of the recording only (frames ``first_frame`` to
+    ``first_frame + n_frames``): a pass cut from a long recording reads its own stretch, not the
+    whole file. The fitted start is carried back to the recording's sample 0 along the fitted
+    rate; the uncertainties stay the stretch's, which is where the pass is timed.
+
+    ``channels`` read frames of the whole recording; ``nominal_start_utc_ns`` is its sample 0's.
+    """
+    def shifted(read):
+        return lambda first, n: read(first_frame + first, n)
+    nominal = (None if nominal_start_utc_ns is None else
+               nominal_start_utc_ns + int(round(first_frame / sample_rate_hz * 1e9)))
+    fit = measure_clock({k: shifted(v) for k, v in channels.items()}, n_frames, sample_rate_hz,
+                        nominal, where=where)
+    return replace(fit, start_utc_ns=fit.start_utc_ns
+                   - int(round(first_frame / fit.rate_hz * 1e9)))
