@@ -19,6 +19,7 @@ EXAMPLES = {
     "template": "flyover template -o my-campaign.yaml",
     "check": "flyover check demo/campaign.yaml",
     "find-passes": "flyover find-passes flight-day.yaml --flight morning",
+    "quick-look": "flyover quick-look flight-day.yaml --flight morning",
     "simulate": "flyover simulate demo/scenario.yaml --out demo/data",
     "calibrate": ("flyover calibrate cal-ch07.wav --channel 7 --level-db 94 --frequency-hz 1000 "
                   "--update calibration.csv"),
@@ -121,6 +122,17 @@ def _parser() -> argparse.ArgumentParser:
                         f"(default {PassTolerances.speed_pct:g} %%)")
     f.add_argument("--out", type=Path, help="folder for found-passes.yaml and found-passes.csv "
                                             "(default: the campaign's output folder)")
+
+    q = add("quick-look", "after a pass, within a minute: must it be flown again? (the checks "
+                          "that need no imaging, the acoustic track check and a coarse map "
+                          "near overhead; not a signed result)")
+    q.add_argument("campaign", type=Path, help="the campaign file (YAML)")
+    q.add_argument("pass_name", nargs="?", metavar="PASS",
+                   help="a pass of the campaign (default: with --flight, its newest flyover)")
+    q.add_argument("--flight", metavar="NAME",
+                   help="look at the newest flyover of this flight (key flights) so far")
+    q.add_argument("--out", type=Path, help="folder to write into (default: "
+                                            "OUTPUT/quick-look/PASS)")
 
     n = add("plan", "show what a run would redo, pass by pass, and why")
     n.add_argument("campaign", type=Path, help="the campaign file (YAML)")
@@ -296,6 +308,53 @@ def _find_passes(args) -> int:
     return 0
 
 
+def _quick_look(args) -> int:
+    """Print the quick look's verdict, findings and levels near overhead."""
+    from flyover.workflow.quick_look import FOLDER, quick_look
+    campaign, name, peers = _quick_look_pass(args)
+    folder = args.out or campaign.output / FOLDER / name
+    look = quick_look(campaign, name, folder, peers=peers)
+    verdict = ("FLY AGAIN" if look["fly_again"] else
+               "keep it" + (" (flagged: its numbers stand, with the reasons)"
+                            if look["status"] == "flagged" else ""))
+    print(f"quick look of {name} ({look['label'] or 'no label'}): {look['status']}: {verdict}")
+    for f in look["findings"]:
+        print(f"  - {f['text']}")
+    for region, o in look["overall"].items():
+        level = "no level" if o["a_weighted_1m_db"] is None else f"{o['a_weighted_1m_db']:.1f} dB"
+        print(f"  {region}: A-weighted at 1 m near overhead {level} ({o['bands']} bands)")
+    print(f"  not checked: {'; '.join(look['not_checked'])}")
+    print(f"  {look['seconds']:.0f} s; written to {folder} (a quick look, not a signed result)")
+    return 0
+
+
+def _quick_look_pass(args):
+    """The campaign and pass a quick look is of, and the label's other passes: a named pass
+    (its label's passes the workflow has aligned), or the newest flyover of a flight (a pass of
+    its own, cut by its proposed span; its label's passes are the flight's earlier ones)."""
+    from dataclasses import replace
+
+    from flyover.io.config import load_campaign
+    if args.flight is None:
+        if args.pass_name is None:
+            raise FlyoverInputError("no pass to look at", "flyover quick-look",
+                                    "a pass name, or --flight NAME for its newest flyover")
+        return load_campaign(args.campaign), args.pass_name, None
+    from flyover.pipeline.find_passes import find_day
+    flights, flyovers, labels = find_day(args.campaign, flights=[args.flight])
+    if not flyovers:
+        raise FlyoverInputError("no flyover of the array in the flight yet",
+                                f"{args.campaign}, flight {args.flight}",
+                                "a closest approach within the finder's offset", "none")
+    newest, label = flyovers[-1], labels[-1]
+    name = args.pass_name or f"{args.flight}-newest"
+    spec = replace(flights.passes[args.flight], name=name, span_utc_ns=newest.span_utc_ns,
+                   label=label)
+    peers = {f"{args.flight}@{f.found.overhead_s:.0f}s": (f.found.height_m, f.found.speed_m_s)
+             for f, lab in zip(flyovers[:-1], labels) if label and lab == label}
+    return replace(flights, passes={name: spec}), name, peers
+
+
 def _dispatch(args) -> int:
     if args.command == "template":
         text = (Path(__file__).parent / "template.yaml").read_text()
@@ -364,6 +423,8 @@ def _dispatch(args) -> int:
         return _compare(args)
     if args.command == "find-passes":
         return _find_passes(args)
+    if args.command == "quick-look":
+        return _quick_look(args)
     if args.command in ("report", "view"):
         return _page(args)
     from flyover.io.config import load_campaign

@@ -147,7 +147,7 @@ def test_labels_cluster_height_speed_and_rotor_speed():
 
 @pytest.mark.slow
 def test_a_flight_day_runs_from_one_recording_and_log(tiny_copy):
-    # Four legs back and forth at two heights, heard by the tiny array in one continuous
+    # Four legs back and forth at 20 and 30 m, heard by the tiny array in one continuous
     # recording and logged in one track: the passes found, pasted into the campaign, run
     # through the workflow each from its span; a changed span re-runs that pass alone.
     from conftest import planned, snakemake
@@ -160,8 +160,8 @@ def test_a_flight_day_runs_from_one_recording_and_log(tiny_copy):
     scenario, _, _ = load_scenario(tiny_copy / "scenario.yaml")
     campaign = load_campaign(tiny_copy / "campaign.yaml")
     centre = load_layout(campaign, "p1").center_enu_m
-    legs = [(30.0, 10.0), (30.0, 10.0), (45.0, 12.0), (45.0, 12.0)]
-    time_s, enu, flown = racetrack_day(legs, half_length_m=170.0)
+    legs = [(20.0, 10.0), (20.0, 10.0), (30.0, 12.0), (30.0, 12.0)]
+    time_s, enu, flown = racetrack_day(legs, half_length_m=190.0)
     enu = enu + centre
     atmosphere = campaign.passes["p1"].atmosphere
     write_flight_recording(tiny_copy / "flight.wav", scenario, time_s, enu, atmosphere,
@@ -178,7 +178,8 @@ def test_a_flight_day_runs_from_one_recording_and_log(tiny_copy):
             "calibration": d["passes"]["p1"]["calibration"], "track_position_noise_m": 0.02,
             "atmosphere": d["passes"]["p1"]["atmosphere"]}}
         d["analysis"].pop("hop_s")
-        d["analysis"].update(window_polar_step_deg=20.0, max_polar_offset_deg=70.0)
+        # The angles down to 10 dB under the peak, as the single-event metrics need them.
+        d["analysis"].update(window_polar_step_deg=13.0, max_polar_offset_deg=78.0)
     edit_campaign(tiny_copy, flight)
     _, flyovers, labels = find_day(tiny_copy / "campaign.yaml")
     assert [f.problems for f in flyovers] == [()] * 4
@@ -200,3 +201,11 @@ def test_a_flight_day_runs_from_one_recording_and_log(tiny_copy):
     edit_campaign(tiny_copy, lambda d: d["passes"][first].update(span_utc=moved))
     rerun = {p for _, p in planned(tiny_copy) if p}
     assert rerun == {first}
+    # On the field: the quick look of the flight's newest flyover, from the recording and log
+    # alone, says what the full sign-off of that pass says.
+    from flyover.cli import main
+    assert main(["quick-look", str(tiny_copy / "campaign.yaml"), "--flight", "morning",
+                 "--out", str(tiny_copy / "look")]) == 0
+    look = yaml.safe_load((tiny_copy / "look" / "quick-look.json").read_text())
+    assert look["status"] == signed.loc[list(entries)[-1], "status"]
+    assert look["label"] == entries[list(entries)[-1]]["label"] and not look["fly_again"]

@@ -27,6 +27,8 @@ NOMINAL_C_M_S = 343.0
 # window: the windows at the extreme angles then lie inside it.
 SPAN_MARGIN_S = 1.0
 FILE_STEM = "found-passes"
+# 10 dB down under spherical spreading: sqrt(10) closest distances away, 3 of them along track.
+TEN_DB_DOWN_DISTANCES = 3.0
 
 
 @dataclass(frozen=True)
@@ -40,8 +42,9 @@ class FlightFlyover:
         Its geometry and verdict (times relative to ``epoch_utc_ns``).
     epoch_utc_ns : int
     span_utc_ns : (int, int)
-        The proposed ``span_utc``: the stretch from its first emission to its last reception,
-        with a margin, kept clear of the neighbouring flyovers.
+        The proposed ``span_utc``: the stretch (and the 10 dB-down interval of spherical
+        spreading) from its first emission to its last reception, with a margin, kept clear
+        of the neighbouring flyovers.
     covered : bool
         Whether the recording holds the whole span.
     rpm : dict
@@ -116,9 +119,14 @@ def _flight_flyovers(campaign: Campaign, name: str, tol: PassTolerances) -> list
     margin = max(SPAN_MARGIN_S, campaign.analysis.window_s)
     reach = []
     for f in found:
-        last = [np.interp(f.end_s, t, samples.enu_m[:, k]) for k in range(3)]
+        # The single-event metrics need the level 10 dB under its peak: under spherical
+        # spreading at three closest distances along the track either side.
+        closest = float(np.hypot(f.height_m, f.offset_m))
+        down = TEN_DB_DOWN_DISTANCES * closest / max(f.speed_m_s, 1e-3)
+        first, last_s = min(f.start_s, f.overhead_s - down), max(f.end_s, f.overhead_s + down)
+        last = [np.interp(last_s, t, samples.enu_m[:, k]) for k in range(3)]
         travel = float(np.linalg.norm(np.array(last) - layout.center_enu_m)) / NOMINAL_C_M_S
-        reach.append([f.start_s - margin, f.end_s + travel + margin])
+        reach.append([first - margin, last_s + travel + margin])
     for a, b in zip(reach, reach[1:]):
         if a[1] > b[0]:
             a[1] = b[0] = 0.5 * (a[1] + b[0])

@@ -80,7 +80,7 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path, *, threads: int = 1,
     rows, region_rows, maps_dr, maps_full, done = [], [], [], [], []
     nx, ny = campaign.grid.shape
     for w in windows:
-        row = _window_row(w, clock, inputs.layout.center_enu_m)
+        row = window_row(w, clock, inputs.layout.center_enu_m)
         ctx = window_context(w, track=inputs.track, clock=clock, atmosphere=atm, mic_enu_m=mics,
                              grid_points_m=points, settings=settings,
                              diagonal_removal=an.diagonal_removal, workers=threads)
@@ -186,7 +186,8 @@ def _angle_rows(windows, campaign, inputs) -> pd.DataFrame:
     return pd.concat(parts, ignore_index=True)[REGION_ANGLES.column_names]
 
 
-def _window_row(w, clock, array_center) -> dict:
+def window_row(w, clock, array_center) -> dict:
+    """windows.csv's row of a window (its status and reason still empty)."""
     return {"window": w.index, "status": "", "reason": "",
             "start_utc": iso_utc(int(clock.utc_ns(w.start_s))),
             "time_utc": iso_utc(int(clock.utc_ns(w.center_s))),

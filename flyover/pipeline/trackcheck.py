@@ -38,6 +38,12 @@ def dominant_anchor(campaign: Campaign, levels) -> tuple[np.ndarray, str, tuple]
     parts = levels[(levels["region"] != "total")].copy()
     near = (parts["polar_angle_deg"] - 90.0).abs()
     parts = parts[near <= near.min() + 1e-6]
+    # Compared over the bands where every region has a level: a region given in more bands
+    # would otherwise outweigh a louder one (a quick look's coarse map gave 7 and 6 bands).
+    given = np.isfinite(parts["level_1m_db"].astype(float))
+    shared = given.groupby(parts["band_hz"]).transform("all")
+    if shared.any():
+        parts = parts[shared]
     energy = (10 ** (parts["level_1m_db"].astype(float) / 10)).groupby(parts["region"]).sum()
     if len(energy) == 0 or not np.isfinite(energy).any() or energy.max() <= 0:
         name = next(iter(campaign.regions))
@@ -54,12 +60,20 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> dict:
     campaign = guarded(campaign, READS, stage="trackcheck", pass_name=pass_name)
     out_dir = Path(out_dir)
     inputs, alignment = load_aligned_pass(campaign, pass_name, out_dir)
+    record = track_check_record(campaign, inputs, alignment, LEVELS.read(out_dir))
+    write_json(out_dir, TRACK_CHECK, record)
+    return record
+
+
+def track_check_record(campaign: Campaign, inputs, alignment: dict, levels) -> dict:
+    """The check itself (``track_check.json``'s record) on a loaded pass; ``levels`` (rows of
+    levels.csv: region, polar angle, level at 1 m) choose the dominant region to focus on."""
     an = campaign.analysis
     spec = inputs.spec
     if spec.clock_anchor_m is not None:
         anchor, what, half = np.asarray(spec.clock_anchor_m, float), "the clock anchor", (0, 0)
     else:
-        anchor, what, half = dominant_anchor(campaign, LEVELS.read(out_dir))
+        anchor, what, half = dominant_anchor(campaign, levels)
     fs = inputs.sample_rate_hz
     windows = plan_windows(inputs.track, inputs.layout.center_enu_m, inputs.recording_span_s,
                            an.window_s, an.window_s, fs,
@@ -91,5 +105,4 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> dict:
                 "reach_m": reach,
                 "scan_offsets_m": [round(float(v), 4) for v in r.scan_offsets_m],
                 "scan_focus": [round(float(v), 5) for v in r.scan_focus]}
-    write_json(out_dir, TRACK_CHECK, record)
     return record

@@ -3,7 +3,8 @@
 Only the samples a pass needs are read (seek, then read), so memory follows the analysed span,
 not the file. Before anything is read the header is checked against the file size: libsndfile
 silently clamps the frame count of a truncated WAV, and a plain WAV written past 4 GiB carries a
-wrapped size field.
+wrapped size field. A WAV still being written (its data size not yet filled in) is read as far
+as it goes.
 """
 
 from __future__ import annotations
@@ -139,6 +140,10 @@ def recording_info(path) -> RecordingInfo:
     if declared is not None:
         offset, data_bytes = declared
         on_disk = size - offset
+        if data_bytes in (0, 0xFFFFFFFF) and info.format == "WAV":
+            # A recorder still writing has not yet filled in the data size (zero, or the
+            # placeholder): the samples on disk so far are the recording.
+            data_bytes = on_disk - on_disk % frame_bytes
         header_frames = data_bytes // frame_bytes
         if on_disk < data_bytes:
             raise FlyoverInputError(
