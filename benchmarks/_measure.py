@@ -37,3 +37,21 @@ def measured_campaign_stage(name: str, campaign: Path) -> tuple[float, float]:
         raise SystemExit(res.stderr[-3000:])
     peak = [int(line.split()[1]) for line in res.stdout.splitlines() if line.startswith("peak_kb")]
     return time.perf_counter() - t0, peak[-1] / 1024
+
+
+# What a step costs before its own work: the interpreter, the package's imports for the step,
+# and reading the campaign file.
+STARTUP = ("import sys; from flyover.pipeline import stage_module; "
+           "from flyover.io.config import load_campaign; "
+           "stage_module(sys.argv[1], sys.argv[2]); load_campaign(sys.argv[3])")
+
+
+def measured_startup(name: str, campaign: Path, scope: str = "pass") -> float:
+    """Wall time (s) of a process that starts a step (imports it, reads the campaign file)
+    and does nothing else."""
+    t0 = time.perf_counter()
+    res = subprocess.run([sys.executable, "-c", STARTUP, name, scope, str(campaign)],
+                         capture_output=True, text=True, cwd=ROOT)
+    if res.returncode != 0:
+        raise SystemExit(res.stderr[-3000:])
+    return time.perf_counter() - t0

@@ -24,7 +24,7 @@ ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 sys.path.insert(0, str(ROOT / "benchmarks"))
 
-from _measure import measured_campaign_stage, measured_stage  # noqa: E402
+from _measure import measured_campaign_stage, measured_stage, measured_startup  # noqa: E402
 
 from flyover.io.results.steps import PASS_STEPS  # noqa: E402  (in dependency order)
 
@@ -69,8 +69,10 @@ def one_pass(folder: Path) -> Path:
     total = 0.0
     for step in PASS_STEPS:
         wall, mb = measured_stage(step, folder / "campaign.yaml", "one", out)
+        start = measured_startup(step, folder / "campaign.yaml")
         total += wall
-        print(f"pass step {step:11s} {wall:6.2f} s  peak {mb:5.0f} MB")
+        print(f"pass step {step:11s} {wall:6.2f} s  peak {mb:5.0f} MB  start-up {start:4.2f} s "
+              "(interpreter, imports, campaign file)")
     print(f"pass steps together {total:.1f} s (each a process of its own)")
     return out
 

@@ -448,3 +448,15 @@ def test_compiled_steering_lines_match_their_definition():
                                    rtol=1e-5)
         np.testing.assert_allclose(planes[:, :, 0] + 1j * planes[:, :, 1], ref, atol=1e-6)
         np.testing.assert_allclose(planes[:, :, 2], np.abs(ref) ** 2, rtol=1e-6)
+
+
+def test_every_blas_the_imaging_uses_is_held_to_one_thread():
+    # numpy and scipy each bring their own OpenBLAS (their wheels' numpy.libs and scipy.libs);
+    # the imaging limits both while its kernels run. scipy.linalg (CLEAN-SC's refit) is
+    # imported where it is used: its BLAS must still be among those limited.
+    from flyover.imaging.window import _thread_pools, blas_on_one_thread
+    libraries = {m["filepath"] for m in _thread_pools().info() if m["user_api"] == "blas"}
+    assert any("scipy" in p for p in libraries)
+    with blas_on_one_thread():
+        assert all(m["num_threads"] == 1 for m in _thread_pools().info()
+                   if m["user_api"] == "blas")
