@@ -460,3 +460,33 @@ def test_every_blas_the_imaging_uses_is_held_to_one_thread():
     with blas_on_one_thread():
         assert all(m["num_threads"] == 1 for m in _thread_pools().info()
                    if m["user_api"] == "blas")
+
+
+CLEAN_RUN = """
+import hashlib, sys
+import numpy as np
+sys.path.insert(0, {tests!r})
+from test_csm import exact_csm, spiral_steering
+from flyover.imaging.csm import clean_sc
+points, steering = spiral_steering()
+csm = exact_csm(steering, {{10: 1.0, 200: 0.5, 300: 0.3}}, noise_pa2=0.1)
+res = clean_sc(csm, steering, 1)
+print(hashlib.sha256(np.ascontiguousarray(res.residual).tobytes()
+                     + np.ascontiguousarray(res.clean).tobytes()).hexdigest())
+"""
+
+
+@pytest.mark.slow   # compiles the kernels twice over: 20 s
+def test_clean_sc_is_the_same_compiled_afresh_and_from_the_cache(tmp_path):
+    # The same CSM through CLEAN-SC in a process that compiles the kernels and in one that
+    # loads them from numba's cache: bit for bit the same maps.
+    import os
+    import subprocess
+    import sys
+    from pathlib import Path
+    env = dict(os.environ, NUMBA_CACHE_DIR=str(tmp_path / "numba"))
+    code = CLEAN_RUN.format(tests=str(Path(__file__).parent))
+    runs = [subprocess.run([sys.executable, "-c", code], env=env, capture_output=True,
+                           text=True) for _ in range(2)]
+    assert all(r.returncode == 0 for r in runs), runs[0].stderr[-2000:]
+    assert runs[0].stdout == runs[1].stdout
