@@ -38,7 +38,6 @@ from collections.abc import Callable
 from dataclasses import dataclass, field, replace
 
 import numpy as np
-from scipy.signal import hilbert
 
 from flyover.model.errors import FlyoverInputError
 
@@ -81,7 +80,10 @@ def pulse_edges(x, *, carrier_hz: float | None = None, sample_rate_hz: float | N
         Added to the positions (the frame of ``x[0]`` in the recording).
     """
     x = np.asarray(x, dtype=float)
-    analytic = hilbert(x - np.median(x)) if carrier_hz else None
+    analytic = None
+    if carrier_hz:
+        from scipy.signal import hilbert  # every step loads a pass; few demodulate a code
+        analytic = hilbert(x - np.median(x))
     sig = np.abs(analytic) if carrier_hz else x
     lo, hi = np.percentile(sig, [5, 95])
     near_a_level = (np.abs(sig - lo) < 0.1 * (hi - lo)) | (np.abs(sig - hi) < 0.1 * (hi - lo))
