@@ -311,9 +311,9 @@ def _find_passes(args) -> int:
 def _quick_look(args) -> int:
     """Print the quick look's verdict, findings and levels near overhead."""
     from flyover.workflow.quick_look import FOLDER, quick_look
-    campaign, name, peers = _quick_look_pass(args)
+    campaign, name, peers, known = _quick_look_pass(args)
     folder = args.out or campaign.output / FOLDER / name
-    look = quick_look(campaign, name, folder, peers=peers)
+    look = quick_look(campaign, name, folder, peers=peers, also=known)
     verdict = ("FLY AGAIN" if look["fly_again"] else
                "keep it" + (" (flagged: its numbers stand, with the reasons)"
                             if look["status"] == "flagged" else ""))
@@ -329,9 +329,10 @@ def _quick_look(args) -> int:
 
 
 def _quick_look_pass(args):
-    """The campaign and pass a quick look is of, and the label's other passes: a named pass
-    (its label's passes the workflow has aligned), or the newest flyover of a flight (a pass of
-    its own, cut by its proposed span; its label's passes are the flight's earlier ones)."""
+    """The campaign and pass a quick look is of, the label's other passes and what is already
+    known against it: a named pass (its label's passes the workflow has aligned), or the newest
+    flyover of a flight (a pass of its own, cut by its proposed span; its label's passes are
+    the flight's earlier ones; the finder's reasons it was not flown as a pass)."""
     from dataclasses import replace
 
     from flyover.io.config import load_campaign
@@ -339,7 +340,7 @@ def _quick_look_pass(args):
         if args.pass_name is None:
             raise FlyoverInputError("no pass to look at", "flyover quick-look",
                                     "a pass name, or --flight NAME for its newest flyover")
-        return load_campaign(args.campaign), args.pass_name, None
+        return load_campaign(args.campaign), args.pass_name, None, []
     from flyover.pipeline.find_passes import find_day
     flights, flyovers, labels = find_day(args.campaign, flights=[args.flight])
     if not flyovers:
@@ -352,7 +353,7 @@ def _quick_look_pass(args):
                    label=label)
     peers = {f"{args.flight}@{f.found.overhead_s:.0f}s": (f.found.height_m, f.found.speed_m_s)
              for f, lab in zip(flyovers[:-1], labels) if label and lab == label}
-    return replace(flights, passes={name: spec}), name, peers
+    return replace(flights, passes={name: spec}), name, peers, newest.flight_findings()
 
 
 def _dispatch(args) -> int:

@@ -72,6 +72,12 @@ def test_every_pass_of_the_day_found_as_flown(tiny_copy):
         ["30m-10ms"] * 3 + ["45m-12ms"] * 3)
     others = [f for f in flyovers if f.problems]
     assert others and all(any(p.startswith("turning") for p in f.problems) for f in others)
+    # Not flown as a pass: what the quick look of it is told, as rejections (fly again).
+    for f in others:
+        told = f.flight_findings()
+        assert told and all(x.outcome == "reject" for x in told)
+        assert any("turning" in x.text for x in told)
+    assert all(f.flight_findings() == [] for f in passes)
     assert all(f.found.overhead_s > passes[-1].found.end_s for f in others)
     # The spans: apart, and each holding its stretch from first emission to last reception.
     spans = np.array([f.span_utc_ns for f in passes])

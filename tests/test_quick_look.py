@@ -63,6 +63,18 @@ def test_a_recording_still_being_written_is_read_as_far_as_it_goes(tiny_copy):
     assert look["recording_end_utc"].startswith("2026-06-01T10:00:01.8")
 
 
+def test_a_pass_known_to_be_flown_badly_is_flown_again(tiny_copy):
+    # The finder's verdict that a flyover was not flown as a pass (here: turning) is a
+    # rejection whatever the recording shows: the quick look says to fly again.
+    from flyover.model.signoff import REJECT, Finding
+    campaign = load_campaign(tiny_copy / "campaign.yaml")
+    turning = Finding("flown as a pass", "no", "straight, level and steady", "", REJECT,
+                      "not flown as a pass: turning")
+    look = quick_look(campaign, "p1", tiny_copy / "look", also=[turning])
+    assert look["status"] == "rejected" and look["fly_again"]
+    assert look["findings"][0]["text"] == "not flown as a pass: turning"
+
+
 def test_the_coarse_grid_keeps_the_extent_and_thins_the_points():
     from flyover.geometry.vehicle import VehicleGrid
     grid = VehicleGrid((-3.0, 3.0), (-2.4, 2.4), 0.1)

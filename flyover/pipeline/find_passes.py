@@ -17,6 +17,7 @@ from flyover.io.atomic import write_text
 from flyover.io.config import flights_campaign
 from flyover.io.csvtable import write_csv
 from flyover.io.readers import read
+from flyover.model.signoff import REJECT, Finding
 from flyover.model.timebase import iso_utc
 from flyover.pipeline.context import common_span_s, load_layout, pass_recorders
 
@@ -60,6 +61,12 @@ class FlightFlyover:
 
     def utc_ns(self, t_s: float) -> int:
         return self.epoch_utc_ns + int(round(t_s * 1e9))
+
+    def flight_findings(self) -> list:
+        """Why the flyover was not flown as a pass (turning, climbing, speed, hovering, a log
+        that stops), as the sign-off's rejections: the quick look of it says to fly again."""
+        return [Finding("flown as a pass", "no", "straight, level and steady", "", REJECT,
+                        f"not flown as a pass: {why}") for why in self.found.problems]
 
     @property
     def problems(self) -> tuple[str, ...]:

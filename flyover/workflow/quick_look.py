@@ -57,7 +57,8 @@ def coarse_grid(grid: VehicleGrid, max_points: int = MAX_POINTS) -> VehicleGrid:
     return replace(grid, spacing_m=grid.spacing_m * k)
 
 
-def quick_look(campaign: Campaign, pass_name: str, folder, *, peers: dict | None = None) -> dict:
+def quick_look(campaign: Campaign, pass_name: str, folder, *, peers: dict | None = None,
+               also=()) -> dict:
     """Look at one pass quickly and say whether it must be flown again.
 
     Parameters
@@ -71,6 +72,8 @@ def quick_look(campaign: Campaign, pass_name: str, folder, *, peers: dict | None
         The label's other passes flown so far, name -> (height_m, speed_m_s), for the check
         against the label (default: those of the campaign's passes of the label that the
         workflow has aligned).
+    also : sequence of Finding
+        What is already known against the pass (the finder's verdict on how it was flown).
 
     Returns
     -------
@@ -136,7 +139,7 @@ def quick_look(campaign: Campaign, pass_name: str, folder, *, peers: dict | None
          "track_check": check},
         limits=campaign.signoff_limits, weather_limits=campaign.weather_limits,
         clock_given_s=an.uncertainty.clock_s, partial=campaign.passes[pass_name].partial)
-    findings += _label_findings(campaign, pass_name, alignment, peers)
+    findings = list(also) + findings + _label_findings(campaign, pass_name, alignment, peers)
     end_ns = int(inputs.clock.utc_ns(inputs.recording_span_s[1]))
     if span is not None and end_ns < span[1]:
         findings.append(Finding("recording", iso_utc(end_ns), iso_utc(span[1]), "", FLAG,
