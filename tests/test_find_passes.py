@@ -17,6 +17,14 @@ START_NS = int(pd.Timestamp("2026-06-01T11:00:00Z").value)
 LEGS = [(30.0, 10.0), (30.0, 10.0), (30.0, 10.0), (45.0, 12.0), (45.0, 12.0), (45.0, 12.0)]
 
 
+def write_track_csv(path, time_s, enu_m):
+    """A flight log in flyover's track CSV (site frame), its times from START_NS."""
+    utc = START_NS + np.round(np.asarray(time_s) * 1e9).astype(np.int64)
+    pd.DataFrame({"time_utc": [str(np.datetime64(int(v), "ns")) + "Z" for v in utc],
+                  "east_m": enu_m[:, 0], "north_m": enu_m[:, 1], "up_m": enu_m[:, 2]}).to_csv(
+        path, index=False)
+
+
 def write_flight_day(folder, *, recording_delay_s: float = 0.0):
     """Six passes back and forth at two heights and speeds, then a circle whose path crosses
     over the array and a hover over it, logged at 10 Hz with 3 cm of noise; the recorder runs
@@ -27,10 +35,7 @@ def write_flight_day(folder, *, recording_delay_s: float = 0.0):
     centre = load_layout(load_campaign(folder / "campaign.yaml"), "p1").center_enu_m
     time_s, enu, flown = racetrack_day(LEGS, circle_overhead=(45.0, 30.0, 8.0),
                                        hover_overhead_s=20.0, noise_m=0.03, seed=3)
-    utc = START_NS + np.round(time_s * 1e9).astype(np.int64)
-    pd.DataFrame({"time_utc": [str(np.datetime64(int(v), "ns")) + "Z" for v in utc],
-                  "east_m": enu[:, 0] + centre[0], "north_m": enu[:, 1] + centre[1],
-                  "up_m": enu[:, 2] + centre[2]}).to_csv(folder / "flight.csv", index=False)
+    write_track_csv(folder / "flight.csv", time_s, enu + centre)
     # The finder reads only the recording's header: a long, quiet file at a low rate.
     rate = 1000
     frames = int((time_s[-1] + 10.0 - recording_delay_s) * rate)
@@ -172,10 +177,7 @@ def test_a_flight_day_runs_from_one_recording_and_log(tiny_copy):
     atmosphere = campaign.passes["p1"].atmosphere
     write_flight_recording(tiny_copy / "flight.wav", scenario, time_s, enu, atmosphere,
                            start_s=1.0, duration_s=time_s[-1] - 2.0)
-    utc = START_NS + np.round(time_s * 1e9).astype(np.int64)
-    pd.DataFrame({"time_utc": [str(np.datetime64(int(v), "ns")) + "Z" for v in utc],
-                  "east_m": enu[:, 0], "north_m": enu[:, 1], "up_m": enu[:, 2]}).to_csv(
-        tiny_copy / "flight.csv", index=False)
+    write_track_csv(tiny_copy / "flight.csv", time_s, enu)
 
     def flight(d):
         d["flights"] = {"morning": {

@@ -374,13 +374,18 @@ def _fit_track(spec: PassSpec, samples: TrackSamples, clock: ArrayClock, wind_en
                      samples.attitude_deg, where=str(spec.track), wind_enu_m_s=wind_enu_m_s)
 
 
+def read_track(campaign: Campaign, spec: PassSpec) -> TrackSamples:
+    """The whole track file of a pass (or flight), in the site frame, on UTC."""
+    return read("track", spec.track, site=campaign.site, time_scale=spec.track_time_scale,
+                height_datum=spec.track_height_datum,
+                geoid_undulation_m=campaign.geoid_undulation_m)
+
+
 def _track_samples(campaign: Campaign, spec: PassSpec, clock: ArrayClock,
                    span_s: tuple[float, float]) -> TrackSamples:
     """The track file's samples over the recording and a margin (all of them when fewer than
     eight fall there: the coverage check then says what is wrong)."""
-    samples = read("track", spec.track, site=campaign.site, time_scale=spec.track_time_scale,
-                   height_datum=spec.track_height_datum,
-                   geoid_undulation_m=campaign.geoid_undulation_m)
+    samples = read_track(campaign, spec)
     near = samples.between(int(clock.utc_ns(span_s[0] - TRACK_MARGIN_S)),
                            int(clock.utc_ns(span_s[1] + TRACK_MARGIN_S)))
     return near if len(near.utc_ns) >= 8 else samples

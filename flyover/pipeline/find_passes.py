@@ -16,10 +16,9 @@ from flyover.geometry.flight_passes import (FoundPass, PassTolerances, find_flyo
 from flyover.io.atomic import write_text
 from flyover.io.config import flights_campaign
 from flyover.io.csvtable import write_csv
-from flyover.io.readers import read
 from flyover.model.signoff import REJECT, Finding
 from flyover.model.timebase import iso_utc
-from flyover.pipeline.context import common_span_s, load_layout, pass_recorders
+from flyover.pipeline.context import common_span_s, load_layout, pass_recorders, read_track
 
 # Reception times are placed with a nominal speed of sound: 1 % off moves them by 0.01 s at
 # 300 m, well inside the span's margin.
@@ -28,7 +27,8 @@ NOMINAL_C_M_S = 343.0
 # window: the windows at the extreme angles then lie inside it.
 SPAN_MARGIN_S = 1.0
 FILE_STEM = "found-passes"
-# 10 dB down under spherical spreading: sqrt(10) closest distances away, 3 of them along track.
+# 10 dB down under spherical spreading (the inverse-square law, common practice): sqrt(10)
+# closest distances away, sqrt(10 - 1) = 3 of them along the track.
 TEN_DB_DOWN_DISTANCES = 3.0
 
 
@@ -115,9 +115,7 @@ def _flight_flyovers(campaign: Campaign, name: str, tol: PassTolerances) -> list
     offset = 0.0 if spec.clock_offset_s == "auto" else float(spec.clock_offset_s)
     recorders, clock, _ = pass_recorders(campaign, name, layout, offset)
     rec = clock.utc_ns(np.array(common_span_s(clock, recorders)))
-    samples = read("track", spec.track, site=campaign.site, time_scale=spec.track_time_scale,
-                   height_datum=spec.track_height_datum,
-                   geoid_undulation_m=campaign.geoid_undulation_m)
+    samples = read_track(campaign, spec)
     epoch = int(samples.utc_ns[0])
     t = (samples.utc_ns - epoch) * 1e-9
     found = find_flyovers(t, samples.enu_m, layout.center_enu_m, tol)

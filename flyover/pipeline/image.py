@@ -40,6 +40,16 @@ READS = PASS_INPUTS + ("grid", "regions", "outline_m", "analysis.window_s", "ana
 
 
 
+def pass_windows(inputs, analysis, span_s=None) -> list:
+    """The emission-time windows the campaign's analysis plans on a pass, over its recording
+    (or over ``span_s``, seconds after the pass epoch)."""
+    return plan_windows(inputs.track, inputs.layout.center_enu_m,
+                        inputs.recording_span_s if span_s is None else span_s,
+                        analysis.window_s, analysis.hop_s, inputs.sample_rate_hz,
+                        max_polar_offset_deg=analysis.max_polar_offset_deg,
+                        polar_step_deg=analysis.window_polar_step_deg)
+
+
 def image_chain_settings(campaign: Campaign, inputs, bands) -> ChainSettings:
     """The pass's chain with the campaign's interpolation and method tunables."""
     an = campaign.analysis
@@ -58,7 +68,6 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path, *, threads: int = 1,
     atm = inputs.atmosphere
     clock = inputs.clock
     bands = third_octave_bands(an.band_min_hz, an.band_max_hz)
-    fs = inputs.sample_rate_hz
     settings = image_chain_settings(campaign, inputs, bands)
     points = campaign.grid.points_m()
     # The headline method first: its maps are the pass's; the others' go to the tables and a
@@ -71,10 +80,7 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path, *, threads: int = 1,
             print(f"{pass_name}: {', '.join(skipped)} skipped: they do not model the ground "
                   "reflection of raised microphones", file=sys.stderr)
     mics = inputs.layout.enu_m
-    windows = plan_windows(inputs.track, inputs.layout.center_enu_m, inputs.recording_span_s,
-                           an.window_s, an.hop_s, fs,
-                           max_polar_offset_deg=an.max_polar_offset_deg,
-                           polar_step_deg=an.window_polar_step_deg)
+    windows = pass_windows(inputs, an)
     progress = Progress(len(windows), f"{pass_name} imaging",
                         stream=io.StringIO() if quiet else None)
     rows, region_rows, maps_dr, maps_full, done = [], [], [], [], []

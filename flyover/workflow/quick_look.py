@@ -21,7 +21,6 @@ from flyover.acoustics.bands import a_weighting_db, third_octave_bands
 from flyover.acoustics.reference import level_1m_db
 from flyover.campaign import Campaign
 from flyover.geometry.vehicle import VehicleGrid
-from flyover.geometry.windows import plan_windows
 from flyover.imaging.methods import method_named
 from flyover.imaging.reception import valid_bands
 from flyover.imaging.window import TOTAL, image_window, window_context
@@ -33,7 +32,7 @@ from flyover.model.signoff import FLAG, Finding, label_findings, status_of
 from flyover.model.timebase import iso_utc
 from flyover.pipeline import align
 from flyover.pipeline.context import load_aligned_pass
-from flyover.pipeline.image import image_chain_settings, window_row
+from flyover.pipeline.image import image_chain_settings, pass_windows, window_row
 from flyover.pipeline.signoff import pass_findings
 from flyover.pipeline.trackcheck import track_check_record
 
@@ -96,10 +95,7 @@ def quick_look(campaign: Campaign, pass_name: str, folder, *, peers: dict | None
     span = campaign.passes[pass_name].span_utc_ns
     planned_s = (inputs.recording_span_s if span is None else
                  tuple(float(v) for v in inputs.clock.seconds_since_epoch(np.array(span))))
-    windows = plan_windows(inputs.track, inputs.layout.center_enu_m, planned_s,
-                           an.window_s, an.hop_s, inputs.sample_rate_hz,
-                           max_polar_offset_deg=an.max_polar_offset_deg,
-                           polar_step_deg=an.window_polar_step_deg)
+    windows = pass_windows(inputs, an, planned_s)
     rows, held = [], []
     for w in windows:
         ctx = window_context(w, track=inputs.track, clock=inputs.clock,
