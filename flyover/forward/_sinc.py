@@ -22,7 +22,7 @@ def sinc_table(half_width: int = SINC_HALF_WIDTH, beta: float = SINC_KAISER_BETA
     return np.sinc(x) * w
 
 
-@numba.njit(cache=True, fastmath=False)
+@numba.njit(cache=True, fastmath=False, parallel=True)
 def interp_sinc(signal, positions, table, half_width, steps):
     """Band-limited interpolation of a uniformly sampled signal at fractional sample positions.
 
@@ -30,7 +30,7 @@ def interp_sinc(signal, positions, table, half_width, steps):
     """
     n = signal.shape[0]
     out = np.empty(positions.shape[0], dtype=np.float64)
-    for k in range(positions.shape[0]):
+    for k in numba.prange(positions.shape[0]):
         x = positions[k]
         i0 = int(np.floor(x))
         acc = 0.0

@@ -21,7 +21,7 @@ from scipy.interpolate import CubicSpline
 from flyover.acoustics.atmosphere import Atmosphere
 from flyover.acoustics.bands import ThirdOctaveBands
 from flyover.acoustics.ground import GroundSurface, reflection_transfer
-from flyover.forward import _sinc
+from flyover.forward import _rotor, _sinc
 from flyover.geometry.frames import enu_from_body_matrix
 from flyover.geometry.propagation import emission_times_s
 from flyover.geometry.track import TrackModel
@@ -116,18 +116,13 @@ class ShaftSpeed:
         rps = np.asarray(self.rpm, float) / 60.0
         if len(knots) == 1:
             return rps[0] * t
-        # Cumulative revolutions at the knots from t = 0, then within each segment.
+        # The speed held beyond the knots, on a grid that reaches past every time.
         grid = np.concatenate([[min(knots[0], 0.0, t.min()) - 1.0], knots,
                                [max(knots[-1], 0.0, t.max()) + 1.0]])
         speed = np.interp(grid, knots, rps)
         cum = np.concatenate([[0.0], np.cumsum(np.diff(grid) * 0.5 * (speed[1:] + speed[:-1]))])
-        k = np.clip(np.searchsorted(grid, t, side="right") - 1, 0, len(grid) - 2)
-        at = np.interp(t, knots, rps)
-        rev = cum[k] + (t - grid[k]) * 0.5 * (speed[k] + at)
-        zero_k = int(np.clip(np.searchsorted(grid, 0.0, side="right") - 1, 0, len(grid) - 2))
-        zero = cum[zero_k] + (0.0 - grid[zero_k]) * 0.5 * (speed[zero_k]
-                                                           + np.interp(0.0, knots, rps))
-        return rev - zero
+        zero = _rotor.shaft_revolutions(np.zeros(1), grid, speed, cum, 0.0)[0]
+        return _rotor.shaft_revolutions(t.ravel(), grid, speed, cum, zero).reshape(t.shape)
 
 
 @dataclass(frozen=True)
@@ -258,15 +253,16 @@ class SourceSignal:
         if rotor is not None:
             rev = rotor.speed.revolutions(flat)
             rng = np.random.default_rng(rotor.seed)
-            for k, level in enumerate(rotor.levels_db, start=1):
-                amp = np.sqrt(2.0) * P0_PA * 10.0 ** (level / 20.0) * self.gain
-                start = rng.uniform(0.0, 2 * np.pi)
-                # Jitter: four slow sinusoids (0.3-3 Hz) of random phase, rms jitter_deg.
-                rates, phases = rng.uniform(0.3, 3.0, 4), rng.uniform(0, 2 * np.pi, 4)
-                jitter = (np.deg2rad(rotor.jitter_deg) / np.sqrt(2.0) * np.sum(
-                    np.sin(2 * np.pi * rates[:, None] * flat[None, :] + phases[:, None]), axis=0)
-                    / 2.0)
-                out += amp * np.cos(2 * np.pi * k * rotor.blades * rev + start + jitter)
+            n_h = len(rotor.levels_db)
+            starts, rates, phases = np.empty(n_h), np.empty((n_h, 4)), np.empty((n_h, 4))
+            for h in range(n_h):     # the draws in the order they were always made
+                starts[h] = rng.uniform(0.0, 2 * np.pi)
+                rates[h], phases[h] = rng.uniform(0.3, 3.0, 4), rng.uniform(0, 2 * np.pi, 4)
+            amps = np.sqrt(2.0) * P0_PA * 10.0 ** (np.asarray(rotor.levels_db) / 20.0) * self.gain
+            # Jitter: four slow sinusoids (0.3-3 Hz) of random phase, rms jitter_deg.
+            _rotor.add_rotor_harmonics(out, flat, rev, rotor.blades * np.arange(1.0, n_h + 1),
+                                       amps, starts, rates, phases,
+                                       np.deg2rad(rotor.jitter_deg) / np.sqrt(2.0) / 2.0)
         return out.reshape(tau.shape)
 
 

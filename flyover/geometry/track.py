@@ -13,9 +13,10 @@ from __future__ import annotations
 from dataclasses import dataclass, field, replace
 
 import numpy as np
-from scipy.interpolate import UnivariateSpline
-from scipy.spatial.transform import Rotation, Slerp
+from scipy.interpolate import PPoly, splrep
+from scipy.spatial.transform import Rotation
 
+from flyover.geometry.attitude import AttitudeKeys
 from flyover.geometry.frames import attitude_rotation, body_to_site, enu_from_body_matrix
 from flyover.model.errors import FlyoverInputError, require
 
@@ -50,13 +51,13 @@ class TrackModel:
     samples_enu_m: np.ndarray
     position_noise_m: float
     _splines: list = field(repr=False)
-    _slerp: Slerp | None = field(repr=False, default=None)
+    _attitude: AttitudeKeys | None = field(repr=False, default=None)
     wind_enu_m_s: np.ndarray = field(default_factory=lambda: np.zeros(3))
 
     @property
     def heading_source(self) -> str:
         """Where the yaw comes from, in words for the alignment and the report."""
-        if self._slerp is not None:
+        if self._attitude is not None:
             return "attitude in the track"
         if np.any(self.wind_enu_m_s[:2] != 0):
             return ("air-relative velocity (ground velocity minus the wind; no attitude in "
@@ -103,8 +104,8 @@ class TrackModel:
     def rotation(self, time_s) -> Rotation:
         """Attitude as a rotation from body axes to north-east-down."""
         t = self._check_inside(time_s)
-        if self._slerp is not None:
-            return self._slerp(t)
+        if self._attitude is not None:
+            return self._attitude(t)
         v = self.velocity(t) - self.wind_enu_m_s
         yaw = np.rad2deg(np.arctan2(v[..., 0], v[..., 1]))
         return attitude_rotation(yaw, 0.0, 0.0)
@@ -210,15 +211,17 @@ def fit_track(time_s, enu_m, position_noise_m: float, attitude_deg=None,
     p = np.asarray(enu_m, dtype=float)
     check_track_samples(t, p, position_noise_m, checks, where)
     n = len(t)
-    splines = [UnivariateSpline(t, p[:, k], w=np.full(n, 1.0 / position_noise_m),
-                                k=_SPLINE_DEGREE, s=float(n)) for k in range(3)]
-    slerp = None
+    # Fitted as B-splines, evaluated as polynomial pieces: the same curve (to 1e-13 m), nine
+    # times faster to evaluate at the emission-time solver's hundreds of thousands of times.
+    splines = [PPoly.from_spline(splrep(t, p[:, k], w=np.full(n, 1.0 / position_noise_m),
+                                        k=_SPLINE_DEGREE, s=float(n))) for k in range(3)]
+    keys = None
     if attitude_deg is not None:
         att = np.asarray(attitude_deg, dtype=float)
         require(np.all(np.isfinite(att)), "attitude is not a number", where,
                 "finite yaw, pitch and roll", "NaN or Inf")
-        slerp = Slerp(t, attitude_rotation(att[:, 0], att[:, 1], att[:, 2]))
-    return TrackModel(t, p, position_noise_m, splines, slerp, np.asarray(wind_enu_m_s, float))
+        keys = AttitudeKeys.from_rotations(t, attitude_rotation(att[:, 0], att[:, 1], att[:, 2]))
+    return TrackModel(t, p, position_noise_m, splines, keys, np.asarray(wind_enu_m_s, float))
 
 
 def straight_track(speed_m_s: float, height_m: float, heading_deg: float, overhead_s: float,

@@ -3,8 +3,9 @@
 from __future__ import annotations
 
 import numpy as np
-from scipy.spatial.transform import Rotation, Slerp
+from scipy.spatial.transform import Rotation
 
+from flyover.geometry.attitude import AttitudeKeys
 from flyover.geometry.frames import SiteFrame, attitude_rotation
 from flyover.model.errors import FlyoverInputError
 
@@ -36,7 +37,7 @@ def attitude_at(utc_ns, att_utc_ns, quat_wxyz) -> np.ndarray:
     t0 = int(att_utc_ns[0])
     ta = (np.asarray(att_utc_ns, np.int64) - t0) / 1e9
     t = np.clip((np.asarray(utc_ns, np.int64) - t0) / 1e9, ta[0], ta[-1])
-    ypr = Slerp(ta, rot)(t).as_euler("ZYX", degrees=True)
+    ypr = AttitudeKeys.from_rotations(ta, rot)(t).as_euler("ZYX", degrees=True)
     ypr[:, 0] = np.mod(ypr[:, 0], 360.0)
     return ypr
 
