@@ -64,6 +64,8 @@ def _parser() -> argparse.ArgumentParser:
     s = add("simulate", "write a simulated campaign (recordings, layout, tracks) from a scenario")
     s.add_argument("scenario", type=Path, help="the scenario file (YAML), e.g. demo/scenario.yaml")
     s.add_argument("--out", type=Path, required=True, help="folder for the generated files")
+    s.add_argument("--workers", type=int, default=1,
+                   help="passes simulated at a time, each in a process of its own (default 1)")
 
     k = add("calibrate", "derive pa_per_unit from a sound-calibrator recording")
     k.add_argument("recording", type=Path, help="the calibrator recording (WAV/FLAC)")
@@ -374,7 +376,7 @@ def _dispatch(args) -> int:
         return 0
     if args.command == "simulate":
         from flyover.sim.demo import write_campaign
-        write_campaign(args.scenario, args.out)
+        write_campaign(args.scenario, args.out, workers=args.workers)
         print(f"wrote the simulated campaign to {args.out}")
         return 0
     if args.command == "array-plan":

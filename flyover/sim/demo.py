@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from contextlib import ExitStack
 from pathlib import Path
 
 import numpy as np
@@ -148,53 +149,83 @@ def write_weather(path, scenario) -> None:
         float_format="%.3f")
 
 
-def write_campaign(scenario_path, out_dir, progress=print) -> None:
+def write_campaign(scenario_path, out_dir, progress=print, *, workers: int = 1) -> None:
     """Simulate every pass of a scenario and write the files a real campaign would have.
 
     Writes ``layout.csv``, ``<pass>/recording.wav|flac``, ``<pass>/calibration.csv``,
     ``<pass>/track.csv``, ``truth.csv`` (band levels of each source at 1 m) and, when the scenario
-    has a ``campaign`` block, a ready ``campaign.yaml``.
+    has a ``campaign`` block, a ready ``campaign.yaml``. With ``workers`` > 1 the passes are
+    simulated that many at a time, each in a process of its own (the files are the same).
     """
     scenario, site, raw = load_scenario(scenario_path)
     out = Path(out_dir)
-    fmt = raw["recording"].get("format", "wav")
-    subtype = raw["recording"].get("subtype", "FLOAT")
-    n_mics = len(scenario.mic_enu_m)
     _write_layout(out / "layout.csv", scenario.mic_enu_m, site)
-    bands = third_octave_bands(20, 10000)
+    names = [ps.name for ps in scenario.passes]
+    jobs = [(scenario_path, out, name) for name in names]
     truth_rows = []
-    for ps in scenario.passes:
-        progress(f"simulating {ps.name}: {n_mics} microphones, {ps.duration_s} s")
-        sim = simulate_pass(scenario, ps)
-        files = pass_files(out, ps, fmt, scenario.sample_rate_hz)
-        peak = float(np.max(np.abs(sim.units)))
-        if peak >= 1.0:
-            raise FlyoverInputError(f"simulated pass {ps.name} clips", str(scenario_path),
-                                    "a peak below full scale", f"{peak:.2f} of full scale",
-                                    "raise recording.pa_per_unit in the scenario")
-        if ps.recorders:
-            _write_recorders(ps, sim, scenario.sample_rate_hz, subtype, files["recorders"])
+    with ExitStack() as stack:
+        if workers <= 1 or len(names) <= 1:
+            done = (_write_pass(*job) for job in jobs)
         else:
-            write_recording(files["recording"], sim.units, scenario.sample_rate_hz, subtype)
-        write_csv(files["calibration"], pd.DataFrame({"channel": np.arange(1, n_mics + 1),
-                                                      "pa_per_unit": sim.pa_per_unit}),
-                  float_format="%.9g")
-        _write_track(files["track"], ps, sim, site, scenario.sources)
-        if "layout" in files:
-            _write_layout(files["layout"], pass_microphones(scenario, ps)[0], site,
-                          ps.mic_height_m)
-        for src in scenario.sources:
-            power = src.band_power_pa2(bands, ps.gain_db.get(src.name, 0.0))
-            for k in np.flatnonzero(power > 0):
-                truth_rows.append({"pass": ps.name, "source": src.name,
-                                   "band_hz": bands.nominal_hz[k],
-                                   "level_1m_db": level_1m_db(power[k])})
+            import multiprocessing
+            from concurrent.futures import ProcessPoolExecutor
+
+            import numba
+            # Each process takes its share of the cores for its compiled kernels. A fresh
+            # interpreter per process: forking after numba's threads have started is unsafe.
+            pool = stack.enter_context(ProcessPoolExecutor(
+                min(workers, len(names)), mp_context=multiprocessing.get_context("spawn"),
+                initializer=_share_threads,
+                initargs=(max(1, numba.config.NUMBA_NUM_THREADS // workers),)))
+            done = pool.map(_write_pass, *zip(*jobs))
+        for name, rows in zip(names, done):
+            progress(f"simulated {name}: {len(scenario.mic_enu_m)} microphones")
+            truth_rows += rows
     write_csv(out / "truth.csv", pd.DataFrame(truth_rows), float_format="%.4f")
     if scenario.weather is not None:
         write_weather(out / WEATHER_FILE, scenario)
     if "campaign" in raw:
+        fmt = raw["recording"].get("format", "wav")
         write_text(out / "campaign.yaml", yaml.safe_dump(_campaign_mapping(scenario, raw, fmt),
                                                          sort_keys=False))
+
+
+def _share_threads(threads: int) -> None:
+    import numba
+    numba.set_num_threads(threads)
+
+
+def _write_pass(scenario_path, out: Path, name: str) -> list[dict]:
+    """Simulate one pass of the scenario and write its files; its rows of the truth table."""
+    scenario, site, raw = load_scenario(scenario_path)
+    ps = next(p for p in scenario.passes if p.name == name)
+    fmt = raw["recording"].get("format", "wav")
+    subtype = raw["recording"].get("subtype", "FLOAT")
+    n_mics = len(scenario.mic_enu_m)
+    sim = simulate_pass(scenario, ps)
+    files = pass_files(out, ps, fmt, scenario.sample_rate_hz)
+    peak = float(np.max(np.abs(sim.units)))
+    if peak >= 1.0:
+        raise FlyoverInputError(f"simulated pass {ps.name} clips", str(scenario_path),
+                                "a peak below full scale", f"{peak:.2f} of full scale",
+                                "raise recording.pa_per_unit in the scenario")
+    if ps.recorders:
+        _write_recorders(ps, sim, scenario.sample_rate_hz, subtype, files["recorders"])
+    else:
+        write_recording(files["recording"], sim.units, scenario.sample_rate_hz, subtype)
+    write_csv(files["calibration"], pd.DataFrame({"channel": np.arange(1, n_mics + 1),
+                                                  "pa_per_unit": sim.pa_per_unit}),
+              float_format="%.9g")
+    _write_track(files["track"], ps, sim, site, scenario.sources)
+    if "layout" in files:
+        _write_layout(files["layout"], pass_microphones(scenario, ps)[0], site, ps.mic_height_m)
+    bands = third_octave_bands(20, 10000)
+    rows = []
+    for src in scenario.sources:
+        power = src.band_power_pa2(bands, ps.gain_db.get(src.name, 0.0))
+        rows += [{"pass": ps.name, "source": src.name, "band_hz": bands.nominal_hz[k],
+                  "level_1m_db": level_1m_db(power[k])} for k in np.flatnonzero(power > 0)]
+    return rows
 
 
 def _campaign_mapping(scenario, raw, fmt) -> dict:

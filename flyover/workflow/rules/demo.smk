@@ -16,10 +16,12 @@ if PLAN.simulation_folder is not None and not all(Path(f).exists()
             f"{OUTP}/logs/simulate_demo.log",
         benchmark:
             f"{OUTP}/benchmarks/simulate_demo.tsv"
+        # Nothing else can start before the data exist: every core simulates, a pass each.
+        threads: workflow.cores
         resources:
-            mem_mb=4000,
+            mem_mb=lambda wildcards, threads: 2000 * threads,
         conda:
             CONDA_ENV,
         shell:
             '"$FLYOVER_PYTHON" -m flyover simulate {input.scenario:q} --out {params.folder:q} '
-            "> {log:q} 2>&1"
+            "--workers {threads} > {log:q} 2>&1"
