@@ -180,8 +180,18 @@ def test_several_methods_in_one_run(tiny_copy):
     assert campaign.analysis.other_methods == ("frequency-domain", "clean-sc")
     out = tiny_copy / "results" / "p1"
     align.run(campaign, "p1", out)
+    (out / "maps").mkdir(parents=True)
+    (out / "maps" / "window-099.png").write_bytes(b"from an earlier run")
     image.run(campaign, "p1", out, threads=2, quiet=True)
     levels.run(campaign, "p1", out)
+    # Map figures for the windows nearest 60, 90 and 120 deg (the pass page's) and the
+    # methods' window; an earlier run's figure is gone.
+    windows = pd.read_csv(out / "windows.csv").query("status == 'analysed'")
+    shown = {int(windows.loc[(windows["polar_angle_deg"] - t).abs().idxmin(), "window"])
+             for t in (60.0, 90.0, 120.0)}
+    headline = {p.name for p in (out / "maps").glob("window-???.png")}
+    assert len(windows) > len(shown) and headline >= {f"window-{w:03d}.png" for w in shown}
+    assert len(headline) <= len(shown) + 1 and "window-099.png" not in headline
     powers = pd.read_csv(out / "region_power.csv")
     assert set(powers["method"]) == {"time-domain", "frequency-domain", "clean-sc"}
     by_method = pd.read_csv(out / "levels_by_method.csv")

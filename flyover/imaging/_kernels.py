@@ -633,3 +633,75 @@ def clean_lines(lines, s2, n_removed, d, pmap, loop_gain, max_sources, floor, fo
                               pmap_k)
                 n_pending = 0
         _catch_up_all(lines[k], since, n_pending, hr, hi, weight, lift, n_removed, pmap_k)
+
+
+@numba.njit(cache=True, inline="always")
+def _hann_squared_mean(x):
+    """Mean of e^(-i 2 pi x u / T) over a window weighted by the squared periodic Hann window:
+    sinc(x) + 2/3 (sinc(x - 1) + sinc(x + 1)) + 1/6 (sinc(x - 2) + sinc(x + 2)) (cos^4 is
+    3/8 + cos(2 pi u / T) / 2 + cos(4 pi u / T) / 8). The five sines are one up to sign:
+    sin(pi (x - k)) = (-1)^k sin(pi x), with sin(pi x) taken from x less its nearest integer
+    (exact), so every term keeps its accuracy next to its pole."""
+    n = np.floor(x + 0.5)
+    s = np.sin(np.pi * (x - n))
+    if n % 2.0 != 0.0:
+        s = -s
+    total = 0.0
+    for k in range(-2, 3):
+        d = x - k
+        weight = 1.0 if k == 0 else (2.0 / 3.0 if abs(k) == 1 else 1.0 / 6.0)
+        if d == 0.0:
+            total += weight
+        else:
+            total += weight * (s if k % 2 == 0 else -s) / (np.pi * d)
+    return total
+
+
+@numba.njit(parallel=True, cache=True)
+def ground_power_gains(ratio, delay_s, delay_rate, q_re, q_im, freq_hz, duration_s, weights,
+                       floor, full, removed):
+    """The expected full and diagonal-removed map power relative to free field of a source at
+    each grid point, per line, for microphones that also receive the ground's reflection
+    (:func:`flyover.imaging.ground_gains.ground_gains` states the model).
+
+    Parameters
+    ----------
+    ratio, delay_s, delay_rate : float64 arrays (n_points, n_mics)
+    q_re, q_im : float64 arrays (n_mics, n_lines)
+        The ground's Q per microphone and line.
+    freq_hz : float64 array (n_lines,)
+    duration_s : float
+    weights : float64 array (n_mics,)
+    floor : float
+        The least relative power either gain may take.
+    full, removed : float64 arrays (n_points, n_lines)
+        Filled in place.
+    """
+    n_points, n_mics = ratio.shape
+    s1 = 0.0
+    s2 = 0.0
+    for m in range(n_mics):
+        s1 += weights[m]
+        s2 += weights[m] * weights[m]
+    for g in numba.prange(n_points):
+        for j in range(freq_hz.shape[0]):
+            f = freq_hz[j]
+            zw = 0.0          # Re sum w z W
+            sz_re = 0.0       # sum w z
+            sz_im = 0.0
+            auto = 0.0
+            for m in range(n_mics):
+                phase = -2.0 * np.pi * f * delay_s[g, m]
+                c = np.cos(phase)
+                s = np.sin(phase)
+                z_re = ratio[g, m] * (q_re[m, j] * c - q_im[m, j] * s)
+                z_im = ratio[g, m] * (q_re[m, j] * s + q_im[m, j] * c)
+                sweep = _hann_squared_mean(f * delay_rate[g, m] * duration_s)
+                w = weights[m]
+                zw += w * z_re * sweep
+                sz_re += w * z_re
+                sz_im += w * z_im
+                auto += w * w * (1.0 + z_re * z_re + z_im * z_im + 2.0 * z_re * sweep)
+            beam = s1 * s1 + 2.0 * s1 * zw + sz_re * sz_re + sz_im * sz_im
+            full[g, j] = max(beam / (s1 * s1), floor)
+            removed[g, j] = max((beam - auto) / (s1 * s1 - s2), floor)

@@ -4,10 +4,10 @@ chain divides (:func:`flyover.imaging.dedoppler.window_band_powers`)."""
 
 from __future__ import annotations
 
-
 import numpy as np
 
 from flyover.acoustics.ground import GroundSurface, reflection_transfer
+from flyover.imaging import _kernels
 from flyover.imaging.reception import ImagePaths
 
 
@@ -31,14 +31,6 @@ def ground_q(image: ImagePaths, frequency_hz, c_m_s: float,
                                image.path_m.mean(axis=0)[:, None], c_m_s, surface)
 
 
-def _hann_squared_mean(x) -> np.ndarray:
-    """Mean of e^(-i 2 pi x u / T) over a window of length T weighted by the square of the
-    periodic Hann window (the weight of a windowed band power): real, 1 at x = 0.
-    cos^4 = 3/8 + cos(2 pi u / T) / 2 + cos(4 pi u / T) / 8, each term a sinc."""
-    return (np.sinc(x) + (2 / 3) * (np.sinc(x - 1) + np.sinc(x + 1))
-            + (1 / 6) * (np.sinc(x - 2) + np.sinc(x + 2)))
-
-
 def ground_gains(image: ImagePaths, q, frequency_hz, duration_s: float,
                  weights) -> tuple[np.ndarray, np.ndarray]:
     """What the reflection of raised microphones does to the maps of a source at the grid
@@ -57,14 +49,12 @@ def ground_gains(image: ImagePaths, q, frequency_hz, duration_s: float,
     into other grid points cancels in source power integration (the unit sources carry it too).
     """
     f = np.asarray(frequency_hz, float)
-    w = np.asarray(weights, float)[None, :, None]
-    z = image.ratio[..., None] * q[None] * np.exp(
-        -2j * np.pi * f[None, None, :] * image.delay_s[..., None])
-    sweep = _hann_squared_mean(f[None, None, :] * image.delay_rate[..., None] * duration_s)
-    s1, s2 = float(w.sum()), float((w ** 2).sum())
-    zw = np.sum(w * z * sweep, axis=1)
-    beam = s1 ** 2 + 2.0 * s1 * zw.real + np.abs(np.sum(w * z, axis=1)) ** 2
-    auto = np.sum(w ** 2 * (1.0 + np.abs(z) ** 2 + 2.0 * (z * sweep).real), axis=1)
-    full = beam / s1 ** 2
-    removed = (beam - auto) / (s1 ** 2 - s2)
-    return (np.maximum(full, GROUND_POWER_FLOOR), np.maximum(removed, GROUND_POWER_FLOOR))
+    q = np.broadcast_to(np.asarray(q, complex), (image.ratio.shape[1], len(f)))
+    full = np.empty((image.ratio.shape[0], len(f)))
+    removed = np.empty_like(full)
+    _kernels.ground_power_gains(
+        *(np.ascontiguousarray(a, float) for a in (image.ratio, image.delay_s,
+                                                   image.delay_rate, q.real, q.imag, f)),
+        float(duration_s), np.ascontiguousarray(weights, float), GROUND_POWER_FLOOR, full,
+        removed)
+    return full, removed

@@ -19,7 +19,8 @@ from flyover.imaging.methods import method_named
 from flyover.imaging.resolution import main_lobe_width_m
 from flyover.imaging.window import TOTAL, image_window, window_context
 from flyover.io.figures import map_figure, save_figure
-from flyover.io.results.maps import FIGURE_FOLDER, window_figure_name, write_maps
+from flyover.io.results.maps import (FIGURE_FOLDER, figure_windows, window_figure_name,
+                                     write_maps)
 from flyover.io.results.region_angles import REGION_ANGLES
 from flyover.io.results.region_power import REGION_POWER
 from flyover.io.results.windows import NO_WINDOW, WINDOWS
@@ -84,6 +85,7 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path, *, threads: int = 1,
     progress = Progress(len(windows), f"{pass_name} imaging",
                         stream=io.StringIO() if quiet else None)
     rows, region_rows, maps_dr, maps_full, done = [], [], [], [], []
+    drawn = {}      # window -> what its map figures would show
     nx, ny = campaign.grid.shape
     for w in windows:
         row = window_row(w, clock, inputs.layout.center_enu_m)
@@ -115,22 +117,17 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path, *, threads: int = 1,
         maps_dr.append(res.diagonal_removed.T.reshape(len(bands), nx, ny))
         maps_full.append(res.full.T.reshape(len(bands), nx, ny))
         done.append(w)
-        fig = map_figure(res.diagonal_removed if an.diagonal_removal else res.full, campaign,
-                         bands, pass_name, row, an.map_dynamic_range_db, res.verdicts)
-        save_figure(fig, out_dir / FIGURE_FOLDER / window_figure_name(w.index))
+        shown = [(pass_name, _shown_maps(res, an), res.verdicts)]
         if len(methods) > 1 and w.index == _nearest_overhead(windows):
-            for method, other in zip(methods[1:], results[1:]):
-                fig = map_figure(other.diagonal_removed if an.diagonal_removal else other.full,
-                                 campaign, bands, f"{pass_name} ({method.name})", row,
-                                 an.map_dynamic_range_db, other.verdicts)
-                save_figure(fig, out_dir / FIGURE_FOLDER / window_figure_name(w.index,
-                                                                            method.name))
+            shown += [(f"{pass_name} ({m.name})", _shown_maps(other, an), other.verdicts, m.name)
+                      for m, other in zip(methods[1:], results[1:])]
+        drawn[w.index] = (row, shown)
         progress.step(f"window {w.index} at {w.polar_angle_deg:.0f} deg")
     progress.close()
     if not windows:
         print(f"{pass_name}: {NO_WINDOW}", file=sys.stderr)
     # The figures' folder exists even when no window could be analysed: the step still succeeded.
-    (out_dir / FIGURE_FOLDER).mkdir(parents=True, exist_ok=True)
+    _draw_maps(out_dir / FIGURE_FOLDER, drawn, done, campaign, bands)
     WINDOWS.write(out_dir, pd.DataFrame(rows))
     REGION_POWER.write(out_dir, pd.DataFrame(region_rows, columns=REGION_POWER.column_names))
     REGION_ANGLES.write(out_dir, _angle_rows(done, campaign, inputs))
@@ -142,6 +139,32 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path, *, threads: int = 1,
                polar_angle_deg=[w.polar_angle_deg for w in done],
                diagonal_removed=np.array(maps_dr, np.float32).reshape(shape),
                full=np.array(maps_full, np.float32).reshape(shape))
+
+
+def _draw_maps(folder: Path, drawn: dict, done, campaign, bands) -> None:
+    """The map figures of the windows the pass page shows, and of the other methods at the
+    window nearest overhead; figures of an earlier run that this one did not draw are removed
+    (the folder is the step's output)."""
+    folder.mkdir(parents=True, exist_ok=True)
+    an = campaign.analysis
+    keep = set(figure_windows([w.index for w in done], [w.polar_angle_deg for w in done]))
+    keep |= {w for w, (_, shown) in drawn.items() if len(shown) > 1}
+    written = set()
+    for w in sorted(keep):
+        row, shown = drawn[w]
+        for title, maps, verdicts, *method in shown:
+            fig = map_figure(maps, campaign, bands, title, row, an.map_dynamic_range_db, verdicts)
+            name = window_figure_name(w, *method)
+            save_figure(fig, folder / name)
+            written.add(name)
+    for old in folder.glob("window-*.png"):
+        if old.name not in written:
+            old.unlink()
+
+
+def _shown_maps(res, analysis) -> np.ndarray:
+    """The maps a figure shows: diagonal-removed when the analysis removes the diagonal."""
+    return res.diagonal_removed if analysis.diagonal_removal else res.full
 
 
 def _nearest_overhead(windows) -> int:

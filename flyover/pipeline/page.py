@@ -21,7 +21,8 @@ from flyover.io.results import report as report_file
 from flyover.io.results.alignment import clock_uncertainty_s, pass_atmosphere, read_alignment
 from flyover.io.results.directivity import DIRECTIVITY_FIGURE
 from flyover.io.results.event_metrics import EVENT_METRICS, LEVEL_HISTORY_FIGURE, RECONSTRUCTED
-from flyover.io.results.maps import FIGURE_FOLDER, method_figures, window_figure_name
+from flyover.io.results.maps import (FIGURE_FOLDER, figure_windows, method_figures,
+                                     window_figure_name)
 from flyover.io.results.narrowband import NARROWBAND_FIGURE
 from flyover.io.results.rotor_tones import ROTOR_TONES, ROTOR_TONES_FIGURE
 from flyover.io.results.spectra import SPECTRA_FIGURE
@@ -119,14 +120,8 @@ def pass_body(campaign: Campaign, name: str, d: Path) -> str:
         "atmosphere profile": _profile_text(al["atmosphere"])}]).T.reset_index()
     conditions.columns = ["quantity", "value"]
     conditions["value"] = conditions["value"].astype(str)
-    maps = []
-    if len(done):
-        for target in (60.0, 90.0, 120.0):
-            k = int((done["polar_angle_deg"] - target).abs().idxmin())
-            w = int(done.loc[k, "window"])
-            maps.append(embedded_image(d / FIGURE_FOLDER / window_figure_name(w),
-                               f"maps of window {w}"))
-    maps = list(dict.fromkeys(maps))
+    maps = [embedded_image(d / FIGURE_FOLDER / window_figure_name(w), f"maps of window {w}")
+            for w in figure_windows(done["window"], done["polar_angle_deg"])]
     compared = method_figures(d)
     if compared:
         # The window nearest overhead by every method: the headline's maps, then the others'.

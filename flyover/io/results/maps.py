@@ -20,6 +20,28 @@ NAME = "maps.npz"
 FIGURE_FOLDER = "maps"
 
 
+# Map figures are drawn for the analysed windows nearest these polar angles (the ones the pass
+# page shows, about a second each to draw); every window's maps are in the archive and the
+# viewer.
+FIGURE_POLAR_DEG = (60.0, 90.0, 120.0)
+
+
+def figure_windows(window, polar_angle_deg) -> list[int]:
+    """The analysed windows whose map figures are drawn: the first nearest to each of
+    :data:`FIGURE_POLAR_DEG`, each once, in that order.
+
+    Parameters
+    ----------
+    window : array_like of int, shape (n,)
+    polar_angle_deg : array_like of float, shape (n,)
+    """
+    w = np.asarray(window, int)
+    polar = np.asarray(polar_angle_deg, float)
+    if not len(w):
+        return []
+    return list(dict.fromkeys(int(w[np.argmin(np.abs(polar - t))]) for t in FIGURE_POLAR_DEG))
+
+
 def window_figure_name(window: int, method: str | None = None) -> str:
     """The map figure of a window (of another method than the headline one)."""
     return f"window-{window:03d}.png" if method is None else f"window-{window:03d}-{method}.png"
