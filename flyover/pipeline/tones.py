@@ -152,10 +152,13 @@ def band_parts(levels: pd.DataFrame, tones: pd.DataFrame, campaign: Campaign) ->
         t = tones.assign(band=np.searchsorted(bands.upper_hz, tones["frequency_hz"]))
         t = t[(t["band"] < len(bands)) & (t["frequency_hz"] >= bands.lower_hz[0])]
         t["band_hz"] = bands.nominal_hz[t["band"].to_numpy()]
+        cells = dict(list(t.groupby(["window", "band_hz"])))
         for i, row in out.iterrows():
-            here = t[(t["window"] == row["window"]) & (t["band_hz"] == row["band_hz"])
-                     & t["rotor"].map(lambda r: row["region"] == TOTAL
-                                      or row["region"] in home.get(r, []))]
+            cell = cells.get((row["window"], row["band_hz"]))
+            if cell is None:
+                continue
+            here = cell[cell["rotor"].map(lambda r: row["region"] == TOTAL
+                                          or row["region"] in home.get(r, []))]
             if len(here) == 0:
                 continue
             if not here["separable"].astype(bool).all():
