@@ -323,3 +323,21 @@ def test_a_tone_under_incoherent_noise_10_db_above_it(tmp_path):
     first = table[table["harmonic"] == 1]
     assert len(first) >= 3
     assert np.max(np.abs(first["level_1m_db"] - HARMONICS_DB[0])) < 1.5
+
+
+def test_speed_search_scores_a_trial_by_the_residual_lstsq_leaves():
+    # The search's residual from the normal equations against numpy's lstsq (SVD; a
+    # general-purpose reference) on two rotors' columns 3 % apart in speed, with noise.
+    from flyover.acoustics.orders import _design, _residual_power
+    t = np.arange(6400) / FS
+    tracks = [OrderTrack("a", k * 2, k, ShaftSpeed.constant(6000.0).revolutions(t))
+              for k in (1, 2, 3)]
+    tracks += [OrderTrack("b", k * 3, k, ShaftSpeed.constant(4120.0).revolutions(t))
+               for k in (1, 2)]
+    groups = separable_groups(tracks)
+    design = _design(tracks, groups)
+    rng = np.random.default_rng(8)
+    x = design @ rng.normal(0, 1, design.shape[1]) + rng.normal(0, 0.1, len(t))
+    coef, *_ = np.linalg.lstsq(design, x, rcond=None)
+    expected = float(np.sum((x - design @ coef) ** 2))
+    assert _residual_power(x, design) == pytest.approx(expected, rel=1e-10)
