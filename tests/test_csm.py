@@ -500,3 +500,20 @@ def test_clean_sc_is_the_same_compiled_afresh_and_from_the_cache(tmp_path):
                            text=True) for _ in range(2)]
     assert all(r.returncode == 0 for r in runs), runs[0].stderr[-2000:]
     assert runs[0].stdout == runs[1].stdout
+
+
+def test_method_names_known_without_importing_the_methods(tiny_campaign_dir):
+    # The campaign file's check lists the methods from their modules' names; importing them
+    # registers the same names, and a light step's check loads no compiled kernels.
+    import subprocess
+    import sys
+
+    from flyover.imaging.methods import method_names, methods
+    assert method_names() == sorted(methods())
+    probe = ("import sys; from flyover.io.config import load_campaign; "
+             "load_campaign(sys.argv[1]); "
+             "print('numba' in sys.modules, 'flyover.imaging._kernels' in sys.modules)")
+    out = subprocess.run([sys.executable, "-c", probe,
+                          str(tiny_campaign_dir / "campaign.yaml")],
+                         capture_output=True, text=True, check=True).stdout
+    assert out.split() == ["False", "False"]

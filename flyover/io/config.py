@@ -13,7 +13,7 @@ from flyover.acoustics.ground import GroundSurface
 from flyover.geometry.frames import SiteFrame
 from flyover.acoustics.hemisphere import HemisphereSettings
 from flyover.acoustics.uncertainty import InputUncertainty
-from flyover.imaging.methods import DEFAULT_METHOD, methods
+from flyover.imaging.methods import DEFAULT_METHOD, method_names, methods
 from flyover.io.timestamps import parse_utc_ns, parse_utc_ns_array
 from flyover.io.yamlfile import read_yaml, validate_mapping
 from flyover.campaign import (AnalysisSettings, ArraySpec, Campaign, PassSpec,
@@ -88,7 +88,7 @@ def _hemisphere(h: dict) -> HemisphereSettings:
 
 
 def _imaging_method(name: str, source: str, key: str = "analysis.method") -> str:
-    known = sorted(methods())
+    known = method_names()
     if name not in known:
         raise FlyoverInputError(f"unknown imaging method '{name}'",
                                 f"{source}, key {key}",
