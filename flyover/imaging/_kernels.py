@@ -636,16 +636,17 @@ def clean_lines(lines, s2, n_removed, d, pmap, loop_gain, max_sources, floor, fo
 
 
 @numba.njit(cache=True, inline="always")
-def _hann_squared_mean(x):
-    """Mean of e^(-i 2 pi x u / T) over a window weighted by the squared periodic Hann window:
-    sinc(x) + 2/3 (sinc(x - 1) + sinc(x + 1)) + 1/6 (sinc(x - 2) + sinc(x + 2)) (cos^4 is
-    3/8 + cos(2 pi u / T) / 2 + cos(4 pi u / T) / 8). The five sines are one up to sign:
-    sin(pi (x - k)) = (-1)^k sin(pi x), with sin(pi x) taken from x less its nearest integer
-    (exact), so every term keeps its accuracy next to its pole."""
+def _sin_pi(x):
+    """sin(pi x), from x less its nearest integer (exact), so that it keeps its relative
+    accuracy next to every integer."""
     n = np.floor(x + 0.5)
     s = np.sin(np.pi * (x - n))
-    if n % 2.0 != 0.0:
-        s = -s
+    return -s if n % 2.0 != 0.0 else s
+
+
+@numba.njit(cache=True, inline="always")
+def _hann_squared_sum(x, sin_pi_x):
+    """:func:`_hann_squared_mean` from x and sin(pi x): sin(pi (x - k)) = (-1)^k sin(pi x)."""
     total = 0.0
     for k in range(-2, 3):
         d = x - k
@@ -653,8 +654,22 @@ def _hann_squared_mean(x):
         if d == 0.0:
             total += weight
         else:
-            total += weight * (s if k % 2 == 0 else -s) / (np.pi * d)
+            total += weight * (sin_pi_x if k % 2 == 0 else -sin_pi_x) / (np.pi * d)
     return total
+
+
+@numba.njit(cache=True)
+def _hann_squared_mean(x):
+    """Mean of e^(-i 2 pi x u / T) over a window weighted by the squared periodic Hann window:
+    sinc(x) + 2/3 (sinc(x - 1) + sinc(x + 1)) + 1/6 (sinc(x - 2) + sinc(x + 2)) (cos^4 is
+    3/8 + cos(2 pi u / T) / 2 + cos(4 pi u / T) / 8). The five sines are one up to sign, taken
+    where each term keeps its accuracy next to its pole (:func:`_sin_pi`)."""
+    return _hann_squared_sum(x, _sin_pi(x))
+
+
+# Lines of a band are evenly spaced: the reflection's phase and the sweep's sine step from line
+# to line by a rotation, taken afresh every LINE_RESTART lines (rounding then stays near 1e-14).
+LINE_RESTART = 32
 
 
 @numba.njit(parallel=True, cache=True)
@@ -670,6 +685,7 @@ def ground_power_gains(ratio, delay_s, delay_rate, q_re, q_im, freq_hz, duration
     q_re, q_im : float64 arrays (n_mics, n_lines)
         The ground's Q per microphone and line.
     freq_hz : float64 array (n_lines,)
+        Evenly spaced frequencies.
     duration_s : float
     weights : float64 array (n_mics,)
     floor : float
@@ -678,30 +694,55 @@ def ground_power_gains(ratio, delay_s, delay_rate, q_re, q_im, freq_hz, duration
         Filled in place.
     """
     n_points, n_mics = ratio.shape
+    n_lines = freq_hz.shape[0]
+    df = freq_hz[1] - freq_hz[0] if n_lines > 1 else 0.0
     s1 = 0.0
     s2 = 0.0
     for m in range(n_mics):
         s1 += weights[m]
         s2 += weights[m] * weights[m]
     for g in numba.prange(n_points):
-        for j in range(freq_hz.shape[0]):
-            f = freq_hz[j]
-            zw = 0.0          # Re sum w z W
-            sz_re = 0.0       # sum w z
-            sz_im = 0.0
-            auto = 0.0
-            for m in range(n_mics):
-                phase = -2.0 * np.pi * f * delay_s[g, m]
-                c = np.cos(phase)
-                s = np.sin(phase)
-                z_re = ratio[g, m] * (q_re[m, j] * c - q_im[m, j] * s)
-                z_im = ratio[g, m] * (q_re[m, j] * s + q_im[m, j] * c)
-                sweep = _hann_squared_mean(f * delay_rate[g, m] * duration_s)
-                w = weights[m]
-                zw += w * z_re * sweep
-                sz_re += w * z_re
-                sz_im += w * z_im
-                auto += w * w * (1.0 + z_re * z_re + z_im * z_im + 2.0 * z_re * sweep)
-            beam = s1 * s1 + 2.0 * s1 * zw + sz_re * sz_re + sz_im * sz_im
+        zw = np.zeros(n_lines)          # Re sum w z W
+        sz_re = np.zeros(n_lines)       # sum w z
+        sz_im = np.zeros(n_lines)
+        auto = np.zeros(n_lines)
+        for m in range(n_mics):
+            w = weights[m]
+            r = ratio[g, m]
+            # The phase -2 pi f delay and the sweep's pi x (x = f rate T) step with the line.
+            step_c = np.cos(2.0 * np.pi * df * delay_s[g, m])
+            step_s = -np.sin(2.0 * np.pi * df * delay_s[g, m])
+            x_step = df * delay_rate[g, m] * duration_s
+            sweep_c = np.cos(np.pi * x_step)
+            sweep_s = np.sin(np.pi * x_step)
+            c = 1.0
+            s = 0.0
+            sin_x = 0.0
+            cos_x = 1.0
+            for j in range(n_lines):
+                f = freq_hz[j]
+                x = f * delay_rate[g, m] * duration_s
+                if j % LINE_RESTART == 0:
+                    phase = -2.0 * np.pi * f * delay_s[g, m]
+                    c = np.cos(phase)
+                    s = np.sin(phase)
+                    sin_x = _sin_pi(x)
+                    n = np.floor(x + 0.5)
+                    cos_x = np.cos(np.pi * (x - n))
+                    if n % 2.0 != 0.0:
+                        cos_x = -cos_x
+                else:
+                    c, s = c * step_c - s * step_s, s * step_c + c * step_s
+                    sin_x, cos_x = (sin_x * sweep_c + cos_x * sweep_s,
+                                    cos_x * sweep_c - sin_x * sweep_s)
+                z_re = r * (q_re[m, j] * c - q_im[m, j] * s)
+                z_im = r * (q_re[m, j] * s + q_im[m, j] * c)
+                sweep = _hann_squared_sum(x, sin_x)
+                zw[j] += w * z_re * sweep
+                sz_re[j] += w * z_re
+                sz_im[j] += w * z_im
+                auto[j] += w * w * (1.0 + z_re * z_re + z_im * z_im + 2.0 * z_re * sweep)
+        for j in range(n_lines):
+            beam = s1 * s1 + 2.0 * s1 * zw[j] + sz_re[j] * sz_re[j] + sz_im[j] * sz_im[j]
             full[g, j] = max(beam / (s1 * s1), floor)
-            removed[g, j] = max((beam - auto) / (s1 * s1 - s2), floor)
+            removed[g, j] = max((beam - auto[j]) / (s1 * s1 - s2), floor)

@@ -129,15 +129,16 @@ def dedopplerized_signals(signals_pa, first_frame, geometry: ReceptionGeometry,
 
 
 def _read_points(reading, geometry: ReceptionGeometry, window: Window, settings: ChainSettings,
-                 points) -> np.ndarray:
+                 points, *, q: int = 1) -> np.ndarray:
     """:func:`dedopplerized_signals` from the signals as read (:func:`_reading`), which a
-    caller going through a window's points chunk by chunk forms once."""
+    caller going through a window's points chunk by chunk forms once; every ``q``-th emission
+    sample (``q`` divides the node step), (n_points, n_mics, ceil(n_samples / q))."""
     sig, origin, scale = reading
     rx = (geometry.reception_s[points] - origin[:, None]) * scale[:, None]
     _check_reads(rx, sig)
     amp = geometry.amplitude[points].astype(np.float32)
-    out = np.empty((rx.shape[0], rx.shape[1], window.n_samples), dtype=np.float32)
-    _kernels.dedoppler_cubic(sig, np.ascontiguousarray(rx), amp, settings.node_step, out)
+    out = np.empty((rx.shape[0], rx.shape[1], -(-window.n_samples // q)), dtype=np.float32)
+    _kernels.dedoppler_cubic(sig, np.ascontiguousarray(rx), amp, settings.node_step // q, out)
     return out
 
 
@@ -373,27 +374,38 @@ def lowpassed(signals, pass_hz: float, stop_hz: float, sample_rate_hz: float) ->
 
 
 def _per_microphone_band_powers(chain: _UsedChain, window: Window, settings: ChainSettings,
-                                atmosphere: Atmosphere, *, workers: int = 1) -> BandPowers:
+                                atmosphere: Atmosphere, *, workers: int = 1,
+                                reduce_rate: bool = True) -> BandPowers:
     """The maps from every microphone's spectrum per point: the beam and the autopowers per
     line, with the ground reflection of raised microphones undone per line (the reference
-    the summed chain is tested against in free field)."""
+    the summed chain is tested against in free field, with ``reduce_rate=False``).
+
+    With ``reduce_rate`` the de-Dopplerized signals are formed at the summed chain's reduced
+    rate (:func:`decimation`, after its low-pass): the same lines, a quarter of the reads and
+    of the spectra's length where the bands allow it.
+    """
     sub = chain.geometry
     n_grid = sub.reception_s.shape[0]
     w_used = chain.weights.astype(np.float32)
     s1, s2 = float(w_used.sum()), float((w_used.astype(float) ** 2).sum())
     gain = chain.gain
-    win, norm = spectral_weights(window.n_samples)
-    bins = band_bins(settings.bands, window.n_samples, window.sample_rate_hz)
-    freqs = np.fft.rfftfreq(window.n_samples, 1.0 / window.sample_rate_hz)
-    q = (None if sub.image is None else
-         ground_q(sub.image, freqs, atmosphere.c_m_s, settings.ground))
+    q, pass_hz, stop_hz = (decimation(settings, sub, window.sample_rate_hz) if reduce_rate
+                           else (1, np.nan, np.nan))
+    signals = chain.signals if q == 1 else lowpassed(chain.signals, pass_hz, stop_hz,
+                                                     window.sample_rate_hz)
+    n_out, rate_hz = -(-window.n_samples // q), window.sample_rate_hz / q
+    win, norm = spectral_weights(n_out)
+    bins = band_bins(settings.bands, n_out, rate_hz)
+    freqs = np.fft.rfftfreq(n_out, 1.0 / rate_hz)
+    q_ground = (None if sub.image is None else
+                ground_q(sub.image, freqs, atmosphere.c_m_s, settings.ground))
     n_b = len(bins)
     full = np.empty((n_grid, n_b))
     diag = np.empty((n_grid, n_b))
-    reading = _reading(chain.signals, chain.first_frame, chain.clock, settings)
+    reading = _reading(signals, chain.first_frame, chain.clock, settings)
     for c0 in range(0, n_grid, settings.chunk_points):
         pts = slice(c0, min(c0 + settings.chunk_points, n_grid))
-        a = _read_points(reading, sub, window, settings, pts)
+        a = _read_points(reading, sub, window, settings, pts, q=q)
         a *= win
         spec = scipy.fft.rfft(a, axis=-1, workers=workers)          # (n_c, n_used, n_f)
         for b, s in enumerate(bins):
@@ -402,11 +414,11 @@ def _per_microphone_band_powers(chain: _UsedChain, window: Window, settings: Cha
             beam_power = (beam.real ** 2 + beam.imag ** 2).astype(np.float64)     # (n_c, n_f)
             auto = np.einsum("m,gmf->gf", w_used ** 2,
                              (band.real ** 2 + band.imag ** 2).astype(np.float64))
-            if q is None:
+            if q_ground is None:
                 full[pts, b] = beam_power.sum(-1) * norm / s1 ** 2
                 diag[pts, b] = (beam_power - auto).sum(-1) * norm / (s1 ** 2 - s2)
                 continue
-            g_full, g_removed = ground_gains(sub.image.take(pts), q[:, s], freqs[s],
+            g_full, g_removed = ground_gains(sub.image.take(pts), q_ground[:, s], freqs[s],
                                              window.n_samples / window.sample_rate_hz, w_used)
             full[pts, b] = (beam_power / g_full).sum(-1) * norm / s1 ** 2
             diag[pts, b] = ((beam_power - auto) / g_removed).sum(-1) * norm / (s1 ** 2 - s2)

@@ -34,8 +34,8 @@ def ground_q(image: ImagePaths, frequency_hz, c_m_s: float,
 def ground_gains(image: ImagePaths, q, frequency_hz, duration_s: float,
                  weights) -> tuple[np.ndarray, np.ndarray]:
     """What the reflection of raised microphones does to the maps of a source at the grid
-    point: expected power of the full and the diagonal-removed map per frequency line, relative
-    to free field, each (n_points, n_freqs).
+    point: expected power of the full and the diagonal-removed map per frequency line (evenly
+    spaced, a band's lines), relative to free field, each (n_points, n_freqs).
 
     Microphone m receives the reflection as a copy of the de-Dopplerized signal delayed by
     ``delay + rate u`` (u from the window centre) and scaled by ``z_m = ratio Q
@@ -49,6 +49,9 @@ def ground_gains(image: ImagePaths, q, frequency_hz, duration_s: float,
     into other grid points cancels in source power integration (the unit sources carry it too).
     """
     f = np.asarray(frequency_hz, float)
+    if len(f) > 2 and np.ptp(np.diff(f)) > 1e-9 * (f[-1] - f[0]):
+        raise ValueError("the ground gains step from line to line: the frequencies must be "
+                         "evenly spaced (a band's lines)")
     q = np.broadcast_to(np.asarray(q, complex), (image.ratio.shape[1], len(f)))
     full = np.empty((image.ratio.shape[0], len(f)))
     removed = np.empty_like(full)
