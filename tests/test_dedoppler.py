@@ -124,6 +124,30 @@ def test_line_beam_powers_match_numpy_reference():
     np.testing.assert_allclose(out, ref, rtol=1e-10)
 
 
+def test_steered_line_powers_match_numpy_reference():
+    # The unit source's beam and autopowers at one instant, its steering formed inside the
+    # kernel, against the same formed with numpy and line_beam_powers (checked above) and the
+    # autopowers' matrix product.
+    rng = np.random.default_rng(6)
+    n_s, n_p, n_m, n_f = 3, 25, 12, 16
+    amp_g, rx_g = rng.uniform(30, 60, (n_p, n_m)), rng.uniform(0.1, 0.2, (n_p, n_m))
+    amp_s, rx_s = rng.uniform(30, 60, (n_s, n_m)), rng.uniform(0.1, 0.2, (n_s, n_m))
+    doppler = rng.uniform(0.9, 1.1, (n_s, n_m))
+    band_gain = rng.uniform(0.8, 1.2, (n_s, n_p, n_m))
+    f = 400.0 * (1 + np.arange(n_s))[:, None] + 4.0 * np.arange(n_f)
+    gain = rng.uniform(0.8, 1.2, (n_s, n_f, n_m)) * np.exp(1j * rng.uniform(0, 6, (n_s, n_f, n_m)))
+    u2 = rng.uniform(0.5, 1.0, (n_s, n_m, n_f))
+    beam, auto = np.ones((n_s, n_p, n_f)), np.ones((n_s, n_p, n_f))
+    _kernels.steered_line_powers(amp_g, rx_g, amp_s, rx_s, doppler, band_gain, f, gain, u2,
+                                 0.25, beam, auto)
+    ratio = amp_g[None] / amp_s[:, None, :] * band_gain
+    advance = (rx_g[None] - rx_s[:, None, :]) / doppler[:, None, :]
+    out = np.empty((n_s, n_p, n_f))
+    _kernels.line_beam_powers(ratio, advance, f, gain, out)
+    np.testing.assert_allclose(beam, 1 + 0.25 * out, rtol=1e-10)
+    np.testing.assert_allclose(auto, 1 + 0.25 * (ratio ** 2 @ u2), rtol=1e-12)
+
+
 def test_tabulated_lagrange_reads_stay_within_their_bound():
     # The kernels round the read's fraction to 1 / 2^PHASE_BITS sample: against exact 4-point
     # Lagrange reads of a band-limited signal (content to 0.135 fs, the cubic read's accurate

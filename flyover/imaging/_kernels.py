@@ -277,31 +277,88 @@ def line_beam_powers(ratio, advance_s, frequency_hz, line_gain, out):
         Filled in place.
     """
     n_s, n_p, n_m = ratio.shape
+    n_items = n_s * n_p
+    for task in numba.prange((n_items + _ITEMS_PER_TASK - 1) // _ITEMS_PER_TASK):
+        work = np.empty((5, n_m))
+        for sp in range(task * _ITEMS_PER_TASK, min(n_items, (task + 1) * _ITEMS_PER_TASK)):
+            s = sp // n_p
+            p = sp % n_p
+            _unit_line_powers(ratio[s, p], advance_s[s, p], frequency_hz[s], line_gain[s],
+                              work, out[s, p], 1.0, False)
+
+
+@numba.njit(fastmath=True, cache=True, inline="always")
+def _unit_line_powers(ratio, advance_s, f, line_gain, work, dest, weight, accumulate):
+    """One point's beam power per line of :func:`line_beam_powers` (its ``out[s, p]``), into
+    ``dest`` (n_lines,), or ``weight`` times it added to ``dest`` when ``accumulate``."""
+    n_m = ratio.shape[0]
+    n_f = f.shape[0]
+    a, sr, si, zr, zi = work[0], work[1], work[2], work[3], work[4]
+    spacing = f[1] - f[0] if n_f > 1 else 0.0
+    _phase_steps(advance_s, spacing, 1.0, a, sr, si)
+    for k in range(n_f):
+        if k == 0 or abs(f[k] - f[k - 1] - spacing) > 1e-9 * abs(spacing):
+            _phasors(ratio, a, f[k], zr, zi)
+        re = 0.0
+        im = 0.0
+        for m in range(n_m):
+            gr = line_gain[k, m].real
+            gi = line_gain[k, m].imag
+            re += zr[m] * gr - zi[m] * gi
+            im += zi[m] * gr + zr[m] * gi
+            r0 = zr[m]
+            zr[m] = r0 * sr[m] - zi[m] * si[m]
+            zi[m] = r0 * si[m] + zi[m] * sr[m]
+        if accumulate:
+            dest[k] += weight * (re * re + im * im)
+        else:
+            dest[k] = re * re + im * im
+
+
+@numba.njit(parallel=True, fastmath=True, cache=True)
+def steered_line_powers(amp_g, rx_g, amp_s, rx_s, doppler_s, band_gain, frequency_hz,
+                        line_gain, u2, weight, beam, auto):
+    """The time-domain unit source's beam and autopowers per point and line at one instant
+    of the steering model, added with ``weight`` to ``beam`` and ``auto`` (n_sets, n_points,
+    n_lines): :func:`line_beam_powers` with ``ratio = amp_g / amp_s * band_gain`` and
+    ``advance = (rx_g - rx_s) / doppler_s`` formed per point, and the autopowers
+    ``sum_m ratio^2 u2[s, m, k]``.
+
+    Parameters
+    ----------
+    amp_g, rx_g : float64 arrays (n_points, n_mics)
+        The grid points' amplitude factors and reception times (s).
+    amp_s, rx_s, doppler_s : float64 arrays (n_sets, n_mics)
+        The source's, and its dt/dtau.
+    band_gain : float64 array (n_sets, n_points, n_mics)
+    frequency_hz, line_gain
+        As for :func:`line_beam_powers`.
+    u2 : float64 array (n_sets, n_mics, n_lines)
+        The squared line gains.
+    weight : float
+    beam, auto : float64 arrays (n_sets, n_points, n_lines)
+        Added to in place.
+    """
+    n_s, n_p, n_m = band_gain.shape
     n_f = frequency_hz.shape[1]
     n_items = n_s * n_p
     for task in numba.prange((n_items + _ITEMS_PER_TASK - 1) // _ITEMS_PER_TASK):
         work = np.empty((5, n_m))
-        a, sr, si, zr, zi = work[0], work[1], work[2], work[3], work[4]
+        ratio = np.empty(n_m)
+        advance = np.empty(n_m)
         for sp in range(task * _ITEMS_PER_TASK, min(n_items, (task + 1) * _ITEMS_PER_TASK)):
             s = sp // n_p
             p = sp % n_p
-            f = frequency_hz[s]
-            spacing = f[1] - f[0] if n_f > 1 else 0.0
-            _phase_steps(advance_s[s, p], spacing, 1.0, a, sr, si)
+            for m in range(n_m):
+                ratio[m] = amp_g[p, m] / amp_s[s, m] * band_gain[s, p, m]
+                advance[m] = (rx_g[p, m] - rx_s[s, m]) / doppler_s[s, m]
+            _unit_line_powers(ratio, advance, frequency_hz[s], line_gain[s], work,
+                              beam[s, p], weight, True)
             for k in range(n_f):
-                if k == 0 or abs(f[k] - f[k - 1] - spacing) > 1e-9 * abs(spacing):
-                    _phasors(ratio[s, p], a, f[k], zr, zi)
-                re = 0.0
-                im = 0.0
+                acc = 0.0
                 for m in range(n_m):
-                    gr = line_gain[s, k, m].real
-                    gi = line_gain[s, k, m].imag
-                    re += zr[m] * gr - zi[m] * gi
-                    im += zi[m] * gr + zr[m] * gi
-                    r0 = zr[m]
-                    zr[m] = r0 * sr[m] - zi[m] * si[m]
-                    zi[m] = r0 * si[m] + zi[m] * sr[m]
-                out[s, p, k] = re * re + im * im
+                    acc += ratio[m] * ratio[m] * u2[s, m, k]
+                auto[s, p, k] += weight * acc
 
 
 @numba.njit(cache=True)

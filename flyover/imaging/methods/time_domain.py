@@ -117,17 +117,15 @@ def modelled_point_spread(body_m, points, context: WindowContext) -> PointSpread
     n_p = len(at_g[0][0])
     beam = np.zeros((len(bands), n_p, MODEL_LINES_PER_BAND))
     auto = np.zeros_like(beam)
-    out = np.empty_like(beam)
-    band_gain = gain.transpose(2, 0, 1) * wt                              # (n_b, n_p, n_m)
-    u2 = np.abs(u) ** 2
+    band_gain = np.ascontiguousarray(gain.transpose(2, 0, 1) * wt)        # (n_b, n_p, n_m)
+    u2 = np.ascontiguousarray(np.abs(u) ** 2)
+    doppler = np.ascontiguousarray(source.doppler_center, float)
     for weight, (rx_g, amp_g), (rx_s, amp_s) in zip(taper, at_g, at_s):
-        ratio = np.ascontiguousarray(amp_g[None] / amp_s[:, None, :] * band_gain)
-        # A reception-time difference is an emission-time difference over dt/dtau.
-        advance = np.ascontiguousarray(
-            (rx_g[None] - rx_s[:, None, :]) / source.doppler_center[:, None, :])
-        _kernels.line_beam_powers(ratio, advance, f, line_gain, out)
-        beam += weight * out
-        auto += weight * (ratio ** 2 @ u2)
+        # The source as each point's steering sees it: amplitude ratio and time advance (a
+        # reception-time difference is an emission-time difference over dt/dtau).
+        _kernels.steered_line_powers(*(np.ascontiguousarray(a, float) for a in (
+            amp_g, rx_g, amp_s, rx_s)), doppler, band_gain, f, line_gain, u2, float(weight),
+            beam, auto)
     share = np.divide(lines, modelled.sum(axis=1), out=np.zeros(len(bands)),
                       where=modelled.any(axis=1))
     full = (share[:, None] * beam.sum(axis=2) / s1 ** 2).T
