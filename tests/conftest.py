@@ -93,3 +93,18 @@ def tiny_copy(tiny_campaign_dir, tmp_path) -> Path:
     dest = tmp_path / "campaign"
     shutil.copytree(tiny_campaign_dir, dest)
     return dest
+
+
+def assert_same_maps(got, ref, points, sources) -> None:
+    """Two chains' band powers of one window: the full maps within 1e-3 of each band's peak,
+    the diagonal-removed ones within 1 %, and the sum within 0.8 m of each source within
+    0.05 dB."""
+    import numpy as np
+    peak = ref.full.max(axis=0)
+    assert np.all(np.abs(got.full - ref.full) <= 1e-3 * peak)
+    assert np.all(np.abs(got.diagonal_removed - ref.diagonal_removed) <= 0.01 * peak)
+    for src in sources:
+        near = np.hypot(*(points[:, :2] - np.asarray(src.body_m)[:2]).T) < 0.8
+        change = 10 * np.log10(got.diagonal_removed[near].sum(0)
+                               / ref.diagonal_removed[near].sum(0))
+        assert np.all(np.abs(change) < 0.05), change
