@@ -258,3 +258,17 @@ def test_passes_simulated_in_parallel_write_the_same_files(tmp_path):
             assert np.array_equal(sf.read(one / f)[0], sf.read(two / f)[0]), f
         else:
             assert filecmp.cmp(one / f, two / f, shallow=False), f
+
+
+def test_a_pass_that_fails_in_a_worker_stops_the_simulation_with_its_error(tmp_path):
+    # A scenario whose recordings clip: the worker's worded error reaches the caller (a
+    # process pool that hid it, or waited for ever, would leave the user nothing to act on).
+    import yaml
+    from conftest import TINY_SCENARIO
+    from flyover.model.errors import FlyoverInputError
+    from flyover.sim.demo import write_campaign
+    scenario = dict(TINY_SCENARIO, recording=dict(TINY_SCENARIO["recording"], pa_per_unit=1e-4))
+    (tmp_path / "scenario.yaml").write_text(yaml.safe_dump(scenario))
+    with pytest.raises(FlyoverInputError, match="clips"):
+        write_campaign(tmp_path / "scenario.yaml", tmp_path / "out", progress=lambda *_: None,
+                       workers=2)

@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-from contextlib import ExitStack
 from pathlib import Path
 
 import numpy as np
@@ -161,26 +160,35 @@ def write_campaign(scenario_path, out_dir, progress=print, *, workers: int = 1) 
     out = Path(out_dir)
     _write_layout(out / "layout.csv", scenario.mic_enu_m, site)
     names = [ps.name for ps in scenario.passes]
-    jobs = [(scenario_path, out, name) for name in names]
-    truth_rows = []
-    with ExitStack() as stack:
-        if workers <= 1 or len(names) <= 1:
-            done = (_write_pass(*job) for job in jobs)
-        else:
-            import multiprocessing
-            from concurrent.futures import ProcessPoolExecutor
-
-            import numba
-            # Each process takes its share of the cores for its compiled kernels. A fresh
-            # interpreter per process: forking after numba's threads have started is unsafe.
-            pool = stack.enter_context(ProcessPoolExecutor(
-                min(workers, len(names)), mp_context=multiprocessing.get_context("spawn"),
-                initializer=_share_threads,
-                initargs=(max(1, numba.config.NUMBA_NUM_THREADS // workers),)))
-            done = pool.map(_write_pass, *zip(*jobs))
-        for name, rows in zip(names, done):
+    rows = {}
+    if workers <= 1 or len(names) <= 1:
+        for name in names:
+            rows[name] = _write_pass(scenario_path, out, name)
             progress(f"simulated {name}: {len(scenario.mic_enu_m)} microphones")
-            truth_rows += rows
+    else:
+        import multiprocessing
+        from concurrent.futures import ProcessPoolExecutor, as_completed
+
+        import numba
+        # Each process takes its share of the cores for its compiled kernels. A fresh
+        # interpreter per process: forking after numba's threads have started is unsafe.
+        with ProcessPoolExecutor(min(workers, len(names)),
+                                 mp_context=multiprocessing.get_context("spawn"),
+                                 initializer=_share_threads,
+                                 initargs=(max(1, numba.config.NUMBA_NUM_THREADS // workers),)
+                                 ) as pool:
+            # The longest passes first, so that no core waits alone at the end.
+            futures = {pool.submit(_write_pass, scenario_path, out, ps.name): ps.name
+                       for ps in sorted(scenario.passes, key=_simulation_cost, reverse=True)}
+            try:
+                for future in as_completed(futures):
+                    rows[futures[future]] = future.result()
+                    progress(f"simulated {futures[future]}: {len(scenario.mic_enu_m)} "
+                             "microphones")
+            except BaseException:
+                pool.shutdown(cancel_futures=True)
+                raise
+    truth_rows = [row for name in names for row in rows[name]]
     write_csv(out / "truth.csv", pd.DataFrame(truth_rows), float_format="%.4f")
     if scenario.weather is not None:
         write_weather(out / WEATHER_FILE, scenario)
@@ -188,6 +196,12 @@ def write_campaign(scenario_path, out_dir, progress=print, *, workers: int = 1) 
         fmt = raw["recording"].get("format", "wav")
         write_text(out / "campaign.yaml", yaml.safe_dump(_campaign_mapping(scenario, raw, fmt),
                                                          sort_keys=False))
+
+
+def _simulation_cost(ps: PassScenario) -> float:
+    """A pass's relative cost to simulate: its duration, twice over raised microphones (the
+    reflected path too)."""
+    return ps.duration_s * (1.0 if ps.mic_height_m is None else 2.0)
 
 
 def _share_threads(threads: int) -> None:
