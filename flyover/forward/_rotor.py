@@ -13,14 +13,16 @@ import numba
 import numpy as np
 
 
-@numba.njit(cache=True, parallel=True)
+# Serial: the tones step asks for a window's shaft angles at a time (a parallel loop's start
+# would cost more than it).
+@numba.njit(cache=True)
 def shaft_revolutions(t, grid, speed, cum, zero):
     """Revolutions at times ``t`` of a speed linear between ``grid`` times (``speed`` in rev/s,
     ``cum`` its integral up to each grid time), less ``zero`` (the integral up to t = 0). The
     grid must reach beyond every time."""
     out = np.empty(t.shape[0])
     last = grid.shape[0] - 2
-    for i in numba.prange(t.shape[0]):
+    for i in range(t.shape[0]):
         k = min(max(np.searchsorted(grid, t[i], side="right") - 1, 0), last)
         at = speed[k] + (t[i] - grid[k]) * (speed[k + 1] - speed[k]) / (grid[k + 1] - grid[k])
         out[i] = cum[k] + (t[i] - grid[k]) * 0.5 * (speed[k] + at) - zero

@@ -9,14 +9,16 @@ import numba
 import numpy as np
 
 
-@numba.njit(cache=True, parallel=True)
+# Serial: the imaging asks for a few attitudes thousands of times a pass, where starting a
+# parallel loop costs more than the loop.
+@numba.njit(cache=True)
 def slerp_quaternions(t, key_t, key_q, step_rotvec):
     """Quaternions (m, 4), scalar last, at times ``t`` (m,) between keys ``key_t`` (n,) with
     quaternions ``key_q`` (n, 4) and turns ``step_rotvec`` (n - 1, 3): the key's rotation
     followed by the fraction of the interval's turn, in scipy's arithmetic order."""
     out = np.empty((t.shape[0], 4))
     n = key_t.shape[0]
-    for i in numba.prange(t.shape[0]):
+    for i in range(t.shape[0]):
         # The interval whose end is the first key at or after t (its start for the first key).
         k = max(np.searchsorted(key_t, t[i]) - 1, 0)
         k = min(k, n - 2)
