@@ -702,8 +702,11 @@ def _sin_pi(x):
 
 
 @numba.njit(cache=True, inline="always")
-def _hann_squared_sum(x, sin_pi_x):
-    """:func:`_hann_squared_mean` from x and sin(pi x): sin(pi (x - k)) = (-1)^k sin(pi x)."""
+def _hann_squared_mean(x, sin_pi_x):
+    """Mean of e^(-i 2 pi x u / T) over a window weighted by the squared periodic Hann window,
+    from x and sin(pi x) (:func:`_sin_pi`): sinc(x) + 2/3 (sinc(x - 1) + sinc(x + 1)) +
+    1/6 (sinc(x - 2) + sinc(x + 2)) (cos^4 is 3/8 + cos(2 pi u / T) / 2 + cos(4 pi u / T) / 8),
+    the five sines one up to sign: sin(pi (x - k)) = (-1)^k sin(pi x)."""
     total = 0.0
     for k in range(-2, 3):
         d = x - k
@@ -713,15 +716,6 @@ def _hann_squared_sum(x, sin_pi_x):
         else:
             total += weight * (sin_pi_x if k % 2 == 0 else -sin_pi_x) / (np.pi * d)
     return total
-
-
-@numba.njit(cache=True)
-def _hann_squared_mean(x):
-    """Mean of e^(-i 2 pi x u / T) over a window weighted by the squared periodic Hann window:
-    sinc(x) + 2/3 (sinc(x - 1) + sinc(x + 1)) + 1/6 (sinc(x - 2) + sinc(x + 2)) (cos^4 is
-    3/8 + cos(2 pi u / T) / 2 + cos(4 pi u / T) / 8). The five sines are one up to sign, taken
-    where each term keeps its accuracy next to its pole (:func:`_sin_pi`)."""
-    return _hann_squared_sum(x, _sin_pi(x))
 
 
 # Lines of a band are evenly spaced: the reflection's phase and the sweep's sine step from line
@@ -794,7 +788,7 @@ def ground_power_gains(ratio, delay_s, delay_rate, q_re, q_im, freq_hz, duration
                                     cos_x * sweep_c - sin_x * sweep_s)
                 z_re = r * (q_re[m, j] * c - q_im[m, j] * s)
                 z_im = r * (q_re[m, j] * s + q_im[m, j] * c)
-                sweep = _hann_squared_sum(x, sin_x)
+                sweep = _hann_squared_mean(x, sin_x)
                 zw[j] += w * z_re * sweep
                 sz_re[j] += w * z_re
                 sz_im[j] += w * z_im
