@@ -104,3 +104,23 @@ def test_track_heights_in_feet_are_flagged(pass_20m, tmp_path):
     r = height_offset(pass_20m, tmp_path, feet)
     assert r.decided and r.offset_m == pytest.approx(20.0 - 20.0 * FEET_PER_M, abs=1.5)
     assert flags(r) and "check the track's heights" in flags(r)[0].text
+
+
+def test_block_reads_equal_direct_reads_and_read_each_stretch_once(pass_20m, monkeypatch):
+    # The scan's reader serves overlapping spans from wider blocks: every value as a direct
+    # padded read gives it (inside, across both ends of the recording, wholly outside), and
+    # the spans of one stretch take one read of the files.
+    campaign = load_campaign(pass_20m / "campaign.yaml")
+    inputs = load_pass(campaign, "p1")
+    n_mics, total = len(inputs.layout.channel), inputs.recorders[0].recording.n_frames
+    rng = np.random.default_rng(2)
+    direct = type(inputs).read_pressure_pa
+    calls = []
+    monkeypatch.setattr(type(inputs), "read_pressure_pa",
+                        lambda self, *a, **k: calls.append(a[1]) or direct(self, *a, **k))
+    read = inputs.block_reader(800)
+    starts = [20000, 20000 + 300, 20000 - 500, -300, total - 200, total + 5000]
+    for start in starts + list(rng.integers(19500, 20500, 20)):
+        first = np.full(n_mics, int(start))
+        np.testing.assert_array_equal(read(first, 1000), direct(inputs, first, 1000, pad=True))
+    assert len(calls) == 4          # the stretch near 20000, the two ends, and beyond the end

@@ -138,6 +138,28 @@ class PassInputs:
         units = self.read_units(first_frame, n_frames, pad=pad)
         return units * self.pa_per_unit[:, None].astype(np.float32)
 
+    def block_reader(self, margin_frames: int):
+        """``read(first_frame, n_frames)``: :meth:`read_pressure_pa` with ``pad=True``, served
+        from blocks read ``margin_frames`` wider on either side and kept, so that a step reading
+        many overlapping spans (a scan over offsets) reads each stretch of the files once. The
+        values are a direct read's."""
+        blocks = []
+
+        def read(first_frame, n_frames: int) -> np.ndarray:
+            first = np.asarray(first_frame, np.int64)
+            for lo, data in blocks:
+                offset = first - lo
+                if offset.min() >= 0 and offset.max() + n_frames <= data.shape[1]:
+                    break
+            else:
+                lo = first - margin_frames
+                data = self.read_pressure_pa(lo, n_frames + 2 * margin_frames, pad=True)
+                blocks.append((lo, data))
+                offset = first - lo
+            return data[np.arange(len(first))[:, None], offset[:, None] + np.arange(n_frames)]
+
+        return read
+
     def read_microphone_pa(self, mic: int, first_frame: int, n_frames: int) -> np.ndarray:
         """Calibrated pressure (Pa) of one microphone (layout row), float64 (n_frames,), from
         frame ``first_frame`` of its recorder: that channel alone is read."""

@@ -89,12 +89,13 @@ def track_check_record(campaign: Campaign, inputs, alignment: dict, levels) -> d
         settings = chain_settings(inputs, bands, "cubic")
         height = float(alignment["height_above_array_m"])
 
-        def read_frames(first, n):
-            return inputs.read_pressure_pa(first, n, pad=True)
-
+        height_reach = max(HORIZONTAL_REACH_M, HEIGHT_REACH_FRACTION * height)
+        # Every offset of a scan reads about the same frames of a window: the blocks reach
+        # as far as the sound moves over the largest offset, and 50 ms more.
+        read_frames = inputs.block_reader(int(np.ceil(
+            (height_reach / inputs.atmosphere.c_m_s + 0.05) * fs)))
         for axis in ("height", "along-track", "lateral"):
-            reach = (max(HORIZONTAL_REACH_M, HEIGHT_REACH_FRACTION * height) if axis == "height"
-                     else HORIZONTAL_REACH_M)
+            reach = height_reach if axis == "height" else HORIZONTAL_REACH_M
             r = scan_track_offset(read_frames, inputs.track, pick, anchor, inputs.layout.enu_m,
                                   inputs.atmosphere, inputs.clock, settings, axis=axis,
                                   reach_m=reach)
