@@ -31,8 +31,8 @@ def shaft_revolutions(t, grid, speed, cum, zero):
 
 # The jitter's slow sinusoids are stepped from sample to sample by rotations through the small
 # phase step (its sine and cosine by their Taylor series, exact to 1e-18 below MAX_STEP_RAD),
-# taken afresh every RESTART samples and across any larger step (a new microphone's run): 4.5x
-# faster than a sine per sinusoid and sample, and within 1e-14 of it.
+# taken afresh every RESTART samples and across any larger step (a new microphone's run): the
+# kernel took 4.2 s instead of 7.3 s on a demo pass on one core, within 1e-14 of a sine each.
 RESTART = 1024
 MAX_STEP_RAD = 0.01
 
