@@ -28,6 +28,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from flyover.acoustics.bands import ThirdOctaveBands, a_weighting_db
+from flyover.acoustics.spectral import exponential_average
 from flyover.model.constants import P0_PA
 
 TIME_CONSTANT_S = {"F": 0.125, "S": 1.0}   # IEC 61672-1 time weightings
@@ -63,8 +64,7 @@ def time_weighted_mean_square(p2, sample_rate_hz: float, time_constant_s: float)
     a = np.exp(-1.0 / (sample_rate_hz * time_constant_s))
     n_settle = max(1, int(round(sample_rate_hz * time_constant_s)))
     settled = float(np.mean(p2[:n_settle])) if len(p2) else 0.0
-    from scipy.signal import lfilter  # 0.4 s to import: the campaign file's checks need none
-    return lfilter([1.0 - a], [1.0, -a], p2, zi=[a * settled])[0]
+    return exponential_average(p2, a, initial=settled)
 
 
 def level_db(mean_square_pa2) -> np.ndarray:

@@ -19,7 +19,8 @@ from __future__ import annotations
 
 import numpy as np
 import scipy.fft
-from scipy.signal import get_window
+
+from flyover.acoustics.spectral import hann_periodic
 
 
 def narrowband_psd(signals, sample_rate_hz: float, *, segment_samples: int, weights=None,
@@ -50,7 +51,7 @@ def narrowband_psd(signals, sample_rate_hz: float, *, segment_samples: int, weig
     if not 2 <= segment_samples <= n:
         raise ValueError(f"segment of {segment_samples} samples for {n} samples of signal")
     w = np.ones(n_mics) if weights is None else np.asarray(weights, float)
-    win = get_window("hann", segment_samples)
+    win = hann_periodic(segment_samples)
     step = segment_samples // 2
     starts = np.arange(0, n - segment_samples + 1, step)
     segments = np.stack([x[:, s:s + segment_samples] for s in starts], axis=1)  # (m, k, n_s)

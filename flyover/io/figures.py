@@ -318,7 +318,8 @@ def spectrogram_figure(raw, dedopplerized, pass_name: str, raw_label: str, f_max
                        region_name: str = ""):
     """Two spectrograms side by side: a microphone as received, and the de-Dopplerized region.
 
-    ``raw`` and ``dedopplerized`` are (f, t, Sxx) triples from scipy.signal.spectrogram, or None.
+    ``raw`` and ``dedopplerized`` are (f, t, Sxx) triples from
+    :func:`flyover.acoustics.spectral.spectrogram_density`, or None.
     """
     fig, axes = plt.subplots(1, 2, figsize=(11, 3.8), sharey=True)
     for ax, data, title in ((axes[0], raw, raw_label),

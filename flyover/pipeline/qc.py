@@ -6,8 +6,8 @@ from __future__ import annotations
 from pathlib import Path
 
 import numpy as np
-from scipy.signal import spectrogram
 
+from flyover.acoustics.spectral import spectrogram_density
 from flyover.io.figures import save_figure, spectrogram_figure, track_figure
 from flyover.io.results.qc import SPECTROGRAM_FIGURE, TRACK_FIGURE
 from flyover.io.results.windows import read_analysed
@@ -49,8 +49,9 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> None:
     mic = inputs.center_microphone
     heard = received_stretch(inputs, mic, (start, start + n / fs))[1]
     nper = int(2 ** np.round(np.log2(0.08 * fs)))
-    raw = spectrogram(heard, fs, nperseg=nper, noverlap=nper * 3 // 4)
-    dd = spectrogram(beam.astype(float), fs, nperseg=nper, noverlap=nper * 3 // 4)
+    raw = spectrogram_density(heard, fs, segment_samples=nper, overlap=nper * 3 // 4)
+    dd = spectrogram_density(beam.astype(float), fs, segment_samples=nper,
+                             overlap=nper * 3 // 4)
     fig = spectrogram_figure(raw, dd, pass_name,
                              f"channel {inputs.layout.channel[mic]} (as received)",
                              campaign.analysis.band_max_hz * 1.2, main.name)

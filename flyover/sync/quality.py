@@ -10,6 +10,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from flyover.acoustics.spectral import welch_coherence
+
 DEAD_BELOW_DB = -40.0      # RMS this far under the array median: dead channel
 OUTLIER_DB = 6.0           # RMS this far from its neighbours' median: outlier
 CLIP_FRACTION = 1e-4       # share of samples at full scale above which a channel is clipped
@@ -54,7 +56,6 @@ def neighbour_coherence(samples, sample_rate_hz: float, mic_enu_m, n_neighbours:
     ndarray, shape (n_channels,)
         Welch coherence (Hann, 50 % overlap) averaged over the band and the neighbours.
     """
-    from scipy.signal import coherence
     x = np.asarray(samples, dtype=float)
     pos = np.asarray(mic_enu_m, float)
     d = np.sqrt(((pos[:, None] - pos[None]) ** 2).sum(-1))
@@ -63,8 +64,8 @@ def neighbour_coherence(samples, sample_rate_hz: float, mic_enu_m, n_neighbours:
     for i in range(len(x)):
         near = np.argsort(d[i])[1:n_neighbours + 1]
         with np.errstate(invalid="ignore", divide="ignore"):  # a dead channel has no power
-            f, c = coherence(x[i][None], x[near], fs=sample_rate_hz,
-                             nperseg=min(nper, x.shape[1]))
+            f, c = welch_coherence(x[i], x[near], sample_rate_hz,
+                                   segment_samples=min(nper, x.shape[1]))
         inside = (f >= band_hz[0]) & (f <= band_hz[1])
         out[i] = float(np.mean(np.nan_to_num(c[:, inside])))
     return out
