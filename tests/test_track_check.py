@@ -124,3 +124,27 @@ def test_block_reads_equal_direct_reads_and_read_each_stretch_once(pass_20m, mon
         first = np.full(n_mics, int(start))
         np.testing.assert_array_equal(read(first, 1000), direct(inputs, first, 1000, pad=True))
     assert len(calls) == 4          # the stretch near 20000, the two ends, and beyond the end
+
+
+def test_forward_block_reads_equal_direct_reads_and_drop_passed_blocks(pass_20m, monkeypatch):
+    # A sweep along the pass (the listen step): spans that move on by a hop, microphones a few
+    # frames apart; reads reach ahead, and blocks the sweep has passed are dropped.
+    campaign = load_campaign(pass_20m / "campaign.yaml")
+    inputs = load_pass(campaign, "p1")
+    n_mics = len(inputs.layout.channel)
+    direct = type(inputs).read_pressure_pa
+    calls = []
+    monkeypatch.setattr(type(inputs), "read_pressure_pa",
+                        lambda self, *a, **k: calls.append(a[1]) or direct(self, *a, **k))
+    read = inputs.block_reader(100, ahead_frames=4000, forward=True)
+    spread = np.arange(n_mics) % 7 * 10                      # up to 60 frames between mics
+    for start in range(10000, 30000, 512):
+        first = start + spread
+        np.testing.assert_array_equal(read(first, 1024), direct(inputs, first, 1024, pad=True))
+    # Each read serves the spans that start within 4000 frames of its first: eight hops of
+    # 512, so the 40 spans take 5 reads.
+    assert len(calls) == 5
+    # Going back re-reads (dropped blocks are not kept) and still gives direct reads' values.
+    np.testing.assert_array_equal(read(10000 + spread, 1024),
+                                  direct(inputs, 10000 + spread, 1024, pad=True))
+    assert len(calls) == 6

@@ -15,8 +15,10 @@ from flyover.pipeline.context import PassInputs
 
 
 def dedopplerize_span(campaign: Campaign, inputs: PassInputs, start_s: float, n_samples: int,
-                      body_m, *, with_geometry: bool = False):
-    """The channels de-Dopplerized to a body point over ``n_samples`` of emission time.
+                      body_m, *, with_geometry: bool = False, read=None):
+    """The channels de-Dopplerized to a body point over ``n_samples`` of emission time,
+    the recordings read through ``read`` (default :meth:`PassInputs.read_pressure_pa`; a
+    sweep along the pass passes a :meth:`PassInputs.block_reader`).
 
     Returns
     -------
@@ -38,7 +40,7 @@ def dedopplerize_span(campaign: Campaign, inputs: PassInputs, start_s: float, n_
     first, count = required_frames(geo, inputs.clock, "cubic")
     if not inputs.holds(first, count):
         return None
-    signals = inputs.read_pressure_pa(first, count)
+    signals = (read or inputs.read_pressure_pa)(first, count)
     out = dedopplerized_signals(signals, first, geo, inputs.clock, span, settings)[0]
     return (out, geo) if with_geometry else out
 

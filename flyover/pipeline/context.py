@@ -138,22 +138,28 @@ class PassInputs:
         units = self.read_units(first_frame, n_frames, pad=pad)
         return units * self.pa_per_unit[:, None].astype(np.float32)
 
-    def block_reader(self, margin_frames: int):
+    def block_reader(self, margin_frames: int, *, ahead_frames: int | None = None,
+                     forward: bool = False):
         """``read(first_frame, n_frames)``: :meth:`read_pressure_pa` with ``pad=True``, served
-        from blocks read ``margin_frames`` wider on either side and kept, so that a step reading
-        many overlapping spans (a scan over offsets) reads each stretch of the files once. The
-        values are a direct read's."""
+        from blocks read ``margin_frames`` wider before and ``ahead_frames`` (default the same)
+        after, so that a step reading many overlapping spans (a scan over offsets, a sweep
+        along the pass) reads each stretch of the files once. The values are a direct read's.
+        ``forward``: the spans only move on (a sweep), so blocks that end before a span's
+        start are dropped; otherwise every block is kept for the reader's life."""
+        ahead = margin_frames if ahead_frames is None else ahead_frames
         blocks = []
 
         def read(first_frame, n_frames: int) -> np.ndarray:
             first = np.asarray(first_frame, np.int64)
+            if forward:
+                blocks[:] = [(lo, d) for lo, d in blocks if (lo + d.shape[1] > first).any()]
             for lo, data in blocks:
                 offset = first - lo
                 if offset.min() >= 0 and offset.max() + n_frames <= data.shape[1]:
                     break
             else:
                 lo = first - margin_frames
-                data = self.read_pressure_pa(lo, n_frames + 2 * margin_frames, pad=True)
+                data = self.read_pressure_pa(lo, n_frames + margin_frames + ahead, pad=True)
                 blocks.append((lo, data))
                 offset = first - lo
             return data[np.arange(len(first))[:, None], offset[:, None] + np.arange(n_frames)]

@@ -27,6 +27,9 @@ READS = PASS_INPUTS + ("regions", "analysis.band_min_hz")
 # Blocks of about this length follow the path's geometry (absorption, distance) along the
 # span; a block's line spacing, 1 / BLOCK_S, is well below the lowest analysed band.
 BLOCK_S = 0.16
+# The microphones' first frames of one block differ by the array's travel times (tens of ms)
+# and move apart as the vehicle passes: reads begin this much before a block's.
+READ_MARGIN_S = 0.1
 
 
 def analysed_span_s(windows) -> tuple[float, float]:
@@ -51,10 +54,12 @@ def focused_waveform(campaign: Campaign, inputs: PassInputs, body_m, start_s: fl
     # One block before the span, so that its first samples get their full weight.
     first_s = start_s - hop / fs
     n_blocks = int(np.ceil((n_samples + hop) / hop))
+    # The blocks move on along the pass: read a second ahead at a time, not once per block.
+    read = inputs.block_reader(int(READ_MARGIN_S * fs), ahead_frames=int(fs), forward=True)
 
     def one(k):
         span = dedopplerize_span(campaign, inputs, first_s + k * hop / fs, block, body_m,
-                                 with_geometry=True)
+                                 with_geometry=True, read=read)
         if span is None:
             return None
         signals, geo = span
