@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import os
 import subprocess
 import sys
 import time
@@ -37,6 +38,22 @@ def measured_campaign_stage(name: str, campaign: Path) -> tuple[float, float]:
         raise SystemExit(res.stderr[-3000:])
     peak = [int(line.split()[1]) for line in res.stdout.splitlines() if line.startswith("peak_kb")]
     return time.perf_counter() - t0, peak[-1] / 1024
+
+
+def measured_warm_stage(name: str, campaign: Path, pass_name: str, out: Path,
+                        threads: int = 2) -> float:
+    """Wall time (s) of `flyover stage NAME` for one pass as a workflow job on this machine runs
+    it: served by a warm process (flyover.workflow.warm_start), which must be started."""
+    from flyover.workflow.warm_start import SOCKET_ENV
+    if not os.environ.get(SOCKET_ENV):
+        raise SystemExit("start a WarmProcess first")
+    t0 = time.perf_counter()
+    res = subprocess.run([sys.executable, "-m", "flyover", "stage", name, "--campaign",
+                          str(campaign), "--pass", pass_name, "--out", str(out), "--threads",
+                          str(threads)], capture_output=True, text=True, cwd=ROOT)
+    if res.returncode != 0:
+        raise SystemExit(res.stderr[-3000:])
+    return time.perf_counter() - t0
 
 
 # What a step costs before its own work: the interpreter, the package's imports for the step,

@@ -83,6 +83,16 @@ def test_user_campaign_runs_alone(finished_run):
         assert (finished_run / "results" / "benchmarks" / p / "image.tsv").exists()
     assert (finished_run / "results" / "report.html").exists()
     assert planned(finished_run) == set()
+    # Run on this machine, every step ran in a fork of the warm process, and succeeded
+    # (flyover.workflow.warm_start; the Slurm run, cold, gives the same files).
+    from flyover.pipeline import stages
+    from flyover.workflow.warm_start import available
+    if available():
+        served = (finished_run / "results" / "logs" / "warm-start.log").read_text()
+        steps = [f"stage {s} --pass {p}" for s in stages("pass") for p in ("p1", "p2")]
+        steps += ["stage-campaign signoff", "stage-campaign report"]
+        for step in steps:
+            assert re.search(rf"status 0 .* {re.escape(step)}( |$)", served, flags=re.M), step
 
 
 @pytest.mark.slow

@@ -1,0 +1,98 @@
+"""Warm start of workflow steps: a step run in a fork of the warm process behaves as the same
+command run cold (status, streams, working folder, environment), a job falls back to a cold run
+wherever no warm process serves it, and the warm process ends with the Snakemake run it
+belongs to."""
+
+from __future__ import annotations
+
+import os
+import subprocess
+import sys
+import time
+
+import pytest
+
+from flyover.workflow import warm_start
+from flyover.workflow.warm_start import (SOCKET_ENV, SWITCH_ENV, WarmProcess, _listening,
+                                         run_warm)
+
+pytestmark = pytest.mark.skipif(not sys.platform.startswith("linux"), reason="Linux only")
+
+
+def _wait_listening(path: str, timeout_s: float = 60.0) -> None:
+    end = time.monotonic() + timeout_s
+    while not _listening(path):
+        assert time.monotonic() < end, "the warm process never listened"
+        time.sleep(0.2)
+
+
+@pytest.fixture
+def warm(tmp_path, monkeypatch):
+    monkeypatch.delenv(SWITCH_ENV, raising=False)
+    process = WarmProcess()
+    assert process.start(tmp_path / "logs", max_threads=1)
+    path = os.environ[SOCKET_ENV]             # set once it listens
+    monkeypatch.setenv(SOCKET_ENV, path)      # restored after the test
+    assert _listening(path)
+    yield tmp_path / "logs" / "warm-start.log"
+    process.stop()
+    assert not os.path.exists(path)
+
+
+def _flyover(args, cwd, env):
+    return subprocess.run([sys.executable, "-m", "flyover", *args], cwd=cwd, env=env,
+                          capture_output=True, text=True, timeout=120)
+
+
+def test_a_served_step_answers_as_the_cold_one(warm, tmp_path):
+    # A campaign file that is not there, in a folder with a space, named relative to the job's
+    # own working folder: the answer shows that folder, the environment and both streams
+    # reached the fork, and the status came back.
+    folder = tmp_path / "job folder"
+    folder.mkdir()
+    env = dict(os.environ, FLYOVER_CAMPAIGN="missing campaign.yaml")
+    served = _flyover(["stage-campaign", "summary"], folder, env)
+    cold = _flyover(["stage-campaign", "summary"], folder, {**env, SWITCH_ENV: "0"})
+    assert served.returncode == cold.returncode == 2
+    assert "missing campaign.yaml" in served.stderr
+    assert (served.stdout, served.stderr) == (cold.stdout, cold.stderr)
+    # The warm process logged it, with its status; the cold run is not there.
+    lines = warm.read_text().splitlines()
+    assert len(lines) == 1 and "status 2" in lines[0] and "stage-campaign summary" in lines[0]
+    # A command line the parser refuses: argparse's own exit status and message.
+    served = _flyover(["stage", "no-such-step", "--pass", "p"], folder, env)
+    cold = _flyover(["stage", "no-such-step", "--pass", "p"], folder, {**env, SWITCH_ENV: "0"})
+    assert served.returncode == cold.returncode != 0
+    assert served.stderr == cold.stderr
+
+
+def test_without_a_warm_process_a_job_runs_cold(tmp_path, monkeypatch):
+    monkeypatch.delenv(SWITCH_ENV, raising=False)
+    monkeypatch.setenv(SOCKET_ENV, str(tmp_path / "no socket"))
+    assert run_warm(["stage-campaign", "summary"]) is None
+    monkeypatch.delenv(SOCKET_ENV)
+    assert run_warm(["stage-campaign", "summary"]) is None
+    # Other commands are never served (simulate, run, check: they start their own work).
+    assert run_warm(["simulate", "x.yaml"]) is None
+    monkeypatch.setenv(SWITCH_ENV, "0")
+    assert not WarmProcess().start(tmp_path / "logs", max_threads=1)
+
+
+def test_another_interpreter_or_package_runs_cold(warm, monkeypatch):
+    # A job in another environment (Snakemake's --use-conda) must not run this one's code.
+    monkeypatch.setattr(warm_start, "_identity", lambda: {"executable": "/elsewhere/python",
+                                                          "package": "/elsewhere/flyover"})
+    assert run_warm(["stage-campaign", "summary"]) is None
+    assert not warm.exists() or warm.read_text() == ""
+
+
+def test_the_warm_process_ends_with_its_snakemake(tmp_path, monkeypatch):
+    # Snakemake killed outright runs no onerror: the warm process must notice on its own.
+    monkeypatch.delenv(SWITCH_ENV, raising=False)
+    snakemake = subprocess.Popen([sys.executable, "-c", "import time; time.sleep(3)"])
+    path = str(tmp_path / "s")
+    server = subprocess.Popen([sys.executable, "-m", "flyover.workflow.warm_start", path,
+                               str(snakemake.pid), str(tmp_path / "log")])
+    _wait_listening(path)
+    snakemake.wait()
+    assert server.wait(timeout=30) == 0
