@@ -52,13 +52,19 @@ def outside_campaign(folder: Path) -> Path:
 
 
 def step_times(results: Path) -> pd.DataFrame:
-    """Each job's wall time and peak memory from the workflow's timing files."""
+    """Each job's wall time from the workflow's timing files (their memory is a served job's
+    hand-over alone, not its step's: not printed; see warm_start's notes)."""
     rows = []
     for tsv in sorted((results / "benchmarks").rglob("*.tsv")):
         t = pd.read_csv(tsv, sep="\t")
-        rows.append({"step": tsv.stem, "wall_s": float(t["s"].iloc[-1]),
-                     "peak_mb": float(t["max_rss"].iloc[-1])})
+        rows.append({"step": tsv.stem, "wall_s": float(t["s"].iloc[-1])})
     return pd.DataFrame(rows).sort_values("wall_s", ascending=False)
+
+
+def served_warm(results: Path) -> int:
+    """How many jobs ran in a fork of the warm process (flyover.workflow.warm_start)."""
+    log = results / "logs" / "warm-start.log"
+    return len(log.read_text().splitlines()) if log.exists() else 0
 
 
 def main() -> None:
@@ -83,7 +89,8 @@ def main() -> None:
         print(f"one outside-sized pass ({(windows['status'] == 'analysed').sum()} windows of "
               f"0.5 s, 61 x 51 points, 48 microphones) through {len(steps)} jobs on "
               f"{args.cores} cores: {wall:.1f} s of wall time")
-        print(f"jobs' summed wall time {steps['wall_s'].sum():.1f} s; per step:")
+        print(f"{served_warm(folder / 'results')} of the jobs served by the warm process; "
+              f"jobs' summed wall time {steps['wall_s'].sum():.1f} s; per step:")
         print(steps.to_string(index=False, float_format=lambda v: f"{v:.1f}"))
     finally:
         if args.keep is None:
