@@ -239,6 +239,23 @@ def test_shaft_angle_is_the_integral_of_its_speed():
     np.testing.assert_allclose(speed.revolutions(t), ref, atol=1e-9)
 
 
+@pytest.mark.parametrize("n_samples", [1, 63, 64, 1000, 4097])
+def test_spline_at_every_sample_is_scipys_bit_for_bit(n_samples):
+    # Emission times and amplitudes solved every 64 samples (one knot before the first sample,
+    # the last beyond the end), at every sample: as scipy's CubicSpline gives them, every bit,
+    # across the ends of the pieces and where the samples leave the knots.
+    from scipy.interpolate import CubicSpline
+
+    from flyover.forward.moving_source import _at_samples
+    rng = np.random.default_rng(n_samples)
+    kc = (np.arange(n_samples // 64 + 3) - 1) * 64
+    values = 0.5 + np.cumsum(rng.normal(size=(7, len(kc))), axis=1) * 1e-3
+    reference = CubicSpline(kc, values, axis=1)(np.arange(n_samples))
+    np.testing.assert_array_equal(_at_samples(kc, values, n_samples), reference)
+    np.testing.assert_array_equal(_at_samples(kc, values, n_samples + 200),
+                                  CubicSpline(kc, values, axis=1)(np.arange(n_samples + 200)))
+
+
 def test_passes_simulated_in_parallel_write_the_same_files(tmp_path):
     import filecmp
 

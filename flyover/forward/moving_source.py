@@ -21,7 +21,7 @@ from scipy.interpolate import CubicSpline
 from flyover.acoustics.atmosphere import Atmosphere
 from flyover.acoustics.bands import ThirdOctaveBands
 from flyover.acoustics.ground import GroundSurface, reflection_transfer
-from flyover.forward import _rotor, _sinc
+from flyover.forward import _rotor, _sinc, _spline
 from flyover.geometry.frames import enu_from_body_matrix
 from flyover.geometry.propagation import emission_times_s
 from flyover.geometry.track import TrackModel
@@ -296,13 +296,23 @@ def emission_directions_body(track: TrackModel, body_m, mic_enu_m, tau_s) -> np.
     return (body / np.linalg.norm(body, axis=1, keepdims=True)).reshape(tau.shape + (3,))
 
 
-def _filter_blocks(signal, transfer, fs, block: int = 2048):
+FILTER_BLOCK = 2048   # samples of the blocks a slowly time-varying filter is applied over
+
+
+def _block_centres(n: int, block: int = FILTER_BLOCK) -> np.ndarray:
+    """Sample indices (into a signal of ``n``, clipped to it) of the blocks' centres in
+    :func:`_filter_blocks`."""
+    hop = block // 2
+    n_blocks = (n + 2 * block + hop - block) // hop + 1
+    return np.clip(np.arange(n_blocks) * hop + hop - block, 0, n - 1)
+
+
+def _filter_blocks(signal, gains, block: int = FILTER_BLOCK):
     """Apply a slowly time-varying linear filter block by block.
 
-    ``transfer(freqs_hz, centre)`` gives the gains (n_blocks, n_freqs), real or complex (numpy
-    FFT convention), of blocks centred on samples ``centre`` (indices into ``signal``, clipped
-    to it). sqrt-Hann analysis and synthesis windows at 50 % overlap reconstruct exactly at
-    unit gain.
+    ``gains`` (n_blocks, n_freqs), real or complex (numpy FFT convention, frequencies
+    ``rfftfreq(block)``), one row per block centred on :func:`_block_centres`. sqrt-Hann
+    analysis and synthesis windows at 50 % overlap reconstruct exactly at unit gain.
     """
     n = len(signal)
     hop = block // 2
@@ -311,12 +321,18 @@ def _filter_blocks(signal, transfer, fs, block: int = 2048):
     idx = np.arange(n_blocks)[:, None] * hop + np.arange(block)[None, :]
     win = np.sqrt(np.hanning(block + 1)[:block])
     spec = np.fft.rfft(pad[idx] * win, axis=1)
-    centre = np.clip(np.arange(n_blocks) * hop + hop - block, 0, n - 1)
-    spec = spec * transfer(np.fft.rfftfreq(block, 1.0 / fs), centre)
+    spec = spec * gains
     frames = np.fft.irfft(spec, block, axis=1) * win
     out = np.zeros(len(pad))
     np.add.at(out, idx.ravel(), frames.ravel())
     return out[block:block + n]
+
+
+def _at_samples(kc, values, n: int) -> np.ndarray:
+    """The cubic spline (scipy's, not-a-knot) through ``values`` (n_rows, len(kc)) at the
+    evenly spaced sample indices ``kc``, at samples 0 to n - 1: (n_rows, n)."""
+    c = CubicSpline(kc, values, axis=1).c
+    return _spline.cubic_at_samples(np.ascontiguousarray(c), int(kc[0]), int(kc[1] - kc[0]), n)
 
 
 def _path_pressure(track: TrackModel, signal: SourceSignal, body, mic_enu_m, prop: Propagator,
@@ -331,15 +347,18 @@ def _path_pressure(track: TrackModel, signal: SourceSignal, body, mic_enu_m, pro
     if signal.source.directivity is not None:
         amp_c = amp_c * np.sqrt(signal.source.directivity.gain(
             emission_directions_body(track, body, mic_enu_m, tau_c)))
-    contrib = signal(CubicSpline(kc, tau_c, axis=1)(k)) * CubicSpline(kc, amp_c, axis=1)(k)
+    contrib = signal(_at_samples(kc, tau_c, len(k))) * _at_samples(kc, amp_c, len(k))
+    # The filters follow the geometry block by block: it is needed at the blocks' centres only.
+    centre = _block_centres(len(k))
     if prop.absorption:
-        r = CubicSpline(kc, geo.distance_m, axis=1)(k)
+        r = CubicSpline(kc, geo.distance_m, axis=1)(centre)
         # Frequency in the air over the received one: (dt/dtau) / (1 - M_r) = 1 / (1 + n.U/c).
-        q = CubicSpline(kc, geo.doppler_factor / (1.0 - geo.mach_r), axis=1)(k)
+        q = CubicSpline(kc, geo.doppler_factor / (1.0 - geo.mach_r), axis=1)(centre)
         for m in range(len(mic_enu_m)):
-            contrib[m] = _filter_blocks(contrib[m], lambda f, c: 10.0 ** (
-                -atm.absorption_db_per_m(f[None, :] * q[m][c][:, None])
-                * r[m][c][:, None] / 20.0), fs[m])
+            contrib[m] = _filter_blocks(contrib[m], 10.0 ** (
+                -atm.absorption_db_per_m(np.fft.rfftfreq(FILTER_BLOCK, 1.0 / fs[m])[None, :]
+                                         * q[m][:, None])
+                * r[m][:, None] / 20.0))
     if reflected and prop.ground is not None and prop.ground.surface != "hard":
         # The ground is at rest with the microphone: Q at the received frequency, for the
         # image path's incidence angle and length at each block.
@@ -347,12 +366,12 @@ def _path_pressure(track: TrackModel, signal: SourceSignal, body, mic_enu_m, pro
             tau_c.shape + (3,))
         line = np.asarray(mic_enu_m, float)[:, None, :] - src
         length = np.linalg.norm(line, axis=-1)
-        cos = CubicSpline(kc, -line[..., 2] / length, axis=1)(k)
-        r2 = CubicSpline(kc, length, axis=1)(k)
+        cos = CubicSpline(kc, -line[..., 2] / length, axis=1)(centre)
+        r2 = CubicSpline(kc, length, axis=1)(centre)
         for m in range(len(mic_enu_m)):
-            contrib[m] = _filter_blocks(contrib[m], lambda f, c: reflection_transfer(
-                f[None, :], cos[m][c][:, None], r2[m][c][:, None], atm.c_m_s, prop.ground),
-                fs[m])
+            contrib[m] = _filter_blocks(contrib[m], reflection_transfer(
+                np.fft.rfftfreq(FILTER_BLOCK, 1.0 / fs[m])[None, :], cos[m][:, None],
+                r2[m][:, None], atm.c_m_s, prop.ground))
     return contrib
 
 
