@@ -96,3 +96,24 @@ def test_the_warm_process_ends_with_its_snakemake(tmp_path, monkeypatch):
     _wait_listening(path)
     snakemake.wait()
     assert server.wait(timeout=30) == 0
+
+
+def test_a_long_temporary_folder_or_no_log_folder(tmp_path, monkeypatch):
+    # A socket's path holds about 100 bytes: a long TMPDIR (Snakemake sets one per job, a
+    # cluster's may be deep) must not stop warm start; a log folder that cannot be made leaves
+    # the jobs cold, never the run failed.
+    import tempfile
+    monkeypatch.delenv(SWITCH_ENV, raising=False)
+    monkeypatch.delenv(SOCKET_ENV, raising=False)
+    deep = tmp_path / ("t" * 90)
+    deep.mkdir()
+    monkeypatch.setenv("TMPDIR", str(deep))
+    monkeypatch.setattr(tempfile, "tempdir", None)
+    process = WarmProcess()
+    assert process.start(tmp_path / "logs", max_threads=1)
+    assert len(os.environ[SOCKET_ENV]) < 100
+    process.stop()
+    assert SOCKET_ENV not in os.environ
+    (tmp_path / "a file").write_text("")
+    assert not WarmProcess().start(tmp_path / "a file" / "logs", max_threads=1)
+    assert SOCKET_ENV not in os.environ

@@ -246,13 +246,32 @@ class WarmProcess:
         so that the first jobs are served too; False if it did not come up (the jobs run cold,
         its log says why). The jobs find it through :data:`SOCKET_ENV`, set here in
         Snakemake's own environment, which they inherit."""
-        import subprocess
-        import tempfile
         if not available() or self._process is not None:
             return False
+        try:
+            path = self._launch(log_folder, max_threads)
+        except OSError:           # no folder for the socket, no log: the jobs run cold
+            self.stop()
+            return False
+        deadline = time.monotonic() + wait_s
+        while not _listening(path):
+            if self._process.poll() is not None or time.monotonic() > deadline:
+                self.stop()
+                return False
+            time.sleep(0.05)
+        os.environ[SOCKET_ENV] = path
+        return True
+
+    def _launch(self, log_folder, max_threads: int) -> str:
+        """Start the warm process; the socket's path."""
+        import subprocess
+        import tempfile
         os.makedirs(log_folder, exist_ok=True)
         # A short folder of its own: a socket's path is limited to about 100 bytes.
         self._folder = tempfile.mkdtemp(prefix="flyover-warm-")
+        if len(self._folder) > 80:
+            os.rmdir(self._folder)
+            self._folder = tempfile.mkdtemp(prefix="flyover-warm-", dir="/tmp")
         path = os.path.join(self._folder, "socket")
         env = dict(os.environ)
         # The steps limit their own BLAS use; numba's pool may grow to the most a job is given.
@@ -264,14 +283,7 @@ class WarmProcess:
             self._process = subprocess.Popen(
                 [sys.executable, "-m", "flyover.workflow.warm_start", path, str(os.getpid()),
                  log_path], stdin=subprocess.DEVNULL, stdout=log, stderr=log, env=env)
-        deadline = time.monotonic() + wait_s
-        while not _listening(path):
-            if self._process.poll() is not None or time.monotonic() > deadline:
-                self.stop()
-                return False
-            time.sleep(0.05)
-        os.environ[SOCKET_ENV] = path
-        return True
+        return path
 
     def stop(self) -> None:
         """Stop serving and remove the socket's folder."""
