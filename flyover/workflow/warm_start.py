@@ -278,11 +278,16 @@ class WarmProcess:
         env.update(OMP_NUM_THREADS="1", OPENBLAS_NUM_THREADS="1", MKL_NUM_THREADS="1",
                    NUMBA_NUM_THREADS=str(max(1, int(max_threads))))
         env.pop(SOCKET_ENV, None)
-        log_path = os.path.join(os.fspath(log_folder), "warm-start.log")
+        log_path = os.path.abspath(os.path.join(os.fspath(log_folder), "warm-start.log"))
+        # Started in the socket's folder: a working folder that holds a flyover source tree
+        # (a checkout) would otherwise put it before the installed one, and the jobs, which
+        # run in the output folder, would find the warm process another flyover's (and run
+        # cold).
         with open(log_path, "a") as log:
             self._process = subprocess.Popen(
                 [sys.executable, "-m", "flyover.workflow.warm_start", path, str(os.getpid()),
-                 log_path], stdin=subprocess.DEVNULL, stdout=log, stderr=log, env=env)
+                 log_path], stdin=subprocess.DEVNULL, stdout=log, stderr=log, env=env,
+                cwd=self._folder)
         return path
 
     def stop(self) -> None:
