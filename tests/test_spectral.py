@@ -15,14 +15,15 @@ from flyover.acoustics.spectral import (exponential_average, hann_periodic,
                                         spectrogram_density, tukey_periodic, welch_coherence)
 
 
-@pytest.mark.parametrize("n", [2, 7, 64, 1000])
+@pytest.mark.parametrize("n", [1, 2, 7, 64, 1000])
 def test_windows_are_scipys_periodic_windows(n):
     np.testing.assert_allclose(hann_periodic(n), signal.get_window("hann", n), atol=1e-15)
-    for alpha in (0.0, 0.25, 0.5, 1.0):
-        if alpha == 0.0:
-            continue                      # scipy returns a rectangle without the formula
+    for alpha in (0.25, 0.5, 1.0):
         np.testing.assert_allclose(tukey_periodic(n, alpha),
                                    signal.get_window(("tukey", alpha), n), atol=1e-15)
+    for alpha in (0.0, 1.5):              # a rectangle, or no window: refused
+        with pytest.raises(ValueError, match="alpha"):
+            tukey_periodic(n, alpha)
 
 
 def test_coherence_is_scipys_welch_coherence():

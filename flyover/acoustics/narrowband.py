@@ -20,7 +20,7 @@ from __future__ import annotations
 import numpy as np
 import scipy.fft
 
-from flyover.acoustics.spectral import hann_periodic
+from flyover.acoustics.spectral import hann_periodic, one_sided
 
 
 def narrowband_psd(signals, sample_rate_hz: float, *, segment_samples: int, weights=None,
@@ -61,15 +61,11 @@ def narrowband_psd(signals, sample_rate_hz: float, *, segment_samples: int, weig
     beam = np.einsum("m,mkf->kf", w, spectra)
     beam_power = np.mean(np.abs(beam) ** 2, axis=0)
     autos = np.mean(np.einsum("m,mkf->kf", w ** 2, np.abs(spectra) ** 2), axis=0)
-    # One-sided density: twice every line but DC (and Nyquist for an even segment).
-    scale = 2.0 / (sample_rate_hz * np.sum(win ** 2))
-    one_sided = np.full(spectra.shape[-1], scale)
-    one_sided[0] /= 2
-    if segment_samples % 2 == 0:
-        one_sided[-1] /= 2
+    density = one_sided(segment_samples, spectra.shape[-1]) / (sample_rate_hz
+                                                               * np.sum(win ** 2))
     s1, s2 = w.sum(), (w ** 2).sum()
-    full = beam_power * one_sided / s1 ** 2
-    removed = ((beam_power - autos) * one_sided / (s1 ** 2 - s2) if s1 ** 2 > s2
+    full = beam_power * density / s1 ** 2
+    removed = ((beam_power - autos) * density / (s1 ** 2 - s2) if s1 ** 2 > s2
                else np.full_like(full, np.nan))
     return np.fft.rfftfreq(segment_samples, 1.0 / sample_rate_hz), full, removed
 

@@ -16,14 +16,21 @@ import scipy.fft
 
 def hann_periodic(n: int) -> np.ndarray:
     """The periodic ("DFT-even") Hann window of ``n`` samples: 0.5 - 0.5 cos(2 pi k / n), the
-    window of spectral estimation (Harris 1978; common practice)."""
+    window of spectral estimation (Harris 1978; common practice); one sample is [1]."""
+    if n == 1:
+        return np.ones(1)
     return 0.5 - 0.5 * np.cos(2.0 * np.pi * np.arange(n) / n)
 
 
 def tukey_periodic(n: int, alpha: float) -> np.ndarray:
     """The periodic Tukey (tapered cosine) window of ``n`` samples: flat but for raised-cosine
     tapers over ``alpha / 2`` of its length at either end (Harris 1978). Taken as the first n
-    samples of the symmetric window of n + 1, as spectral estimation does."""
+    samples of the symmetric window of n + 1, as spectral estimation does. ``alpha`` in
+    (0, 1]: 1 is the Hann window."""
+    if not 0.0 < alpha <= 1.0:
+        raise ValueError(f"the Tukey window's alpha must lie in (0, 1], got {alpha}")
+    if n == 1:
+        return np.ones(1)
     m = n + 1
     k = np.arange(m, dtype=float)
     width = int(np.floor(alpha * (m - 1) / 2.0))
@@ -45,8 +52,9 @@ def _segment_spectra(x, window, step: int) -> np.ndarray:
     return scipy.fft.rfft(frames * window, axis=-1)
 
 
-def _one_sided(n_seg: int, n_lines: int) -> np.ndarray:
-    """Twice every line but DC (and Nyquist for an even segment): a one-sided spectrum."""
+def one_sided(n_seg: int, n_lines: int) -> np.ndarray:
+    """Twice every line but DC (and Nyquist for an even segment): the factors that make a
+    density of ``n_lines`` of a real segment's ``n_seg``-point spectrum one-sided."""
     factor = np.full(n_lines, 2.0)
     factor[0] = 1.0
     if n_seg % 2 == 0:
@@ -102,7 +110,7 @@ def spectrogram_density(x, sample_rate_hz: float, *, segment_samples: int, overl
     window = tukey_periodic(segment_samples, 0.25) if window is None else np.asarray(window)
     step = segment_samples - overlap
     spectra = _segment_spectra(np.asarray(x, float), window, step)          # (s, f)
-    scale = _one_sided(segment_samples, spectra.shape[-1]) / (
+    scale = one_sided(segment_samples, spectra.shape[-1]) / (
         sample_rate_hz * np.sum(window ** 2))
     density = (np.abs(spectra) ** 2 * scale).T
     time_s = (segment_samples / 2 + step * np.arange(spectra.shape[0])) / sample_rate_hz
