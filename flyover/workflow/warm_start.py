@@ -108,9 +108,14 @@ def serve(path: str, watched_pid: int, log_path: str) -> None:
     import signal
 
     import flyover.cli  # noqa: F401  (the command line the forks run)
+    from flyover.imaging.methods import methods
+    from flyover.io.readers import KINDS, readers
     from flyover.pipeline import stages
     for scope in ("pass", "campaign"):
         stages(scope)                  # imports each step's module
+    # The registries import their modules at the first look-up: here once, not in every fork.
+    methods()
+    readers(KINDS[0])
     listener = socket.socket(socket.AF_UNIX, socket.SOCK_STREAM)
     listener.bind(path)
     listener.listen(64)
