@@ -299,12 +299,17 @@ def emission_directions_body(track: TrackModel, body_m, mic_enu_m, tau_s) -> np.
 FILTER_BLOCK = 2048   # samples of the blocks a slowly time-varying filter is applied over
 
 
+def _block_count(n: int, block: int = FILTER_BLOCK) -> int:
+    """How many half-overlapping blocks :func:`_filter_blocks` cuts a signal of ``n`` into
+    (padded by a block before and a block and a half after)."""
+    return (n + block + block // 2) // (block // 2) + 1
+
+
 def _block_centres(n: int, block: int = FILTER_BLOCK) -> np.ndarray:
     """Sample indices (into a signal of ``n``, clipped to it) of the blocks' centres in
     :func:`_filter_blocks`."""
     hop = block // 2
-    n_blocks = (n + 2 * block + hop - block) // hop + 1
-    return np.clip(np.arange(n_blocks) * hop + hop - block, 0, n - 1)
+    return np.clip(np.arange(_block_count(n, block)) * hop + hop - block, 0, n - 1)
 
 
 def _filter_blocks(signal, gains, block: int = FILTER_BLOCK):
@@ -317,7 +322,9 @@ def _filter_blocks(signal, gains, block: int = FILTER_BLOCK):
     n = len(signal)
     hop = block // 2
     pad = np.concatenate([np.zeros(block), signal, np.zeros(block + hop)])
-    n_blocks = (len(pad) - block) // hop + 1
+    n_blocks = _block_count(n, block)
+    if np.shape(gains)[0] != n_blocks:
+        raise ValueError(f"{np.shape(gains)[0]} rows of gains for {n_blocks} blocks")
     idx = np.arange(n_blocks)[:, None] * hop + np.arange(block)[None, :]
     win = np.sqrt(np.hanning(block + 1)[:block])
     spec = np.fft.rfft(pad[idx] * win, axis=1)

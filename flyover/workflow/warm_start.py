@@ -39,8 +39,9 @@ _POLL_S = 1.0                        # how often the server checks that Snakemak
 
 
 def available() -> bool:
-    """Whether warm start can run here: Linux (fork with the imported libraries' fork
-    handlers, abstract paths not needed) and not switched off."""
+    """Whether warm start can run here: on Linux (fork, and Unix sockets whose forks the
+    imported libraries survive; macOS's system libraries do not promise it) and not switched
+    off."""
     return sys.platform.startswith("linux") and os.environ.get(SWITCH_ENV, "1") != "0"
 
 
