@@ -180,3 +180,22 @@ def test_time_left_weighs_each_rule_by_its_own_duration():
         state.feed(line, now_s=float(t))
     # At 360 s the second imaging has run 60 s of its expected 60 s.
     assert state.time_left_s(360.0, now_s=360.0) == pytest.approx((0 + 2 * 180.0) / 2)
+
+
+def test_image_threads_keep_every_core_busy(tiny_copy):
+    # Scheduling, not physics: while at least as many passes as cores are still to be imaged,
+    # each image job takes one thread (its figures and Python work are serial, so two jobs of
+    # one thread keep two cores busier than one of two); a lone pass takes every core; a
+    # cluster's job keeps two unless its profile says otherwise.
+    plan = CampaignPlan.load(tiny_copy / "campaign.yaml")
+    passes = plan.passes
+    assert len(passes) >= 2
+    assert plan.image_threads(2, local=True) == 1
+    assert plan.image_threads(2 * len(passes), local=True) == 2
+    for name in passes[1:]:         # all but the first imaged
+        folder = plan.campaign.output / name
+        folder.mkdir(parents=True, exist_ok=True)
+        (folder / "maps.npz").write_bytes(b"")
+    assert plan.image_threads(2, local=True) == 2
+    assert plan.image_threads(4, local=True) == 4
+    assert plan.image_threads(None, local=True) == plan.image_threads(16, local=False) == 2

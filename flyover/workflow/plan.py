@@ -179,6 +179,30 @@ class CampaignPlan:
                         n_bands=len(third_octave_bands(an.band_min_hz, an.band_max_hz)),
                         n_windows=an.window_count_bound(duration))
 
+    def image_threads(self, cores: int | None, *, local: bool) -> int:
+        """Threads of each image job.
+
+        An image job keeps about 1.5 of two threads busy: its map figures and its Python work
+        are serial (demo pass-1: 15.3 s of wall time on two threads, 18.4 s on one, the same
+        results byte for byte). So on this machine, while at least as many passes as cores
+        are still to be imaged, each image job takes one thread and the scheduler keeps every
+        core busy with two of them, or one beside the light steps; fewer passes to image (a
+        re-imaged pass, a small campaign) share the cores among them. A cluster's job gets
+        two unless the profile sets more (``set-threads``).
+
+        Parameters
+        ----------
+        cores : int or None
+            The run's ``--cores`` (None: not given).
+        local : bool
+            Whether the jobs run on this machine.
+        """
+        if not local or not cores:
+            return 2
+        maps = steps.step_files("image")["maps_npz"]
+        to_image = sum(not (self.campaign.output / p / maps).exists() for p in self.passes)
+        return max(1, cores // max(1, to_image))
+
     def input_files(self) -> list[str]:
         """Every input file but the campaign file: its content reaches the rules through the
         fingerprints, and its name must not matter."""

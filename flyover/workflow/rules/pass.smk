@@ -1,7 +1,8 @@
 # Per-pass steps: align, image, levels, check figures.
 #
 # Resources (memory, runtime) are computed from the campaign's sizes (flyover.workflow.plan);
-# threads come from the profile. Outputs are flagged update(): Snakemake keeps the previous version in place while a step runs
+# the image step's threads from the cores and the passes still to image (a profile's
+# set-threads overrides them). Outputs are flagged update(): Snakemake keeps the previous version in place while a step runs
 # and puts it back if the step fails, so a failed run never loses a good result (the stages
 # write every file atomically). Each rule's params are the values of the campaign that its
 # stage reads (declared in the stage module, enforced when it runs) and a digest of flyover.
@@ -40,7 +41,7 @@ rule image:
         f"{OUTP}/logs/{{pass_name}}/image.log",
     benchmark:
         f"{OUTP}/benchmarks/{{pass_name}}/image.tsv"
-    threads: 2
+    threads: PLAN.image_threads(workflow.cores, local=workflow.local_exec)
     resources:
         mem_mb=lambda w: PLAN.memory_mb(w.pass_name, "image"),
         runtime=lambda w: PLAN.runtime_min(w.pass_name, "image"),
