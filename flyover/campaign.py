@@ -58,7 +58,8 @@ class AnalysisSettings:
         Imaging method by name (:mod:`flyover.imaging.methods`): the headline, whose levels
         every later step uses.
     other_methods : tuple of str
-        Methods run beside it, for comparison (their levels in levels_by_method.csv).
+        Methods run beside it, for comparison (their levels in levels_by_method.csv), on every
+        pass that does not name its own (:attr:`PassSpec.other_methods` is what a pass runs).
     interpolation : str
         ``"cubic"`` (4-point Lagrange) or ``"sinc"`` (windowed sinc, band-limited).
     band_absorption : str
@@ -188,7 +189,8 @@ class PassSpec:
     ``atmosphere_profile`` the air by height above the array (empty: uniform); ``partial``
     says the track is meant not to pass overhead (no 90 deg window), which `flyover check`
     otherwise refuses; ``span_utc_ns`` the pass's stretch (start, end; UTC ns) of a recording
-    and track that hold more (None: all of it).
+    and track that hold more (None: all of it); ``other_methods`` the imaging methods run
+    beside the headline on this pass (its own ``other_methods``, else the analysis's).
     """
 
     name: str
@@ -210,6 +212,7 @@ class PassSpec:
     atmosphere_profile: tuple[AtmosphereLayer, ...] = ()
     partial: bool = False
     span_utc_ns: tuple[int, int] | None = None
+    other_methods: tuple[str, ...] = ()
 
     def input_files(self) -> list[Path]:
         """Every file of the pass: recordings, calibrations, the track and its own layout."""
@@ -224,8 +227,10 @@ class PassSpec:
 
 
 # What a per-pass stage may read of its pass: everything but the label, which only groups passes
-# in the campaign summary (a relabelled pass re-runs the summary, not the pass).
-PASS_SETTINGS = tuple(f"passes.{{pass}}.{f.name}" for f in fields(PassSpec) if f.name != "label")
+# in the campaign summary (a relabelled pass re-runs the summary, not the pass), and the methods
+# compared on it, which the stages that run them declare (they re-run image and levels only).
+PASS_SETTINGS = tuple(f"passes.{{pass}}.{f.name}" for f in fields(PassSpec)
+                      if f.name not in ("label", "other_methods"))
 # What loading a pass reads (flyover.pipeline.context.load_pass): the array, the site frame, the
 # rotors the track's motor speeds belong to, the weather file and the span it is averaged over.
 PASS_INPUTS = ("site", "geoid_undulation_m", "array", "config_path", "rotors", "weather",

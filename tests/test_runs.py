@@ -10,6 +10,7 @@ from conftest import edit_campaign
 from flyover.cli import main
 from flyover.io.config import load_campaign
 from flyover.io.results.steps import pass_files
+from flyover.model.errors import FlyoverInputError
 from flyover.model.reads import UndeclaredRead, guarded, read_values
 from flyover.pipeline import align, image, levels
 from flyover.workflow.plan import CampaignPlan, JobSizes, job_memory_mb, job_runtime_min
@@ -69,6 +70,30 @@ def test_fingerprints_follow_the_declared_reads(tiny_copy):
     # File paths are not part of a fingerprint (the workflow tracks the files themselves).
     values = read_values(load_campaign(path), align.READS, "p1")
     assert values["passes.p1.recorders"][0]["files"] == [None] and values["config_path"] is None
+
+
+def test_methods_compared_per_pass(tiny_copy):
+    # A pass's own other_methods replaces the analysis's for that pass alone ([] leaves the
+    # headline alone), and re-runs only its image and levels steps.
+    path = tiny_copy / "campaign.yaml"
+    edit_campaign(tiny_copy, lambda d: d["analysis"].update(other_methods=["clean-sc"]))
+    stages = ("align", "image", "levels", "qc", "metrics", "trackcheck")
+    before = {(p, s): CampaignPlan.load(path).fingerprint(p, s) for p in ("p1", "p2")
+              for s in stages}
+    edit_campaign(tiny_copy, lambda d: d["passes"]["p1"].update(
+        other_methods=["frequency-domain", "time-domain"]))
+    campaign = load_campaign(path)
+    assert campaign.passes["p1"].other_methods == ("frequency-domain",)   # never the headline
+    assert campaign.passes["p2"].other_methods == ("clean-sc",)
+    after = {(p, s): CampaignPlan.load(path).fingerprint(p, s) for p in ("p1", "p2")
+             for s in stages}
+    assert {k for k in before if before[k] != after[k]} == {("p1", "image"), ("p1", "levels")}
+    edit_campaign(tiny_copy, lambda d: d["passes"]["p2"].update(other_methods=[]))
+    assert load_campaign(path).passes["p2"].other_methods == ()
+    edit_campaign(tiny_copy, lambda d: d["passes"]["p2"].update(other_methods=["clean-c"]))
+    with pytest.raises(FlyoverInputError, match="unknown imaging method 'clean-c'") as err:
+        load_campaign(path)
+    assert "key passes.p2.other_methods" in str(err.value)
 
 
 def test_run_progress_and_failure_reading(tmp_path):

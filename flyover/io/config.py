@@ -96,6 +96,17 @@ def _imaging_method(name: str, source: str, key: str = "analysis.method") -> str
     return name
 
 
+def _other_methods(data: dict, where: dict, source: str, key: str) -> tuple[str, ...]:
+    """The methods run beside the headline (``key.other_methods`` of ``where``; a pass without
+    its own takes the analysis's), each once and never the headline itself."""
+    analysis = data.get("analysis", {})
+    if "other_methods" not in where:
+        where, key = analysis, "analysis"
+    headline = analysis.get("method", DEFAULT_METHOD)
+    return tuple(dict.fromkeys(_imaging_method(m, source, f"{key}.other_methods")
+                               for m in where.get("other_methods", ()) if m != headline))
+
+
 def _reference_flight(data: dict, source: str) -> ReferenceFlight:
     """The reference flight, its certification-style adjustment named by a known class."""
     from flyover.acoustics.certification import CERTIFICATION_ADJUSTMENTS
@@ -380,6 +391,7 @@ def _pass_spec(name: str, p: dict, where: str, *, base: Path, source: str, data:
         atmosphere_profile=tuple(AtmosphereLayer(**k) for k in p.get(
             "atmosphere_profile", data.get("atmosphere_profile", ()))),
         span_utc_ns=_span(p, f"{source}, key {where}.span_utc"),
+        other_methods=_other_methods(data, p, source, where),
     )
 
 
@@ -466,9 +478,7 @@ def campaign_from_mapping(data: dict, path: Path, *, passes_key: str = "passes")
         reference_atmosphere=Atmosphere(ref["temperature_c"], ref["relative_humidity_pct"],
                                         ref.get("pressure_kpa", 101.325)),
         method=_imaging_method(an.get("method", DEFAULT_METHOD), source),
-        other_methods=tuple(dict.fromkeys(
-            _imaging_method(m, source, "analysis.other_methods")
-            for m in an.get("other_methods", ()) if m != an.get("method", DEFAULT_METHOD))),
+        other_methods=_other_methods(data, data.get("analysis", {}), source, "analysis"),
         interpolation=an.get("interpolation", "cubic"),
         band_absorption=an.get("band_absorption", "midband"),
         diagonal_removal=bool(an.get("diagonal_removal", True)),

@@ -35,7 +35,7 @@ from flyover.pipeline.progress import Progress
 READS = PASS_INPUTS + ("grid", "regions", "outline_m", "analysis.window_s", "analysis.hop_s",
                        "analysis.window_polar_step_deg", "analysis.method_tuning",
                        "analysis.band_min_hz", "analysis.band_max_hz", "analysis.method",
-                       "analysis.other_methods",
+                       "passes.{pass}.other_methods",
                        "analysis.interpolation", "analysis.diagonal_removal",
                        "analysis.max_polar_offset_deg", "analysis.map_dynamic_range_db")
 
@@ -73,7 +73,7 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path, *, threads: int = 1,
     points = campaign.grid.points_m()
     # The headline method first: its maps are the pass's; the others' go to the tables and a
     # side-by-side figure of the window nearest overhead.
-    methods = [method_named(m) for m in (an.method, *an.other_methods)]
+    methods = [method_named(m) for m in (an.method, *campaign.passes[pass_name].other_methods)]
     if settings.image_mic_enu_m is not None:
         skipped = [m.name for m in methods if not m.raised_microphones]
         methods = [m for m in methods if m.raised_microphones]

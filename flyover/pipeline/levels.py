@@ -30,7 +30,7 @@ READS = ("regions", "array.plate_correction_db", "array.mounting", "array.ground
          "passes.{pass}.array",
          "analysis.reference_distance_m",
          "analysis.reference_atmosphere", "analysis.band_absorption", "analysis.method",
-         "analysis.other_methods",
+         "passes.{pass}.other_methods",
          "analysis.spectra_polar_deg", "analysis.uncertainty")
 
 
@@ -45,7 +45,7 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> None:
     angles = REGION_ANGLES.read(out_dir)
     alignment = read_alignment(out_dir)
     per_method = {}
-    for method in (campaign.analysis.method, *campaign.analysis.other_methods):
+    for method in (campaign.analysis.method, *campaign.passes[pass_name].other_methods):
         mine = powers[powers["method"].astype(str) == method].drop(columns="method")
         per_method[method] = with_uncertainty(level_table(mine, windows, angles, campaign,
                                                           pass_name),
