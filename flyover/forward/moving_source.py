@@ -384,7 +384,7 @@ def _path_pressure(track: TrackModel, signal: SourceSignal, body, mic_enu_m, pro
 
 def received_pressure_pa(track: TrackModel, signals: list[SourceSignal], bodies_m,
                          prop: Propagator, sample_rate_hz: float, start_s: float, n_samples: int,
-                         *, coarse_step: int = 64) -> np.ndarray:
+                         *, node_s: float = 0.005) -> np.ndarray:
     """Pressure at each microphone from moving point sources, sampled uniformly in time.
 
     Parameters
@@ -400,8 +400,10 @@ def received_pressure_pa(track: TrackModel, signals: list[SourceSignal], bodies_
     start_s : float or ndarray, shape (n_mics,)
         True time of the first sample (of each microphone), seconds after the pass epoch.
     n_samples : int
-    coarse_step : int
-        Emission times are solved every ``coarse_step`` samples and interpolated (cubic) between.
+    node_s : float
+        Emission times are solved every ``node_s`` seconds (rounded to whole samples) and
+        interpolated (cubic) between: at 5 ms the waveform of a 1 kHz tone flying over at
+        30 m/s and 40 m is its closed form to 2e-9 of its amplitude (float32 rounds at 6e-8).
 
     Returns
     -------
@@ -412,6 +414,7 @@ def received_pressure_pa(track: TrackModel, signals: list[SourceSignal], bodies_
     start = np.broadcast_to(np.asarray(start_s, float), (n_mics,))
     # Splines run over the sample index, which all microphones share whatever their clocks.
     k = np.arange(n_samples)
+    coarse_step = max(1, int(round(node_s * float(np.min(fs)))))
     kc = (np.arange(n_samples // coarse_step + 3) - 1) * coarse_step
     tc = start[:, None] + kc[None, :] / fs[:, None]
     out = np.zeros((n_mics, n_samples))
