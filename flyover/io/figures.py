@@ -27,6 +27,9 @@ _STYLE = {
     "axes.labelcolor": INK, "xtick.color": INK, "ytick.color": INK, "text.color": INK,
     "font.size": 10, "axes.titlesize": 11, "axes.grid": True, "grid.color": "#e3ded5",
     "grid.linewidth": 0.6, "axes.spines.top": False, "axes.spines.right": False,
+    # Titles at a fixed height: none of our axes has decorations on top, and placing them
+    # automatically measured every panel at every draw (a fifth of a map figure's time).
+    "axes.titley": 1.0,
 }
 
 
