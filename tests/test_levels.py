@@ -148,6 +148,18 @@ def test_levels_of_dipole_like_regions_and_plate_correction(tiny_copy, mach, pol
     assert table.loc[("rear", 500.0), "plate_correction_db"] == -0.4
 
 
+def test_check_beam_is_numpys_weighted_average():
+    # The check spectrogram's beam is formed a row at a time; numpy's own weighted average of
+    # the used rows is the reference, bit for bit (general-purpose reference library).
+    rng = np.random.default_rng(4)
+    rows = rng.standard_normal((47, 20000)).astype(np.float32)
+    weights = rng.uniform(0.2, 2.0, 47)
+    weights[[3, 17]] = 0.0
+    used = weights > 0
+    assert np.array_equal(qc.weighted_mean_rows(rows, weights),
+                          np.average(rows[used], axis=0, weights=weights[used]))
+
+
 def test_stages_on_the_tiny_campaign(tiny_copy):
     campaign = load_campaign(tiny_copy / "campaign.yaml")
     out = tiny_copy / "results" / "p1"

@@ -43,8 +43,7 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> None:
         save_figure(spectrogram_figure(None, None, pass_name, "", 1.0),
                     SPECTROGRAM_FIGURE.path(out_dir))
         return
-    used = inputs.weights > 0
-    beam = np.average(a[used], axis=0, weights=inputs.weights[used])
+    beam = weighted_mean_rows(a, inputs.weights)
     # The same stretch as the centre microphone received it.
     mic = inputs.center_microphone
     heard = received_stretch(inputs, mic, (start, start + n / fs))[1]
@@ -56,3 +55,16 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path) -> None:
                              f"channel {inputs.layout.channel[mic]} (as received)",
                              campaign.analysis.band_max_hz * 1.2, main.name)
     save_figure(fig, SPECTROGRAM_FIGURE.path(out_dir))
+
+
+def weighted_mean_rows(rows, weights) -> np.ndarray:
+    """``np.average(rows[used], axis=0, weights=weights[used])`` over the rows of positive
+    weight, float64: the same products summed in the same order, a row at a time. The one
+    call's float64 temporaries of the whole span (190 MB on a demo pass) cost a fresh process
+    0.4 s of page faults."""
+    weights = np.asarray(weights, float)
+    total = np.zeros(np.shape(rows)[1])
+    for row, w in zip(rows, weights):
+        if w > 0:
+            total += row.astype(float) * w
+    return total / np.sum(weights[weights > 0])
