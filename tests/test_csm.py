@@ -168,16 +168,21 @@ def test_bands_with_too_few_lines_in_the_welch_blocks_are_flagged():
 def test_several_methods_in_one_run(tiny_copy):
     # The campaign runs the headline method and others beside it: region_power.csv and
     # levels_by_method.csv carry every method, levels.csv (read by every later step) the
-    # headline's alone, and the window nearest overhead gets each other method's maps.
+    # headline's alone, and the window nearest overhead gets each other method's maps. The
+    # pass's own list replaces the analysis's.
     import pandas as pd
     from conftest import edit_campaign
 
     from flyover.io.config import load_campaign
     from flyover.pipeline import align, image, levels
-    edit_campaign(tiny_copy, lambda d: d["analysis"].update(
-        other_methods=["frequency-domain", "clean-sc", "time-domain"]))
+
+    def compare(d):
+        d["analysis"]["other_methods"] = ["clean-sc"]
+        d["passes"]["p1"]["other_methods"] = ["frequency-domain", "clean-sc", "time-domain"]
+    edit_campaign(tiny_copy, compare)
     campaign = load_campaign(tiny_copy / "campaign.yaml")
-    assert campaign.analysis.other_methods == ("frequency-domain", "clean-sc")
+    assert campaign.analysis.other_methods == ("clean-sc",)
+    assert campaign.passes["p1"].other_methods == ("frequency-domain", "clean-sc")
     out = tiny_copy / "results" / "p1"
     align.run(campaign, "p1", out)
     (out / "maps").mkdir(parents=True)
