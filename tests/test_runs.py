@@ -141,6 +141,10 @@ def test_job_resources_scale_with_the_campaign():
     assert job_memory_mb("image", large) > job_memory_mb("image", demo)
     assert job_runtime_min("image", tiny) == job_runtime_min("qc", large) == 10
     assert job_runtime_min("image", large) > job_runtime_min("image", demo)
+    # Each method the pass runs beside the headline costs about another headline's time.
+    compared = JobSizes(n_grid=3111, n_mics=48, window_samples=12800, n_bands=12, n_windows=29,
+                        n_methods=3)
+    assert job_runtime_min("image", compared) >= 2.9 * job_runtime_min("image", large)
 
 
 def test_scheduler_stops_are_told_apart(tmp_path):

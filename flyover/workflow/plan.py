@@ -36,6 +36,7 @@ class JobSizes:
     window_samples: int
     n_bands: int
     n_windows: int
+    n_methods: int = 1          # the imaging methods run on the pass (the headline and others)
 
 
 # Measured on this project's benchmark machine (2 cores; benchmarks/bench_imaging.py and a
@@ -46,7 +47,8 @@ _BASE_MB = {"align": 320, "image": 330, "levels": 260, "qc": 380, "metrics": 300
             "report": 300}
 _CHAIN_FACTOR = 1.7            # image: 561 MB at 142 MiB of chain (demo), 332 MB at 12 MiB
 # mic * grid point * sample per second, whole image stage with its unit sources, 2 threads:
-# demo pass-1, 48 mics x 775 points x 6400 samples x 16 windows in 50.6 s.
+# demo pass-1, 48 mics x 775 points x 6400 samples x 16 windows in 50.6 s; taken per imaging
+# method (each other method costs about a headline's time).
 _IMAGE_RATE = 7.5e7
 _MARGIN = 1.5
 _FLOOR_MB = 1000
@@ -67,10 +69,12 @@ def job_memory_mb(stage: str, sizes: JobSizes) -> int:
 
 def job_runtime_min(stage: str, sizes: JobSizes) -> int:
     """Wall time (minutes) of one job: every window at the imaging's measured whole-stage rate
-    (unit sources included), three times over; the other stages take seconds."""
+    (unit sources included) for each method the pass runs, three times over; the other stages
+    take seconds."""
     if stage != "image":
         return _FLOOR_MIN
-    work = sizes.n_mics * sizes.n_grid * sizes.window_samples * sizes.n_windows
+    work = (sizes.n_mics * sizes.n_grid * sizes.window_samples * sizes.n_windows
+            * sizes.n_methods)
     seconds = work / _IMAGE_RATE
     return int(max(_FLOOR_MIN, np.ceil(3 * seconds / 60)))
 
@@ -177,7 +181,8 @@ class CampaignPlan:
         return JobSizes(n_grid=int(np.prod(camp.grid.shape)), n_mics=channels,
                         window_samples=int(an.window_s * fs),
                         n_bands=len(third_octave_bands(an.band_min_hz, an.band_max_hz)),
-                        n_windows=an.window_count_bound(duration))
+                        n_windows=an.window_count_bound(duration),
+                        n_methods=1 + len(spec.other_methods))
 
     def image_threads(self, cores: int | None, *, local: bool) -> int:
         """Threads of each image job.
