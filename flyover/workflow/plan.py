@@ -192,8 +192,11 @@ class CampaignPlan:
         results byte for byte). So on this machine, while at least as many passes as cores
         are still to be imaged, each image job takes one thread and the scheduler keeps every
         core busy with two of them, or one beside the light steps; fewer passes to image (a
-        re-imaged pass, a small campaign) share the cores among them. A cluster's job gets
-        two unless the profile sets more (``set-threads``).
+        re-imaged pass, a small campaign) share the cores among them. "Still to be imaged" is
+        read from the maps on disk (the jobs Snakemake will run are not known yet): a run that
+        re-images passes whose maps exist (a changed setting of every pass, a new flyover)
+        gives each job every core, as before. A cluster's job gets two unless the profile sets
+        more (``set-threads``).
 
         Parameters
         ----------
