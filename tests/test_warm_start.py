@@ -10,6 +10,7 @@ import subprocess
 import sys
 import time
 
+import numpy as np
 import pytest
 
 from flyover.workflow import warm_start
@@ -117,3 +118,20 @@ def test_a_long_temporary_folder_or_no_log_folder(tmp_path, monkeypatch):
     (tmp_path / "a file").write_text("")
     assert not WarmProcess().start(tmp_path / "a file" / "logs", max_threads=1)
     assert SOCKET_ENV not in os.environ
+
+
+def test_the_warm_process_loads_the_attitude_kernel_the_tracks_call():
+    # The warm process loads the track's attitude kernel once for its forks: it must be the
+    # very specialization (argument types and layouts) a fitted track calls, or each fork
+    # would still load its own.
+    from flyover.geometry.attitude import load_compiled
+    from flyover.geometry._attitude_kernel import slerp_quaternions
+    from flyover.geometry.track import straight_track
+
+    load_compiled()
+    loaded = set(slerp_quaternions.signatures)
+    track, *_ = straight_track(20.0, 30.0, 90.0, 2.0, -3.0, 6.0, pitch_deg=3.0, roll_deg=-2.0)
+    track.rotation(np.linspace(0.0, 1.0, 7))
+    track.attitude_deg(1.5)
+    track.body_points_enu(np.zeros((1, 3)), np.linspace(-1.0, 1.0, 5)[::2])
+    assert loaded and set(slerp_quaternions.signatures) == loaded

@@ -54,3 +54,11 @@ class AttitudeKeys:
                              f"the keys' {self.time_s[0]:.6g} to {self.time_s[-1]:.6g} s")
         return Rotation.from_quat(slerp_quaternions(t.ravel(), self.time_s, self.quat_xyzw,
                                                     self.step_rotvec))
+
+
+def load_compiled() -> None:
+    """Load the compiled interpolation for the argument types a track passes it (from numba's
+    cache, or compiling it): the warm process of a workflow run does so once, so that its
+    forks do not each load it (0.27 s). It is serial: a parallel kernel loaded there would
+    start numba's thread pool, which a fork must not inherit."""
+    AttitudeKeys.from_rotations([0.0, 1.0], Rotation.identity(2))(0.5)

@@ -109,6 +109,7 @@ def serve(path: str, watched_pid: int, log_path: str) -> None:
     import signal
 
     import flyover.cli  # noqa: F401  (the command line the forks run)
+    from flyover.geometry.attitude import load_compiled
     from flyover.imaging.methods import methods
     from flyover.io.readers import KINDS, readers
     from flyover.pipeline import stages
@@ -117,6 +118,8 @@ def serve(path: str, watched_pid: int, log_path: str) -> None:
     # The registries import their modules at the first look-up: here once, not in every fork.
     methods()
     readers(KINDS[0])
+    # The track's attitude kernel, which every pass step calls, compiled code loaded once.
+    load_compiled()
     listener = socket.socket(socket.AF_UNIX, socket.SOCK_STREAM)
     listener.bind(path)
     listener.listen(64)
