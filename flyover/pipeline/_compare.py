@@ -172,10 +172,12 @@ def _difference_rows(a: dict, b: dict, value: str, keys: list[str], *, shared: t
             columns=keys + ["polar_bin_deg", value, "uncertainty_db", "_pass"])
     sa, sb = stacked(a), stacked(b)
     by = keys + ["polar_bin_deg"]
+    # Each side split by key once (rows in their order; a key with a NaN part matches no row).
+    groups_a, groups_b = (dict(iter(t.groupby(by, sort=False))) for t in (sa, sb))
     rows = []
     for key in sorted(set(map(tuple, sa[by].to_numpy())) | set(map(tuple, sb[by].to_numpy()))):
-        ga = sa[(sa[by] == pd.Series(key, index=by)).all(axis=1)]
-        gb = sb[(sb[by] == pd.Series(key, index=by)).all(axis=1)]
+        ga = groups_a.get(key, sa.iloc[:0])
+        gb = groups_b.get(key, sb.iloc[:0])
         d = difference_interval(ga[value], gb[value], 0.90, ua_db=ga["uncertainty_db"],
                                 ub_db=gb["uncertainty_db"], shared_db=shared[0],
                                 shared_b_db=shared[1], shared_cancels=shared_cancels)
