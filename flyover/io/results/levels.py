@@ -57,7 +57,7 @@ LEVELS = TableFile("levels.csv", (
                             "band (array.plate_correction_db), subtracted from the levels"),
 ), float_format="%.3f", flags=("resolved", "band_valid"))
 
-# Every method the campaign runs (analysis.method and other_methods), for comparison: the same
+# Every method the pass runs (analysis.method and its other_methods), for comparison: the same
 # columns after the method's name. levels.csv holds the headline method's alone.
 LEVELS_BY_METHOD = TableFile("levels_by_method.csv", (
     ("method", "the imaging method"), *LEVELS.columns), float_format="%.3f", flags=LEVELS.flags)
