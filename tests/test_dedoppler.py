@@ -128,7 +128,8 @@ def test_line_beam_powers_match_numpy_reference():
 def test_steered_line_powers_match_numpy_reference():
     # The unit source's beam and autopowers at one instant, its steering formed inside the
     # kernel, against the same formed with numpy and line_beam_powers (checked above) and the
-    # autopowers' matrix product.
+    # autopowers' matrix product; with the ground's path (raised microphones), the expected
+    # beam |A|^2 + 2 Re(conj(A) B) + |C|^2 of the three sums formed with numpy.
     rng = np.random.default_rng(6)
     n_s, n_p, n_m, n_f = 3, 25, 12, 16
     amp_g, rx_g = rng.uniform(30, 60, (n_p, n_m)), rng.uniform(0.1, 0.2, (n_p, n_m))
@@ -139,14 +140,24 @@ def test_steered_line_powers_match_numpy_reference():
     gain = rng.uniform(0.8, 1.2, (n_s, n_f, n_m)) * np.exp(1j * rng.uniform(0, 6, (n_s, n_f, n_m)))
     u2 = rng.uniform(0.5, 1.0, (n_s, n_m, n_f))
     beam, auto = np.ones((n_s, n_p, n_f)), np.ones((n_s, n_p, n_f))
-    _kernels.steered_line_powers(amp_g, rx_g, amp_s, rx_s, doppler, band_gain, f, gain, u2,
-                                 0.25, beam, auto)
+    no_image = np.zeros((n_s, 0, n_f, n_m), complex)
+    _kernels.steered_line_powers(amp_g, rx_g, amp_s, rx_s, doppler, band_gain, f, gain,
+                                 no_image, u2, 0.25, beam, auto)
     ratio = amp_g[None] / amp_s[:, None, :] * band_gain
     advance = (rx_g[None] - rx_s[:, None, :]) / doppler[:, None, :]
     out = np.empty((n_s, n_p, n_f))
     _kernels.line_beam_powers(ratio, advance, f, gain, out)
     np.testing.assert_allclose(beam, 1 + 0.25 * out, rtol=1e-10)
     np.testing.assert_allclose(auto, 1 + 0.25 * (ratio ** 2 @ u2), rtol=1e-12)
+
+    image = 0.8 * np.exp(1j * rng.uniform(0, 6, (n_s, 2, n_f, n_m))) * gain[:, None]
+    beam[:] = 1.0
+    _kernels.steered_line_powers(amp_g, rx_g, amp_s, rx_s, doppler, band_gain, f, gain,
+                                 image, u2, 0.25, beam, auto)
+    phasor = ratio[..., None] * np.exp(2j * np.pi * f[:, None, None, :] * advance[..., None])
+    a, b, c = (np.einsum("spmf,sfm->spf", phasor, g) for g in (gain, image[:, 0], image[:, 1]))
+    expected = np.abs(a) ** 2 + 2 * (np.conj(a) * b).real + np.abs(c) ** 2
+    np.testing.assert_allclose(beam, 1 + 0.25 * expected, rtol=1e-10)
 
 
 def test_tabulated_lagrange_reads_stay_within_their_bound():

@@ -6,13 +6,8 @@ import numpy as np
 import pytest
 
 from flyover.imaging import _kernels
-from flyover.imaging.ground_gains import GROUND_POWER_FLOOR, ground_gains
+from flyover.imaging.ground_gains import GROUND_POWER_FLOOR, ground_gains, sweep_mean
 from flyover.imaging.reception import ImagePaths
-
-
-def _sweep_reference(x):
-    return (np.sinc(x) + (2 / 3) * (np.sinc(x - 1) + np.sinc(x + 1))
-            + (1 / 6) * (np.sinc(x - 2) + np.sinc(x + 2)))
 
 
 def _gains_reference(image, q, f, duration_s, weights):
@@ -20,7 +15,7 @@ def _gains_reference(image, q, f, duration_s, weights):
     w = np.asarray(weights, float)[None, :, None]
     z = image.ratio[..., None] * q[None] * np.exp(
         -2j * np.pi * f[None, None, :] * image.delay_s[..., None])
-    sweep = _sweep_reference(f[None, None, :] * image.delay_rate[..., None] * duration_s)
+    sweep = sweep_mean(f[None, None, :] * image.delay_rate[..., None] * duration_s)
     s1, s2 = float(w.sum()), float((w ** 2).sum())
     beam = (s1 ** 2 + 2.0 * s1 * np.sum(w * z * sweep, axis=1).real
             + np.abs(np.sum(w * z, axis=1)) ** 2)
@@ -61,4 +56,5 @@ def test_sweep_factor_is_the_hann_squared_mean_of_the_phase(x):
     ref = np.sum(w2 * np.cos(2 * np.pi * x * (u - 0.5))) / np.sum(w2)
     got = _kernels._hann_squared_mean(x, _kernels._sin_pi(x))
     assert got == pytest.approx(ref, abs=1e-9)
-    assert got == pytest.approx(float(_sweep_reference(x)), rel=1e-9, abs=1e-15)
+    assert float(sweep_mean(x)) == pytest.approx(ref, abs=1e-9)
+    assert got == pytest.approx(float(sweep_mean(x)), rel=1e-9, abs=1e-15)

@@ -315,14 +315,52 @@ def _unit_line_powers(ratio, advance_s, f, line_gain, work, dest, weight, accumu
             dest[k] = re * re + im * im
 
 
+@numba.njit(fastmath=True, cache=True, inline="always")
+def _unit_two_path_powers(ratio, advance_s, f, line_gain, image_gain, work, dest, weight):
+    """One point's expected beam power per line with the ground's path too
+    (:func:`steered_line_powers`), ``weight`` times it added to ``dest`` (n_lines,)."""
+    n_m = ratio.shape[0]
+    n_f = f.shape[0]
+    a, sr, si, zr, zi = work[0], work[1], work[2], work[3], work[4]
+    spacing = f[1] - f[0] if n_f > 1 else 0.0
+    _phase_steps(advance_s, spacing, 1.0, a, sr, si)
+    for k in range(n_f):
+        if k == 0 or abs(f[k] - f[k - 1] - spacing) > 1e-9 * abs(spacing):
+            _phasors(ratio, a, f[k], zr, zi)
+        ar = ai = br = bi = cr = ci = 0.0
+        for m in range(n_m):
+            xr = zr[m]
+            xi = zi[m]
+            g = line_gain[k, m]
+            h = image_gain[0, k, m]
+            e = image_gain[1, k, m]
+            ar += xr * g.real - xi * g.imag
+            ai += xi * g.real + xr * g.imag
+            br += xr * h.real - xi * h.imag
+            bi += xi * h.real + xr * h.imag
+            cr += xr * e.real - xi * e.imag
+            ci += xi * e.real + xr * e.imag
+            zr[m] = xr * sr[m] - xi * si[m]
+            zi[m] = xr * si[m] + xi * sr[m]
+        dest[k] += weight * (ar * ar + ai * ai + 2.0 * (ar * br + ai * bi) + cr * cr + ci * ci)
+
+
 @numba.njit(parallel=True, fastmath=True, cache=True)
 def steered_line_powers(amp_g, rx_g, amp_s, rx_s, doppler_s, band_gain, frequency_hz,
-                        line_gain, u2, weight, beam, auto):
+                        line_gain, image_gain, u2, weight, beam, auto):
     """The time-domain unit source's beam and autopowers per point and line at one instant
     of the steering model, added with ``weight`` to ``beam`` and ``auto`` (n_sets, n_points,
     n_lines): :func:`line_beam_powers` with ``ratio = amp_g / amp_s * band_gain`` and
     ``advance = (rx_g - rx_s) / doppler_s`` formed per point, and the autopowers
     ``sum_m ratio^2 u2[s, m, k]``.
+
+    Over raised microphones the line also reaches microphone m by the ground, as a copy of
+    gain ``z_m`` whose delay sweeps over the window (window mean ``W_m`` of the sweep): with
+    the direct sum ``A = sum_m p_m g_m`` (p the steering phasor, g ``line_gain``), ``B = sum_m
+    p_m g_m z_m W_m`` and ``C = sum_m p_m g_m z_m`` (``image_gain[s, 0]`` holds ``g z W``,
+    ``image_gain[s, 1]`` ``g z``), the expected beam power is ``|A|^2 + 2 Re(conj(A) B) +
+    |C|^2`` (:func:`flyover.imaging.ground_gains.ground_gains` states the model); ``u2`` then
+    holds ``|g|^2 (1 + 2 Re(z W) + |z|^2)``, the autopowers' share.
 
     Parameters
     ----------
@@ -333,8 +371,10 @@ def steered_line_powers(amp_g, rx_g, amp_s, rx_s, doppler_s, band_gain, frequenc
     band_gain : float64 array (n_sets, n_points, n_mics)
     frequency_hz, line_gain
         As for :func:`line_beam_powers`.
+    image_gain : complex128 array (n_sets, 2, n_lines, n_mics), or (n_sets, 0, n_lines, n_mics)
+        The reflection's gains of raised microphones; none in free field and over ground plates.
     u2 : float64 array (n_sets, n_mics, n_lines)
-        The squared line gains.
+        The squared line gains (the expected autopowers' per line and microphone).
     weight : float
     beam, auto : float64 arrays (n_sets, n_points, n_lines)
         Added to in place.
@@ -352,8 +392,12 @@ def steered_line_powers(amp_g, rx_g, amp_s, rx_s, doppler_s, band_gain, frequenc
             for m in range(n_m):
                 ratio[m] = amp_g[p, m] / amp_s[s, m] * band_gain[s, p, m]
                 advance[m] = (rx_g[p, m] - rx_s[s, m]) / doppler_s[s, m]
-            _unit_line_powers(ratio, advance, frequency_hz[s], line_gain[s], work,
-                              beam[s, p], weight, True)
+            if image_gain.shape[1] == 0:
+                _unit_line_powers(ratio, advance, frequency_hz[s], line_gain[s], work,
+                                  beam[s, p], weight, True)
+            else:
+                _unit_two_path_powers(ratio, advance, frequency_hz[s], line_gain[s],
+                                      image_gain[s], work, beam[s, p], weight)
             for k in range(n_f):
                 acc = 0.0
                 for m in range(n_m):

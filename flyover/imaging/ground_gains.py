@@ -61,3 +61,43 @@ def ground_gains(image: ImagePaths, q, frequency_hz, duration_s: float,
         float(duration_s), np.ascontiguousarray(weights, float), GROUND_POWER_FLOOR, full,
         removed)
     return full, removed
+
+
+def sweep_mean(x) -> np.ndarray:
+    """Mean of ``e^(-i 2 pi x u / T)`` over a window of length T (u from its centre) weighted
+    by the squared periodic Hann window: what a delay sweeping x cycles of a line across the
+    window leaves of the line's coherent part. cos^4 is 3/8 + cos(2 pi u / T) / 2 +
+    cos(4 pi u / T) / 8, so the mean is sinc(x) + 2/3 (sinc(x - 1) + sinc(x + 1)) +
+    1/6 (sinc(x - 2) + sinc(x + 2)) (real: the window is even); the compiled ground gains use
+    the same."""
+    x = np.asarray(x, float)
+    return (np.sinc(x) + 2.0 / 3.0 * (np.sinc(x - 1) + np.sinc(x + 1))
+            + 1.0 / 6.0 * (np.sinc(x - 2) + np.sinc(x + 2)))
+
+
+def image_line_gains(image: ImagePaths, frequency_hz, duration_s: float, c_m_s: float,
+                     ground: GroundSurface | None) -> tuple[np.ndarray, np.ndarray]:
+    """What the ground path adds to a source's lines at each microphone, as the chain's
+    de-Dopplerized signal of the source holds it: ``z = ratio Q e^(-i 2 pi f delay)`` (Q at
+    the image path's own incidence, length and received frequency) and the window mean of
+    its delay's sweep, ``W = sweep_mean(f rate T)`` (:func:`ground_gains` states the model).
+
+    Parameters
+    ----------
+    image : ImagePaths
+        The source's image paths, (n_rows, n_mics): e.g. one source position per band.
+    frequency_hz : array_like, shape (n_rows, n_lines)
+    duration_s : float
+        The window's length T.
+
+    Returns
+    -------
+    z : complex ndarray, shape (n_rows, n_mics, n_lines)
+    sweep : ndarray, shape (n_rows, n_mics, n_lines)
+    """
+    f = np.asarray(frequency_hz, float)[:, None, :]
+    q = reflection_transfer(f / image.doppler[..., None], image.cos_incidence[..., None],
+                            image.path_m[..., None], c_m_s,
+                            ground if ground is not None else GroundSurface("hard"))
+    z = image.ratio[..., None] * q * np.exp(-2j * np.pi * f * image.delay_s[..., None])
+    return z, sweep_mean(f * image.delay_rate[..., None] * duration_s)

@@ -104,14 +104,15 @@ class PointSpread:
         On the grid points asked for, shape (n_points, n_bands) each.
     source_power_pa2 : ndarray, shape (n_bands,)
         The unit source's own band power at 1 m in the window.
-    simulated : bool
-        A simulated signal through the chain rather than the steering model (a unit source with
-        a position per band is always modelled).
+    main_lobe : BandPowers or None
+        Where the maps hold more than the source's main lobe (over raised microphones, the
+        ground path's image), the free-field maps whose main lobe the half-power test reads;
+        given for a source at one position (a region centre), None where the maps are it.
     """
 
     maps: BandPowers
     source_power_pa2: np.ndarray
-    simulated: bool = False
+    main_lobe: BandPowers | None = None
 
 
 @dataclass(frozen=True)
@@ -236,8 +237,7 @@ def image_window(signals_pa, context: WindowContext, *, method: ImagingMethod, g
     :func:`flyover.imaging.integration.shift_distances_m`), and the leakage solve repeated: a
     real source sits somewhere in its region, and where that moves a level by more than
     ``SHIFT_TOLERANCE_DB`` (a weak region beside a strong one, whose leakage into it the
-    unit source cannot pin down), the level is not given. A simulated unit source (raised
-    microphones) is shifted by the model's relative change of its couplings. Pairs of regions
+    unit source cannot pin down), the level is not given. Pairs of regions
     are resolved where their midpoint lies outside both unit sources' half-power main lobes
     (the planning criterion, with this window's geometry: foreshortening included); see
     :func:`flyover.imaging.integration.region_verdicts` for the rest. BLAS runs on one thread
@@ -273,15 +273,9 @@ def _image_window(signals_pa, context: WindowContext, *, method: ImagingMethod, 
     # coupling[b, i, j]: region i's summed map of the unit source at region j's centre, per unit
     # power (see flyover.imaging.integration.region_powers).
     coupling = np.empty((n_b, n_r, n_r))
-    units, psf_sums, residual_psf, lobes, modelled = {}, {}, {}, [], []
+    units, psf_sums, residual_psf, lobes = {}, {}, {}, []
     for j, name in enumerate(names):
         coupling[:, :, j], psf = column(j, regions[name].center_m)
-        # A simulated unit source (raised microphones) has a modelled twin, a position per
-        # band: the shifts are modelled too and scale the couplings by the model's own change,
-        # and the lobe is the model's (the simulated one carries the ground correction's
-        # per-line division, which blurs it away from the source).
-        twin = column(j, np.broadcast_to(centres[j], (n_b, 3))) if psf.simulated else None
-        modelled.append(None if twin is None else twin[0])
         psf_maps = psf.maps.diagonal_removed if use_removed else psf.maps.full
         units[name] = psf.source_power_pa2
         psf_sums[name] = psf_maps[where[j]].sum(axis=0)
@@ -289,9 +283,9 @@ def _image_window(signals_pa, context: WindowContext, *, method: ImagingMethod, 
             residual_psf[name] = psf.maps.residual[where[j]].sum(axis=0)
         # The conventional map of the unit source (a deconvolving method's residual map is
         # one) relative to its peak: the half-power test of the pairs.
-        shape = psf if twin is None else twin[1]
-        lobe = shape.maps.residual if shape.maps.residual is not None else (
-            shape.maps.diagonal_removed if use_removed else shape.maps.full)
+        shape = psf.maps if psf.main_lobe is None else psf.main_lobe
+        lobe = shape.residual if shape.residual is not None else (
+            shape.diagonal_removed if use_removed else shape.full)
         lobes.append(lobe / lobe.max(axis=0))
 
     def integrate(found: BandPowers):
@@ -314,8 +308,6 @@ def _image_window(signals_pa, context: WindowContext, *, method: ImagingMethod, 
 
     map_sums, residuals, measured, solved, total = integrate(bp)
     wavelength = context.atmosphere.c_m_s / context.settings.bands.center_hz
-    # The shifted unit sources (a position per band) are modelled: where the centred one was
-    # simulated, the test measures the source's place, not the difference of two models.
     shifted, tested = [], []
     for j, name in enumerate(names):
         extent = np.abs(np.diff([regions[name].x_m, regions[name].y_m], axis=1)[:, 0])
@@ -328,9 +320,6 @@ def _image_window(signals_pa, context: WindowContext, *, method: ImagingMethod, 
             for d, which in tests:
                 moved = coupling.copy()
                 moved[:, :, j] = column(j, centres[j] + np.outer(d, direction))[0]
-                if modelled[j] is not None:
-                    with np.errstate(divide="ignore", invalid="ignore"):
-                        moved[:, :, j] *= coupling[:, :, j] / modelled[j]
                 shifted.append(moved)
                 tested.append(which)
     # The shifts move the solve alone; a deconvolving method's residual part stays.

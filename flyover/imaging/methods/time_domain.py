@@ -3,11 +3,11 @@
 Every microphone is de-Dopplerized to every grid point (:mod:`flyover.imaging.dedoppler`) and
 band powers are formed from the windowed spectra of the sums, with and without diagonal removal.
 The point-spread of a unit point source comes from the steering model of the chain
-(:func:`modelled_point_spread`: the geometry frozen at the window centre, the absorption of
-the source's path against the chain's compensation, the interpolation's mean loss). Over
-raised microphones, whose reflected path sweeps in delay across the window, the unit source at
-a region centre is simulated with the forward model (:mod:`flyover.forward.moving_source`) and
-mapped by the identical chain instead.
+(:func:`modelled_point_spread`: the geometry at a few instants of the window, the absorption
+of the source's path against the chain's compensation, the interpolation's mean loss, and over
+raised microphones the ground's path with its delay's sweep, in expectation). A unit source
+simulated with the forward model (:mod:`flyover.forward.moving_source`) and mapped by the
+identical chain (:func:`simulated_point_spread`) is the reference the model is tested against.
 """
 
 from __future__ import annotations
@@ -19,6 +19,7 @@ from flyover.forward.moving_source import (Broadband, PointSource, Propagator, S
 from flyover.imaging import _kernels
 from flyover.imaging.chain import band_bins, BandPowers, signal_band_power
 from flyover.imaging.dedoppler import interpolation_response, window_band_powers
+from flyover.imaging.ground_gains import ground_gains, ground_q, image_line_gains
 from flyover.imaging.reception import absorption_gains, reception_geometry, subset, values_at
 from flyover.imaging.methods import register
 from flyover.imaging.window import ImagingMethod, PointSpread, WindowContext
@@ -38,15 +39,20 @@ def band_maps(signals_pa, context: WindowContext) -> BandPowers:
 
 
 def point_spread(body_m, points, context: WindowContext, seed: int) -> PointSpread:
-    """A unit point source at ``body_m`` mapped on ``points``: modelled, or simulated over
-    raised microphones when one position serves every band."""
+    """A unit point source at ``body_m`` mapped on ``points``, from the steering model
+    (:func:`modelled_point_spread`; nothing random: ``seed`` is not used). Over raised
+    microphones a source at one position (a region centre) also gives its free-field maps,
+    whose main lobe the ground path's image does not blur."""
     body = np.asarray(body_m, float)
+    psf = modelled_point_spread(body, points, context)
     if context.settings.image_mic_enu_m is None or body.ndim == 2:
-        return modelled_point_spread(body, points, context)
-    return simulated_point_spread(body, points, context, seed)
+        return psf
+    return PointSpread(psf.maps, psf.source_power_pa2, main_lobe=modelled_point_spread(
+        body, points, context, reflection=False).maps)
 
 
-def modelled_point_spread(body_m, points, context: WindowContext) -> PointSpread:
+def modelled_point_spread(body_m, points, context: WindowContext, *,
+                          reflection: bool = True) -> PointSpread:
     """The chain's maps of a unit point source from its steering, without simulating it.
 
     A source at s appears in grid point g's de-Dopplerized signal of microphone m as its own
@@ -57,8 +63,15 @@ def modelled_point_spread(body_m, points, context: WindowContext) -> PointSpread
     line (1 Pa^2 each) the beam is the weighted sum of these over microphones, the autopowers
     the weighted sum of their squares, exactly as :func:`window_band_powers` forms the maps. The
     geometry is taken at ``MODEL_INSTANTS`` instants across the window, their beam powers
-    weighted by the window's squared taper (free field: raised microphones' reflection is not
-    modelled here).
+    weighted by the window's squared taper.
+
+    Over raised microphones each line also arrives by the ground, a copy of the source's own
+    image-path gain whose delay sweeps over the window (:func:`image_line_gains`): the beam and
+    autopowers are their expected values over the two paths, and each line is divided by the
+    ground's expected gain at its point as the chain divides the maps
+    (:func:`flyover.imaging.ground_gains.ground_gains`). The expectation is what a simulated
+    unit source gives on average (:func:`simulated_point_spread`, the reference it is tested
+    against), without the scatter of a single draw of broadband noise.
 
     Parameters
     ----------
@@ -66,6 +79,9 @@ def modelled_point_spread(body_m, points, context: WindowContext) -> PointSpread
         The source position, or one per band.
     points : index array
         Grid points of the context's geometry to map.
+    reflection : bool
+        Over raised microphones, the ground's path and the chain's division too; False for
+        the free-field maps (its own lobe, unblurred by the image).
 
     Returns
     -------
@@ -79,18 +95,17 @@ def modelled_point_spread(body_m, points, context: WindowContext) -> PointSpread
     used = np.flatnonzero(weights > 0)
     wt = weights[used]
     s1, s2 = wt.sum(), (wt ** 2).sum()
+    images = (np.asarray(s.image_mic_enu_m, float)[used]
+              if reflection and s.image_mic_enu_m is not None else None)
     source = reception_geometry(context.track, w, bodies, context.mic_enu_m[used],
-                                context.atmosphere, s.pressure_gain, node_step=s.node_step)
+                                context.atmosphere, s.pressure_gain, node_step=s.node_step,
+                                image_mic_enu_m=images)
     # The geometry turns over the window: the beam is modelled at a few instants, each weighted
     # as the window's squared Hann taper weights the band power there.
     instants = w.start_s + (np.arange(MODEL_INSTANTS) + 0.5) / MODEL_INSTANTS * (
         w.n_samples / w.sample_rate_hz)
     taper = np.sin(np.pi * (np.arange(MODEL_INSTANTS) + 0.5) / MODEL_INSTANTS) ** 4
     taper /= taper.sum()
-    # The grid side is the same for every unit source of the window.
-    at_g, gain = context.derived(("modelled grid", np.asarray(points).tobytes()),
-                                 lambda: _grid_model(context, points, used, instants))
-    at_s = [values_at(source, t) for t in instants]               # (n_b, n_m) each
     # Evenly spaced lines across each band (the kernel steps their phases by products), each
     # standing for its share of the band's lines; bands with fewer lines are padded by
     # continuing their progression with no gain, so that all bands go through at once.
@@ -106,6 +121,11 @@ def modelled_point_spread(body_m, points, context: WindowContext) -> PointSpread
         f[b] = spacing_hz * (start + stride * np.arange(MODEL_LINES_PER_BAND))
         modelled[b, :n_model] = True
         lines[b] = n_lines
+    # The grid side is the same for every unit source of the window.
+    at_g, gain, ground = context.derived(("modelled grid", np.asarray(points).tobytes()),
+                                         lambda: _grid_model(context, points, used, instants,
+                                                             f))
+    at_s = [values_at(source, t) for t in instants]               # (n_b, n_m) each
     u = interpolation_response(f[:, None, :] / source.doppler_center[:, :, None],
                                w.sample_rate_hz, s.interpolation)         # (n_b, n_m, n_f)
     if s.absorption:
@@ -114,32 +134,59 @@ def modelled_point_spread(body_m, points, context: WindowContext) -> PointSpread
         u = u * 10.0 ** (-alpha * source.distance_center_m[:, :, None] / 20.0)
     u = u * modelled[:, None, :]
     line_gain = np.ascontiguousarray(u.transpose(0, 2, 1), complex)       # (n_b, n_f, n_m)
+    u2 = np.abs(u) ** 2
+    if source.image is None:
+        image_gain = np.zeros((len(bands), 0) + line_gain.shape[1:], complex)
+    else:
+        # Raised microphones: the source's lines also arrive by the ground (its own image
+        # paths), the expected powers of the two paths together (steered_line_powers).
+        z, sweep = image_line_gains(source.image, f, w.n_samples / w.sample_rate_hz,
+                                    context.atmosphere.c_m_s, s.ground)  # (n_b, n_m, n_f)
+        image_gain = np.ascontiguousarray(
+            np.stack([u * z * sweep, u * z], axis=1).transpose(0, 1, 3, 2))
+        u2 = u2 * (1.0 + 2.0 * (z * sweep).real + np.abs(z) ** 2)
     n_p = len(at_g[0][0])
     beam = np.zeros((len(bands), n_p, MODEL_LINES_PER_BAND))
     auto = np.zeros_like(beam)
     band_gain = np.ascontiguousarray(gain.transpose(2, 0, 1) * wt)        # (n_b, n_p, n_m)
-    u2 = np.ascontiguousarray(np.abs(u) ** 2)
+    u2 = np.ascontiguousarray(u2)
     doppler = np.ascontiguousarray(source.doppler_center, float)
     for weight, (rx_g, amp_g), (rx_s, amp_s) in zip(taper, at_g, at_s):
         # The source as each point's steering sees it: amplitude ratio and time advance (a
         # reception-time difference is an emission-time difference over dt/dtau).
         _kernels.steered_line_powers(*(np.ascontiguousarray(a, float) for a in (
-            amp_g, rx_g, amp_s, rx_s)), doppler, band_gain, f, line_gain, u2, float(weight),
-            beam, auto)
+            amp_g, rx_g, amp_s, rx_s)), doppler, band_gain, f, line_gain, image_gain, u2,
+            float(weight), beam, auto)
     share = np.divide(lines, modelled.sum(axis=1), out=np.zeros(len(bands)),
                       where=modelled.any(axis=1))
-    full = (share[:, None] * beam.sum(axis=2) / s1 ** 2).T
-    removed = (share[:, None] * (beam - auto).sum(axis=2) / (s1 ** 2 - s2)).T
+    full, removed = beam, beam - auto
+    if source.image is not None:
+        # The chain divides each line of a map by the ground's expected gain at its point.
+        full, removed = full / ground[0], removed / ground[1]
+    full = (share[:, None] * full.sum(axis=2) / s1 ** 2).T
+    removed = (share[:, None] * removed.sum(axis=2) / (s1 ** 2 - s2)).T
     return PointSpread(BandPowers(full, removed), lines)
 
 
-def _grid_model(context: WindowContext, points, used, instants):
-    """The grid points' side of the steering model: their reception times and amplitude
-    factors at ``instants`` ((n_p, n_m) pairs) and the chain's absorption gains
-    (n_p, n_m, n_bands), on the used microphones."""
-    grid = subset(subset(context.geometry, points), (slice(None), used))
+def _grid_model(context: WindowContext, points, used, instants, frequency_hz):
+    """The grid points' side of the steering model, on the used microphones: their reception
+    times and amplitude factors at ``instants`` ((n_p, n_m) pairs), the chain's absorption
+    gains (n_p, n_m, n_bands) and, over raised microphones, the ground's expected gains by
+    which the chain divides each line's full and diagonal-removed maps (two arrays (n_bands,
+    n_p, n_lines) at the model's lines ``frequency_hz`` (n_bands, n_lines); None otherwise)."""
+    used_mics = subset(context.geometry, (slice(None), used))
+    grid = subset(used_mics, points)
+    ground = None
+    if grid.image is not None:
+        s, w = context.settings, context.window
+        weights = np.asarray(s.weights, np.float32)[used]
+        # Q as the chain takes it: at the mean incidence of the whole grid's image paths.
+        gains = [ground_gains(grid.image, ground_q(used_mics.image, f, context.atmosphere.c_m_s,
+                                                   s.ground), f,
+                              w.n_samples / w.sample_rate_hz, weights) for f in frequency_hz]
+        ground = tuple(np.stack(g) for g in zip(*gains))
     return ([values_at(grid, t) for t in instants],
-            absorption_gains(context.settings, context.atmosphere, grid))
+            absorption_gains(context.settings, context.atmosphere, grid), ground)
 
 
 def simulated_point_spread(body_m, points, context: WindowContext, seed: int) -> PointSpread:
@@ -163,7 +210,7 @@ def simulated_point_spread(body_m, points, context: WindowContext, seed: int) ->
                               context.clock, w, settings, context.atmosphere,
                               workers=context.workers)
     return PointSpread(maps, signal_band_power(signal(w.emission_times_s), bands,
-                                               w.sample_rate_hz), simulated=True)
+                                               w.sample_rate_hz))
 
 
 register(ImagingMethod("time-domain", "delay-and-sum of de-Dopplerized signals per grid point, "
