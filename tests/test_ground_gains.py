@@ -58,3 +58,44 @@ def test_sweep_factor_is_the_hann_squared_mean_of_the_phase(x):
     assert got == pytest.approx(ref, abs=1e-9)
     assert float(sweep_mean(x)) == pytest.approx(ref, abs=1e-9)
     assert got == pytest.approx(float(sweep_mean(x)), rel=1e-9, abs=1e-15)
+
+
+def test_warped_line_autos_against_band_sums_and_a_naive_loop():
+    # The summed chain's autopowers divided line by line under raised microphones. With every
+    # gain 1 they are the band sums of the free-field chain: the reference's lines below a
+    # warped band edge e counted as ceil(e / (s spacing)), read from cumulative sums. With
+    # gains, the kernel against the rule written as a plain loop (line i warped to i s, in the
+    # band when the band sums count it, divided by the gain of the band's line nearest i s).
+    from flyover.acoustics.bands import third_octave_bands
+    from flyover.imaging.chain import band_bins
+    rng = np.random.default_rng(5)
+    n_p, n_m, n_f, spacing = 5, 4, 800, 4.0
+    bands = third_octave_bands(200, 2500)
+    bins = band_bins(bands, 2 * (n_f - 1), 2 * (n_f - 1) * spacing)
+    lines = np.array([[b.start, b.stop] for b in bins], np.int64)
+    edges = np.stack([bands.lower_hz, bands.upper_hz], axis=1) / spacing
+    power = rng.uniform(0.1, 1.0, (n_m, n_f))
+    warp = rng.uniform(0.97, 1.03, (n_p, n_m))
+    coef = rng.uniform(0.5, 2.0, (n_p, n_m, len(bands)))
+    first = int(lines[0, 0])
+    span = int(lines[-1, 1]) - first
+    out = np.empty((n_p, len(bands)))
+    _kernels.warped_line_autos(power, warp, coef, edges, lines, np.ones((n_p, span)), first, out)
+    cumulative = np.concatenate([np.zeros((n_m, 1)), np.cumsum(power, axis=1)], axis=1)
+    count = np.clip(np.ceil(edges[None, None] / warp[..., None, None]), 0, n_f).astype(int)
+    below = np.take_along_axis(cumulative[None, :, :, None],
+                               count.reshape(n_p, n_m, -1, 1), axis=2).reshape(count.shape)
+    np.testing.assert_allclose(out, np.einsum("gmb,gmb->gb", coef, below[..., 1] - below[..., 0]),
+                               rtol=1e-12)
+    inverse = rng.uniform(0.2, 5.0, (n_p, span))
+    _kernels.warped_line_autos(power, warp, coef, edges, lines, inverse, first, out)
+    ref = np.zeros_like(out)
+    for g in range(n_p):
+        for m in range(n_m):
+            s = warp[g, m]
+            for b, (lo, hi) in enumerate(lines):
+                for i in range(n_f):
+                    if edges[b, 0] <= i * s < edges[b, 1]:
+                        j = min(max(int(np.floor(i * s + 0.5)), lo), hi - 1)
+                        ref[g, b] += coef[g, m, b] * power[m, i] * inverse[g, j - first]
+    np.testing.assert_allclose(out, ref, rtol=1e-12)

@@ -762,6 +762,52 @@ def _hann_squared_mean(x, sin_pi_x):
     return total
 
 
+@numba.njit(parallel=True, cache=True)
+def warped_line_autos(power, warp, coef, edges, lines, inverse_gain, first_line, out):
+    """The summed chain's autopowers divided line by line by the ground's expected gains: per
+    point g and band b, ``sum_m coef[g, m, b] sum_i power[m, i] inverse_gain[g, j(i)]`` over
+    the reference's lines i that a time warp by ``s = warp[g, m]`` takes into the band (the
+    band sums' rule: ``edges[b, 0] <= i s < edges[b, 1]``, edges in lines), j(i) the band's
+    line nearest ``i s``.
+
+    Parameters
+    ----------
+    power : float64 array (n_mics, n_lines)
+        The reference point's power per line and microphone.
+    warp : float64 array (n_points, n_mics)
+    coef : float64 array (n_points, n_mics, n_bands)
+    edges : float64 array (n_bands, 2)
+        Band edges in lines (frequency over the line spacing).
+    lines : int64 array (n_bands, 2)
+        Each band's first line and the line past its last.
+    inverse_gain : float64 array (n_points, n_span)
+        1 / gain of lines ``first_line`` on.
+    first_line : int
+    out : float64 array (n_points, n_bands)
+        Filled in place.
+    """
+    n_p, n_m = warp.shape
+    n_b = edges.shape[0]
+    n_f = power.shape[1]
+    for g in numba.prange(n_p):
+        for b in range(n_b):
+            out[g, b] = 0.0
+        for m in range(n_m):
+            s = warp[g, m]
+            for b in range(n_b):
+                lo = lines[b, 0]
+                hi = lines[b, 1]
+                if hi <= lo:
+                    continue
+                i0 = min(max(np.int64(np.ceil(edges[b, 0] / s)), 0), n_f)
+                i1 = min(max(np.int64(np.ceil(edges[b, 1] / s)), 0), n_f)
+                acc = 0.0
+                for i in range(i0, i1):
+                    j = min(max(np.int64(np.floor(i * s + 0.5)), lo), hi - 1)
+                    acc += power[m, i] * inverse_gain[g, j - first_line]
+                out[g, b] += coef[g, m, b] * acc
+
+
 # Lines of a band are evenly spaced: the reflection's phase and the sweep's sine step from line
 # to line by a rotation, taken afresh every LINE_RESTART lines (rounding then stays near 1e-14).
 LINE_RESTART = 32

@@ -128,9 +128,10 @@ def window_memory_bytes(n_grid: int, n_mics: int, n_samples: int, n_bands: int,
     """Peak memory (bytes) the chain needs for one window: geometry of every grid point and
     microphone at the nodes, one chunk of de-Dopplerized signals and spectra, and the maps.
 
-    This prices the per-microphone chain (:func:`_per_microphone_band_powers`, used over
-    raised microphones): an upper bound for the summed chain, whose chunks hold a few sums per
-    point instead of every microphone's signal (0.5 GB at most on the benchmark geometry).
+    This prices the per-microphone chain (:func:`_per_microphone_band_powers`, the direct
+    definition): an upper bound for the summed chain the maps are made with, whose chunks hold
+    a few sums per point instead of every microphone's signal (0.5 GB at most on the benchmark
+    geometry).
     The workflow's memory requests are calibrated against it (:mod:`flyover.workflow.plan`)."""
     n_nodes = int(np.ceil((n_samples - 1) / settings.node_step)) + 1
     geometry = n_grid * n_mics * (n_nodes * 2 + 2) * 8

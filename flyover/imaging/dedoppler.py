@@ -166,10 +166,10 @@ def window_band_powers(signals_pa, first_frame, geometry: ReceptionGeometry,
     """Band powers on every grid point of the geometry, with and without diagonal removal.
 
     ``signals_pa`` (n_mics, n_span) and ``first_frame`` (n_mics,) as in
-    :func:`dedopplerized_signals`. In free field and over ground plates the microphones are
-    summed before any spectrum is taken (:func:`_summed_band_powers`); under raised
-    microphones, whose reflection is undone per line and microphone, every microphone's
-    spectrum is formed (:func:`_per_microphone_band_powers`).
+    :func:`dedopplerized_signals`. The microphones are summed before any spectrum is taken
+    (:func:`_summed_band_powers`; under raised microphones the reflection is undone line by
+    line on the beam and the autopowers); :func:`_per_microphone_band_powers`, from every
+    microphone's own spectrum, is the direct definition it is tested against.
     """
     w = np.asarray(settings.weights, dtype=np.float64)
     used = np.flatnonzero(w > 0)
@@ -178,9 +178,7 @@ def window_band_powers(signals_pa, first_frame, geometry: ReceptionGeometry,
         subset(geometry, (slice(None), used)) if len(used) < len(w) else geometry,
         clock.take(used), w[used],
         absorption_gains(settings, atmosphere, geometry)[:, used])
-    form = _per_microphone_band_powers if chain.geometry.image is not None else \
-        _summed_band_powers
-    return form(chain, window, settings, atmosphere, workers=workers)
+    return _summed_band_powers(chain, window, settings, atmosphere, workers=workers)
 
 
 @dataclass(frozen=True)
@@ -238,6 +236,11 @@ def _summed_band_powers(chain: _UsedChain, window: Window, settings: ChainSettin
     ``sum_m U_gk(m) a_gm`` (:func:`_kernels.dedoppler_summed`): a few spectra per point
     instead of one per microphone.
 
+    Under raised microphones each line's beam power is divided by the ground's expected gain at
+    its point (:func:`ground_gains`), as :func:`_per_microphone_band_powers` does it; so are the
+    autopowers, per line: the reference's line i, warped to ``i s``, takes the gain of the line
+    nearest there within its band (:func:`_kernels.warped_line_autos`).
+
     The de-Dopplerized sums are formed at 1/q of the recording rate (:func:`decimation`):
     the channels are first low-passed, flat to the highest band's top as received, so that
     nothing folds into the bands; the interpolation still reads them at the full rate.
@@ -286,6 +289,17 @@ def _summed_band_powers(chain: _UsedChain, window: Window, settings: ChainSettin
                                + (np.arange(n_mics) * cumulative.shape[1])[None, :, None]]
     band_power = below[..., at[n_b:]] - below[..., at[:n_b]]
     autos = np.einsum("gmb,gmb->gb", weighted ** 2 * rho2[..., None], band_power)
+    ground = None
+    if geo.image is not None:
+        # The reflection undone per line: Q at every line the bands hold, the autopowers
+        # divided line by line (they replace the band sums above).
+        freqs = np.fft.rfftfreq(n_out, 1.0 / rate_hz)
+        ground = (ground_q(geo.image, freqs, atmosphere.c_m_s, settings.ground),
+                  np.asarray(w, np.float32), window.n_samples / window.sample_rate_hz, freqs,
+                  np.ascontiguousarray(weighted ** 2 * rho2[..., None]),
+                  np.array([[b.start, b.stop] for b in bins], np.int64),
+                  np.stack([settings.bands.lower_hz, settings.bands.upper_hz], axis=1)
+                  / (rate_hz / n_out))
     full = np.empty((n_grid, n_b))
     diag = np.empty((n_grid, n_b))
     chunk = max(1, settings.chunk_points * n_mics * q // (2 * k))
@@ -293,6 +307,10 @@ def _summed_band_powers(chain: _UsedChain, window: Window, settings: ChainSettin
         pts = slice(c0, min(c0 + chunk, n_grid))
         sums = _dedopplerized_sums(reading, geo, settings, pts, coef[pts], q, n_out)
         spec = scipy.fft.rfft(sums * win, axis=-1, workers=workers)      # (n_c, k, n_f)
+        if ground is not None:
+            full[pts], diag[pts] = _ground_divided_powers(spec, basis, bins, norm, power,
+                                                          warp, geo.image, ground, pts, s1, s2)
+            continue
         beam_power = np.empty((spec.shape[0], n_b))
         for b, sl in enumerate(bins):
             beam = np.einsum("k,gkf->gf", basis[:, b].astype(np.complex64), spec[:, :, sl])
@@ -300,6 +318,35 @@ def _summed_band_powers(chain: _UsedChain, window: Window, settings: ChainSettin
         full[pts] = beam_power / s1 ** 2
         diag[pts] = (beam_power - autos[pts]) / (s1 ** 2 - s2)
     return BandPowers(full, diag)
+
+
+def _ground_divided_powers(spec, basis, bins, norm: float, power, warp, image, ground, pts,
+                           s1: float, s2: float) -> tuple[np.ndarray, np.ndarray]:
+    """The full and diagonal-removed maps of the points ``pts`` (n_c, n_bands) from their
+    sums' spectra under raised microphones: beam and autopowers divided line by line by the
+    ground's expected gains (``ground`` as :func:`_summed_band_powers` forms it; ``warp`` and
+    ``image`` of every point)."""
+    q_ground, weights, duration_s, freqs, auto_coef, lines, edges = ground
+    image = image.take(pts)
+    n_c, n_b = spec.shape[0], len(bins)
+    full = np.zeros((n_c, n_b))
+    removed = np.zeros((n_c, n_b))
+    first = int(lines[0, 0])
+    inverse = np.zeros((n_c, max(int(lines[-1, 1]) - first, 0)))      # 1 / removed gain
+    for b, sl in enumerate(bins):
+        if sl.stop <= sl.start:
+            continue
+        g_full, g_removed = ground_gains(image, q_ground[:, sl], freqs[sl], duration_s, weights)
+        beam = np.einsum("k,gkf->gf", basis[:, b].astype(np.complex64), spec[:, :, sl])
+        beam_power = (beam.real ** 2 + beam.imag ** 2).astype(np.float64)
+        full[:, b] = (beam_power / g_full).sum(-1) * norm
+        removed[:, b] = (beam_power / g_removed).sum(-1) * norm
+        inverse[:, sl.start - first:sl.stop - first] = 1.0 / g_removed
+    autos = np.zeros((n_c, n_b))
+    _kernels.warped_line_autos(power, np.ascontiguousarray(warp[pts], float),
+                               np.ascontiguousarray(auto_coef[pts]), edges, lines, inverse, first,
+                               autos)
+    return full / s1 ** 2, (removed - autos) / (s1 ** 2 - s2)
 
 
 def _dedopplerized_sums(reading, geo: ReceptionGeometry, settings: ChainSettings, points, coef,
@@ -378,7 +425,7 @@ def _per_microphone_band_powers(chain: _UsedChain, window: Window, settings: Cha
                                 reduce_rate: bool = True) -> BandPowers:
     """The maps from every microphone's spectrum per point: the beam and the autopowers per
     line, with the ground reflection of raised microphones undone per line (the reference
-    the summed chain is tested against in free field, with ``reduce_rate=False``).
+    the summed chain is tested against, with ``reduce_rate=False``).
 
     With ``reduce_rate`` the de-Dopplerized signals are formed at the summed chain's reduced
     rate (:func:`decimation`, after its low-pass): the same lines, a quarter of the reads and
