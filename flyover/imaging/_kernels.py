@@ -842,48 +842,63 @@ def ground_power_gains(ratio, delay_s, delay_rate, q_re, q_im, freq_hz, duration
     for m in range(n_mics):
         s1 += weights[m]
         s2 += weights[m] * weights[m]
+    # Line by line with the microphones innermost: each microphone's terms are independent
+    # (they vectorise, the sweep's divisions included) and are summed afterwards in
+    # microphone order, as a loop over microphones, then lines, sums them: bit for bit.
+    qr = np.ascontiguousarray(q_re.T)
+    qi = np.ascontiguousarray(q_im.T)
     for g in numba.prange(n_points):
-        zw = np.zeros(n_lines)          # Re sum w z W
-        sz_re = np.zeros(n_lines)       # sum w z
-        sz_im = np.zeros(n_lines)
-        auto = np.zeros(n_lines)
+        state = np.empty((8, n_mics))
+        step_c, step_s, sweep_c, sweep_s = state[0], state[1], state[2], state[3]
+        c, s, sin_x, cos_x = state[4], state[5], state[6], state[7]
+        terms = np.empty((4, n_mics))
         for m in range(n_mics):
-            w = weights[m]
-            r = ratio[g, m]
             # The phase -2 pi f delay and the sweep's pi x (x = f rate T) step with the line.
-            step_c = np.cos(2.0 * np.pi * df * delay_s[g, m])
-            step_s = -np.sin(2.0 * np.pi * df * delay_s[g, m])
+            step_c[m] = np.cos(2.0 * np.pi * df * delay_s[g, m])
+            step_s[m] = -np.sin(2.0 * np.pi * df * delay_s[g, m])
             x_step = df * delay_rate[g, m] * duration_s
-            sweep_c = np.cos(np.pi * x_step)
-            sweep_s = np.sin(np.pi * x_step)
-            c = 1.0
-            s = 0.0
-            sin_x = 0.0
-            cos_x = 1.0
-            for j in range(n_lines):
-                f = freq_hz[j]
-                x = f * delay_rate[g, m] * duration_s
-                if j % LINE_RESTART == 0:
-                    phase = -2.0 * np.pi * f * delay_s[g, m]
-                    c = np.cos(phase)
-                    s = np.sin(phase)
-                    sin_x = _sin_pi(x)
-                    n = np.floor(x + 0.5)
-                    cos_x = np.cos(np.pi * (x - n))
-                    if n % 2.0 != 0.0:
-                        cos_x = -cos_x
-                else:
-                    c, s = c * step_c - s * step_s, s * step_c + c * step_s
-                    sin_x, cos_x = (sin_x * sweep_c + cos_x * sweep_s,
-                                    cos_x * sweep_c - sin_x * sweep_s)
-                z_re = r * (q_re[m, j] * c - q_im[m, j] * s)
-                z_im = r * (q_re[m, j] * s + q_im[m, j] * c)
-                sweep = _hann_squared_mean(x, sin_x)
-                zw[j] += w * z_re * sweep
-                sz_re[j] += w * z_re
-                sz_im[j] += w * z_im
-                auto[j] += w * w * (1.0 + z_re * z_re + z_im * z_im + 2.0 * z_re * sweep)
+            sweep_c[m] = np.cos(np.pi * x_step)
+            sweep_s[m] = np.sin(np.pi * x_step)
         for j in range(n_lines):
-            beam = s1 * s1 + 2.0 * s1 * zw[j] + sz_re[j] * sz_re[j] + sz_im[j] * sz_im[j]
+            f = freq_hz[j]
+            if j % LINE_RESTART == 0:
+                for m in range(n_mics):
+                    x = f * delay_rate[g, m] * duration_s
+                    phase = -2.0 * np.pi * f * delay_s[g, m]
+                    c[m] = np.cos(phase)
+                    s[m] = np.sin(phase)
+                    sin_x[m] = _sin_pi(x)
+                    n = np.floor(x + 0.5)
+                    cos_x[m] = np.cos(np.pi * (x - n))
+                    if n % 2.0 != 0.0:
+                        cos_x[m] = -cos_x[m]
+            else:
+                for m in range(n_mics):
+                    c0, s0 = c[m], s[m]
+                    c[m] = c0 * step_c[m] - s0 * step_s[m]
+                    s[m] = s0 * step_c[m] + c0 * step_s[m]
+                    sx, cx = sin_x[m], cos_x[m]
+                    sin_x[m] = sx * sweep_c[m] + cx * sweep_s[m]
+                    cos_x[m] = cx * sweep_c[m] - sx * sweep_s[m]
+            for m in range(n_mics):
+                w = weights[m]
+                r = ratio[g, m]
+                z_re = r * (qr[j, m] * c[m] - qi[j, m] * s[m])
+                z_im = r * (qr[j, m] * s[m] + qi[j, m] * c[m])
+                sweep = _hann_squared_mean(f * delay_rate[g, m] * duration_s, sin_x[m])
+                terms[0, m] = w * z_re * sweep
+                terms[1, m] = w * z_re
+                terms[2, m] = w * z_im
+                terms[3, m] = w * w * (1.0 + z_re * z_re + z_im * z_im + 2.0 * z_re * sweep)
+            zw = 0.0            # Re sum w z W
+            sz_re = 0.0         # sum w z
+            sz_im = 0.0
+            auto = 0.0
+            for m in range(n_mics):
+                zw += terms[0, m]
+                sz_re += terms[1, m]
+                sz_im += terms[2, m]
+                auto += terms[3, m]
+            beam = s1 * s1 + 2.0 * s1 * zw + sz_re * sz_re + sz_im * sz_im
             full[g, j] = max(beam / (s1 * s1), floor)
-            removed[g, j] = max((beam - auto[j]) / (s1 * s1 - s2), floor)
+            removed[g, j] = max((beam - auto) / (s1 * s1 - s2), floor)
