@@ -803,7 +803,7 @@ def warped_line_autos(power, warp, coef, edges, lines, inverse_gain, first_line,
                 i1 = min(max(np.int64(np.ceil(edges[b, 1] / s)), 0), n_f)
                 acc = 0.0
                 for i in range(i0, i1):
-                    j = min(max(np.int64(np.floor(i * s + 0.5)), lo), hi - 1)
+                    j = min(max(np.int64(i * s + 0.5), lo), hi - 1)       # i s >= 0: rounded
                     acc += power[m, i] * inverse_gain[g, j - first_line]
                 out[g, b] += coef[g, m, b] * acc
 

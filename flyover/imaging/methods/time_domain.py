@@ -174,16 +174,15 @@ def _grid_model(context: WindowContext, points, used, instants, frequency_hz):
     gains (n_p, n_m, n_bands) and, over raised microphones, the ground's expected gains by
     which the chain divides each line's full and diagonal-removed maps (two arrays (n_bands,
     n_p, n_lines) at the model's lines ``frequency_hz`` (n_bands, n_lines); None otherwise)."""
-    used_mics = subset(context.geometry, (slice(None), used))
-    grid = subset(used_mics, points)
+    grid = subset(subset(context.geometry, points), (slice(None), used))
     ground = None
     if grid.image is not None:
         s, w = context.settings, context.window
         weights = np.asarray(s.weights, np.float32)[used]
         # Q as the chain takes it: at the mean incidence of the whole grid's image paths.
-        gains = [ground_gains(grid.image, ground_q(used_mics.image, f, context.atmosphere.c_m_s,
-                                                   s.ground), f,
-                              w.n_samples / w.sample_rate_hz, weights) for f in frequency_hz]
+        every = context.geometry.image.take((slice(None), used))
+        gains = [ground_gains(grid.image, ground_q(every, f, context.atmosphere.c_m_s, s.ground),
+                              f, w.n_samples / w.sample_rate_hz, weights) for f in frequency_hz]
         ground = tuple(np.stack(g) for g in zip(*gains))
     return ([values_at(grid, t) for t in instants],
             absorption_gains(context.settings, context.atmosphere, grid), ground)
