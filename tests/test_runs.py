@@ -14,6 +14,7 @@ from flyover.model.errors import FlyoverInputError
 from flyover.model.reads import UndeclaredRead, guarded, read_values
 from flyover.pipeline import align, image, levels
 from flyover.workflow.plan import CampaignPlan, JobSizes, job_memory_mb, job_runtime_min
+from flyover.workflow.settings_record import write_settings_record
 from flyover.workflow.runner import (RunState, _RunLock, job_message, pass_warnings,
                                      scheduler_stop)
 
@@ -215,6 +216,7 @@ def test_image_threads_keep_every_core_busy(tiny_copy):
     # Scheduling, not physics: while at least as many passes as cores are still to be imaged,
     # each image job takes one thread (its figures and Python work are serial, so two jobs of
     # one thread keep two cores busier than one of two); a lone pass takes every core; a
+    # pass whose maps were made with other code or settings is still to be imaged; a
     # cluster's job keeps two unless its profile says otherwise.
     plan = CampaignPlan.load(tiny_copy / "campaign.yaml")
     passes = plan.passes
@@ -228,3 +230,12 @@ def test_image_threads_keep_every_core_busy(tiny_copy):
     assert plan.image_threads(2, local=True) == 2
     assert plan.image_threads(4, local=True) == 4
     assert plan.image_threads(None, local=True) == plan.image_threads(16, local=False) == 2
+    (plan.campaign.output / passes[0]).mkdir(parents=True, exist_ok=True)
+    (plan.campaign.output / passes[0] / "maps.npz").write_bytes(b"")
+    for name in passes:             # every pass imaged with this code and these settings
+        write_settings_record(plan.campaign.output, plan.campaign, "image", name)
+    assert plan.image_threads(2, local=True) == 2
+    for name in passes:             # ... and after an upgrade of the code
+        record = plan.campaign.output / "logs" / "settings" / name / "image.json"
+        record.write_text(record.read_text().replace('"code": "', '"code": "old-'))
+    assert plan.image_threads(2, local=True) == 1

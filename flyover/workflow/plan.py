@@ -24,7 +24,7 @@ from flyover.sim.scenario_file import load_scenario
 from flyover.campaign import Campaign, pass_array
 from flyover.model.errors import FlyoverInputError
 from flyover.sim.demo import WEATHER_FILE, pass_files
-from flyover.workflow.settings_record import stage_settings
+from flyover.workflow.settings_record import changed_settings, stage_settings
 
 
 @dataclass(frozen=True)
@@ -192,11 +192,12 @@ class CampaignPlan:
         results byte for byte). So on this machine, while at least as many passes as cores
         are still to be imaged, each image job takes one thread and the scheduler keeps every
         core busy with two of them, or one beside the light steps; fewer passes to image (a
-        re-imaged pass, a small campaign) share the cores among them. "Still to be imaged" is
-        read from the maps on disk (the jobs Snakemake will run are not known yet): a run that
-        re-images passes whose maps exist (a changed setting of every pass, a new flyover)
-        gives each job every core, as before. A cluster's job gets two unless the profile sets
-        more (``set-threads``).
+        re-imaged pass, a small campaign) share the cores among them. "Still to be imaged"
+        (the jobs Snakemake will run are not known yet) is a pass without maps, or whose image
+        step last ran with other settings or code than now (its settings record): a changed
+        setting of every pass or a new flyover counts them all. A pass re-imaged for a revised
+        input file alone is not counted. A cluster's job gets two unless the profile sets more
+        (``set-threads``).
 
         Parameters
         ----------
@@ -208,7 +209,9 @@ class CampaignPlan:
         if not local or not cores:
             return 2
         maps = steps.step_files("image")["maps_npz"]
-        to_image = sum(not (self.campaign.output / p / maps).exists() for p in self.passes)
+        to_image = sum(not (self.campaign.output / p / maps).exists()
+                       or bool(changed_settings(self.campaign.output, self.campaign, "image", p))
+                       for p in self.passes)
         return max(1, cores // max(1, to_image))
 
     def input_files(self) -> list[str]:
