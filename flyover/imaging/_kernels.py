@@ -278,20 +278,23 @@ def line_beam_powers(ratio, advance_s, frequency_hz, line_gain, out):
     """
     n_s, n_p, n_m = ratio.shape
     n_items = n_s * n_p
+    no_image = np.zeros((0, frequency_hz.shape[1], n_m), np.complex128)
     for task in numba.prange((n_items + _ITEMS_PER_TASK - 1) // _ITEMS_PER_TASK):
         work = np.empty((5, n_m))
         for sp in range(task * _ITEMS_PER_TASK, min(n_items, (task + 1) * _ITEMS_PER_TASK)):
             s = sp // n_p
             p = sp % n_p
             _unit_line_powers(ratio[s, p], advance_s[s, p], frequency_hz[s], line_gain[s],
-                              work, out[s, p], 1.0, False)
+                              no_image, work, out[s, p], 1.0, False)
 
 
 @numba.njit(fastmath=True, cache=True, inline="always")
-def _unit_line_powers(ratio, advance_s, f, line_gain, work, dest, weight, accumulate):
+def _unit_line_powers(ratio, advance_s, f, line_gain, image_gain, work, dest, weight,
+                      accumulate):
     """One point's beam power per line of :func:`line_beam_powers` (its ``out[s, p]``), into
-    ``dest`` (n_lines,), or ``weight`` times it added to ``dest`` when ``accumulate``."""
-    n_m = ratio.shape[0]
+    ``dest`` (n_lines,), or ``weight`` times it added to ``dest`` when ``accumulate``; with
+    the ground's path too where ``image_gain`` (2, n_lines, n_mics) has rows
+    (:func:`steered_line_powers`)."""
     n_f = f.shape[0]
     a, sr, si, zr, zi = work[0], work[1], work[2], work[3], work[4]
     spacing = f[1] - f[0] if n_f > 1 else 0.0
@@ -299,50 +302,53 @@ def _unit_line_powers(ratio, advance_s, f, line_gain, work, dest, weight, accumu
     for k in range(n_f):
         if k == 0 or abs(f[k] - f[k - 1] - spacing) > 1e-9 * abs(spacing):
             _phasors(ratio, a, f[k], zr, zi)
-        re = 0.0
-        im = 0.0
-        for m in range(n_m):
-            gr = line_gain[k, m].real
-            gi = line_gain[k, m].imag
-            re += zr[m] * gr - zi[m] * gi
-            im += zi[m] * gr + zr[m] * gi
-            r0 = zr[m]
-            zr[m] = r0 * sr[m] - zi[m] * si[m]
-            zi[m] = r0 * si[m] + zi[m] * sr[m]
-        if accumulate:
-            dest[k] += weight * (re * re + im * im)
+        if image_gain.shape[0] == 0:
+            power = _direct_line(line_gain[k], zr, zi, sr, si)
         else:
-            dest[k] = re * re + im * im
+            power = _two_path_line(line_gain[k], image_gain[0, k], image_gain[1, k], zr, zi,
+                                   sr, si)
+        if accumulate:
+            dest[k] += weight * power
+        else:
+            dest[k] = power
 
 
 @numba.njit(fastmath=True, cache=True, inline="always")
-def _unit_two_path_powers(ratio, advance_s, f, line_gain, image_gain, work, dest, weight):
-    """One point's expected beam power per line with the ground's path too
-    (:func:`steered_line_powers`), ``weight`` times it added to ``dest`` (n_lines,)."""
-    n_m = ratio.shape[0]
-    n_f = f.shape[0]
-    a, sr, si, zr, zi = work[0], work[1], work[2], work[3], work[4]
-    spacing = f[1] - f[0] if n_f > 1 else 0.0
-    _phase_steps(advance_s, spacing, 1.0, a, sr, si)
-    for k in range(n_f):
-        if k == 0 or abs(f[k] - f[k - 1] - spacing) > 1e-9 * abs(spacing):
-            _phasors(ratio, a, f[k], zr, zi)
-        ar = ai = br = bi = cr = ci = 0.0
-        for m in range(n_m):
-            xr = zr[m]
-            xi = zi[m]
-            g = line_gain[k, m]
-            h = image_gain[0, k, m]
-            e = image_gain[1, k, m]
-            ar += xr * g.real - xi * g.imag
-            ai += xi * g.real + xr * g.imag
-            br += xr * h.real - xi * h.imag
-            bi += xi * h.real + xr * h.imag
-            cr += xr * e.real - xi * e.imag
-            ci += xi * e.real + xr * e.imag
-            zr[m] = xr * sr[m] - xi * si[m]
-            zi[m] = xr * si[m] + xi * sr[m]
-        dest[k] += weight * (ar * ar + ai * ai + 2.0 * (ar * br + ai * bi) + cr * cr + ci * ci)
+def _direct_line(gain, zr, zi, sr, si):
+    """``|sum_m z_m g_m|^2`` of one line, the phasors z then stepped to the next line."""
+    re = 0.0
+    im = 0.0
+    for m in range(zr.shape[0]):
+        gr = gain[m].real
+        gi = gain[m].imag
+        re += zr[m] * gr - zi[m] * gi
+        im += zi[m] * gr + zr[m] * gi
+        r0 = zr[m]
+        zr[m] = r0 * sr[m] - zi[m] * si[m]
+        zi[m] = r0 * si[m] + zi[m] * sr[m]
+    return re * re + im * im
+
+
+@numba.njit(fastmath=True, cache=True, inline="always")
+def _two_path_line(gain, swept, reflected, zr, zi, sr, si):
+    """The expected power ``|A|^2 + 2 Re(conj(A) B) + |C|^2`` of one line (A, B, C the sums of
+    z_m times ``gain``, ``swept`` and ``reflected``), the phasors then stepped."""
+    ar = ai = br = bi = cr = ci = 0.0
+    for m in range(zr.shape[0]):
+        xr = zr[m]
+        xi = zi[m]
+        g = gain[m]
+        h = swept[m]
+        e = reflected[m]
+        ar += xr * g.real - xi * g.imag
+        ai += xi * g.real + xr * g.imag
+        br += xr * h.real - xi * h.imag
+        bi += xi * h.real + xr * h.imag
+        cr += xr * e.real - xi * e.imag
+        ci += xi * e.real + xr * e.imag
+        zr[m] = xr * sr[m] - xi * si[m]
+        zi[m] = xr * si[m] + xi * sr[m]
+    return ar * ar + ai * ai + 2.0 * (ar * br + ai * bi) + cr * cr + ci * ci
 
 
 @numba.njit(parallel=True, fastmath=True, cache=True)
@@ -392,12 +398,8 @@ def steered_line_powers(amp_g, rx_g, amp_s, rx_s, doppler_s, band_gain, frequenc
             for m in range(n_m):
                 ratio[m] = amp_g[p, m] / amp_s[s, m] * band_gain[s, p, m]
                 advance[m] = (rx_g[p, m] - rx_s[s, m]) / doppler_s[s, m]
-            if image_gain.shape[1] == 0:
-                _unit_line_powers(ratio, advance, frequency_hz[s], line_gain[s], work,
-                                  beam[s, p], weight, True)
-            else:
-                _unit_two_path_powers(ratio, advance, frequency_hz[s], line_gain[s],
-                                      image_gain[s], work, beam[s, p], weight)
+            _unit_line_powers(ratio, advance, frequency_hz[s], line_gain[s], image_gain[s],
+                              work, beam[s, p], weight, True)
             for k in range(n_f):
                 acc = 0.0
                 for m in range(n_m):
