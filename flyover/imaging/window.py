@@ -334,7 +334,8 @@ def _image_window(signals_pa, context: WindowContext, *, method: ImagingMethod, 
         at = np.searchsorted(evaluate, k)
         resolved_pairs[:, i, j] = resolved_pairs[:, j, i] = (
             (lobes[i][at] < HALF_POWER) & (lobes[j][at] < HALF_POWER))
-    verdicts = dict(zip(names, region_verdicts(solved, changes, resolved_pairs)))
+    verdicts = dict(zip(names, region_verdicts(
+        solved, changes, resolved_pairs, by_dominance=context.settings.image_mic_enu_m is None)))
     powers = {n: solved[:, j] for j, n in enumerate(names)}
     powers[TOTAL] = total
     return WindowMaps(context.window, bp.full, bp.diagonal_removed, powers, map_sums, psf_sums,

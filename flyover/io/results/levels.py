@@ -27,7 +27,8 @@ LEVELS = TableFile("levels.csv", (
     ("ci90_low_db", "dB, level_db - 1.645 uncertainty_db: the 90 % interval"),
     ("ci90_high_db", "dB, level_db + 1.645 uncertainty_db + position_bias_db"),
     ("resolved", "the region is resolved from every other in the window (region_power.csv); a "
-                 "level that is not is given only when dominant (see note)"),
+                 "level that is not is given only when dominant, and not over raised "
+                 "microphones (see note)"),
     ("band_valid", "the window can measure the band"),
     ("note", "why a level is empty, or 'dominant, not resolved'"),
     ("height_m", "m above the array centre"),
