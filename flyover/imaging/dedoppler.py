@@ -268,35 +268,26 @@ def _summed_band_powers(chain: _UsedChain, window: Window, settings: ChainSettin
     weighted = w[None, :, None] * chain.gain.astype(float)              # (n_g, n_m, n_b)
     coef, basis = gain_terms(weighted)                           # (n_g, k, n_m), (k, n_b)
     k = len(basis)
-    # The reference's per-microphone band powers, cumulative over the lines.
+    # The reference's per-microphone power per line.
     ref = n_grid // 2
     each = np.eye(n_mics, dtype=np.float32)[None]
     reading = _reading(signals, chain.first_frame, chain.clock, settings)
     a_ref = _dedopplerized_sums(reading, geo, settings, [ref], each, q, n_out)[0] * win
     power = np.abs(scipy.fft.rfft(a_ref, axis=-1, workers=workers)) ** 2 * norm
-    cumulative = np.concatenate([np.zeros((n_mics, 1)), np.cumsum(power, axis=-1)], axis=-1)
     amp = geo.amplitude_center
     rho2 = (amp / amp[ref]) ** 2
     warp = geo.doppler_center / geo.doppler_center[ref]                  # s, (n_g, n_m)
-    # Lines below a warped edge x: ceil(x / spacing), as band_bins counts them; each distinct
-    # band edge once (adjacent bands share theirs), read from the flattened cumulative sums.
-    edges, at = np.unique(np.concatenate([settings.bands.lower_hz, settings.bands.upper_hz]),
-                          return_inverse=True)
-    count = np.multiply.outer(1.0 / (warp * (rate_hz / n_out)), edges)    # (n_g, n_m, n_e)
-    np.ceil(count, out=count)
-    np.clip(count, 0, power.shape[-1], out=count)
-    below = cumulative.ravel()[count.astype(np.intp)
-                               + (np.arange(n_mics) * cumulative.shape[1])[None, :, None]]
-    band_power = below[..., at[n_b:]] - below[..., at[:n_b]]
-    autos = np.einsum("gmb,gmb->gb", weighted ** 2 * rho2[..., None], band_power)
+    auto_coef = weighted ** 2 * rho2[..., None]
     ground = None
-    if geo.image is not None:
+    if geo.image is None:
+        autos = _warped_band_autos(power, warp, auto_coef, settings.bands, rate_hz / n_out)
+    else:
         # The reflection undone per line: Q at every line the bands hold, the autopowers
-        # divided line by line (they replace the band sums above).
+        # divided line by line (in place of the band sums).
         freqs = np.fft.rfftfreq(n_out, 1.0 / rate_hz)
         ground = (ground_q(geo.image, freqs, atmosphere.c_m_s, settings.ground),
                   np.asarray(w, np.float32), window.n_samples / window.sample_rate_hz, freqs,
-                  np.ascontiguousarray(weighted ** 2 * rho2[..., None]),
+                  np.ascontiguousarray(auto_coef),
                   np.array([[b.start, b.stop] for b in bins], np.int64),
                   np.stack([settings.bands.lower_hz, settings.bands.upper_hz], axis=1)
                   / (rate_hz / n_out))
@@ -318,6 +309,24 @@ def _summed_band_powers(chain: _UsedChain, window: Window, settings: ChainSettin
         full[pts] = beam_power / s1 ** 2
         diag[pts] = (beam_power - autos[pts]) / (s1 ** 2 - s2)
     return BandPowers(full, diag)
+
+
+def _warped_band_autos(power, warp, auto_coef, bands, spacing_hz: float) -> np.ndarray:
+    """The autopowers per point and band (n_g, n_bands): the reference's power per line and
+    microphone (n_m, n_lines) read between its band edges warped by ``warp`` (n_g, n_m),
+    weighted by ``auto_coef`` (n_g, n_m, n_bands)."""
+    n_mics, n_b = power.shape[0], len(bands)
+    cumulative = np.concatenate([np.zeros((n_mics, 1)), np.cumsum(power, axis=-1)], axis=-1)
+    # Lines below a warped edge x: ceil(x / spacing), as band_bins counts them; each distinct
+    # band edge once (adjacent bands share theirs), read from the flattened cumulative sums.
+    edges, at = np.unique(np.concatenate([bands.lower_hz, bands.upper_hz]), return_inverse=True)
+    count = np.multiply.outer(1.0 / (warp * spacing_hz), edges)           # (n_g, n_m, n_e)
+    np.ceil(count, out=count)
+    np.clip(count, 0, power.shape[-1], out=count)
+    below = cumulative.ravel()[count.astype(np.intp)
+                               + (np.arange(n_mics) * cumulative.shape[1])[None, :, None]]
+    band_power = below[..., at[n_b:]] - below[..., at[:n_b]]
+    return np.einsum("gmb,gmb->gb", auto_coef, band_power)
 
 
 def _ground_divided_powers(spec, basis, bins, norm: float, power, warp, image, ground, pts,
