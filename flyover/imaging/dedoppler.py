@@ -45,7 +45,8 @@ from flyover.imaging import _kernels
 from flyover.model.timebase import ArrayClock
 from flyover.imaging.chain import BandPowers, ChainSettings, band_bins, spectral_weights
 from flyover.imaging.ground_gains import ground_gains, ground_q
-from flyover.imaging.reception import ReceptionGeometry, absorption_gains, subset
+from flyover.imaging.reception import (ImagePaths, ReceptionGeometry, absorption_gains,
+                                      subset)
 
 
 OVERSAMPLING = 4
@@ -285,12 +286,13 @@ def _summed_band_powers(chain: _UsedChain, window: Window, settings: ChainSettin
         # The reflection undone per line: Q at every line the bands hold, the autopowers
         # divided line by line (in place of the band sums).
         freqs = np.fft.rfftfreq(n_out, 1.0 / rate_hz)
-        ground = (ground_q(geo.image, freqs, atmosphere.c_m_s, settings.ground),
-                  np.asarray(w, np.float32), window.n_samples / window.sample_rate_hz, freqs,
-                  np.ascontiguousarray(auto_coef),
-                  np.array([[b.start, b.stop] for b in bins], np.int64),
-                  np.stack([settings.bands.lower_hz, settings.bands.upper_hz], axis=1)
-                  / (rate_hz / n_out))
+        ground = _GroundDivision(
+            geo.image, ground_q(geo.image, freqs, atmosphere.c_m_s, settings.ground), freqs,
+            np.asarray(w, np.float32), window.n_samples / window.sample_rate_hz, power, warp,
+            np.ascontiguousarray(auto_coef), np.array([[b.start, b.stop] for b in bins],
+                                                      np.int64),
+            np.stack([settings.bands.lower_hz, settings.bands.upper_hz], axis=1)
+            / (rate_hz / n_out))
     full = np.empty((n_grid, n_b))
     diag = np.empty((n_grid, n_b))
     chunk = max(1, settings.chunk_points * n_mics * q // (2 * k))
@@ -299,8 +301,7 @@ def _summed_band_powers(chain: _UsedChain, window: Window, settings: ChainSettin
         sums = _dedopplerized_sums(reading, geo, settings, pts, coef[pts], q, n_out)
         spec = scipy.fft.rfft(sums * win, axis=-1, workers=workers)      # (n_c, k, n_f)
         if ground is not None:
-            full[pts], diag[pts] = _ground_divided_powers(spec, basis, bins, norm, power,
-                                                          warp, geo.image, ground, pts, s1, s2)
+            full[pts], diag[pts] = ground.maps(spec, basis, bins, norm, pts, s1, s2)
             continue
         beam_power = np.empty((spec.shape[0], n_b))
         for b, sl in enumerate(bins):
@@ -329,33 +330,68 @@ def _warped_band_autos(power, warp, auto_coef, bands, spacing_hz: float) -> np.n
     return np.einsum("gmb,gmb->gb", auto_coef, band_power)
 
 
-def _ground_divided_powers(spec, basis, bins, norm: float, power, warp, image, ground, pts,
-                           s1: float, s2: float) -> tuple[np.ndarray, np.ndarray]:
-    """The full and diagonal-removed maps of the points ``pts`` (n_c, n_bands) from their
-    sums' spectra under raised microphones: beam and autopowers divided line by line by the
-    ground's expected gains (``ground`` as :func:`_summed_band_powers` forms it; ``warp`` and
-    ``image`` of every point)."""
-    q_ground, weights, duration_s, freqs, auto_coef, lines, edges = ground
-    image = image.take(pts)
-    n_c, n_b = spec.shape[0], len(bins)
-    full = np.zeros((n_c, n_b))
-    removed = np.zeros((n_c, n_b))
-    first = int(lines[0, 0])
-    inverse = np.zeros((n_c, max(int(lines[-1, 1]) - first, 0)))      # 1 / removed gain
-    for b, sl in enumerate(bins):
-        if sl.stop <= sl.start:
-            continue
-        g_full, g_removed = ground_gains(image, q_ground[:, sl], freqs[sl], duration_s, weights)
-        beam = np.einsum("k,gkf->gf", basis[:, b].astype(np.complex64), spec[:, :, sl])
-        beam_power = (beam.real ** 2 + beam.imag ** 2).astype(np.float64)
-        full[:, b] = (beam_power / g_full).sum(-1) * norm
-        removed[:, b] = (beam_power / g_removed).sum(-1) * norm
-        inverse[:, sl.start - first:sl.stop - first] = 1.0 / g_removed
-    autos = np.zeros((n_c, n_b))
-    _kernels.warped_line_autos(power, np.ascontiguousarray(warp[pts], float),
-                               np.ascontiguousarray(auto_coef[pts]), edges, lines, inverse, first,
-                               autos)
-    return full / s1 ** 2, (removed - autos) / (s1 ** 2 - s2)
+@dataclass(frozen=True)
+class _GroundDivision:
+    """What the summed chain needs, for one window under raised microphones, to divide each
+    line of the beam and of the warped autopowers by the ground's expected gains.
+
+    Attributes
+    ----------
+    image : ImagePaths
+        Of every grid point, (n_g, n_m).
+    q : complex ndarray (n_m, n_lines)
+        The ground's Q at every line (:func:`ground_q`).
+    freqs : ndarray (n_lines,)
+    weights : float32 ndarray (n_m,)
+    duration_s : float
+    power : ndarray (n_m, n_lines)
+        The reference point's power per line and microphone.
+    warp : ndarray (n_g, n_m)
+        dt/dtau of each point over the reference's.
+    auto_coef : ndarray (n_g, n_m, n_bands)
+        The autopowers' weights (w G rho)^2.
+    lines : int64 ndarray (n_bands, 2)
+        Each band's first line and the line past its last.
+    edges : ndarray (n_bands, 2)
+        Band edges in lines.
+    """
+
+    image: ImagePaths
+    q: np.ndarray
+    freqs: np.ndarray
+    weights: np.ndarray
+    duration_s: float
+    power: np.ndarray
+    warp: np.ndarray
+    auto_coef: np.ndarray
+    lines: np.ndarray
+    edges: np.ndarray
+
+    def maps(self, spec, basis, bins, norm: float, pts, s1: float,
+             s2: float) -> tuple[np.ndarray, np.ndarray]:
+        """The full and diagonal-removed maps (n_c, n_bands) of the points ``pts`` from their
+        sums' spectra ``spec`` (n_c, k, n_lines) and the gains' band profiles ``basis``."""
+        image = self.image.take(pts)
+        n_c, n_b = spec.shape[0], len(bins)
+        full = np.zeros((n_c, n_b))
+        removed = np.zeros((n_c, n_b))
+        first = int(self.lines[0, 0])
+        inverse = np.zeros((n_c, max(int(self.lines[-1, 1]) - first, 0)))  # 1 / removed gain
+        for b, sl in enumerate(bins):
+            if sl.stop <= sl.start:
+                continue
+            g_full, g_removed = ground_gains(image, self.q[:, sl], self.freqs[sl],
+                                             self.duration_s, self.weights)
+            beam = np.einsum("k,gkf->gf", basis[:, b].astype(np.complex64), spec[:, :, sl])
+            beam_power = (beam.real ** 2 + beam.imag ** 2).astype(np.float64)
+            full[:, b] = (beam_power / g_full).sum(-1) * norm
+            removed[:, b] = (beam_power / g_removed).sum(-1) * norm
+            inverse[:, sl.start - first:sl.stop - first] = 1.0 / g_removed
+        autos = np.zeros((n_c, n_b))
+        _kernels.warped_line_autos(self.power, np.ascontiguousarray(self.warp[pts], float),
+                                   np.ascontiguousarray(self.auto_coef[pts]), self.edges,
+                                   self.lines, inverse, first, autos)
+        return full / s1 ** 2, (removed - autos) / (s1 ** 2 - s2)
 
 
 def _dedopplerized_sums(reading, geo: ReceptionGeometry, settings: ChainSettings, points, coef,
