@@ -12,7 +12,7 @@ from flyover.forward.moving_source import (Broadband, PointSource, Propagator, S
                                            received_pressure_pa)
 from flyover.geometry.windows import plan_windows
 from flyover.imaging import _kernels
-from flyover.imaging.chain import ChainSettings, signal_band_power
+from flyover.imaging.chain import BandPowers, ChainSettings, signal_band_power
 from flyover.imaging.dedoppler import (OVERSAMPLING, dedopplerized_signals, oversampled,
                                        window_band_powers)
 from flyover.imaging.reception import reception_geometry, required_frames
@@ -477,6 +477,32 @@ def test_summed_chain_matches_every_microphones_spectra(top_hz, wind):
         # The reduced rate moves the full maps by up to 3e-4 of the band's peak, 1e-5 without.
         assert_same_maps(got, ref, points, (front, rear))
     assert reductions == ({4} if top_hz == 1000 else {1})
+
+
+def test_a_few_points_are_read_at_the_full_rate():
+    # Under DECIMATE_FROM_POINTS points (the track check's single anchor) the low-pass costs
+    # more than the reads it saves: they are de-Dopplerized at the full rate, and their maps
+    # are the whole grid's (made at a quarter of the rate) at those points (conftest's
+    # assert_same_maps, the bounds the summed chain keeps against the direct definition).
+    from flyover.imaging.dedoppler import DECIMATE_FROM_POINTS, decimation, window_band_powers
+    from flyover.imaging.reception import subset
+    front = PointSource("front", (1.2, 0.0, 0.0), broadband=Broadband(86.0, -2.0, 100.0, 5000.0),
+                        seed=11)
+    track, atm, _, p = one_source_pass([front], noise_spl_db=55.0)
+    points = VehicleGrid((-2.6, 2.6), (-1.2, 1.2), 0.2).points_m()
+    st = ChainSettings(third_octave_bands(250, 1000), np.ones(len(MICS)), 2.0)
+    w = windows_near_overhead(track, 30)[0]
+    ctx = window_context(w, track=track, clock=CLOCK, atmosphere=atm, mic_enu_m=MICS,
+                         grid_points_m=points, settings=st)
+    span = rows(p, ctx.first_frame, ctx.n_frames)
+    few = np.argsort(np.hypot(*(points[:, :2] - np.array([1.2, 0.0])).T))[:DECIMATE_FROM_POINTS - 1]
+    near = subset(ctx.geometry, few)
+    assert decimation(st, ctx.geometry, FS)[0] == 4
+    assert decimation(st, near, FS)[0] == 1
+    whole = window_band_powers(span, ctx.first_frame, ctx.geometry, CLOCK, w, st, atm)
+    got = window_band_powers(span, ctx.first_frame, near, CLOCK, w, st, atm)
+    assert_same_maps(got, BandPowers(whole.full[few], whole.diagonal_removed[few]),
+                     points[few], (front,))
 
 
 def test_gain_terms_are_the_fewest_within_tolerance():

@@ -146,6 +146,8 @@ def dedoppler_summed(signals, reception_s, origin_s, scale, amp, coef, step, out
             _read_channel(signals[m], positions, amp[g, m], step, buf)
             for q in range(n_sums):
                 c = coef[g, q, m]
+                if c == 0.0:
+                    continue    # one microphone per sum (the reference's) adds nothing else
                 row = out[g, q]
                 for k in range(n_out):
                     row[k] += c * buf[k]
