@@ -140,6 +140,8 @@ def test_job_resources_scale_with_the_campaign():
     assert job_memory_mb("image", tiny) == job_memory_mb("levels", large) == 1000
     assert job_memory_mb("image", demo) >= 1.4 * 561
     assert job_memory_mb("image", large) > job_memory_mb("image", demo)
+    # Two windows imaged at a time (forked workers) hold two windows' chains.
+    assert job_memory_mb("image", large, windows_at_once=2) > 1.5 * job_memory_mb("image", large)
     assert job_runtime_min("image", tiny) == job_runtime_min("qc", large) == 10
     assert job_runtime_min("image", large) > job_runtime_min("image", demo)
     # Each method the pass runs beside the headline costs about another headline's time.
@@ -239,3 +241,18 @@ def test_image_threads_keep_every_core_busy(tiny_copy):
         record = plan.campaign.output / "logs" / "settings" / name / "image.json"
         record.write_text(record.read_text().replace('"code": "', '"code": "old-'))
     assert plan.image_threads(2, local=True) == 1
+
+
+def test_windows_at_once_fit_the_memory(tiny_copy, monkeypatch):
+    # One window per thread, as many as fit in half the machine's memory, at least one.
+    from flyover.pipeline import _resources
+    from flyover.pipeline.context import load_pass
+    campaign = load_campaign(tiny_copy / "campaign.yaml")
+    inputs = load_pass(campaign, "p1")
+    need = _resources._window_need_bytes(campaign, inputs)
+    monkeypatch.setattr(_resources, "_memory_bytes", lambda: 100 * need)
+    assert _resources.windows_at_once(campaign, inputs, 4) == 4
+    monkeypatch.setattr(_resources, "_memory_bytes", lambda: 5 * need)
+    assert _resources.windows_at_once(campaign, inputs, 4) == 2
+    monkeypatch.setattr(_resources, "_memory_bytes", lambda: 1.5 * need)
+    assert _resources.windows_at_once(campaign, inputs, 4) == 1

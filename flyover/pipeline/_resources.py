@@ -29,15 +29,9 @@ def chain_settings(inputs: PassInputs, bands, interpolation: str, *, weights=Non
 
 def check_memory(campaign: Campaign, inputs: PassInputs, share: float = 0.5) -> None:
     """Refuse a window or grid whose processing would need more than ``share`` of the memory."""
-    an = campaign.analysis
-    settings = chain_settings(inputs, third_octave_bands(an.band_min_hz, an.band_max_hz),
-                              an.interpolation)
-    fs = inputs.sample_rate_hz
-    n_grid = int(np.prod(campaign.grid.shape))
-    need = window_memory_bytes(n_grid, len(inputs.layout.channel), int(an.window_s * fs),
-                               len(settings.bands), settings)
-    have = os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_PHYS_PAGES")
+    need, have = _window_need_bytes(campaign, inputs), _memory_bytes()
     if need > share * have:
+        an = campaign.analysis
         raise FlyoverInputError(
             "window or vehicle grid too large for the memory available",
             f"{campaign.config_path}, keys vehicle.grid and analysis.window_s",
@@ -46,6 +40,27 @@ def check_memory(campaign: Campaign, inputs: PassInputs, share: float = 0.5) -> 
             f"{campaign.grid.shape[1]} grid points, {len(inputs.layout.channel)} microphones and "
             f"{an.window_s} s windows",
             "use a coarser spacing_m, a smaller grid or a shorter window_s")
+
+
+def windows_at_once(campaign: Campaign, inputs: PassInputs, threads: int,
+                    share: float = 0.5) -> int:
+    """How many windows the image step may image at a time on ``threads``: one per thread, as
+    many as fit in ``share`` of the memory (at least one)."""
+    fit = int(share * _memory_bytes() // max(_window_need_bytes(campaign, inputs), 1))
+    return max(1, min(threads, fit))
+
+
+def _window_need_bytes(campaign: Campaign, inputs: PassInputs) -> int:
+    an = campaign.analysis
+    settings = chain_settings(inputs, third_octave_bands(an.band_min_hz, an.band_max_hz),
+                              an.interpolation)
+    return window_memory_bytes(int(np.prod(campaign.grid.shape)), len(inputs.layout.channel),
+                               int(an.window_s * inputs.sample_rate_hz), len(settings.bands),
+                               settings)
+
+
+def _memory_bytes() -> int:
+    return os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_PHYS_PAGES")
 
 
 def output_bytes(campaign: Campaign, inputs: PassInputs) -> int:

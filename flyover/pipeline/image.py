@@ -27,7 +27,8 @@ from flyover.io.results.windows import NO_WINDOW, WINDOWS
 from flyover.campaign import PASS_INPUTS, Campaign
 from flyover.model.reads import guarded
 from flyover.model.timebase import iso_utc
-from flyover.pipeline._resources import chain_settings, check_memory
+from flyover.pipeline._forks import can_fork, forked_map
+from flyover.pipeline._resources import chain_settings, check_memory, windows_at_once
 from flyover.pipeline.context import load_aligned_pass
 from flyover.pipeline.progress import Progress
 
@@ -61,7 +62,6 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path, *, threads: int = 1,
         quiet: bool = False) -> None:
     """Image every window of a pass; write maps.npz, windows.csv, region_power.csv, figures."""
     campaign = guarded(campaign, READS, stage="image", pass_name=pass_name)
-    numba.set_num_threads(max(1, threads))
     out_dir = Path(out_dir)
     inputs, _ = load_aligned_pass(campaign, pass_name, out_dir)
     check_memory(campaign, inputs)
@@ -87,21 +87,33 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path, *, threads: int = 1,
     rows, region_rows, maps_dr, maps_full, done = [], [], [], [], []
     drawn = {}      # window -> what its map figures would show
     nx, ny = campaign.grid.shape
-    for w in windows:
+    # Whole windows at a time in forked workers, the threads shared among them (_forks); one
+    # window at a time, its kernels on every thread.
+    at_once = windows_at_once(campaign, inputs, threads) if len(windows) > 1 and can_fork() \
+        else 1
+    each = max(1, threads // at_once)
+    if at_once == 1:
+        numba.set_num_threads(each)     # (here only: started threads would forbid the forks)
+    elif not quiet:
+        print(f"{pass_name}: imaging {at_once} windows at a time, {each} thread(s) each",
+              file=sys.stderr)
+
+    def image_one(w):
+        """A window's windows.csv row, region_power.csv rows and every method's results
+        (None where it was skipped)."""
         row = window_row(w, clock, inputs.layout.center_enu_m)
         ctx = window_context(w, track=inputs.track, clock=clock, atmosphere=atm, mic_enu_m=mics,
                              grid_points_m=points, settings=settings,
-                             diagonal_removal=an.diagonal_removal, workers=threads)
+                             diagonal_removal=an.diagonal_removal,
+                             workers=each)
         geo, first, n = ctx.centre_geometry, ctx.first_frame, ctx.n_frames
         if not inputs.holds(first, n):
             row.update(status="skipped", reason="sound reaches the array outside the recording")
-            rows.append(row)
-            progress.step(f"window {w.index} skipped")
-            continue
+            return row, [], None
         signals = inputs.read_pressure_pa(first, n)
         width = main_lobe_width_m(bands.center_hz, w.distance_m, inputs.layout.aperture_m,
                                   atm.c_m_s)
-        results = []
+        results, region_rows = [], []
         for method in methods:
             res = image_window(signals, ctx, method=method, grid_points_m=points,
                                regions=campaign.regions)
@@ -111,9 +123,17 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path, *, threads: int = 1,
                 else None))
             region_rows += _region_rows(res, w, method.name, campaign, bands, width, valid,
                                         why)
-        res = results[0]
         row.update(status="analysed", reason="")
+        return row, region_rows, results
+
+    for w, (row, rows_w, results) in zip(windows, forked_map(
+            image_one, windows, processes=at_once, threads_each=each)):
         rows.append(row)
+        if results is None:
+            progress.step(f"window {w.index} skipped")
+            continue
+        region_rows += rows_w
+        res = results[0]
         maps_dr.append(res.diagonal_removed.T.reshape(len(bands), nx, ny))
         maps_full.append(res.full.T.reshape(len(bands), nx, ny))
         done.append(w)

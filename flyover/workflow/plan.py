@@ -55,15 +55,16 @@ _FLOOR_MB = 1000
 _FLOOR_MIN = 10
 
 
-def job_memory_mb(stage: str, sizes: JobSizes) -> int:
+def job_memory_mb(stage: str, sizes: JobSizes, *, windows_at_once: int = 1) -> int:
     """Memory (MB) of one job: the measured base of its stage plus, for the stages that run the
-    imaging chain, the chain's own peak for these sizes; times a margin, at least a floor."""
+    imaging chain, the chain's own peak for these sizes (once per window imaged at a time);
+    times a margin, at least a floor."""
     need = _BASE_MB.get(stage, 300)
     if stage == "image":
         settings = ChainSettings(third_octave_bands(1000, 1000), np.ones(1), 1.0)
         chain = window_memory_bytes(sizes.n_grid, sizes.n_mics, sizes.window_samples,
                                     sizes.n_bands, settings) / 2 ** 20
-        need += _CHAIN_FACTOR * chain
+        need += windows_at_once * _CHAIN_FACTOR * chain
     return int(max(_FLOOR_MB, np.ceil(_MARGIN * need)))
 
 
@@ -153,10 +154,12 @@ class CampaignPlan:
         return {"files": [str(p) for p in spec.input_files() + weather],
                 "layout": str(pass_array(self.campaign, name).layout)}
 
-    def memory_mb(self, name: str | None, stage: str) -> int:
+    def memory_mb(self, name: str | None, stage: str, *, threads: int = 1) -> int:
         """Memory to ask a scheduler for: the stage's measured peak scaled to this campaign's
-        sizes, with a margin and a floor (see :func:`job_memory_mb`)."""
-        return job_memory_mb(stage, self._sizes(name))
+        sizes, with a margin and a floor (see :func:`job_memory_mb`); the image step on
+        ``threads`` images that many windows at once."""
+        return job_memory_mb(stage, self._sizes(name),
+                             windows_at_once=threads if stage == "image" else 1)
 
     def runtime_min(self, name: str | None, stage: str) -> int:
         """Minutes to ask a scheduler for (see :func:`job_runtime_min`)."""

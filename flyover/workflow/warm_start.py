@@ -187,7 +187,7 @@ def _serve_one(conn, log) -> None:
         os.chdir(request["cwd"])
         os.environ.clear()
         os.environ.update(request["env"])
-        _apply_thread_limits()
+        _apply_thread_limits(sets_own_threads="--threads" in argv)
         # The job gone (stopped by Snakemake), its fork goes too: the job sends nothing more,
         # so the socket reads empty only when the job's end closes.
         threading.Thread(target=lambda: conn.recv(1) or os._exit(1), daemon=True).start()
@@ -211,12 +211,14 @@ def _serve_one(conn, log) -> None:
             os._exit(status if 0 <= status < 256 else 1)
 
 
-def _apply_thread_limits() -> None:
+def _apply_thread_limits(*, sets_own_threads: bool = False) -> None:
     """The job's thread counts, which the libraries read when the warm process imported them:
     numba's pool keeps the size it was imported with (numba re-reads NUMBA_NUM_THREADS from
     the environment at each compile and refuses a change once its threads run, so the
-    environment keeps the pool's size) and the job's count becomes ``set_num_threads``;
-    tempfile's folder is found afresh (Snakemake sets TMPDIR per job)."""
+    environment keeps the pool's size) and the job's count becomes ``set_num_threads``, unless
+    the step ``sets_own_threads`` (told them with ``--threads``: the image step, whose forked
+    workers need numba's threads not started before them); tempfile's folder is found afresh
+    (Snakemake sets TMPDIR per job)."""
     import tempfile
     tempfile.tempdir = None
     wanted = os.environ.get("NUMBA_NUM_THREADS")
@@ -224,7 +226,7 @@ def _apply_thread_limits() -> None:
         import numba
         pool = numba.config.NUMBA_NUM_THREADS
         os.environ["NUMBA_NUM_THREADS"] = str(pool)
-        if wanted:
+        if wanted and not sets_own_threads:
             numba.set_num_threads(max(1, min(int(wanted), pool)))
 
 

@@ -43,7 +43,7 @@ rule image:
         f"{OUTP}/benchmarks/{{pass_name}}/image.tsv"
     threads: PLAN.image_threads(workflow.cores, local=workflow.local_exec)
     resources:
-        mem_mb=lambda w: PLAN.memory_mb(w.pass_name, "image"),
+        mem_mb=lambda w, threads: PLAN.memory_mb(w.pass_name, "image", threads=threads),
         runtime=lambda w: PLAN.runtime_min(w.pass_name, "image"),
     conda:
         CONDA_ENV,
