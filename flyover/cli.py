@@ -441,7 +441,9 @@ def _dispatch(args) -> int:
         raise FlyoverInputError("no such workflow step", f"flyover {args.command}",
                                 ", ".join(stages(scope)), args.name)
     campaign = load_campaign(args.campaign)
+    from flyover.pipeline._forks import keep_freed_memory
     from flyover.workflow.settings_record import write_settings_record
+    keep_freed_memory()
     if args.command == "stage-campaign":
         stage.run(campaign, campaign.output)
         write_settings_record(campaign.output, campaign, args.name, None)
