@@ -66,7 +66,7 @@ def test_no_worker_outlives_a_killed_step():
         import os, sys, time
         from flyover.pipeline._forks import forked_map
         def slow(k):
-            print(os.getpid(), flush=True)
+            os.write(1, f"{os.getpid()}\\n".encode())     # one write: the lines stay whole
             time.sleep(60)
         list(forked_map(slow, [0, 1, 2, 3], processes=2))
     """)], stdout=subprocess.PIPE, text=True, env=dict(os.environ, PYTHONPATH=str(ROOT)))
