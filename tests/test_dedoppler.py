@@ -138,7 +138,7 @@ def test_steered_line_powers_match_numpy_reference():
     band_gain = rng.uniform(0.8, 1.2, (n_s, n_p, n_m))
     f = 400.0 * (1 + np.arange(n_s))[:, None] + 4.0 * np.arange(n_f)
     gain = rng.uniform(0.8, 1.2, (n_s, n_f, n_m)) * np.exp(1j * rng.uniform(0, 6, (n_s, n_f, n_m)))
-    u2 = rng.uniform(0.5, 1.0, (n_s, n_m, n_f))
+    u2 = rng.uniform(0.5, 1.0, (n_s, n_f, n_m))
     beam, auto = np.ones((n_s, n_p, n_f)), np.ones((n_s, n_p, n_f))
     no_image = np.zeros((n_s, 0, n_f, n_m), complex)
     _kernels.steered_line_powers(amp_g, rx_g, amp_s, rx_s, doppler, band_gain, f, gain,
@@ -148,7 +148,8 @@ def test_steered_line_powers_match_numpy_reference():
     out = np.empty((n_s, n_p, n_f))
     _kernels.line_beam_powers(ratio, advance, f, gain, out)
     np.testing.assert_allclose(beam, 1 + 0.25 * out, rtol=1e-10)
-    np.testing.assert_allclose(auto, 1 + 0.25 * (ratio ** 2 @ u2), rtol=1e-12)
+    np.testing.assert_allclose(auto, 1 + 0.25 * np.einsum("spm,sfm->spf", ratio ** 2, u2),
+                               rtol=1e-12)
 
     image = 0.8 * np.exp(1j * rng.uniform(0, 6, (n_s, 2, n_f, n_m))) * gain[:, None]
     beam[:] = 1.0

@@ -360,7 +360,7 @@ def steered_line_powers(amp_g, rx_g, amp_s, rx_s, doppler_s, band_gain, frequenc
     of the steering model, added with ``weight`` to ``beam`` and ``auto`` (n_sets, n_points,
     n_lines): :func:`line_beam_powers` with ``ratio = amp_g / amp_s * band_gain`` and
     ``advance = (rx_g - rx_s) / doppler_s`` formed per point, and the autopowers
-    ``sum_m ratio^2 u2[s, m, k]``.
+    ``sum_m ratio^2 u2[s, k, m]``.
 
     Over raised microphones the line also reaches microphone m by the ground, as a copy of
     gain ``z_m`` whose delay sweeps over the window (window mean ``W_m`` of the sweep): with
@@ -381,8 +381,9 @@ def steered_line_powers(amp_g, rx_g, amp_s, rx_s, doppler_s, band_gain, frequenc
         As for :func:`line_beam_powers`.
     image_gain : complex128 array (n_sets, 2, n_lines, n_mics), or (n_sets, 0, n_lines, n_mics)
         The reflection's gains of raised microphones; none in free field and over ground plates.
-    u2 : float64 array (n_sets, n_mics, n_lines)
-        The squared line gains (the expected autopowers' per line and microphone).
+    u2 : float64 array (n_sets, n_lines, n_mics)
+        The squared line gains (the expected autopowers' per line and microphone), microphones
+        last: the autopowers' sums run along them (1.4x the whole kernel against lines last).
     weight : float
     beam, auto : float64 arrays (n_sets, n_points, n_lines)
         Added to in place.
@@ -405,7 +406,7 @@ def steered_line_powers(amp_g, rx_g, amp_s, rx_s, doppler_s, band_gain, frequenc
             for k in range(n_f):
                 acc = 0.0
                 for m in range(n_m):
-                    acc += ratio[m] * ratio[m] * u2[s, m, k]
+                    acc += ratio[m] * ratio[m] * u2[s, k, m]
                 auto[s, p, k] += weight * acc
 
 

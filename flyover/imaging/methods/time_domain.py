@@ -149,7 +149,7 @@ def modelled_point_spread(body_m, points, context: WindowContext, *,
     beam = np.zeros((len(bands), n_p, MODEL_LINES_PER_BAND))
     auto = np.zeros_like(beam)
     band_gain = np.ascontiguousarray(gain.transpose(2, 0, 1) * wt)        # (n_b, n_p, n_m)
-    u2 = np.ascontiguousarray(u2)
+    u2 = np.ascontiguousarray(u2.transpose(0, 2, 1))                 # (n_b, n_f, n_m)
     doppler = np.ascontiguousarray(source.doppler_center, float)
     for weight, (rx_g, amp_g), (rx_s, amp_s) in zip(taper, at_g, at_s):
         # The source as each point's steering sees it: amplitude ratio and time advance (a
