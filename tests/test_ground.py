@@ -414,3 +414,31 @@ def test_raised_chains_keep_every_microphones_full_rate_maps(ground):
         assert_same_maps(window_band_powers(span, ctx.first_frame, ctx.geometry, clock, w, st,
                                             ATM), ref, points, (front, rear))
     assert reductions == {2}
+
+
+@pytest.mark.parametrize("raised", [False, True])
+def test_unit_sources_modelled_together_are_each_one_alone(raised):
+    # The shift test's unit sources go through the steering model together (one geometry, one
+    # kernel call per instant with every source's bands as sets): each one's maps must be the
+    # ones it gets alone, bit for bit, over raised microphones and in free field.
+    from flyover.imaging.methods.time_domain import modelled_point_spreads
+    track, mics, images = raised_array()
+    clock = ArrayClock.of_recorders([RecordingClock(0, 0.0, CHAIN_FS)], np.zeros(len(mics), int))
+    pts = VehicleGrid((-2.6, 2.6), (-1.2, 1.2), 0.2).points_m()
+    bands = third_octave_bands(400, 1600)
+    st = ChainSettings(bands, np.ones(len(mics)), 1.0,
+                       image_mic_enu_m=images if raised else None,
+                       ground=GroundSurface("soft", 200e3) if raised else None)
+    w = plan_windows(track, mics.mean(0), (0.4, 3.6), 0.5, 0.5, CHAIN_FS,
+                     max_polar_offset_deg=30)[1]
+    ctx = window_context(w, track=track, clock=clock, atmosphere=ATM, mic_enu_m=mics,
+                         grid_points_m=pts, settings=st)
+    some = np.arange(0, len(pts), 3)
+    rng = np.random.default_rng(3)
+    bodies = np.array([1.1, 0.3, 0.0]) + rng.uniform(-0.4, 0.4, (4, len(bands), 3)) * [1, 1, 0]
+    together = modelled_point_spreads(bodies, some, ctx)
+    for body, psf in zip(bodies, together):
+        alone = modelled_point_spread(body, some, ctx)
+        assert np.array_equal(psf.maps.full, alone.maps.full)
+        assert np.array_equal(psf.maps.diagonal_removed, alone.maps.diagonal_removed)
+        assert np.array_equal(psf.source_power_pa2, alone.source_power_pa2)

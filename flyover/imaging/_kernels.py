@@ -376,7 +376,9 @@ def steered_line_powers(amp_g, rx_g, amp_s, rx_s, doppler_s, band_gain, frequenc
         The grid points' amplitude factors and reception times (s).
     amp_s, rx_s, doppler_s : float64 arrays (n_sets, n_mics)
         The source's, and its dt/dtau.
-    band_gain : float64 array (n_sets, n_points, n_mics)
+    band_gain : float64 array (n_bands, n_points, n_mics)
+        Of the grid points; set s takes row ``s % n_bands`` (the sets of several sources, each
+        one set per band, follow one another).
     frequency_hz, line_gain
         As for :func:`line_beam_powers`.
     image_gain : complex128 array (n_sets, 2, n_lines, n_mics), or (n_sets, 0, n_lines, n_mics)
@@ -388,7 +390,8 @@ def steered_line_powers(amp_g, rx_g, amp_s, rx_s, doppler_s, band_gain, frequenc
     beam, auto : float64 arrays (n_sets, n_points, n_lines)
         Added to in place.
     """
-    n_s, n_p, n_m = band_gain.shape
+    n_s = amp_s.shape[0]
+    n_bands, n_p, n_m = band_gain.shape
     n_f = frequency_hz.shape[1]
     n_items = n_s * n_p
     for task in numba.prange((n_items + _ITEMS_PER_TASK - 1) // _ITEMS_PER_TASK):
@@ -398,8 +401,9 @@ def steered_line_powers(amp_g, rx_g, amp_s, rx_s, doppler_s, band_gain, frequenc
         for sp in range(task * _ITEMS_PER_TASK, min(n_items, (task + 1) * _ITEMS_PER_TASK)):
             s = sp // n_p
             p = sp % n_p
+            b = s % n_bands
             for m in range(n_m):
-                ratio[m] = amp_g[p, m] / amp_s[s, m] * band_gain[s, p, m]
+                ratio[m] = amp_g[p, m] / amp_s[s, m] * band_gain[b, p, m]
                 advance[m] = (rx_g[p, m] - rx_s[s, m]) / doppler_s[s, m]
             _unit_line_powers(ratio, advance, frequency_hz[s], line_gain[s], image_gain[s],
                               work, beam[s, p], weight, True)

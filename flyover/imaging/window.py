@@ -140,6 +140,11 @@ class ImagingMethod:
     raised_microphones : bool
         Whether it models the ground reflection of raised microphones (the campaign file is
         refused otherwise).
+    point_spreads : callable or None
+        ``point_spreads(bodies_m, points, context, seeds) -> list of PointSpread``: several
+        unit sources at once (``bodies_m`` (n_sources, n_bands, 3)), each as
+        ``point_spread`` gives it, where the method can share their work (see
+        :meth:`spreads`).
     """
 
     name: str
@@ -148,6 +153,14 @@ class ImagingMethod:
     point_spread: Callable[[np.ndarray, np.ndarray, WindowContext, int], PointSpread]
     spectrum_samples: Callable[[int, ChainSettings], int] | None = None
     raised_microphones: bool = False
+    point_spreads: Callable[..., list[PointSpread]] | None = None
+
+    def spreads(self, bodies_m, points, context: WindowContext, seeds) -> list[PointSpread]:
+        """Unit sources at ``bodies_m`` (n_sources, n_bands, 3): by ``point_spreads`` where
+        the method has it, else one ``point_spread`` after another."""
+        if self.point_spreads is not None:
+            return self.point_spreads(bodies_m, points, context, seeds)
+        return [self.point_spread(b, points, context, k) for b, k in zip(bodies_m, seeds)]
 
 
 @dataclass(frozen=True)
@@ -263,19 +276,22 @@ def _image_window(signals_pa, context: WindowContext, *, method: ImagingMethod, 
     evaluate = np.unique(np.concatenate(masks + [np.array(middles, int)]))
     where = [np.searchsorted(evaluate, m) for m in masks]
 
-    def column(j, body):
-        """Region sums of a unit source at ``body`` per unit power (n_b, n_r), and its spread."""
-        psf = method.point_spread(body, evaluate, context, 7919 * (context.window.index + 1) + j)
+    def seed(j):
+        return 7919 * (context.window.index + 1) + j
+
+    def column(psf):
+        """Region sums of a unit source's maps per unit power (n_b, n_r)."""
         m = psf.maps.diagonal_removed if use_removed else psf.maps.full
         return np.stack([m[k].sum(axis=0) for k in where], axis=-1) / psf.source_power_pa2[
-            :, None], psf
+            :, None]
 
     # coupling[b, i, j]: region i's summed map of the unit source at region j's centre, per unit
     # power (see flyover.imaging.integration.region_powers).
     coupling = np.empty((n_b, n_r, n_r))
     units, psf_sums, residual_psf, lobes = {}, {}, {}, []
     for j, name in enumerate(names):
-        coupling[:, :, j], psf = column(j, regions[name].center_m)
+        psf = method.point_spread(regions[name].center_m, evaluate, context, seed(j))
+        coupling[:, :, j] = column(psf)
         psf_maps = psf.maps.diagonal_removed if use_removed else psf.maps.full
         units[name] = psf.source_power_pa2
         psf_sums[name] = psf_maps[where[j]].sum(axis=0)
@@ -308,7 +324,8 @@ def _image_window(signals_pa, context: WindowContext, *, method: ImagingMethod, 
 
     map_sums, residuals, measured, solved, total = integrate(bp)
     wavelength = context.atmosphere.c_m_s / context.settings.bands.center_hz
-    shifted, tested = [], []
+    # The shift test's unit sources (a position per band each), all modelled at once.
+    moves, tested = [], []
     for j, name in enumerate(names):
         extent = np.abs(np.diff([regions[name].x_m, regions[name].y_m], axis=1)[:, 0])
         own, reach = shift_distances_m(pts[masks[j]] - centres[j], lobes[j][where[j]],
@@ -318,10 +335,15 @@ def _image_window(signals_pa, context: WindowContext, *, method: ImagingMethod, 
             tests = ([(near, alone), (far, ~alone)] if np.any(far > near) else
                      [(near, np.ones(n_r, bool))])
             for d, which in tests:
-                moved = coupling.copy()
-                moved[:, :, j] = column(j, centres[j] + np.outer(d, direction))[0]
-                shifted.append(moved)
+                moves.append((j, centres[j] + np.outer(d, direction)))
                 tested.append(which)
+    spreads = method.spreads(np.array([body for _, body in moves]).reshape(-1, n_b, 3),
+                             evaluate, context, [seed(j) for j, _ in moves]) if moves else []
+    shifted = []
+    for (j, _), psf in zip(moves, spreads):
+        moved = coupling.copy()
+        moved[:, :, j] = column(psf)
+        shifted.append(moved)
     # The shifts move the solve alone; a deconvolving method's residual part stays.
     parts = np.stack([residuals.get(n, np.zeros(n_b)) for n in names], axis=-1)
     changes = shift_changes_db(shifted, measured, solved - parts, parts, tested=tested)

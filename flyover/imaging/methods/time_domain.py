@@ -51,6 +51,12 @@ def point_spread(body_m, points, context: WindowContext, seed: int) -> PointSpre
         body, points, context, reflection=False).maps)
 
 
+def point_spreads(bodies_m, points, context: WindowContext, seeds) -> list[PointSpread]:
+    """Unit point sources at ``bodies_m`` (n_sources, n_bands, 3) mapped on ``points``, all
+    from one evaluation of the steering model (:func:`modelled_point_spreads`)."""
+    return modelled_point_spreads(bodies_m, points, context)
+
+
 def modelled_point_spread(body_m, points, context: WindowContext, *,
                           reflection: bool = True) -> PointSpread:
     """The chain's maps of a unit point source from its steering, without simulating it.
@@ -88,9 +94,21 @@ def modelled_point_spread(body_m, points, context: WindowContext, *,
     PointSpread
         Maps (len(points), n_bands); the source power per band is its number of lines.
     """
+    bodies = np.broadcast_to(np.asarray(body_m, float), (len(context.settings.bands), 3))
+    return modelled_point_spreads(bodies[None], points, context, reflection=reflection)[0]
+
+
+def modelled_point_spreads(bodies_m, points, context: WindowContext, *,
+                           reflection: bool = True) -> list[PointSpread]:
+    """:func:`modelled_point_spread` of several sources, ``bodies_m`` (n_sources, n_bands, 3)
+    (a position per band for each), in one pass: their paths in one geometry, their lines as
+    sets of one kernel call per instant. Each source's maps are the ones it gets alone, bit
+    for bit (every set is computed on its own)."""
     w, s = context.window, context.settings
     bands = s.bands
-    bodies = np.broadcast_to(np.asarray(body_m, float), (len(bands), 3))
+    n_b = len(bands)
+    bodies = np.asarray(bodies_m, float).reshape(-1, 3)                  # (n_src * n_b, 3)
+    n_src = len(bodies) // n_b
     weights = np.asarray(s.weights, float)
     used = np.flatnonzero(weights > 0)
     wt = weights[used]
@@ -110,9 +128,9 @@ def modelled_point_spread(body_m, points, context: WindowContext, *,
     # standing for its share of the band's lines; bands with fewer lines are padded by
     # continuing their progression with no gain, so that all bands go through at once.
     spacing_hz = w.sample_rate_hz / w.n_samples
-    lines = np.zeros(len(bands))
-    f = np.empty((len(bands), MODEL_LINES_PER_BAND))
-    modelled = np.zeros((len(bands), MODEL_LINES_PER_BAND), bool)
+    lines = np.zeros(n_b)
+    f = np.empty((n_b, MODEL_LINES_PER_BAND))
+    modelled = np.zeros((n_b, MODEL_LINES_PER_BAND), bool)
     for b, sl in enumerate(band_bins(bands, w.n_samples, w.sample_rate_hz)):
         n_lines = max(sl.stop - sl.start, 0)
         n_model = min(n_lines, MODEL_LINES_PER_BAND)
@@ -125,47 +143,51 @@ def modelled_point_spread(body_m, points, context: WindowContext, *,
     at_g, gain, ground = context.derived(("modelled grid", np.asarray(points).tobytes()),
                                          lambda: _grid_model(context, points, used, instants,
                                                              f))
-    at_s = [values_at(source, t) for t in instants]               # (n_b, n_m) each
-    u = interpolation_response(f[:, None, :] / source.doppler_center[:, :, None],
-                               w.sample_rate_hz, s.interpolation)         # (n_b, n_m, n_f)
+    # The sets of the kernel: every source's bands, source after source.
+    f_sets = np.tile(f, (n_src, 1))
+    at_s = [values_at(source, t) for t in instants]               # (n_sets, n_m) each
+    u = interpolation_response(f_sets[:, None, :] / source.doppler_center[:, :, None],
+                               w.sample_rate_hz, s.interpolation)         # (n_sets, n_m, n_f)
     if s.absorption:
         alpha = context.atmosphere.absorption_db_per_m(
-            f[:, None, :] / (1.0 - source.mach_r_center[:, :, None]))
+            f_sets[:, None, :] / (1.0 - source.mach_r_center[:, :, None]))
         u = u * 10.0 ** (-alpha * source.distance_center_m[:, :, None] / 20.0)
-    u = u * modelled[:, None, :]
-    line_gain = np.ascontiguousarray(u.transpose(0, 2, 1), complex)       # (n_b, n_f, n_m)
+    u = u * np.tile(modelled, (n_src, 1))[:, None, :]
+    line_gain = np.ascontiguousarray(u.transpose(0, 2, 1), complex)       # (n_sets, n_f, n_m)
     u2 = np.abs(u) ** 2
     if source.image is None:
-        image_gain = np.zeros((len(bands), 0) + line_gain.shape[1:], complex)
+        image_gain = np.zeros((len(u), 0) + line_gain.shape[1:], complex)
     else:
         # Raised microphones: the source's lines also arrive by the ground (its own image
         # paths), the expected powers of the two paths together (steered_line_powers).
-        z, sweep = image_line_gains(source.image, f, w.n_samples / w.sample_rate_hz,
-                                    context.atmosphere.c_m_s, s.ground)  # (n_b, n_m, n_f)
+        z, sweep = image_line_gains(source.image, f_sets, w.n_samples / w.sample_rate_hz,
+                                    context.atmosphere.c_m_s, s.ground)  # (n_sets, n_m, n_f)
         image_gain = np.ascontiguousarray(
             np.stack([u * z * sweep, u * z], axis=1).transpose(0, 1, 3, 2))
         u2 = u2 * (1.0 + 2.0 * (z * sweep).real + np.abs(z) ** 2)
     n_p = len(at_g[0][0])
-    beam = np.zeros((len(bands), n_p, MODEL_LINES_PER_BAND))
+    beam = np.zeros((len(u), n_p, MODEL_LINES_PER_BAND))
     auto = np.zeros_like(beam)
-    band_gain = np.ascontiguousarray(gain.transpose(2, 0, 1) * wt)        # (n_b, n_p, n_m)
-    u2 = np.ascontiguousarray(u2.transpose(0, 2, 1))                 # (n_b, n_f, n_m)
+    band_gain = context.derived(("modelled band gains", np.asarray(points).tobytes()),
+                                lambda: np.ascontiguousarray(gain.transpose(2, 0, 1) * wt))
+    u2 = np.ascontiguousarray(u2.transpose(0, 2, 1))                 # (n_sets, n_f, n_m)
     doppler = np.ascontiguousarray(source.doppler_center, float)
     for weight, (rx_g, amp_g), (rx_s, amp_s) in zip(taper, at_g, at_s):
         # The source as each point's steering sees it: amplitude ratio and time advance (a
         # reception-time difference is an emission-time difference over dt/dtau).
         _kernels.steered_line_powers(*(np.ascontiguousarray(a, float) for a in (
-            amp_g, rx_g, amp_s, rx_s)), doppler, band_gain, f, line_gain, image_gain, u2,
+            amp_g, rx_g, amp_s, rx_s)), doppler, band_gain, f_sets, line_gain, image_gain, u2,
             float(weight), beam, auto)
-    share = np.divide(lines, modelled.sum(axis=1), out=np.zeros(len(bands)),
+    share = np.divide(lines, modelled.sum(axis=1), out=np.zeros(n_b),
                       where=modelled.any(axis=1))
-    full, removed = beam, beam - auto
+    beam = beam.reshape(n_src, n_b, n_p, MODEL_LINES_PER_BAND)
+    full, removed = beam, beam - auto.reshape(beam.shape)
     if source.image is not None:
         # The chain divides each line of a map by the ground's expected gain at its point.
         full, removed = full / ground[0], removed / ground[1]
-    full = (share[:, None] * full.sum(axis=2) / s1 ** 2).T
-    removed = (share[:, None] * removed.sum(axis=2) / (s1 ** 2 - s2)).T
-    return PointSpread(BandPowers(full, removed), lines)
+    full = share[:, None] * full.sum(axis=3) / s1 ** 2                  # (n_src, n_b, n_p)
+    removed = share[:, None] * removed.sum(axis=3) / (s1 ** 2 - s2)
+    return [PointSpread(BandPowers(full[k].T, removed[k].T), lines) for k in range(n_src)]
 
 
 def _grid_model(context: WindowContext, points, used, instants, frequency_hz):
@@ -214,4 +236,4 @@ def simulated_point_spread(body_m, points, context: WindowContext, seed: int) ->
 
 register(ImagingMethod("time-domain", "delay-and-sum of de-Dopplerized signals per grid point, "
                        "band powers in source time", band_maps, point_spread,
-                       raised_microphones=True))
+                       raised_microphones=True, point_spreads=point_spreads))
