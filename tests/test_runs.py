@@ -256,3 +256,20 @@ def test_windows_at_once_fit_the_memory(tiny_copy, monkeypatch):
     assert _resources.windows_at_once(campaign, inputs, 4) == 2
     monkeypatch.setattr(_resources, "_memory_bytes", lambda: 1.5 * need)
     assert _resources.windows_at_once(campaign, inputs, 4) == 1
+
+
+def test_reading_the_workflow_leaves_pyplot_for_the_first_figure():
+    # Snakemake's reading of the Snakefile imports every step (for its reads and settings):
+    # matplotlib.pyplot (0.3 s) waits for the first figure a step draws.
+    import subprocess
+    import sys
+    code = ("import sys\n"
+            "from flyover.pipeline import stages\n"
+            "from flyover.workflow import plan\n"
+            "assert stages('pass') and stages('campaign')\n"
+            "print('matplotlib.pyplot' in sys.modules)\n"
+            "from flyover.io.figures import pyplot\n"
+            "print(pyplot().get_backend().lower())")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         check=True).stdout.split()
+    assert out == ["False", "agg"]

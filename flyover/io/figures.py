@@ -5,15 +5,27 @@ from __future__ import annotations
 
 import functools
 
-import matplotlib
+import numpy as np
 
-matplotlib.use("Agg")
-import matplotlib.pyplot as plt  # noqa: E402
-import numpy as np  # noqa: E402
+from flyover.acoustics.uncertainty import Z90
+from flyover.io.atomic import atomic_path
+from flyover.model.constants import P0_PA
 
-from flyover.acoustics.uncertainty import Z90  # noqa: E402
-from flyover.io.atomic import atomic_path  # noqa: E402
-from flyover.model.constants import P0_PA  # noqa: E402
+# matplotlib.pyplot, imported at the first figure (pyplot()): 0.3 s that Snakemake's reading of
+# the workflow (which imports every step for its reads) and steps without figures do not need.
+# The warm process imports it once for every step's fork.
+plt = None
+
+
+def pyplot():
+    """matplotlib.pyplot on the Agg backend (no display), imported at the first call."""
+    global plt
+    if plt is None:
+        import matplotlib
+        matplotlib.use("Agg")
+        import matplotlib.pyplot
+        plt = matplotlib.pyplot
+    return plt
 
 INK = "#2b3440"
 ARRAY = "#d08a1f"
@@ -37,7 +49,7 @@ def _styled(make):
     """Draw a figure under flyover's style."""
     @functools.wraps(make)
     def wrapper(*args, **kwargs):
-        with plt.rc_context(_STYLE):
+        with pyplot().rc_context(_STYLE):
             return make(*args, **kwargs)
     return wrapper
 
@@ -61,7 +73,7 @@ def save_figure(fig, path, dpi: int = 110) -> None:
     """Save a figure atomically as PNG and close it."""
     with atomic_path(path) as tmp:
         fig.savefig(tmp, dpi=dpi, format="png", bbox_inches="tight")
-    plt.close(fig)
+    pyplot().close(fig)
 
 
 @_styled

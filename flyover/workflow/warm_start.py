@@ -111,10 +111,12 @@ def serve(path: str, watched_pid: int, log_path: str) -> None:
     import flyover.cli  # noqa: F401  (the command line the forks run)
     from flyover.geometry.attitude import load_compiled
     from flyover.imaging.methods import methods
+    from flyover.io.figures import pyplot
     from flyover.io.readers import KINDS, readers
     from flyover.pipeline import stages
     for scope in ("pass", "campaign"):
         stages(scope)                  # imports each step's module
+    pyplot()                           # which the steps' figures import at their first
     # The registries import their modules at the first look-up: here once, not in every fork.
     methods()
     readers(KINDS[0])
