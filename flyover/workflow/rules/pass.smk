@@ -6,6 +6,11 @@
 # and puts it back if the step fails, so a failed run never loses a good result (the stages
 # write every file atomically). Each rule's params are the values of the campaign that its
 # stage reads (declared in the stage module, enforced when it runs) and a digest of flyover.
+#
+# Priorities (higher first among the jobs ready to run): the image step, the longest, then the
+# chain that follows it, levels -> tones -> narrowband -> page, with the track check beside
+# tones. Short steps that nothing waits on (qc, listen, metrics) fill the cores around them:
+# an outside-sized pass's steps after imaging took 8.2 s with levels waiting for qc and listen.
 
 
 rule align:
@@ -42,6 +47,7 @@ rule image:
     benchmark:
         f"{OUTP}/benchmarks/{{pass_name}}/image.tsv"
     threads: PLAN.image_threads(workflow.cores, local=workflow.local_exec)
+    priority: 5
     resources:
         mem_mb=lambda w, threads: PLAN.memory_mb(w.pass_name, "image", threads=threads),
         runtime=lambda w: PLAN.runtime_min(w.pass_name, "image"),
@@ -64,6 +70,7 @@ rule levels:
         f"{OUTP}/benchmarks/{{pass_name}}/levels.tsv"
     group:
         "pass_light"
+    priority: 4
     resources:
         mem_mb=lambda w: PLAN.memory_mb(w.pass_name, "levels"),
         runtime=lambda w: PLAN.runtime_min(w.pass_name, "levels"),
@@ -86,6 +93,7 @@ rule trackcheck:
         f"{OUTP}/benchmarks/{{pass_name}}/trackcheck.tsv"
     group:
         "pass_light"
+    priority: 2
     resources:
         mem_mb=lambda w: PLAN.memory_mb(w.pass_name, "trackcheck"),
         runtime=lambda w: PLAN.runtime_min(w.pass_name, "trackcheck"),
@@ -132,6 +140,7 @@ rule tones:
         f"{OUTP}/benchmarks/{{pass_name}}/tones.tsv"
     group:
         "pass_light"
+    priority: 3
     resources:
         mem_mb=lambda w: PLAN.memory_mb(w.pass_name, "tones"),
         runtime=lambda w: PLAN.runtime_min(w.pass_name, "tones"),
@@ -155,6 +164,7 @@ rule narrowband:
         f"{OUTP}/benchmarks/{{pass_name}}/narrowband.tsv"
     group:
         "pass_light"
+    priority: 2
     resources:
         mem_mb=lambda w: PLAN.memory_mb(w.pass_name, "narrowband"),
         runtime=lambda w: PLAN.runtime_min(w.pass_name, "narrowband"),
@@ -223,6 +233,7 @@ rule page:
         f"{OUTP}/benchmarks/{{pass_name}}/page.tsv"
     group:
         "pass_light"
+    priority: 1
     resources:
         mem_mb=lambda w: PLAN.memory_mb(w.pass_name, "page"),
         runtime=lambda w: PLAN.runtime_min(w.pass_name, "page"),
