@@ -97,6 +97,24 @@ def test_the_warm_process_ends_with_its_snakemake(tmp_path, monkeypatch):
     _wait_listening(path)
     snakemake.wait()
     assert server.wait(timeout=30) == 0
+    # It served no job (a dry run's): no log written, its socket gone, the folder it was
+    # given kept (only a folder of WarmProcess's own making goes with it).
+    assert not (tmp_path / "log").exists() and not os.path.exists(path) and tmp_path.is_dir()
+
+
+def test_a_warm_process_launched_early_serves_from_the_first_job(tmp_path, monkeypatch):
+    # The Snakefile launches it while Snakemake reads the workflow; onstart then waits for it.
+    # Launched and stopped without a job, it leaves no log and no folder of its own behind.
+    monkeypatch.delenv(SWITCH_ENV, raising=False)
+    monkeypatch.delenv(SOCKET_ENV, raising=False)
+    process = WarmProcess()
+    process.launch(tmp_path / "logs", max_threads=1)
+    folder = process._folder
+    assert os.path.isdir(folder) and not (tmp_path / "logs").exists()
+    assert process.start(tmp_path / "logs", max_threads=1)
+    assert _listening(os.environ[SOCKET_ENV])
+    process.stop()
+    assert not os.path.exists(folder) and SOCKET_ENV not in os.environ
 
 
 def test_a_long_temporary_folder_or_no_log_folder(tmp_path, monkeypatch):

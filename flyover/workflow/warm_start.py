@@ -36,6 +36,9 @@ SERVED_COMMANDS = ("stage", "stage-campaign")
 _STATUS = struct.Struct("!i")
 _NOT_SERVED = -1000                  # the fork declined (another interpreter): run cold
 _POLL_S = 1.0                        # how often the server checks that Snakemake still runs
+LOG_FILE = "warm-start.log"          # in the run's logs: a line per job served
+OUTPUT_FILE = "output.txt"           # the warm process's own output, in its socket's folder
+_FOLDER_PREFIX = "flyover-warm-"     # that folder's, made by WarmProcess
 
 
 def available() -> bool:
@@ -133,7 +136,6 @@ def serve(path: str, watched_pid: int, log_path: str) -> None:
     signal.signal(signal.SIGTERM, lambda *_: os._exit(0))
     signal.signal(signal.SIGINT, lambda *_: os._exit(0))
     signal.signal(signal.SIGCHLD, signal.SIG_IGN)      # forks are reaped by the system
-    log = open(log_path, "a", buffering=1)
     try:
         while _alive(watched_pid):
             try:
@@ -144,11 +146,24 @@ def serve(path: str, watched_pid: int, log_path: str) -> None:
             sys.stderr.flush()
             if os.fork() == 0:
                 listener.close()
-                _serve_one(conn, log)            # never returns
+                _serve_one(conn, log_path)       # never returns
             conn.close()
     finally:
         listener.close()
-        log.close()
+        # Its socket, and the folder WarmProcess made for it: a dry run's Snakemake ends
+        # without stopping it.
+        folder = os.path.dirname(path)
+        ours = os.path.basename(folder).startswith(_FOLDER_PREFIX)
+        for leftover in [path] + ([os.path.join(folder, OUTPUT_FILE)] if ours else []):
+            try:
+                os.unlink(leftover)
+            except OSError:
+                pass
+        if ours:
+            try:
+                os.rmdir(folder)
+            except OSError:
+                pass
 
 
 def _alive(pid: int) -> bool:
@@ -161,7 +176,7 @@ def _alive(pid: int) -> bool:
     return True
 
 
-def _serve_one(conn, log) -> None:
+def _serve_one(conn, log_path: str) -> None:
     """In the fork: take over the job's streams, folder and environment, run the command, send
     its exit status, exit."""
     import signal
@@ -205,8 +220,14 @@ def _serve_one(conn, log) -> None:
             except (OSError, ValueError):
                 pass
         if status != _NOT_SERVED:
-            log.write(f"{time.strftime('%Y-%m-%dT%H:%M:%S')} status {status} "
-                      f"{time.perf_counter() - started:.2f} s  {' '.join(argv)}\n")
+            # Opened here, by the job's fork: a warm process that served no job (a dry run's)
+            # leaves no log.
+            try:
+                with open(log_path, "a") as log:
+                    log.write(f"{time.strftime('%Y-%m-%dT%H:%M:%S')} status {status} "
+                              f"{time.perf_counter() - started:.2f} s  {' '.join(argv)}\n")
+            except OSError:
+                pass
         try:
             conn.sendall(_STATUS.pack(status))
         finally:
@@ -256,50 +277,78 @@ class WarmProcess:
     def __init__(self):
         self._process = None
         self._folder = None
+        self._path = None
+        self._log_folder = None
+
+    def launch(self, log_folder, *, max_threads: int) -> None:
+        """Start the warm process without waiting for it (a no-op where :func:`available` is
+        False, or when it runs): the Snakefile calls it while Snakemake reads the workflow, so
+        that it imports while Snakemake plans the jobs (1.2 s of imports; the outside pass's
+        workflow started its first job 2.2 s after Snakemake). It writes nothing in
+        ``log_folder`` before its first job."""
+        if not available() or self._process is not None:
+            return
+        self._log_folder = log_folder
+        try:
+            self._path = self._launch(log_folder, max_threads)
+        except OSError:           # no folder for the socket: the jobs run cold
+            self.stop()
 
     def start(self, log_folder, *, max_threads: int, wait_s: float = 60.0) -> bool:
-        """Start serving (a no-op where :func:`available` is False) and wait until it listens,
-        so that the first jobs are served too; False if it did not come up (the jobs run cold,
-        its log says why). The jobs find it through :data:`SOCKET_ENV`, set here in
-        Snakemake's own environment, which they inherit."""
-        if not available() or self._process is not None:
+        """Start serving (:meth:`launch`, unless done) and wait until it listens, so that the
+        first jobs are served too; False if it did not come up (the jobs run cold, its log
+        says why). The jobs find it through :data:`SOCKET_ENV`, set here in Snakemake's own
+        environment, which they inherit."""
+        self.launch(log_folder, max_threads=max_threads)
+        if self._process is None:
             return False
         try:
-            path = self._launch(log_folder, max_threads)
-        except OSError:           # no folder for the socket, no log: the jobs run cold
+            os.makedirs(log_folder, exist_ok=True)
+        except OSError:           # no log: the jobs run cold
             self.stop()
             return False
         deadline = time.monotonic() + wait_s
-        while not _listening(path):
+        while not _listening(self._path):
             if self._process.poll() is not None or time.monotonic() > deadline:
-                self.stop()
+                self.stop()                # (its output, why, kept in the log)
                 return False
             time.sleep(0.05)
-        os.environ[SOCKET_ENV] = path
+        os.environ[SOCKET_ENV] = self._path
         return True
+
+    def _keep_output(self, log_folder) -> None:
+        """The warm process's own output, if any (why it did not come up, an error of its
+        own), into the run's log."""
+        try:
+            with open(os.path.join(self._folder, OUTPUT_FILE)) as out:
+                text = out.read()
+            if text:
+                with open(os.path.join(os.fspath(log_folder), LOG_FILE), "a") as log:
+                    log.write(text)
+        except OSError:
+            pass
 
     def _launch(self, log_folder, max_threads: int) -> str:
         """Start the warm process; the socket's path."""
         import subprocess
         import tempfile
-        os.makedirs(log_folder, exist_ok=True)
         # A short folder of its own: a socket's path is limited to about 100 bytes.
-        self._folder = tempfile.mkdtemp(prefix="flyover-warm-")
+        self._folder = tempfile.mkdtemp(prefix=_FOLDER_PREFIX)
         if len(self._folder) > 80:
             os.rmdir(self._folder)
-            self._folder = tempfile.mkdtemp(prefix="flyover-warm-", dir="/tmp")
+            self._folder = tempfile.mkdtemp(prefix=_FOLDER_PREFIX, dir="/tmp")
         path = os.path.join(self._folder, "socket")
         env = dict(os.environ)
         # The steps limit their own BLAS use; numba's pool may grow to the most a job is given.
         env.update(OMP_NUM_THREADS="1", OPENBLAS_NUM_THREADS="1", MKL_NUM_THREADS="1",
                    NUMBA_NUM_THREADS=str(max(1, int(max_threads))))
         env.pop(SOCKET_ENV, None)
-        log_path = os.path.abspath(os.path.join(os.fspath(log_folder), "warm-start.log"))
+        log_path = os.path.abspath(os.path.join(os.fspath(log_folder), LOG_FILE))
         # Started in the socket's folder: a working folder that holds a flyover source tree
         # (a checkout) would otherwise put it before the installed one, and the jobs, which
         # run in the output folder, would find the warm process another flyover's (and run
         # cold).
-        with open(log_path, "a") as log:
+        with open(os.path.join(self._folder, OUTPUT_FILE), "w") as log:
             self._process = subprocess.Popen(
                 [sys.executable, "-m", "flyover.workflow.warm_start", path, str(os.getpid()),
                  log_path], stdin=subprocess.DEVNULL, stdout=log, stderr=log, env=env,
@@ -318,6 +367,8 @@ class WarmProcess:
                 self._process.kill()
             self._process = None
         if self._folder is not None:
+            if self._log_folder is not None and os.path.isdir(self._log_folder):
+                self._keep_output(self._log_folder)
             shutil.rmtree(self._folder, ignore_errors=True)
             self._folder = None
 

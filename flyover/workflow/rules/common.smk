@@ -3,6 +3,7 @@
 import os
 import re
 import sys
+import threading
 from pathlib import Path
 
 from flyover.io.results.maps import FIGURE_FOLDER as MAP_FIGURES
@@ -58,19 +59,38 @@ envvars:
 # imports the steps once and each job's step runs in a fork of it, without the 1-1.5 s of
 # start-up and imports. Jobs on a cluster's nodes, or with it switched off, run cold.
 WARM = WarmProcess()
+# Started now, while Snakemake reads the rest and plans the jobs; onstart waits until it
+# listens. Not for a dry run or a lint (by their command line: Snakemake tells the workflow
+# only later), and Snakemake's jobs on a cluster's nodes read the Snakefile too (not the main
+# process): neither starts one. One started for nothing ends with its Snakemake.
+if workflow.is_main_process and not {"-n", "--dry-run", "--dryrun", "--lint",
+                                     "--unlock"} & set(sys.argv):
+    WARM.launch(Path(OUT) / "logs", max_threads=workflow.cores or 1)
 
 
 onstart:
     if workflow.local_exec:
         WARM.start(Path(OUT) / "logs", max_threads=workflow.cores or 1)
+    else:
+        WARM.stop()
+
+
+def _run_over():
+    """The run is over: stop the warm process, and cancel the re-evaluation timers Snakemake's
+    scheduler leaves behind (non-daemon threads of --max-jobs-per-timespan's timespan, 1 s by
+    default, which the interpreter waits out before it exits: a second of every run)."""
+    WARM.stop()
+    for thread in threading.enumerate():
+        if isinstance(thread, threading.Timer):
+            thread.cancel()
 
 
 onsuccess:
-    WARM.stop()
+    _run_over()
 
 
 onerror:
-    WARM.stop()
+    _run_over()
 
 # With --use-conda every rule runs in this environment (flyover from PyPI).
 CONDA_ENV = str(Path(workflow.current_basedir).parent / "envs" / "flyover.yaml")
