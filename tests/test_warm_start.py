@@ -6,6 +6,7 @@ belongs to."""
 from __future__ import annotations
 
 import os
+import signal
 import subprocess
 import sys
 import time
@@ -153,3 +154,17 @@ def test_the_warm_process_loads_the_attitude_kernel_the_tracks_call():
     track.attitude_deg(1.5)
     track.body_points_enu(np.zeros((1, 3)), np.linspace(-1.0, 1.0, 5)[::2])
     assert loaded and set(slerp_quaternions.signatures) == loaded
+
+
+def test_a_warm_process_stopped_outright_removes_its_folder(tmp_path, monkeypatch):
+    # A Snakemake stopped with its process group (Ctrl-C, a test's timeout) signals the warm
+    # process directly: it still removes its socket and the folder made for it.
+    monkeypatch.delenv(SWITCH_ENV, raising=False)
+    monkeypatch.delenv(SOCKET_ENV, raising=False)
+    process = WarmProcess()
+    assert process.start(tmp_path / "logs", max_threads=1)
+    folder = process._folder
+    process._process.send_signal(signal.SIGTERM)
+    assert process._process.wait(timeout=30) == 0
+    assert not os.path.exists(folder)
+    process.stop()

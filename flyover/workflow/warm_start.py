@@ -133,8 +133,8 @@ def serve(path: str, watched_pid: int, log_path: str) -> None:
     # at once. It holds nothing to clean up (its log is written a line at a time, the workflow
     # removes the socket's folder), and an interpreter's shutdown after every step's imports
     # can take long enough for the workflow to wait out its 10 s and kill it.
-    signal.signal(signal.SIGTERM, lambda *_: os._exit(0))
-    signal.signal(signal.SIGINT, lambda *_: os._exit(0))
+    signal.signal(signal.SIGTERM, lambda *_: (_remove_own_files(path), os._exit(0)))
+    signal.signal(signal.SIGINT, lambda *_: (_remove_own_files(path), os._exit(0)))
     signal.signal(signal.SIGCHLD, signal.SIG_IGN)      # forks are reaped by the system
     try:
         while _alive(watched_pid):
@@ -150,20 +150,23 @@ def serve(path: str, watched_pid: int, log_path: str) -> None:
             conn.close()
     finally:
         listener.close()
-        # Its socket, and the folder WarmProcess made for it: a dry run's Snakemake ends
-        # without stopping it.
-        folder = os.path.dirname(path)
-        ours = os.path.basename(folder).startswith(_FOLDER_PREFIX)
-        for leftover in [path] + ([os.path.join(folder, OUTPUT_FILE)] if ours else []):
-            try:
-                os.unlink(leftover)
-            except OSError:
-                pass
-        if ours:
-            try:
-                os.rmdir(folder)
-            except OSError:
-                pass
+        _remove_own_files(path)
+
+
+def _remove_own_files(path: str) -> None:
+    """The socket, and the folder WarmProcess made for it unless its output holds something
+    to keep (WarmProcess.stop copies it into the run's log): a dry run's Snakemake, or one
+    stopped outright, ends without stopping the warm process."""
+    folder = os.path.dirname(path)
+    output = os.path.join(folder, OUTPUT_FILE)
+    try:
+        os.unlink(path)
+        if os.path.basename(folder).startswith(_FOLDER_PREFIX):
+            if os.path.getsize(output) == 0:
+                os.unlink(output)
+            os.rmdir(folder)
+    except OSError:
+        pass
 
 
 def _alive(pid: int) -> bool:
