@@ -3,7 +3,9 @@
 from __future__ import annotations
 
 import io
+import os
 import sys
+import tempfile
 from dataclasses import replace
 from pathlib import Path
 
@@ -126,28 +128,39 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path, *, threads: int = 1,
         row.update(status="analysed", reason="")
         return row, region_rows, results
 
-    for w, (row, rows_w, results) in zip(windows, forked_map(
-            image_one, windows, processes=at_once, threads_each=each)):
-        rows.append(row)
-        if results is None:
-            progress.step(f"window {w.index} skipped")
-            continue
-        region_rows += rows_w
-        res = results[0]
-        maps_dr.append(res.diagonal_removed.T.reshape(len(bands), nx, ny))
-        maps_full.append(res.full.T.reshape(len(bands), nx, ny))
-        done.append(w)
-        shown = [(pass_name, _shown_maps(res, an), res.verdicts)]
-        if len(methods) > 1 and w.index == _nearest_overhead(windows):
-            shown += [(f"{pass_name} ({m.name})", _shown_maps(other, an), other.verdicts, m.name)
-                      for m, other in zip(methods[1:], results[1:])]
-        drawn[w.index] = (row, shown)
-        progress.step(f"window {w.index} at {w.polar_angle_deg:.0f} deg")
-    progress.close()
-    if not windows:
-        print(f"{pass_name}: {NO_WINDOW}", file=sys.stderr)
-    # The figures' folder exists even when no window could be analysed: the step still succeeded.
-    _draw_maps(out_dir / FIGURE_FOLDER, drawn, done, campaign, bands)
+    # The map figures the pass page will likely show are drawn as their windows come back,
+    # while the workers image the rest, into a folder of their own; moved into place at the
+    # end (a step that fails keeps the last run's figures).
+    likely = set(figure_windows([w.index for w in windows], [w.polar_angle_deg for w in windows]))
+    with tempfile.TemporaryDirectory(dir=out_dir, prefix=".map-figures-") as ready:
+        early = {}          # window -> its figures' names, drawn into ready
+        for w, (row, rows_w, results) in zip(windows, forked_map(
+                image_one, windows, processes=at_once, threads_each=each)):
+            rows.append(row)
+            if results is None:
+                progress.step(f"window {w.index} skipped")
+                continue
+            region_rows += rows_w
+            res = results[0]
+            maps_dr.append(res.diagonal_removed.T.reshape(len(bands), nx, ny))
+            maps_full.append(res.full.T.reshape(len(bands), nx, ny))
+            done.append(w)
+            shown = [(pass_name, _shown_maps(res, an), res.verdicts)]
+            if len(methods) > 1 and w.index == _nearest_overhead(windows):
+                shown += [(f"{pass_name} ({m.name})", _shown_maps(other, an), other.verdicts,
+                           m.name) for m, other in zip(methods[1:], results[1:])]
+            drawn[w.index] = (row, shown)
+            if w.index in likely or len(shown) > 1:
+                early[w.index] = _draw_window(Path(ready), w.index, row, shown, campaign,
+                                              bands)
+            progress.step(f"window {w.index} at {w.polar_angle_deg:.0f} deg")
+        progress.close()
+        if not windows:
+            print(f"{pass_name}: {NO_WINDOW}", file=sys.stderr)
+        # The figures' folder exists even when no window could be analysed: the step still
+        # succeeded.
+        _draw_maps(out_dir / FIGURE_FOLDER, drawn, done, campaign, bands, ready=Path(ready),
+                   early=early)
     WINDOWS.write(out_dir, pd.DataFrame(rows))
     REGION_POWER.write(out_dir, pd.DataFrame(region_rows, columns=REGION_POWER.column_names))
     REGION_ANGLES.write(out_dir, _angle_rows(done, campaign, inputs))
@@ -161,25 +174,37 @@ def run(campaign: Campaign, pass_name: str, out_dir: Path, *, threads: int = 1,
                full=np.array(maps_full, np.float32).reshape(shape))
 
 
-def _draw_maps(folder: Path, drawn: dict, done, campaign, bands) -> None:
+def _draw_maps(folder: Path, drawn: dict, done, campaign, bands, *, ready: Path,
+               early: dict) -> None:
     """The map figures of the windows the pass page shows, and of the other methods at the
-    window nearest overhead; figures of an earlier run that this one did not draw are removed
-    (the folder is the step's output)."""
+    window nearest overhead (those ``early`` holds, drawn into ``ready``, moved in; the others
+    drawn now); figures of an earlier run that this one did not draw are removed (the folder
+    is the step's output)."""
     folder.mkdir(parents=True, exist_ok=True)
-    an = campaign.analysis
     keep = set(figure_windows([w.index for w in done], [w.polar_angle_deg for w in done]))
     keep |= {w for w, (_, shown) in drawn.items() if len(shown) > 1}
     written = set()
     for w in sorted(keep):
-        row, shown = drawn[w]
-        for title, maps, verdicts, *method in shown:
-            fig = map_figure(maps, campaign, bands, title, row, an.map_dynamic_range_db, verdicts)
-            name = window_figure_name(w, *method)
-            save_figure(fig, folder / name)
-            written.add(name)
+        if w in early:
+            for name in early[w]:
+                os.replace(ready / name, folder / name)
+            written.update(early[w])
+        else:
+            written.update(_draw_window(folder, w, *drawn[w], campaign, bands))
     for old in folder.glob("window-*.png"):
         if old.name not in written:
             old.unlink()
+
+
+def _draw_window(folder: Path, window: int, row: dict, shown, campaign, bands) -> list[str]:
+    """A window's map figures (one per method shown) into ``folder``: their names."""
+    names = []
+    for title, maps, verdicts, *method in shown:
+        fig = map_figure(maps, campaign, bands, title, row,
+                         campaign.analysis.map_dynamic_range_db, verdicts)
+        names.append(window_figure_name(window, *method))
+        save_figure(fig, folder / names[-1])
+    return names
 
 
 def _shown_maps(res, analysis) -> np.ndarray:
