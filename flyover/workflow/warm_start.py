@@ -2,8 +2,9 @@
 
 A step's job is a process of its own, and a light step spent half of its 2-3 s starting the
 interpreter and importing numpy, pandas, matplotlib, scipy, pyproj and numba (benchmarks/
-README.md). While Snakemake runs jobs locally, one process (started by the workflow's
-``onstart``, stopped by ``onsuccess``/``onerror``) imports every step once and forks a copy of
+README.md). While Snakemake runs jobs locally, one process (launched while Snakemake reads the
+workflow, waited for in ``onstart``, stopped by ``onsuccess``/``onerror``) imports every step
+once and forks a copy of
 itself per job: the job's command, ``python -m flyover stage ...``, hands its arguments, working
 folder, environment and standard streams over a Unix socket to a fresh fork and exits with the
 fork's exit status. Every fork starts from the same state, with nothing of a campaign loaded,
@@ -274,8 +275,8 @@ def _run(argv: list[str]) -> int:
 # ---- the workflow's side ---------------------------------------------------------------------
 
 class WarmProcess:
-    """The warm process of one Snakemake run: :meth:`start` in ``onstart``, :meth:`stop` in
-    ``onsuccess`` and ``onerror``."""
+    """The warm process of one Snakemake run: :meth:`launch` as the Snakefile is read,
+    :meth:`start` in ``onstart``, :meth:`stop` in ``onsuccess`` and ``onerror``."""
 
     def __init__(self):
         self._process = None
