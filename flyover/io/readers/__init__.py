@@ -32,7 +32,9 @@ class Recording(Protocol):
     format: str
 
     def read(self, start_frame: int, n_frames: int, channels=None) -> np.ndarray:
-        """float32 (n_channels, n_frames) in recorded units; ``channels`` 0-based."""
+        """float32 (n_channels, n_frames) in recorded units; ``channels`` 0-based. The file
+        is opened for each read: the image step's forked workers read at the same time, and a
+        file handle opened before the fork would share its position between them."""
 
 
 @dataclass(frozen=True)
