@@ -62,7 +62,7 @@ def forked_map(func: Callable, items: Sequence, *, processes: int,
     the items one at a time; each runs numba on ``threads_each`` threads. ``func`` and the
     items need not pickle (the workers are forks); the results must. An exception in a worker
     is raised here. Otherwise (one process, or :func:`can_fork` says no) the items run here,
-    one after another.
+    one after another. One loop at a time per process: the workers find it in a module global.
     """
     global _LOOP
     n = min(processes, len(items))
