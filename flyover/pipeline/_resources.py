@@ -27,7 +27,12 @@ def chain_settings(inputs: PassInputs, bands, interpolation: str, *, weights=Non
                          ground=array.ground)
 
 
-def check_memory(campaign: Campaign, inputs: PassInputs, share: float = 0.5) -> None:
+# The share of the machine's memory the windows imaged at a time may take (the rest: the
+# recording's reads, the results, the other jobs).
+MEMORY_SHARE = 0.5
+
+
+def check_memory(campaign: Campaign, inputs: PassInputs, share: float = MEMORY_SHARE) -> None:
     """Refuse a window or grid whose processing would need more than ``share`` of the memory."""
     need, have = _window_need_bytes(campaign, inputs), _memory_bytes()
     if need > share * have:
@@ -43,7 +48,7 @@ def check_memory(campaign: Campaign, inputs: PassInputs, share: float = 0.5) -> 
 
 
 def windows_at_once(campaign: Campaign, inputs: PassInputs, threads: int,
-                    share: float = 0.5) -> int:
+                    share: float = MEMORY_SHARE) -> int:
     """How many windows the image step may image at a time on ``threads``: one per thread, as
     many as fit in ``share`` of the memory (at least one)."""
     fit = int(share * _memory_bytes() // max(_window_need_bytes(campaign, inputs), 1))

@@ -59,18 +59,19 @@ envvars:
 # imports the steps once and each job's step runs in a fork of it, without the 1-1.5 s of
 # start-up and imports. Jobs on a cluster's nodes, or with it switched off, run cold.
 WARM = WarmProcess()
+WARM_LOGS = Path(OUT) / "logs"
 # Started now, while Snakemake reads the rest and plans the jobs; onstart waits until it
 # listens. Not for a dry run or a lint (by their command line: Snakemake tells the workflow
 # only later), and Snakemake's jobs on a cluster's nodes read the Snakefile too (not the main
 # process): neither starts one. One started for nothing ends with its Snakemake.
 if workflow.is_main_process and not {"-n", "--dry-run", "--dryrun", "--lint",
                                      "--unlock"} & set(sys.argv):
-    WARM.launch(Path(OUT) / "logs", max_threads=workflow.cores or 1)
+    WARM.launch(WARM_LOGS, max_threads=workflow.cores or 1)
 
 
 onstart:
     if workflow.local_exec:
-        WARM.start(Path(OUT) / "logs", max_threads=workflow.cores or 1)
+        WARM.start(WARM_LOGS, max_threads=workflow.cores or 1)
     else:
         WARM.stop()
 
